@@ -1,0 +1,96 @@
+#pragma once
+/// \file anomaly.hpp
+/// Long-baseline proper motion and proper-motion anomalies at both catalogue
+/// epochs, with the full covariance from the exact Jacobian (Ceres Jets)
+/// with respect to all ten catalogue parameters and the radial velocity.
+
+#include <Eigen/Core>
+#include <cmath>
+
+#include "heft/catalog.hpp"
+#include "heft/propagate.hpp"
+
+namespace heft {
+
+/// Long-baseline proper motion: the uniform space motion through the early
+/// direction (ra1, dec1) at t1 and the late direction (ra2, dec2) at
+/// t2 = t1 + dt_yr, with the late parallax and the late radial velocity.
+///
+/// Given: ra1_rad, dec1_rad, ra2_rad, dec2_rad (rad); parallax2_mas (mas);
+///        rv_km_s (km/s, at t2); dt_yr > 0 (Julian years).
+/// Returned: pm_late[2] = (mu_alpha*, mu_delta) at t2 and pm_early[2] at t1
+///        (mas/yr), each in the local frame of its own epoch.
+/// Notes:
+/// 1. In units of the distance at t2, the space velocity is
+///    V = mu_r r2 + V_t, and r2 - V dt must point along r1. With
+///    c = r1 . r2 this gives, in closed form,
+///    V_t = (1 - mu_r dt) (r2 - r1 / c) / dt,  mu_r = rv parallax / A.
+/// 2. The early PM then follows from rigorous propagation (propagate.hpp)
+///    of the late state by -dt (ESA 1997, Vol. 1, Sect. 1.5.5).
+template <typename T>
+void long_baseline_pm(const T& ra1_rad, const T& dec1_rad, const T& ra2_rad, const T& dec2_rad,
+                      const T& parallax2_mas, const T& rv_km_s, double dt_yr, T pm_late[2],
+                      T pm_early[2]) {
+  T p1[3], q1[3], r1[3], p2[3], q2[3], r2[3];
+  normal_triad(ra1_rad, dec1_rad, p1, q1, r1);
+  normal_triad(ra2_rad, dec2_rad, p2, q2, r2);
+  const T to_rad = T(1.0 / units::kMasPerRad);
+  const T mur = rv_km_s * parallax2_mas / T(units::kKmsPerAuYr) * to_rad;  // rad/yr
+  const T c = r1[0] * r2[0] + r1[1] * r2[1] + r1[2] * r2[2];
+  const T scale = (T(1.0) - mur * T(dt_yr)) / T(dt_yr);
+  T vt[3];
+  for (int k = 0; k < 3; ++k) vt[k] = scale * (r2[k] - r1[k] / c);
+  pm_late[0] = (p2[0] * vt[0] + p2[1] * vt[1] + p2[2] * vt[2]) / to_rad;
+  pm_late[1] = (q2[0] * vt[0] + q2[1] * vt[1] + q2[2] * vt[2]) / to_rad;
+  const SkyState<T> late{ra2_rad, dec2_rad, parallax2_mas, pm_late[0], pm_late[1], rv_km_s};
+  const SkyState<T> early = propagate(late, -dt_yr);
+  pm_early[0] = early.pmra_mas_yr;
+  pm_early[1] = early.pmdec_mas_yr;
+}
+
+/// Number of input parameters of the anomaly model: early 5, late 5, rv.
+inline constexpr int kAnomalyInputs = 11;
+/// Outputs: pml_late (2), dpm_late (2), dpm_early (2), dvt_late (1).
+inline constexpr int kAnomalyOutputs = 7;
+
+/// The anomaly model as a function of offsets from the catalogue values:
+/// x = (d_alpha*1, d_delta1 [mas], d_parallax1 [mas], d_pmra1, d_pmdec1
+/// [mas/yr], the same five for the late catalogue, d_rv [km/s]).
+/// Output y as listed at kAnomalyOutputs; dvt_late in m/s.
+struct AnomalyModel {
+  AnomalyModel(const Astrometry& early, const Astrometry& late, double rv_km_s);
+
+  template <typename T>
+  void operator()(const T* x, T* y) const;
+
+  double ra1_rad, dec1_rad, ra2_rad, dec2_rad, plx2_mas, rv_km_s, dt_yr;
+  double pm1[2], pm2[2];
+};
+
+/// Everything the screen reports for one star (units in the names).
+struct AnomalyResult {
+  double dt_yr = kAbsent;
+  Eigen::Vector2d pml_late_mas_yr;
+  Eigen::Matrix2d pml_cov;
+  Eigen::Vector2d dpm_late_mas_yr, dpm_early_mas_yr;
+  /// Covariance of (dpm_late ra, dec, dpm_early ra, dec), (mas/yr)^2.
+  Eigen::Matrix4d dpm_cov;
+  double chi2_late = kAbsent, chi2_early = kAbsent, chi2_joint = kAbsent;
+  double sig_late = kAbsent, sig_early = kAbsent, sig_joint = kAbsent;
+  double dvt_late_m_s = kAbsent, dvt_late_error_m_s = kAbsent;
+};
+
+/// Computes the anomaly of a calibrated star.
+/// Given: early, late (calibrated catalogue solutions), rv_km_s and
+///        rv_error_km_s (measured, or assumed with its prior width).
+/// Returned: the result; `ok` false with `why` set when a covariance is
+///        singular (the caller flags the row failed:<why>).
+AnomalyResult compute_anomaly(const Astrometry& early, const Astrometry& late, double rv_km_s,
+                              double rv_error_km_s, bool& ok, std::string& why);
+
+/// Jacobian (kAnomalyOutputs x kAnomalyInputs) of AnomalyModel at x = 0, by
+/// Ceres automatic differentiation; `y` receives the values.
+Eigen::Matrix<double, kAnomalyOutputs, kAnomalyInputs> anomaly_jacobian(
+    const AnomalyModel& model, Eigen::Matrix<double, kAnomalyOutputs, 1>& y);
+
+}  // namespace heft

@@ -1,0 +1,106 @@
+#pragma once
+/// \file catalog.hpp
+/// The canonical star record and the canonical star table (CSV): reading
+/// with validation, and writing.
+///
+/// Units in the table: ra, dec in deg; positions errors, parallax in mas;
+/// proper motions in mas/yr (pmra is mu_alpha* = mu_alpha cos dec); epochs
+/// and windows in decimal Julian years; rv in km/s at the late epoch; mass
+/// in solar masses. `ra_error` is the error of alpha* = alpha cos dec.
+
+#include <Eigen/Core>
+#include <array>
+#include <cmath>
+#include <cstdint>
+#include <iosfwd>
+#include <limits>
+#include <string>
+#include <unordered_set>
+#include <vector>
+
+#include "heft/io.hpp"
+
+namespace heft {
+
+inline constexpr double kAbsent = std::numeric_limits<double>::quiet_NaN();
+inline bool present(double x) { return !std::isnan(x); }
+
+/// The ten correlation names of a 5-parameter solution, in Gaia order.
+inline constexpr std::array<const char*, 10> kCorrNames = {
+    "ra_dec_corr",       "ra_parallax_corr",    "ra_pmra_corr",        "ra_pmdec_corr",
+    "dec_parallax_corr", "dec_pmra_corr",       "dec_pmdec_corr",      "parallax_pmra_corr",
+    "parallax_pmdec_corr", "pmra_pmdec_corr"};
+
+/// One catalogue's 5-parameter astrometric solution of a star.
+struct Astrometry {
+  double epoch_yr = kAbsent;
+  double ra_deg = kAbsent, dec_deg = kAbsent;
+  double parallax_mas = kAbsent;
+  double pmra_mas_yr = kAbsent, pmdec_mas_yr = kAbsent;
+  double ra_error_mas = kAbsent, dec_error_mas = kAbsent, parallax_error_mas = kAbsent;
+  double pmra_error_mas_yr = kAbsent, pmdec_error_mas_yr = kAbsent;
+  /// Correlations in kCorrNames order (0 when absent).
+  std::array<double, 10> corr{};
+  /// Observing window (decimal years).
+  double window_start_yr = kAbsent, window_end_yr = kAbsent;
+
+  /// 5x5 covariance of (alpha* [mas], delta [mas], parallax [mas],
+  /// pmra [mas/yr], pmdec [mas/yr]).
+  Eigen::Matrix<double, 5, 5> covariance() const;
+  /// Replaces errors and correlations by those of covariance `c`.
+  void set_covariance(const Eigen::Matrix<double, 5, 5>& c);
+};
+
+/// The canonical star record: both catalogue solutions and star properties.
+struct StarRecord {
+  std::string id;
+  Astrometry early, late;
+  double mass_msun = kAbsent, mass_error_msun = kAbsent;
+  double rv_km_s = kAbsent, rv_error_km_s = kAbsent;  ///< at the late epoch
+  double mag = kAbsent;
+  double age_myr = kAbsent;
+};
+
+/// Per-catalogue window defaults for rows without window columns.
+struct WindowDefaults {
+  double early_start_yr = 1989.85, early_end_yr = 1993.21;
+  double late_start_yr = 2014.57, late_end_yr = 2017.41;
+};
+
+/// Reads the canonical star table row by row.
+///
+/// Notes:
+/// 1. Structural problems are fatal InputErrors naming file, line, column
+///    and the rule: missing required column, unknown or duplicated column,
+///    a field count that differs from the header, an unparsable number.
+/// 2. Physically invalid rows are returned with a non-empty `bad_reason`
+///    (e.g. "nonpositive_error"), so a batch can flag them and go on.
+class StarTableReader {
+ public:
+  StarTableReader(std::istream& in, std::string name, WindowDefaults windows = {});
+
+  /// Reads the next row; false at end of input. On return `bad_reason` is
+  /// empty for a valid row.
+  bool next(StarRecord& star, std::string& bad_reason);
+  long line() const { return csv_.line(); }
+  /// Data rows read so far.
+  long rows() const { return rows_; }
+
+ private:
+  CsvReader csv_;
+  WindowDefaults windows_;
+  std::vector<int> field_of_column_;  // canonical column index -> field index or -1
+  std::size_t n_fields_ = 0;
+  long rows_ = 0;
+  std::unordered_set<std::uint64_t> seen_ids_;
+};
+
+/// Validates a record; returns "" when valid, else the reason.
+std::string validate_star(const StarRecord& star);
+
+/// Header line (with newline) of the canonical star table as heft writes it.
+std::string star_table_header();
+/// Appends one star as a canonical-table CSV line (with newline).
+void append_star_row(std::string& out, const StarRecord& star);
+
+}  // namespace heft

@@ -1,0 +1,49 @@
+#pragma once
+/// \file screen.hpp
+/// Screening one star: calibration, radial-velocity choice, anomaly, and its
+/// row in the screen table (CSV and JSON).
+
+#include <nlohmann/json.hpp>
+#include <string>
+#include <vector>
+
+#include "heft/anomaly.hpp"
+#include "heft/calibrate.hpp"
+#include "heft/catalog.hpp"
+
+namespace heft {
+
+/// Options of the screen stage (units in the names).
+struct ScreenOptions {
+  EpochCalibration early, late;
+  double assume_rv_km_s = 0.0;   ///< rv of a star without one
+  double rv_sigma_km_s = 30.0;   ///< prior width of that assumed rv
+};
+
+/// One screened star.
+struct ScreenRow {
+  std::string id;
+  /// "ok", "bad_input:<reason>" or "failed:<reason>".
+  std::string status;
+  /// Informational flags (never change the exit code), e.g. "no_rv".
+  std::vector<std::string> notes;
+  AnomalyResult result;
+  bool ok() const { return status == "ok"; }
+};
+
+/// Screens one star. `bad_reason` non-empty marks the row bad_input.
+ScreenRow screen_star(const StarRecord& star, const std::string& bad_reason,
+                      const ScreenOptions& opt);
+
+/// The screen table's column names, in output order.
+const std::vector<std::string>& screen_columns();
+/// Header line of the screen table (with newline).
+std::string screen_header();
+/// Appends one row (with newline); numbers empty unless status is ok.
+void append_screen_row(std::string& out, const ScreenRow& row);
+/// The same row as a JSON object (null numbers unless ok).
+nlohmann::ordered_json screen_row_json(const ScreenRow& row);
+/// Joins notes with '|'.
+std::string join_notes(const std::vector<std::string>& notes);
+
+}  // namespace heft

@@ -1,0 +1,33 @@
+#pragma once
+/// \file stats.hpp
+/// Tail probabilities and significance conversions that stay finite far in
+/// the tails (chi2 up to 1e4 and beyond), by working with log-probabilities.
+
+namespace heft {
+
+/// Natural log of the chi-squared survival function Q(dof/2, chi2/2), for an
+/// even number of degrees of freedom (2, 4, ...).
+/// Given: chi2 >= 0; dof even, 2 <= dof <= 100.
+/// Returned: ln P(X > chi2), X ~ chi2(dof); exact closed form
+/// Q = exp(-x/2) sum_{j < dof/2} (x/2)^j / j!  (Abramowitz & Stegun 26.4.21).
+double chi2_log_survival(double chi2, int dof);
+
+/// Natural log of the upper normal tail, ln Phi(-z) = ln P(Z > z).
+/// Uses erfc for z < 8 and the continued fraction of Mills' ratio beyond
+/// (Abramowitz & Stegun 26.2.14), so it is accurate to ~1e-14 relative for
+/// any z >= 0 (negative z is handled through erfc).
+double log_normal_upper_tail(double z);
+
+/// Gaussian-equivalent significance of a two-sided tail probability given as
+/// its log: the z >= 0 with 2 Phi(-z) = p, i.e. ln(2 Phi(-z)) = log_p.
+double sigma_from_log_p(double log_p);
+
+/// Gaussian-equivalent significance of a chi-squared value with `dof` (even)
+/// degrees of freedom: sigma_from_log_p(chi2_log_survival(chi2, dof)).
+double chi2_to_sigma(double chi2, int dof);
+
+/// Standard normal quantile Phi^{-1}(p), 0 < p < 1 (Acklam's rational
+/// approximation refined by one Halley step; ~1e-15 relative).
+double normal_quantile(double p);
+
+}  // namespace heft

@@ -1,0 +1,229 @@
+#include "heft/catalog.hpp"
+
+#include <Eigen/Cholesky>
+
+#include "heft/error.hpp"
+#include "heft/rng.hpp"
+
+namespace heft {
+namespace {
+
+using Accessor = double& (*)(StarRecord&);
+
+struct Column {
+  std::string name;
+  bool required;
+  Accessor get;
+};
+
+template <int Epoch>
+Astrometry& epoch_of(StarRecord& s) {
+  if constexpr (Epoch == 0) return s.early; else return s.late;
+}
+
+// The canonical columns after `id`, in the order heft writes them.
+template <int E>
+void add_epoch_columns(std::vector<Column>& cols, const std::string& prefix) {
+  auto add = [&](const char* n, bool req, Accessor a) { cols.push_back({prefix + n, req, a}); };
+  add("epoch", true, [](StarRecord& s) -> double& { return epoch_of<E>(s).epoch_yr; });
+  add("ra", true, [](StarRecord& s) -> double& { return epoch_of<E>(s).ra_deg; });
+  add("dec", true, [](StarRecord& s) -> double& { return epoch_of<E>(s).dec_deg; });
+  add("parallax", true, [](StarRecord& s) -> double& { return epoch_of<E>(s).parallax_mas; });
+  add("pmra", true, [](StarRecord& s) -> double& { return epoch_of<E>(s).pmra_mas_yr; });
+  add("pmdec", true, [](StarRecord& s) -> double& { return epoch_of<E>(s).pmdec_mas_yr; });
+  add("ra_error", true, [](StarRecord& s) -> double& { return epoch_of<E>(s).ra_error_mas; });
+  add("dec_error", true, [](StarRecord& s) -> double& { return epoch_of<E>(s).dec_error_mas; });
+  add("parallax_error", true,
+      [](StarRecord& s) -> double& { return epoch_of<E>(s).parallax_error_mas; });
+  add("pmra_error", true,
+      [](StarRecord& s) -> double& { return epoch_of<E>(s).pmra_error_mas_yr; });
+  add("pmdec_error", true,
+      [](StarRecord& s) -> double& { return epoch_of<E>(s).pmdec_error_mas_yr; });
+  static constexpr Accessor corr[10] = {
+      [](StarRecord& s) -> double& { return epoch_of<E>(s).corr[0]; },
+      [](StarRecord& s) -> double& { return epoch_of<E>(s).corr[1]; },
+      [](StarRecord& s) -> double& { return epoch_of<E>(s).corr[2]; },
+      [](StarRecord& s) -> double& { return epoch_of<E>(s).corr[3]; },
+      [](StarRecord& s) -> double& { return epoch_of<E>(s).corr[4]; },
+      [](StarRecord& s) -> double& { return epoch_of<E>(s).corr[5]; },
+      [](StarRecord& s) -> double& { return epoch_of<E>(s).corr[6]; },
+      [](StarRecord& s) -> double& { return epoch_of<E>(s).corr[7]; },
+      [](StarRecord& s) -> double& { return epoch_of<E>(s).corr[8]; },
+      [](StarRecord& s) -> double& { return epoch_of<E>(s).corr[9]; }};
+  for (int k = 0; k < 10; ++k) add(kCorrNames[k], false, corr[k]);
+  add("window_start", false,
+      [](StarRecord& s) -> double& { return epoch_of<E>(s).window_start_yr; });
+  add("window_end", false,
+      [](StarRecord& s) -> double& { return epoch_of<E>(s).window_end_yr; });
+}
+
+const std::vector<Column>& columns() {
+  static const std::vector<Column> cols = [] {
+    std::vector<Column> c;
+    add_epoch_columns<0>(c, "early_");
+    add_epoch_columns<1>(c, "late_");
+    c.push_back({"mass", false, [](StarRecord& s) -> double& { return s.mass_msun; }});
+    c.push_back({"mass_error", false, [](StarRecord& s) -> double& { return s.mass_error_msun; }});
+    c.push_back({"rv", false, [](StarRecord& s) -> double& { return s.rv_km_s; }});
+    c.push_back({"rv_error", false, [](StarRecord& s) -> double& { return s.rv_error_km_s; }});
+    c.push_back({"mag", false, [](StarRecord& s) -> double& { return s.mag; }});
+    c.push_back({"age_myr", false, [](StarRecord& s) -> double& { return s.age_myr; }});
+    return c;
+  }();
+  return cols;
+}
+
+bool is_corr_column(std::size_t k) {
+  // Per epoch: 11 required, then 10 correlations, then 2 window columns.
+  if (k >= 46) return false;
+  const std::size_t j = k % 23;
+  return j >= 11 && j < 21;
+}
+
+std::string validate_astrometry(const Astrometry& a) {
+  const double vals[] = {a.epoch_yr, a.ra_deg, a.dec_deg, a.parallax_mas, a.pmra_mas_yr,
+                         a.pmdec_mas_yr, a.ra_error_mas, a.dec_error_mas, a.parallax_error_mas,
+                         a.pmra_error_mas_yr, a.pmdec_error_mas_yr, a.window_start_yr,
+                         a.window_end_yr};
+  for (double v : vals)
+    if (!std::isfinite(v)) return "non_finite";
+  for (double c : a.corr)
+    if (!std::isfinite(c)) return "non_finite";
+  if (!(a.ra_error_mas > 0 && a.dec_error_mas > 0 && a.parallax_error_mas > 0 &&
+        a.pmra_error_mas_yr > 0 && a.pmdec_error_mas_yr > 0))
+    return "nonpositive_error";
+  if (std::abs(a.dec_deg) > 90.0) return "dec_out_of_range";
+  if (a.ra_deg < 0.0 || a.ra_deg > 360.0) return "ra_out_of_range";
+  for (double c : a.corr)
+    if (c < -1.0 || c > 1.0) return "corr_out_of_range";
+  if (!(a.window_start_yr < a.window_end_yr) || a.epoch_yr < a.window_start_yr ||
+      a.epoch_yr > a.window_end_yr)
+    return "window_excludes_epoch";
+  Eigen::LLT<Eigen::Matrix<double, 5, 5>> llt(a.covariance());
+  if (llt.info() != Eigen::Success) return "covariance_not_positive_definite";
+  return "";
+}
+
+}  // namespace
+
+Eigen::Matrix<double, 5, 5> Astrometry::covariance() const {
+  const double s[5] = {ra_error_mas, dec_error_mas, parallax_error_mas, pmra_error_mas_yr,
+                       pmdec_error_mas_yr};
+  Eigen::Matrix<double, 5, 5> c;
+  int k = 0;
+  for (int i = 0; i < 5; ++i) {
+    c(i, i) = s[i] * s[i];
+    for (int j = i + 1; j < 5; ++j, ++k) c(i, j) = c(j, i) = corr[k] * s[i] * s[j];
+  }
+  return c;
+}
+
+void Astrometry::set_covariance(const Eigen::Matrix<double, 5, 5>& c) {
+  double s[5];
+  for (int i = 0; i < 5; ++i) s[i] = std::sqrt(c(i, i));
+  ra_error_mas = s[0];
+  dec_error_mas = s[1];
+  parallax_error_mas = s[2];
+  pmra_error_mas_yr = s[3];
+  pmdec_error_mas_yr = s[4];
+  int k = 0;
+  for (int i = 0; i < 5; ++i)
+    for (int j = i + 1; j < 5; ++j, ++k) corr[k] = c(i, j) / (s[i] * s[j]);
+}
+
+std::string validate_star(const StarRecord& s) {
+  if (s.id.empty()) return "missing_id";
+  if (auto r = validate_astrometry(s.early); !r.empty()) return r;
+  if (auto r = validate_astrometry(s.late); !r.empty()) return r;
+  if (!(s.early.epoch_yr < s.late.epoch_yr)) return "epoch_order";
+  if (!(s.late.parallax_mas > 0)) return "nonpositive_parallax";
+  const double opt[] = {s.mass_msun, s.mass_error_msun, s.rv_km_s, s.rv_error_km_s, s.mag,
+                        s.age_myr};
+  for (double v : opt)
+    if (present(v) && !std::isfinite(v)) return "non_finite";
+  if (present(s.mass_msun) && !(s.mass_msun > 0)) return "nonpositive_mass";
+  if ((present(s.mass_error_msun) && !(s.mass_error_msun > 0)) ||
+      (present(s.rv_error_km_s) && !(s.rv_error_km_s > 0)))
+    return "nonpositive_error";
+  return "";
+}
+
+StarTableReader::StarTableReader(std::istream& in, std::string name, WindowDefaults windows)
+    : csv_(in, std::move(name)), windows_(windows) {
+  if (!csv_.next()) throw InputError(csv_.name(), 0, 0, "empty file: no header row");
+  const auto& header = csv_.fields();
+  n_fields_ = header.size();
+  const auto& cols = columns();
+  field_of_column_.assign(cols.size() + 1, -1);  // slot 0 = id
+  for (std::size_t f = 0; f < header.size(); ++f) {
+    const std::string& h = header[f];
+    int slot = -2;
+    if (h == "id") slot = 0;
+    for (std::size_t k = 0; k < cols.size() && slot == -2; ++k)
+      if (cols[k].name == h) slot = static_cast<int>(k) + 1;
+    if (slot == -2)
+      throw InputError(csv_.name(), csv_.line(), csv_.column(f), "unknown column '" + h + "'");
+    if (field_of_column_[slot] != -1)
+      throw InputError(csv_.name(), csv_.line(), csv_.column(f), "duplicated column '" + h + "'");
+    field_of_column_[slot] = static_cast<int>(f);
+  }
+  if (field_of_column_[0] == -1)
+    throw InputError(csv_.name(), csv_.line(), 0, "missing required column 'id'");
+  for (std::size_t k = 0; k < cols.size(); ++k)
+    if (cols[k].required && field_of_column_[k + 1] == -1)
+      throw InputError(csv_.name(), csv_.line(), 0,
+                       "missing required column '" + cols[k].name + "'");
+}
+
+bool StarTableReader::next(StarRecord& star, std::string& bad_reason) {
+  if (!csv_.next()) return false;
+  ++rows_;
+  const auto& f = csv_.fields();
+  if (f.size() != n_fields_)
+    throw InputError(csv_.name(), csv_.line(), 0,
+                     "row has " + std::to_string(f.size()) + " fields, header has " +
+                         std::to_string(n_fields_));
+  star = StarRecord{};
+  star.id = f[field_of_column_[0]];
+  bad_reason.clear();
+  const auto& cols = columns();
+  for (std::size_t k = 0; k < cols.size(); ++k) {
+    const int fi = field_of_column_[k + 1];
+    double& slot = cols[k].get(star);
+    if (fi < 0 || f[fi].empty()) {
+      if (cols[k].required && bad_reason.empty()) bad_reason = "missing_value";
+      if (is_corr_column(k)) slot = 0.0;
+      continue;
+    }
+    if (!parse_double(f[fi], slot))
+      throw InputError(csv_.name(), csv_.line(), csv_.column(fi),
+                       "column '" + cols[k].name + "': not a number: '" + f[fi] + "'");
+  }
+  if (!present(star.early.window_start_yr)) star.early.window_start_yr = windows_.early_start_yr;
+  if (!present(star.early.window_end_yr)) star.early.window_end_yr = windows_.early_end_yr;
+  if (!present(star.late.window_start_yr)) star.late.window_start_yr = windows_.late_start_yr;
+  if (!present(star.late.window_end_yr)) star.late.window_end_yr = windows_.late_end_yr;
+  if (bad_reason.empty()) bad_reason = validate_star(star);
+  if (!star.id.empty() && !seen_ids_.insert(fnv1a64(star.id)).second && bad_reason.empty())
+    bad_reason = "duplicate_id";
+  return true;
+}
+
+std::string star_table_header() {
+  std::string h = "id";
+  for (const auto& c : columns()) h += "," + c.name;
+  h += '\n';
+  return h;
+}
+
+void append_star_row(std::string& out, const StarRecord& star) {
+  append_csv_field(out, star.id);
+  StarRecord& s = const_cast<StarRecord&>(star);  // accessors are shared with the reader
+  for (const auto& c : columns()) {
+    out += ',';
+    append_double(out, c.get(s));
+  }
+  out += '\n';
+}
+
+}  // namespace heft

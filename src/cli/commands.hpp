@@ -1,0 +1,10 @@
+#pragma once
+// One setup function per subcommand; each lives in its own file.
+#include <CLI/CLI.hpp>
+
+#include "cli/common.hpp"
+
+namespace heft::cli {
+void setup_ingest(CLI::App& app, Runner& run);
+void setup_screen(CLI::App& app, Runner& run);
+}  // namespace heft::cli

@@ -1,0 +1,50 @@
+#pragma once
+// Shared pieces of the command-line layer: exit codes, stderr messages,
+// option helpers, per-status counting. Only the CLI talks to the terminal.
+
+#include <CLI/CLI.hpp>
+#include <Eigen/Core>
+#include <functional>
+#include <map>
+#include <string>
+
+namespace heft::cli {
+
+/// Exit codes of every heft command.
+enum ExitCode : int {
+  kOk = 0,
+  kUsage = 1,
+  kInput = 2,
+  kNumeric = 3,
+  kPartial = 4,  ///< some rows bad_input or failed
+};
+
+/// What a subcommand's setup registers: the function main runs after parsing.
+using Runner = std::function<int()>;
+
+/// Prints "heft <command>: <text>" on stderr.
+void message(const std::string& command, const std::string& text);
+
+/// Adds an option taking "X,Y,Z" into `v`.
+CLI::Option* add_vec3_option(CLI::App* app, const std::string& name, Eigen::Vector3d& v,
+                             const std::string& help);
+/// Adds an option taking "A,B" into `a` and `b`.
+CLI::Option* add_pair_option(CLI::App* app, const std::string& name, double& a, double& b,
+                             const std::string& help);
+
+/// Counts rows by status; prints one summary line per non-ok status.
+class StatusCounter {
+ public:
+  void add(const std::string& status);
+  long total() const { return total_; }
+  long not_ok() const { return total_ - ok_; }
+  const std::map<std::string, long>& counts() const { return counts_; }
+  void print_summary(const std::string& command) const;
+  int exit_code() const { return not_ok() > 0 ? kPartial : kOk; }
+
+ private:
+  std::map<std::string, long> counts_;
+  long total_ = 0, ok_ = 0;
+};
+
+}  // namespace heft::cli

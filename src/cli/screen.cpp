@@ -1,0 +1,161 @@
+// heft screen: proper-motion anomaly of every star of a canonical star table.
+
+#include <memory>
+
+#include "cli/commands.hpp"
+#include "heft/catalog.hpp"
+#include "heft/error.hpp"
+#include "heft/io.hpp"
+#include "heft/screen.hpp"
+#include "heft/version.hpp"
+
+namespace heft::cli {
+namespace {
+
+struct ScreenCliOptions {
+  std::string input;
+  std::string output = "-";
+  std::string json;
+  std::string late_spin_table;
+  bool strict = false;
+  bool quiet = false;
+  ScreenOptions screen;
+  WindowDefaults windows;
+};
+
+nlohmann::ordered_json vec_json(const Eigen::Vector3d& v) { return {v.x(), v.y(), v.z()}; }
+
+nlohmann::ordered_json calibration_json(const EpochCalibration& c) {
+  nlohmann::ordered_json j;
+  j["orient_mas"] = vec_json(c.orient_mas);
+  j["spin_uas_yr"] = vec_json(c.spin_uas_yr);
+  j["spin_table_bins"] = c.spin_table.size();
+  j["inflate"] = c.inflate;
+  j["floor_mas_yr"] = c.floor_mas_yr;
+  return j;
+}
+
+int run_screen(const ScreenCliOptions& o) {
+  ScreenOptions opt = o.screen;
+  if (!o.late_spin_table.empty()) opt.late.spin_table = read_spin_table(o.late_spin_table);
+  InputFile in(o.input);
+  StarTableReader reader(in.stream(), in.name(), o.windows);
+  AtomicOutput out(o.output);
+  std::unique_ptr<AtomicOutput> json;
+  if (!o.json.empty()) {
+    json = std::make_unique<AtomicOutput>(o.json);
+    json->write("{\"stars\":[\n");
+  }
+  std::string buf = screen_header(), jbuf;
+  StatusCounter counter;
+  StarRecord star;
+  std::string bad;
+  while (reader.next(star, bad)) {
+    if (o.strict && !bad.empty())
+      throw InputError(in.name(), reader.line(), 0, "star '" + star.id + "': bad input: " + bad);
+    const ScreenRow row = screen_star(star, bad, opt);
+    if (o.strict && !row.ok())
+      throw InputError(in.name(), reader.line(), 0, "star '" + star.id + "': " + row.status);
+    counter.add(row.status);
+    append_screen_row(buf, row);
+    if (json) {
+      if (counter.total() > 1) jbuf += ",\n";
+      jbuf += screen_row_json(row).dump();
+    }
+    if (buf.size() > (1u << 20)) {
+      out.write(buf);
+      buf.clear();
+    }
+    if (jbuf.size() > (1u << 20)) {
+      json->write(jbuf);
+      jbuf.clear();
+    }
+  }
+  out.write(buf);
+  if (json) {
+    nlohmann::ordered_json run;
+    run["heft_version"] = kVersion;
+    run["command"] = "screen";
+    run["input"] = in.name();
+    run["rows"] = counter.total();
+    run["rows_ok"] = counter.total() - counter.not_ok();
+    nlohmann::ordered_json bad_counts = nlohmann::ordered_json::object();
+    for (const auto& [status, n] : counter.counts()) bad_counts[status] = n;
+    run["rows_not_ok"] = bad_counts;
+    nlohmann::ordered_json options;
+    options["early"] = calibration_json(opt.early);
+    options["late"] = calibration_json(opt.late);
+    options["late_spin_table"] = o.late_spin_table;
+    options["assume_rv_km_s"] = opt.assume_rv_km_s;
+    options["rv_sigma_km_s"] = opt.rv_sigma_km_s;
+    options["default_windows_yr"] = {{o.windows.early_start_yr, o.windows.early_end_yr},
+                                     {o.windows.late_start_yr, o.windows.late_end_yr}};
+    options["strict"] = o.strict;
+    run["options"] = options;
+    jbuf += "\n],\n\"run\":" + run.dump() + "}\n";
+    json->write(jbuf);
+    json->commit();
+  }
+  out.commit();
+  counter.print_summary("screen");
+  if (!o.quiet) message("screen", std::to_string(counter.total()) + " stars screened");
+  return counter.exit_code();
+}
+
+}  // namespace
+
+void setup_screen(CLI::App& app, Runner& run) {
+  auto o = std::make_shared<ScreenCliOptions>();
+  CLI::App* sub = app.add_subcommand(
+      "screen",
+      "Proper-motion anomaly of every star: long-baseline PM from the two positions, anomalies "
+      "at both epochs with full covariances, chi2 and Gaussian-equivalent significance.");
+  sub->add_option("stars", o->input, "canonical star table (CSV; '-' = stdin)")->required();
+  sub->add_option("-o,--output", o->output, "anomaly table (CSV); default stdout");
+  sub->add_option("--json", o->json, "also write the results as JSON (with a 'run' object)");
+  add_vec3_option(sub, "--early-orient", o->screen.early.orient_mas,
+                  "orientation offset of the early frame at its epoch (mas), subtracted");
+  add_vec3_option(sub, "--early-spin", o->screen.early.spin_uas_yr,
+                  "spin of the early frame (uas/yr), subtracted from its PMs");
+  add_vec3_option(sub, "--late-spin", o->screen.late.spin_uas_yr,
+                  "spin of the late frame (uas/yr), subtracted from its PMs");
+  sub->add_option("--late-spin-table", o->late_spin_table,
+                  "CSV mag_min,mag_max,wx,wy,wz (uas/yr): late-frame spin by the star's 'mag'")
+      ->check(CLI::ExistingFile);
+  sub->add_option("--early-inflate", o->screen.early.inflate,
+                  "early errors x F (covariance x F^2)")
+      ->check(CLI::PositiveNumber)
+      ->default_val(1.0);
+  sub->add_option("--late-inflate", o->screen.late.inflate, "late errors x F (covariance x F^2)")
+      ->check(CLI::PositiveNumber)
+      ->default_val(1.0);
+  sub->add_option("--early-floor", o->screen.early.floor_mas_yr,
+                  "added in quadrature to the early PM errors (mas/yr)")
+      ->check(CLI::NonNegativeNumber)
+      ->default_val(0.0);
+  sub->add_option("--late-floor", o->screen.late.floor_mas_yr,
+                  "added in quadrature to the late PM errors (mas/yr)")
+      ->check(CLI::NonNegativeNumber)
+      ->default_val(0.0);
+  sub->add_option("--assume-rv", o->screen.assume_rv_km_s,
+                  "radial velocity of stars without 'rv' (km/s)")
+      ->default_val(0.0);
+  sub->add_option("--rv-sigma", o->screen.rv_sigma_km_s,
+                  "prior width of that assumed radial velocity (km/s)")
+      ->check(CLI::NonNegativeNumber)
+      ->default_val(30.0);
+  add_pair_option(sub, "--early-window", o->windows.early_start_yr, o->windows.early_end_yr,
+                  "default early observing window START,END (yr) for rows without one")
+      ->default_str("1989.85,1993.21");
+  add_pair_option(sub, "--late-window", o->windows.late_start_yr, o->windows.late_end_yr,
+                  "default late observing window START,END (yr) for rows without one")
+      ->default_str("2014.57,2017.41");
+  sub->add_flag("--strict", o->strict, "the first bad row is fatal (exit 2)");
+  sub->add_flag("-q,--quiet", o->quiet, "no informational messages");
+  sub->footer(
+      "Units: PMs and anomalies mas/yr, errors 1 sigma, dvt m/s, dt yr. Exit codes: 0 ok, 1 "
+      "usage, 2 input error, 3 numerical failure, 4 some rows bad_input or failed.");
+  sub->callback([o, &run] { run = [o] { return run_screen(*o); }; });
+}
+
+}  // namespace heft::cli

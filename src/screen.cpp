@@ -1,0 +1,112 @@
+#include "heft/screen.hpp"
+
+#include "heft/io.hpp"
+
+namespace heft {
+
+ScreenRow screen_star(const StarRecord& star, const std::string& bad_reason,
+                      const ScreenOptions& opt) {
+  ScreenRow row;
+  row.id = star.id;
+  if (!bad_reason.empty()) {
+    row.status = "bad_input:" + bad_reason;
+    return row;
+  }
+  Astrometry early = star.early, late = star.late;
+  bool in_early = true, in_late = true;
+  apply_calibration(opt.early, star.mag, early, in_early);
+  apply_calibration(opt.late, star.mag, late, in_late);
+  if (!in_early || !in_late) row.notes.push_back("no_spin_bin");
+
+  double rv = star.rv_km_s, rv_error = star.rv_error_km_s;
+  if (!present(rv)) {
+    rv = opt.assume_rv_km_s;
+    rv_error = opt.rv_sigma_km_s;
+    row.notes.push_back("no_rv");
+  } else if (!present(rv_error)) {
+    rv_error = 0.0;
+    row.notes.push_back("rv_error_missing");
+  }
+  bool ok = false;
+  std::string why;
+  row.result = compute_anomaly(early, late, rv, rv_error, ok, why);
+  row.status = ok ? "ok" : "failed:" + why;
+  return row;
+}
+
+const std::vector<std::string>& screen_columns() {
+  static const std::vector<std::string> cols = {
+      "id",           "status",          "dt_yr",
+      "pml_ra",       "pml_dec",         "pml_ra_error",
+      "pml_dec_error", "dpm_late_ra",    "dpm_late_dec",
+      "dpm_late_ra_error", "dpm_late_dec_error", "dpm_late_corr",
+      "chi2_late",    "sig_late",        "dpm_early_ra",
+      "dpm_early_dec", "dpm_early_ra_error", "dpm_early_dec_error",
+      "dpm_early_corr", "chi2_early",    "chi2_joint",
+      "sig_joint",    "dvt_late",        "dvt_late_error",
+      "notes"};
+  return cols;
+}
+
+std::string screen_header() {
+  std::string h;
+  for (const auto& c : screen_columns()) h += (h.empty() ? "" : ",") + c;
+  return h + '\n';
+}
+
+std::string join_notes(const std::vector<std::string>& notes) {
+  std::string s;
+  for (const auto& n : notes) s += (s.empty() ? "" : "|") + n;
+  return s;
+}
+
+namespace {
+// The numeric columns between status and notes, in order.
+std::vector<double> screen_numbers(const AnomalyResult& r) {
+  const auto& c = r.dpm_cov;
+  const double el = std::sqrt(c(0, 0)), dl = std::sqrt(c(1, 1));
+  const double ee = std::sqrt(c(2, 2)), de = std::sqrt(c(3, 3));
+  return {r.dt_yr,
+          r.pml_late_mas_yr.x(), r.pml_late_mas_yr.y(),
+          std::sqrt(r.pml_cov(0, 0)), std::sqrt(r.pml_cov(1, 1)),
+          r.dpm_late_mas_yr.x(), r.dpm_late_mas_yr.y(), el, dl, c(0, 1) / (el * dl),
+          r.chi2_late, r.sig_late,
+          r.dpm_early_mas_yr.x(), r.dpm_early_mas_yr.y(), ee, de, c(2, 3) / (ee * de),
+          r.chi2_early, r.chi2_joint, r.sig_joint,
+          r.dvt_late_m_s, r.dvt_late_error_m_s};
+}
+}  // namespace
+
+void append_screen_row(std::string& out, const ScreenRow& row) {
+  append_csv_field(out, row.id);
+  out += ',';
+  append_csv_field(out, row.status);
+  const std::size_t n_num = screen_columns().size() - 3;
+  if (row.ok()) {
+    for (double v : screen_numbers(row.result)) {
+      out += ',';
+      append_double(out, v);
+    }
+  } else {
+    out.append(n_num, ',');
+  }
+  out += ',';
+  append_csv_field(out, join_notes(row.notes));
+  out += '\n';
+}
+
+nlohmann::ordered_json screen_row_json(const ScreenRow& row) {
+  nlohmann::ordered_json j;
+  const auto& cols = screen_columns();
+  j["id"] = row.id;
+  j["status"] = row.status;
+  const std::vector<double> nums = row.ok() ? screen_numbers(row.result) : std::vector<double>();
+  for (std::size_t k = 2; k + 1 < cols.size(); ++k) {
+    const double v = row.ok() ? nums[k - 2] : kAbsent;
+    j[cols[k]] = std::isfinite(v) ? nlohmann::ordered_json(v) : nlohmann::ordered_json(nullptr);
+  }
+  j["notes"] = row.notes;
+  return j;
+}
+
+}  // namespace heft

@@ -1,0 +1,100 @@
+#include "heft/stats.hpp"
+
+#include <cmath>
+#include <limits>
+#include <numbers>
+#include <stdexcept>
+
+namespace heft {
+
+double chi2_log_survival(double chi2, int dof) {
+  if (dof < 2 || dof % 2 != 0 || dof > 100)
+    throw std::invalid_argument("chi2_log_survival: dof must be even, 2..100");
+  if (!(chi2 > 0.0)) return 0.0;
+  const double x = 0.5 * chi2;
+  double term = 1.0, sum = 1.0;
+  for (int j = 1; j < dof / 2; ++j) {
+    term *= x / j;
+    sum += term;
+  }
+  return -x + std::log(sum);
+}
+
+double log_normal_upper_tail(double z) {
+  if (z < 8.0) return std::log(0.5 * std::erfc(z / std::numbers::sqrt2));
+  // Mills' ratio R(z) = Phi(-z)/phi(z) = 1/(z+ 1/(z+ 2/(z+ 3/(z+ ...)))),
+  // evaluated backwards; 60 levels are far more than needed for z >= 8.
+  double cf = z;
+  for (int k = 60; k >= 1; --k) cf = z + k / cf;
+  const double log_phi = -0.5 * z * z - 0.5 * std::log(2.0 * std::numbers::pi);
+  return log_phi - std::log(cf);
+}
+
+double sigma_from_log_p(double log_p) {
+  if (std::isnan(log_p)) return std::numeric_limits<double>::quiet_NaN();
+  if (log_p >= 0.0) return 0.0;
+  const double target = log_p - std::log(2.0);  // ln Phi(-z)
+  // f(z) = ln Phi(-z) - target is decreasing; bracket, then Newton with
+  // bisection safeguard. f'(z) = -phi(z)/Phi(-z).
+  double lo = 0.0, hi = 1.0;
+  while (log_normal_upper_tail(hi) > target) hi *= 2.0;
+  double z = 0.5 * (lo + hi);
+  for (int it = 0; it < 200; ++it) {
+    const double lt = log_normal_upper_tail(z);
+    const double f = lt - target;
+    if (f > 0) lo = z; else hi = z;
+    const double log_phi = -0.5 * z * z - 0.5 * std::log(2.0 * std::numbers::pi);
+    const double deriv = -std::exp(log_phi - lt);
+    double next = z - f / deriv;
+    if (!(next > lo && next < hi)) next = 0.5 * (lo + hi);
+    if (std::abs(next - z) <= 1e-15 * std::max(1.0, z)) return next;
+    z = next;
+  }
+  return z;
+}
+
+double chi2_to_sigma(double chi2, int dof) {
+  if (std::isnan(chi2)) return std::numeric_limits<double>::quiet_NaN();
+  return sigma_from_log_p(chi2_log_survival(chi2, dof));
+}
+
+double normal_quantile(double p) {
+  if (!(p > 0.0 && p < 1.0)) {
+    if (p == 0.0) return -std::numeric_limits<double>::infinity();
+    if (p == 1.0) return std::numeric_limits<double>::infinity();
+    return std::numeric_limits<double>::quiet_NaN();
+  }
+  // P. J. Acklam's rational approximation (relative error 1.15e-9) ...
+  static const double a[] = {-3.969683028665376e+01, 2.209460984245205e+02,
+                             -2.759285104469687e+02, 1.383577518672690e+02,
+                             -3.066479806614716e+01, 2.506628277459239e+00};
+  static const double b[] = {-5.447609879822406e+01, 1.615858368580409e+02,
+                             -1.556989798598866e+02, 6.680131188771972e+01,
+                             -1.328068155288572e+01};
+  static const double c[] = {-7.784894002430293e-03, -3.223964580411365e-01,
+                             -2.400758277161838e+00, -2.549732539343734e+00,
+                             4.374664141464968e+00, 2.938163982698783e+00};
+  static const double d[] = {7.784695709041462e-03, 3.224671290700398e-01,
+                             2.445134137142996e+00, 3.754408661907416e+00};
+  const double plow = 0.02425;
+  double x;
+  if (p < plow) {
+    const double q = std::sqrt(-2 * std::log(p));
+    x = (((((c[0] * q + c[1]) * q + c[2]) * q + c[3]) * q + c[4]) * q + c[5]) /
+        ((((d[0] * q + d[1]) * q + d[2]) * q + d[3]) * q + 1);
+  } else if (p <= 1 - plow) {
+    const double q = p - 0.5, r = q * q;
+    x = (((((a[0] * r + a[1]) * r + a[2]) * r + a[3]) * r + a[4]) * r + a[5]) * q /
+        (((((b[0] * r + b[1]) * r + b[2]) * r + b[3]) * r + b[4]) * r + 1);
+  } else {
+    const double q = std::sqrt(-2 * std::log1p(-p));
+    x = -(((((c[0] * q + c[1]) * q + c[2]) * q + c[3]) * q + c[4]) * q + c[5]) /
+        ((((d[0] * q + d[1]) * q + d[2]) * q + d[3]) * q + 1);
+  }
+  // ... refined by one Halley step on the exact CDF.
+  const double e = 0.5 * std::erfc(-x / std::numbers::sqrt2) - p;
+  const double u = e * std::sqrt(2 * std::numbers::pi) * std::exp(0.5 * x * x);
+  return x - u / (1 + 0.5 * x * u);
+}
+
+}  // namespace heft

@@ -1,0 +1,5 @@
+#include <catch2/catch.hpp>
+#include <sstream>
+
+#include "heft/catalog.hpp"
+#include "heft/error.hpp"

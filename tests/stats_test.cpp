@@ -1,0 +1,55 @@
+#include <catch2/catch.hpp>
+#include <cmath>
+
+#include "heft/stats.hpp"
+
+using namespace heft;
+
+TEST_CASE("chi2 survival for even dof", "[stats]") {
+  // Source: closed forms Q(2) = exp(-x/2), Q(4) = exp(-x/2)(1 + x/2)
+  // (Abramowitz & Stegun 26.4.21).
+  CHECK(chi2_log_survival(3.0, 2) == Approx(-1.5).epsilon(1e-15));
+  CHECK(chi2_log_survival(5.0, 4) == Approx(std::log(std::exp(-2.5) * 3.5)).epsilon(1e-14));
+  CHECK(chi2_log_survival(1e4, 4) == Approx(-5000.0 + std::log(5001.0)).epsilon(1e-15));
+  CHECK(chi2_log_survival(0.0, 2) == 0.0);
+}
+
+TEST_CASE("two-sided Gaussian significance", "[stats]") {
+  // Source: 2 Phi(-z) = erfc(z / sqrt 2) (definition); for z = 1, 2, 3, 5 the
+  // significance of the matching chi2(2) value must come back.
+  for (double z : {0.5, 1.0, 2.0, 3.0, 5.0, 7.5}) {
+    const double p = std::erfc(z / std::sqrt(2.0));
+    const double chi2 = -2.0 * std::log(p);
+    CHECK(chi2_to_sigma(chi2, 2) == Approx(z).epsilon(1e-12));
+  }
+  // Known value: 2 Phi(-3) = 0.0026997960632601866 (common practice, from memory).
+  CHECK(sigma_from_log_p(std::log(0.0026997960632601866)) == Approx(3.0).epsilon(1e-12));
+  CHECK(chi2_to_sigma(0.0, 4) == 0.0);
+}
+
+TEST_CASE("normal tail stays accurate far out (chi2 up to 1e4)", "[stats]") {
+  // The continued fraction branch joins erfc at z = 8 (internal consistency).
+  CHECK(log_normal_upper_tail(7.999999999) == Approx(log_normal_upper_tail(8.0)).epsilon(1e-9));
+  // Source: asymptotic series Phi(-z) ~ phi(z)/z (1 - 1/z^2 + 3/z^4 - 15/z^6 + 105/z^8)
+  // (Abramowitz & Stegun 26.2.12), accurate to ~1e-13 at z = 50.
+  const double z = 50.0;
+  const double series = 1 - 1 / (z * z) + 3 / std::pow(z, 4) - 15 / std::pow(z, 6) + 105 / std::pow(z, 8);
+  const double ref = -0.5 * z * z - std::log(z * std::sqrt(2 * M_PI)) + std::log(series);
+  CHECK(log_normal_upper_tail(z) == Approx(ref).epsilon(1e-14));
+  // chi2 = 1e4 with 2 and 4 dof: finite, and the round trip holds.
+  for (int dof : {2, 4}) {
+    const double s = chi2_to_sigma(1e4, dof);
+    REQUIRE(std::isfinite(s));
+    CHECK(s > 95.0);
+    CHECK(s < 101.0);
+    CHECK(std::log(2.0) + log_normal_upper_tail(s) ==
+          Approx(chi2_log_survival(1e4, dof)).epsilon(1e-12));
+  }
+}
+
+TEST_CASE("normal quantile", "[stats]") {
+  // Source: Phi(1.959963984540054) = 0.975 (common practice, from memory).
+  CHECK(normal_quantile(0.975) == Approx(1.959963984540054).epsilon(1e-13));
+  CHECK(normal_quantile(0.5) == Approx(0.0).margin(1e-15));
+  CHECK(normal_quantile(1e-10) == Approx(-6.361340902404056).epsilon(1e-10));
+}

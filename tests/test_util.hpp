@@ -1,0 +1,42 @@
+#pragma once
+// Helpers shared by the tests: temporary files, running the heft binary,
+// reading CSV output back, and building catalogue entries.
+#include <map>
+#include <string>
+#include <vector>
+
+#include "heft/catalog.hpp"
+#include "heft/propagate.hpp"
+
+namespace heft::test {
+
+/// A fresh path under the test build directory (unique per test name).
+std::string tmp_path(const std::string& name);
+void write_text(const std::string& path, const std::string& text);
+std::string read_text(const std::string& path);
+bool file_exists(const std::string& path);
+
+/// Runs `heft ARGS` through the shell; returns its exit code; stderr of the
+/// run is stored in `err` when given.
+int run_heft(const std::string& args, std::string* err = nullptr);
+
+/// A parsed CSV table: header and rows of fields.
+struct Table {
+  std::vector<std::string> header;
+  std::vector<std::vector<std::string>> rows;
+  int col(const std::string& name) const;
+  double num(std::size_t row, const std::string& name) const;
+  const std::string& str(std::size_t row, const std::string& name) const;
+};
+Table read_table(const std::string& path);
+
+/// A catalogue entry with exact values from `s` (at `epoch_yr`), diagonal
+/// errors pos_err (mas) and pm_err (mas/yr), and the given window.
+Astrometry entry(const SkyState<double>& s, double epoch_yr, double pos_err, double pm_err,
+                 double win_start, double win_end);
+
+/// The state at `epoch_to` of a star whose late state is `late` (ERFA
+/// eraStarpm with its light-time term, i.e. the reference library).
+SkyState<double> erfa_propagate(const SkyState<double>& s, double epoch_from, double epoch_to);
+
+}  // namespace heft::test
