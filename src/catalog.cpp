@@ -161,8 +161,10 @@ StarTableReader::StarTableReader(std::istream& in, std::string name, WindowDefau
     if (h == "id") slot = 0;
     for (std::size_t k = 0; k < cols.size() && slot == -2; ++k)
       if (cols[k].name == h) slot = static_cast<int>(k) + 1;
-    if (slot == -2)
-      throw InputError(csv_.name(), csv_.line(), csv_.column(f), "unknown column '" + h + "'");
+    if (slot == -2) {
+      unknown_columns_.push_back(h);
+      continue;
+    }
     if (field_of_column_[slot] != -1)
       throw InputError(csv_.name(), csv_.line(), csv_.column(f), "duplicated column '" + h + "'");
     field_of_column_[slot] = static_cast<int>(f);

@@ -71,9 +71,10 @@ struct WindowDefaults {
 ///
 /// Notes:
 /// 1. Structural problems are fatal InputErrors naming file, line, column
-///    and the rule: missing required column, unknown or duplicated column,
+///    and the rule: missing required column, duplicated column,
 ///    a field count that differs from the header, an unparsable number.
-/// 2. Physically invalid rows are returned with a non-empty `bad_reason`
+/// 2. Columns that are not canonical are ignored (unknown_columns()).
+/// 3. Physically invalid rows are returned with a non-empty `bad_reason`
 ///    (e.g. "nonpositive_error"), so a batch can flag them and go on.
 class StarTableReader {
  public:
@@ -85,6 +86,8 @@ class StarTableReader {
   long line() const { return csv_.line(); }
   /// Data rows read so far.
   long rows() const { return rows_; }
+  /// Header columns that are not canonical (ignored; the CLI warns).
+  const std::vector<std::string>& unknown_columns() const { return unknown_columns_; }
 
  private:
   CsvReader csv_;
@@ -93,6 +96,7 @@ class StarTableReader {
   std::size_t n_fields_ = 0;
   long rows_ = 0;
   std::unordered_set<std::uint64_t> seen_ids_;
+  std::vector<std::string> unknown_columns_;
 };
 
 /// Validates a record; returns "" when valid, else the reason.

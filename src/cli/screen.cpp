@@ -40,6 +40,8 @@ int run_screen(const ScreenCliOptions& o) {
   if (!o.late_spin_table.empty()) opt.late.spin_table = read_spin_table(o.late_spin_table);
   InputFile in(o.input);
   StarTableReader reader(in.stream(), in.name(), o.windows);
+  for (const auto& c : reader.unknown_columns())
+    message("screen", "warning: " + in.name() + ": column '" + c + "' is not canonical, ignored");
   AtomicOutput out(o.output);
   std::unique_ptr<AtomicOutput> json;
   if (!o.json.empty()) {
