@@ -1,5 +1,112 @@
-// heft ingest: placeholder replaced below.
+// heft ingest: join two raw catalogue extracts into the canonical star table.
+
+#include <fstream>
+#include <memory>
+
 #include "cli/commands.hpp"
+#include "heft/error.hpp"
+#include "heft/ingest.hpp"
+#include "heft/io.hpp"
+
 namespace heft::cli {
-void setup_ingest(CLI::App&, Runner&) {}
+namespace {
+
+struct IngestCliOptions {
+  std::string early, late, map, output = "-", key_early, key_late, xmatch, unmatched;
+  double match_radius_arcsec = 0.0;
+  bool quiet = false;
+};
+
+nlohmann::json read_json_file(const std::string& path) {
+  InputFile f(path);
+  try {
+    return nlohmann::json::parse(f.stream());
+  } catch (const nlohmann::json::parse_error& e) {
+    throw InputError(f.name(), 0, 0, std::string("invalid JSON: ") + e.what());
+  }
+}
+
+int run_ingest(const IngestCliOptions& o) {
+  const bool by_key = !o.key_early.empty() || !o.key_late.empty();
+  const int modes = (by_key && o.xmatch.empty()) + !o.xmatch.empty() + (o.match_radius_arcsec > 0);
+  if (modes != 1 || (by_key && (o.key_early.empty() || o.key_late.empty())))
+    throw CLI::ValidationError(
+        "choose one matching: --key-early and --key-late, --xmatch (with both keys), or "
+        "--match-radius");
+  if (!o.xmatch.empty() && (o.key_early.empty() || o.key_late.empty()))
+    throw CLI::ValidationError("--xmatch needs --key-early and --key-late to identify rows");
+  const IngestMap map = parse_ingest_map(read_json_file(o.map), o.map);
+  InputFile fe(o.early), fl(o.late);
+  const auto early = read_raw_catalogue(fe.stream(), fe.name(), map.early, o.key_early);
+  const auto late = read_raw_catalogue(fl.stream(), fl.name(), map.late, o.key_late);
+  MatchResult m;
+  if (!o.xmatch.empty()) {
+    InputFile fx(o.xmatch);
+    m = match_by_pairs(early, late, read_pairs(fx.stream(), fx.name()));
+  } else if (by_key) {
+    m = match_by_key(early, late);
+  } else {
+    m = match_by_position(early, late, o.match_radius_arcsec);
+  }
+  std::string out = star_table_header();
+  for (auto [e, l] : m.pairs) append_star_row(out, join_entries(early[e], late[l]));
+  std::unique_ptr<AtomicOutput> um;
+  if (!o.unmatched.empty()) {
+    std::string list = "catalogue,line,key,reason\n";
+    for (const auto& left : m.leftovers) {
+      const RawEntry& r = left.early ? early[left.index] : late[left.index];
+      list += left.early ? "early," : "late,";
+      list += std::to_string(r.line) + ",";
+      append_csv_field(list, r.key);
+      list += "," + left.reason + "\n";
+    }
+    um = std::make_unique<AtomicOutput>(o.unmatched);
+    um->write(list);
+  }
+  AtomicOutput sink(o.output);
+  sink.write(out);
+  sink.commit();
+  if (um) um->commit();
+  long n_early = 0, n_late = 0, n_amb = 0;
+  for (const auto& left : m.leftovers) {
+    if (left.reason == "ambiguous") ++n_amb;
+    else if (left.early) ++n_early;
+    else ++n_late;
+  }
+  if (!o.quiet || n_early + n_late + n_amb > 0)
+    message("ingest", std::to_string(m.pairs.size()) + " stars matched; " +
+                          std::to_string(n_early) + " early-only and " + std::to_string(n_late) +
+                          " late-only rows; " + std::to_string(n_amb) + " ambiguous rows");
+  return kOk;
+}
+
+}  // namespace
+
+void setup_ingest(CLI::App& app, Runner& run) {
+  auto o = std::make_shared<IngestCliOptions>();
+  CLI::App* sub = app.add_subcommand(
+      "ingest",
+      "Join two raw catalogue extracts (arbitrary column names and units, described by a JSON "
+      "map) into the canonical star table.");
+  sub->add_option("--early", o->early, "raw extract of the early catalogue (CSV)")->required();
+  sub->add_option("--late", o->late, "raw extract of the late catalogue (CSV)")->required();
+  sub->add_option("--map", o->map, "column map (JSON, see docs/formats.md)")
+      ->required()
+      ->check(CLI::ExistingFile);
+  sub->add_option("-o,--output", o->output, "canonical star table (CSV); default stdout");
+  sub->add_option("--key-early", o->key_early, "key column of the early extract");
+  sub->add_option("--key-late", o->key_late, "key column of the late extract");
+  sub->add_option("--xmatch", o->xmatch,
+                  "cross-match table (CSV: early key, late key) instead of equal keys")
+      ->check(CLI::ExistingFile);
+  sub->add_option("--match-radius", o->match_radius_arcsec,
+                  "match by position within this radius (arcsec), late positions carried back "
+                  "to the early epoch with their PMs")
+      ->check(CLI::PositiveNumber);
+  sub->add_option("--unmatched", o->unmatched,
+                  "write the rows found in only one input (and ambiguous ones) here (CSV)");
+  sub->add_flag("-q,--quiet", o->quiet, "no informational messages");
+  sub->callback([o, &run] { run = [o] { return run_ingest(*o); }; });
+}
+
 }  // namespace heft::cli

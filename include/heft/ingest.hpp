@@ -1,0 +1,94 @@
+#pragma once
+/// \file ingest.hpp
+/// Joining two raw catalogue extracts with arbitrary column names into the
+/// canonical star table: the column map (JSON, docs/formats.md), reading raw
+/// rows with unit conversion, and matching by key, by a cross-match table
+/// or by position.
+
+#include <iosfwd>
+#include <map>
+#include <nlohmann/json.hpp>
+#include <string>
+#include <vector>
+
+#include "heft/catalog.hpp"
+
+namespace heft {
+
+/// Where one canonical field comes from: a source column times `scale`
+/// (to the canonical unit, plus `offset` for time units), or a constant.
+struct FieldSource {
+  std::string column;     ///< empty: use `constant`
+  double scale = 1.0;
+  double offset = 0.0;
+  double constant = kAbsent;
+};
+
+/// The column map of one raw catalogue: canonical field name (without the
+/// early_/late_ prefix, e.g. "pmra", "window_start") -> source; plus the
+/// star-level fields (id, mass, rv, mag, ...) this catalogue supplies.
+struct EpochMap {
+  std::map<std::string, FieldSource> fields;
+  std::map<std::string, FieldSource> star_fields;
+};
+
+/// The whole map: one EpochMap per catalogue.
+struct IngestMap {
+  EpochMap early, late;
+};
+
+/// Parses and checks a column map. Throws InputError naming the JSON path
+/// (e.g. "/late/columns/pmra/unit") and the rule broken.
+IngestMap parse_ingest_map(const nlohmann::json& j, const std::string& file);
+
+/// One row of a raw catalogue after mapping and unit conversion.
+struct RawEntry {
+  std::string key;  ///< value of the key column (empty when none)
+  long line = 0;    ///< line in the raw file
+  Astrometry astrometry;
+  StarRecord star;  ///< only the star-level fields are used
+};
+
+/// Reads a raw extract. `key_column` may be empty. Unparsable numbers are
+/// InputErrors naming file, line, column and the source column.
+std::vector<RawEntry> read_raw_catalogue(std::istream& in, const std::string& name,
+                                         const EpochMap& map, const std::string& key_column);
+
+/// Result of matching: pairs of (early index, late index), and the rows
+/// left over with the reason ("unmatched" or "ambiguous").
+struct MatchResult {
+  std::vector<std::pair<std::size_t, std::size_t>> pairs;
+  struct Leftover {
+    bool early;
+    std::size_t index;
+    std::string reason;
+  };
+  std::vector<Leftover> leftovers;
+};
+
+/// Matches by equal keys. Duplicate keys on either side are "ambiguous".
+MatchResult match_by_key(const std::vector<RawEntry>& early, const std::vector<RawEntry>& late);
+
+/// Matches through a table of (early key, late key) pairs.
+MatchResult match_by_pairs(const std::vector<RawEntry>& early, const std::vector<RawEntry>& late,
+                           const std::vector<std::pair<std::string, std::string>>& pairs);
+
+/// Matches by position: each late position is carried back to the early
+/// epoch with its own PM and parallax (rigorous propagation, rv = 0), and
+/// paired with the nearest early star within `radius_arcsec`. A late star
+/// with two early stars inside the radius, or an early star claimed by two
+/// late stars, is "ambiguous" and left unmatched.
+MatchResult match_by_position(const std::vector<RawEntry>& early,
+                              const std::vector<RawEntry>& late, double radius_arcsec);
+
+/// Reads a cross-match table: CSV whose first two columns are the early and
+/// the late key.
+std::vector<std::pair<std::string, std::string>> read_pairs(std::istream& in,
+                                                            const std::string& name);
+
+/// Builds the canonical record of a matched pair: early and late
+/// astrometry; star-level fields from the catalogue that maps them (late
+/// wins when both do); id from the map, else the late key, else the early key.
+StarRecord join_entries(const RawEntry& early, const RawEntry& late);
+
+}  // namespace heft
