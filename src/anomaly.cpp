@@ -76,13 +76,16 @@ AnomalyResult compute_anomaly(const Astrometry& early, const Astrometry& late, d
   const AnomalyModel model(early, late, rv_km_s);
   Eigen::Matrix<double, kAnomalyOutputs, 1> y;
   const auto jac = anomaly_jacobian(model, y);
-  Eigen::Matrix<double, kAnomalyInputs, kAnomalyInputs> cin =
-      Eigen::Matrix<double, kAnomalyInputs, kAnomalyInputs>::Zero();
-  cin.block<5, 5>(0, 0) = early.covariance();
-  cin.block<5, 5>(5, 5) = late.covariance();
-  cin(10, 10) = rv_error_km_s * rv_error_km_s;
+  // The input covariance is block diagonal (catalogues independent, rv
+  // separate): sum the three blocks' contributions with small fixed-size
+  // products instead of one 11x11 sandwich.
+  const Eigen::Matrix<double, kAnomalyOutputs, 5> je = jac.leftCols<5>();
+  const Eigen::Matrix<double, kAnomalyOutputs, 5> jl = jac.middleCols<5>(5);
+  const Eigen::Matrix<double, kAnomalyOutputs, 1> jr = jac.col(10);
   const Eigen::Matrix<double, kAnomalyOutputs, kAnomalyOutputs> cout =
-      jac * cin * jac.transpose();
+      je.lazyProduct(early.covariance()).lazyProduct(je.transpose()) +
+      jl.lazyProduct(late.covariance()).lazyProduct(jl.transpose()) +
+      (rv_error_km_s * rv_error_km_s) * jr * jr.transpose();
 
   AnomalyResult r;
   r.dt_yr = model.dt_yr;

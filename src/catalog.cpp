@@ -156,7 +156,7 @@ StarTableReader::StarTableReader(std::istream& in, std::string name, WindowDefau
   const auto& cols = columns();
   field_of_column_.assign(cols.size() + 1, -1);  // slot 0 = id
   for (std::size_t f = 0; f < header.size(); ++f) {
-    const std::string& h = header[f];
+    const std::string h(header[f]);
     int slot = -2;
     if (h == "id") slot = 0;
     for (std::size_t k = 0; k < cols.size() && slot == -2; ++k)
@@ -199,7 +199,8 @@ bool StarTableReader::next(StarRecord& star, std::string& bad_reason) {
     }
     if (!parse_double(f[fi], slot))
       throw InputError(csv_.name(), csv_.line(), csv_.column(fi),
-                       "column '" + cols[k].name + "': not a number: '" + f[fi] + "'");
+                       "column '" + cols[k].name + "': not a number: '" + std::string(f[fi]) +
+                           "'");
   }
   if (!present(star.early.window_start_yr)) star.early.window_start_yr = windows_.early_start_yr;
   if (!present(star.early.window_end_yr)) star.early.window_end_yr = windows_.early_end_yr;

@@ -255,7 +255,7 @@ std::vector<RawEntry> read_raw_catalogue(std::istream& in, const std::string& na
                                          const EpochMap& map, const std::string& key_column) {
   CsvReader csv(in, name);
   if (!csv.next()) throw InputError(name, 0, 0, "empty file: no header row");
-  const auto header = csv.fields();
+  const std::vector<std::string> header(csv.fields().begin(), csv.fields().end());
   auto find = [&](const std::string& col) -> int {
     for (std::size_t i = 0; i < header.size(); ++i)
       if (header[i] == col) return static_cast<int>(i);
@@ -298,13 +298,13 @@ std::vector<RawEntry> read_raw_catalogue(std::istream& in, const std::string& na
         *slot = b.src.constant;
         continue;
       }
-      const std::string& text = f[b.index];
+      const std::string_view text = f[b.index];
       if (text.empty()) continue;
       double v;
       if (!parse_double(text, v))
         throw InputError(name, csv.line(), csv.column(b.index),
                          "column '" + header[b.index] + "' (" + b.field + "): not a number: '" +
-                             text + "'");
+                             std::string(text) + "'");
       *slot = v * b.src.scale + b.src.offset;
     }
     rows.push_back(std::move(e));
@@ -417,7 +417,7 @@ std::vector<std::pair<std::string, std::string>> read_pairs(std::istream& in,
   while (csv.next()) {
     if (csv.fields().size() < 2)
       throw InputError(name, csv.line(), 0, "row needs an early and a late key");
-    pairs.emplace_back(csv.fields()[0], csv.fields()[1]);
+    pairs.emplace_back(std::string(csv.fields()[0]), std::string(csv.fields()[1]));
   }
   return pairs;
 }

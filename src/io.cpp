@@ -18,6 +18,8 @@ CsvReader::CsvReader(std::istream& in, std::string name) : in_(in), name_(std::m
 bool CsvReader::next() {
   fields_.clear();
   columns_.clear();
+  ends_.clear();
+  storage_.clear();
   for (;;) {
     if (!std::getline(in_, buf_)) return false;
     line_ = next_line_++;
@@ -31,55 +33,56 @@ bool CsvReader::next() {
     if (k == buf_.size() || buf_[k] == '#') continue;
     break;
   }
-  std::string field;
   std::size_t i = 0;
   for (;;) {
-    // One field starting at i.
+    // One field starting at i, appended to storage_.
     while (i < buf_.size() && (buf_[i] == ' ' || buf_[i] == '\t')) ++i;
     columns_.push_back(static_cast<long>(i) + 1);
-    field.clear();
     if (i < buf_.size() && buf_[i] == '"') {
       ++i;
       for (;;) {
         if (i >= buf_.size()) {
-          // Quoted field continues on the next physical line.
+          // A quoted field continues on the next physical line.
           std::string more;
           if (!std::getline(in_, more))
             throw InputError(name_, line_, columns_.back(), "unterminated quoted field");
           ++next_line_;
           if (!more.empty() && more.back() == '\r') more.pop_back();
-          field += '\n';
+          storage_ += '\n';
           buf_ += '\n';
-          const std::size_t restart = buf_.size();
+          i = buf_.size();
           buf_ += more;
-          i = restart;
           continue;
         }
         const char c = buf_[i];
-        if (c == '"') {
-          if (i + 1 < buf_.size() && buf_[i + 1] == '"') {
-            field += '"';
-            i += 2;
-          } else {
-            ++i;
-            break;
-          }
+        if (c == '"' && i + 1 < buf_.size() && buf_[i + 1] == '"') {
+          storage_ += '"';
+          i += 2;
+        } else if (c == '"') {
+          ++i;
+          break;
         } else {
-          field += c;
+          storage_ += c;
           ++i;
         }
       }
-      while (i < buf_.size() && buf_[i] != ',') ++i;  // ignore junk after quote
+      while (i < buf_.size() && buf_[i] != ',') ++i;  // ignore junk after the quote
     } else {
       const std::size_t start = i;
-      while (i < buf_.size() && buf_[i] != ',') ++i;
+      const std::size_t comma = buf_.find(',', i);
+      i = comma == std::string::npos ? buf_.size() : comma;
       std::size_t end = i;
       while (end > start && (buf_[end - 1] == ' ' || buf_[end - 1] == '\t')) --end;
-      field.assign(buf_, start, end - start);
+      storage_.append(buf_, start, end - start);
     }
-    fields_.push_back(field);
+    ends_.push_back(storage_.size());
     if (i >= buf_.size()) break;
-    ++i;  // skip comma
+    ++i;  // skip the comma
+  }
+  std::size_t begin = 0;
+  for (std::size_t e : ends_) {
+    fields_.emplace_back(storage_.data() + begin, e - begin);
+    begin = e;
   }
   return true;
 }

@@ -1,5 +1,6 @@
 #include "heft/stats.hpp"
 
+#include <algorithm>
 #include <cmath>
 #include <limits>
 #include <numbers>
@@ -33,22 +34,20 @@ double log_normal_upper_tail(double z) {
 double sigma_from_log_p(double log_p) {
   if (std::isnan(log_p)) return std::numeric_limits<double>::quiet_NaN();
   if (log_p >= 0.0) return 0.0;
-  const double target = log_p - std::log(2.0);  // ln Phi(-z)
-  // f(z) = ln Phi(-z) - target is decreasing; bracket, then Newton with
-  // bisection safeguard. f'(z) = -phi(z)/Phi(-z).
-  double lo = 0.0, hi = 1.0;
-  while (log_normal_upper_tail(hi) > target) hi *= 2.0;
-  double z = 0.5 * (lo + hi);
-  for (int it = 0; it < 200; ++it) {
+  // Down to p ~ 1e-300 the quantile function is direct and exact enough.
+  if (log_p > -690.0) return std::max(0.0, -normal_quantile(0.5 * std::exp(log_p)));
+  // Further out: Newton on ln Phi(-z) = log_p - ln 2, started from the
+  // leading asymptotic term z^2/2 + ln(z sqrt(2 pi)) = -(log_p - ln 2).
+  const double target = log_p - std::log(2.0);
+  double z = std::sqrt(-2.0 * target);
+  for (int k = 0; k < 3; ++k) z = std::sqrt(-2.0 * target - std::log(2.0 * std::numbers::pi * z * z));
+  for (int it = 0; it < 50; ++it) {
     const double lt = log_normal_upper_tail(z);
-    const double f = lt - target;
-    if (f > 0) lo = z; else hi = z;
     const double log_phi = -0.5 * z * z - 0.5 * std::log(2.0 * std::numbers::pi);
-    const double deriv = -std::exp(log_phi - lt);
-    double next = z - f / deriv;
-    if (!(next > lo && next < hi)) next = 0.5 * (lo + hi);
-    if (std::abs(next - z) <= 1e-15 * std::max(1.0, z)) return next;
-    z = next;
+    // d/dz ln Phi(-z) = -phi(z) / Phi(-z)
+    const double step = (lt - target) / std::exp(log_phi - lt);
+    z += step;
+    if (std::abs(step) <= 1e-15 * z) break;
   }
   return z;
 }

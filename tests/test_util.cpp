@@ -58,8 +58,8 @@ Table read_table(const std::string& path) {
   std::ifstream f(path, std::ios::binary);
   CsvReader csv(f, path);
   Table t;
-  if (csv.next()) t.header = csv.fields();
-  while (csv.next()) t.rows.push_back(csv.fields());
+  if (csv.next()) t.header.assign(csv.fields().begin(), csv.fields().end());
+  while (csv.next()) t.rows.emplace_back(csv.fields().begin(), csv.fields().end());
   return t;
 }
 

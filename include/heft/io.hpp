@@ -32,7 +32,8 @@ class CsvReader {
   /// Throws InputError on an unterminated quote.
   bool next();
 
-  const std::vector<std::string>& fields() const { return fields_; }
+  /// Fields of the current record; valid until the next call to next().
+  const std::vector<std::string_view>& fields() const { return fields_; }
   /// 1-based line number where the current record starts.
   long line() const { return line_; }
   /// 1-based character column where field `i` of the current record starts.
@@ -43,7 +44,9 @@ class CsvReader {
   std::istream& in_;
   std::string name_;
   std::string buf_;
-  std::vector<std::string> fields_;
+  std::string storage_;  // field contents, back to back
+  std::vector<std::string_view> fields_;
+  std::vector<std::size_t> ends_;
   std::vector<long> columns_;
   long line_ = 0;
   long next_line_ = 1;
