@@ -1,0 +1,137 @@
+#pragma once
+/// \file window.hpp
+/// What a catalogue reports for a star on a curved path: the least-squares
+/// straight line (position at the reference epoch and proper motion) through
+/// the true track sampled over the catalogue's observing window.
+///
+/// The host's reflex track is linear in the orbit's X = cos E - e and
+/// Y = sqrt(1 - e^2) sin E (Thiele-Innes, kepler.hpp), so the window fit of
+/// the track is the same linear combination of the fits of X(t) and Y(t):
+/// WindowBasis holds those four numbers, which depend on (P, e, M0) only.
+/// Reference for the method: Kervella et al. 2019, A&A 623, A72, Sect. 3;
+/// derivation and the closed-form test oracle in docs/method.md.
+
+#include <array>
+#include <cmath>
+#include <vector>
+
+#include "heft/kepler.hpp"
+
+namespace heft {
+
+/// A catalogue's observing window and reference epoch (decimal Julian
+/// years). With `times_yr` empty the sampling is uniform and continuous over
+/// [start_yr, end_yr]; otherwise the fit uses those discrete times with
+/// `weights` (all 1 if empty).
+struct Window {
+  double start_yr, end_yr, ref_epoch_yr;
+  std::vector<double> times_yr;
+  std::vector<double> weights;
+};
+
+/// Least-squares line fits X(t) ~ x0 + xs (t - t_ref), Y(t) ~ y0 + ys (t - t_ref)
+/// over a window (x0, y0 dimensionless; xs, ys per Julian year).
+template <typename T>
+struct WindowBasis {
+  T x0, xs, y0, ys;
+};
+
+/// Catalogue-reported reflex of the host: position offset at the reference
+/// epoch (mas) and proper motion (mas/yr), relative to the barycentre.
+template <typename T>
+struct WindowFit {
+  T dra_mas, ddec_mas, pmra_mas_yr, pmdec_mas_yr;
+};
+
+namespace detail {
+/// 12-point Gauss-Legendre nodes and weights on [-1, 1].
+const std::array<double, 12>& gl_nodes();
+const std::array<double, 12>& gl_weights();
+}  // namespace detail
+
+/// Window fit of X(t), Y(t) for orbit (P, e, M0) (angles of `o` unused).
+/// Continuous sampling is integrated in eccentric anomaly,
+/// dt = P (1 - e cos E) dE / 2 pi, one 12-node Gauss-Legendre panel per half
+/// orbit; Kepler's equation is solved only at the window ends.
+template <typename T>
+WindowBasis<T> window_basis(const Orbit<T>& o, const Window& w) {
+  using std::cos;
+  using std::floor;
+  using std::sin;
+  using std::sqrt;
+  const T e = o.ecc;
+  const T b = sqrt(T(1.0) - e * e);
+  const T k = o.period_yr / T(units::kTwoPi);  // yr per rad of mean anomaly
+  T s0(0.0), s1(0.0), s2(0.0), sx(0.0), sxt(0.0), sy(0.0), syt(0.0);
+  if (w.times_yr.empty()) {
+    const double ts = w.start_yr - w.ref_epoch_yr, te = w.end_yr - w.ref_epoch_yr;
+    s0 = T(te - ts);
+    s1 = T((te * te - ts * ts) / 2.0);
+    s2 = T((te * te * te - ts * ts * ts) / 3.0);
+    const T Ms = mean_anomaly(o, w.start_yr), Me = mean_anomaly(o, w.end_yr);
+    const T Es = eccentric_anomaly(Ms, e), Ee = eccentric_anomaly(Me, e);
+    const auto& xi = detail::gl_nodes();
+    const auto& wt = detail::gl_weights();
+    // Panels between Es and Ee broken at multiples of pi.
+    const double es = scalar_of(Es), ee = scalar_of(Ee);
+    long kpi = static_cast<long>(floor(es / units::kPi)) + 1;
+    T a_edge = Es;
+    for (;;) {
+      const bool last = kpi * units::kPi >= ee;
+      const T b_edge = last ? Ee : T(kpi * units::kPi);
+      const T mid = (a_edge + b_edge) * 0.5, half = (b_edge - a_edge) * 0.5;
+      for (int j = 0; j < 12; ++j) {
+        const T E = mid + half * xi[j];
+        const T cE = cos(E), sE = sin(E);
+        const T dt = k * (T(1.0) - e * cE) * half * wt[j];
+        const T tau = T(ts) + k * (E - e * sE - Ms);
+        const T X = cE - e, Y = b * sE;
+        sx += X * dt;
+        sxt += X * tau * dt;
+        sy += Y * dt;
+        syt += Y * tau * dt;
+      }
+      if (last) break;
+      a_edge = b_edge;
+      ++kpi;
+    }
+  } else {
+    for (std::size_t i = 0; i < w.times_yr.size(); ++i) {
+      const T wi(w.weights.empty() ? 1.0 : w.weights[i]);
+      const double tau = w.times_yr[i] - w.ref_epoch_yr;
+      const T E = eccentric_anomaly(mean_anomaly(o, w.times_yr[i]), e);
+      const T X = cos(E) - e, Y = b * sin(E);
+      s0 += wi;
+      s1 += wi * tau;
+      s2 += wi * tau * tau;
+      sx += wi * X;
+      sxt += wi * X * tau;
+      sy += wi * Y;
+      syt += wi * Y * tau;
+    }
+  }
+  const T det = s0 * s2 - s1 * s1;
+  const T xs = (s0 * sxt - s1 * sx) / det, ys = (s0 * syt - s1 * sy) / det;
+  return {(sx - xs * s1) / s0, xs, (sy - ys * s1) / s0, ys};
+}
+
+/// The catalogue-reported reflex of the host for a companion of mass ratio
+/// q = m2 / (m1 + m2) on relative orbit o with semi-major axis a_au, seen
+/// at parallax_mas.
+template <typename T>
+WindowFit<T> fit_reflex(const Orbit<T>& o, const T& a_au, const T& q, const T& parallax_mas,
+                        const Window& w) {
+  const WindowBasis<T> wb = window_basis(o, w);
+  const ThieleInnes<T> ti = thiele_innes(T(1.0), o.inc_rad, o.arg_peri_rad, o.node_rad);
+  const T s = -q * a_au * parallax_mas;  // host side, mas
+  return {s * (ti.B * wb.x0 + ti.G * wb.y0), s * (ti.A * wb.x0 + ti.F * wb.y0),
+          s * (ti.B * wb.xs + ti.G * wb.ys), s * (ti.A * wb.xs + ti.F * wb.ys)};
+}
+
+/// Closed-form slope / instantaneous-velocity ratio for uniform sampling of
+/// a circular orbit over a window centred on the reference epoch:
+/// g(x) = 3 (sin x - x cos x) / x^3, x = pi W / P (docs/method.md); its
+/// series 1 - x^2/10 + x^4/280 - x^6/15120 below x = 1e-2.
+double circular_window_efficiency(double window_over_period);
+
+}  // namespace heft

@@ -1,0 +1,115 @@
+#include <catch2/catch.hpp>
+#include <random>
+
+#include "heft/kepler.hpp"
+
+using namespace heft;
+
+namespace {
+double deg(double rad) { return units::rad_to_deg(rad); }
+double rad(double deg) { return units::deg_to_rad(deg); }
+
+// Bisection reference solve of E - e sin E = M on [M - 1, M + 1] to 1e-14.
+double bisect(double M, double e) {
+  double lo = M - 1.0, hi = M + 1.0;
+  while (hi - lo > 1e-14) {
+    const double mid = 0.5 * (lo + hi);
+    (mid - e * std::sin(mid) - M > 0 ? hi : lo) = mid;
+  }
+  return 0.5 * (lo + hi);
+}
+}  // namespace
+
+TEST_CASE("Kepler's equation: handbook worked examples", "[kepler]") {
+  // Source: Meeus, Astronomical Algorithms (2nd ed.), ch. 30, Examples 30.a
+  // and 30.b (values from memory): e = 0.100, M = 5 deg -> E = 5.554589 deg;
+  // e = 0.99, M = 2 deg -> E = 32.361007 deg.
+  CHECK(deg(solve_kepler(rad(5.0), 0.1)) == Approx(5.554589).margin(1e-6));
+  CHECK(deg(solve_kepler(rad(2.0), 0.99)) == Approx(32.361007).margin(1e-6));
+}
+
+TEST_CASE("Kepler's equation against bisection on 1e5 random (M, e)", "[kepler]") {
+  // Reference: bisection to 1e-14 (common practice, no source).
+  std::mt19937_64 g(5);
+  std::uniform_real_distribution<double> u(0, 1);
+  double worst = 0, worst_table = 0;
+  for (int i = 0; i < 100000; ++i) {
+    const double e = i % 10 == 0 ? 0.99 : (i % 10 == 1 ? 0.0 : 0.995 * u(g));
+    double M = units::kTwoPi * u(g) * 3.0 - units::kTwoPi;  // several turns, both signs
+    if (i % 7 == 0) M = (u(g) < 0.5 ? 1e-9 : units::kTwoPi - 1e-9) * (1 + u(g));
+    const double ref = bisect(M, e);
+    worst = std::max(worst, std::abs(solve_kepler(M, e) - ref));
+    worst_table = std::max(worst_table, std::abs(KeplerSolver(e, 64)(M) - ref));
+  }
+  INFO("worst |E - E_ref| = " << worst << " (table: " << worst_table << ")");
+  CHECK(worst < 1e-12);
+  CHECK(worst_table < 1e-12);
+}
+
+TEST_CASE("Jets get the implicit derivative of Kepler's equation", "[kepler]") {
+  using J = ceres::Jet<double, 2>;
+  const double M = 0.7, e = 0.6, h = 1e-6;
+  const J E = eccentric_anomaly(J(M, 0), J(e, 1));
+  CHECK(E.v[0] == Approx((solve_kepler(M + h, e) - solve_kepler(M - h, e)) / (2 * h)).epsilon(1e-7));
+  CHECK(E.v[1] == Approx((solve_kepler(M, e + h) - solve_kepler(M, e - h)) / (2 * h)).epsilon(1e-7));
+}
+
+TEST_CASE("visual binary ephemeris: handbook worked example", "[kepler]") {
+  // Source: Meeus, Astronomical Algorithms (2nd ed.), ch. 57, Example 57.a
+  // (values from memory): eta Coronae Borealis, P = 41.623 yr,
+  // T = 1934.008, e = 0.2763, a = 0.907", i = 59.025, Omega = 23.717,
+  // omega = 219.907 deg; at 1980.0: theta = 318.4 deg, rho = 0.411".
+  const Orbit<double> o{41.623, 0.2763, rad(59.025), rad(219.907), rad(23.717), 0.0, 1934.008};
+  const OrbitPoint<double> p = orbit_point(o, 1980.0);
+  double sep, pa;
+  separation_pa(0.907 * p.x, 0.907 * p.y, sep, pa);
+  CHECK(deg(pa) == Approx(318.4).margin(0.05));
+  CHECK(sep == Approx(0.411).margin(0.0005));
+}
+
+TEST_CASE("Jupiter-Sun analogue", "[kepler]") {
+  // Common practice values, no source: 1 MJup at 5.2 AU around 1 Msun has
+  // P = 11.86 yr, gives the Sun a ~12.5 m/s reflex speed and a ~0.5 mas
+  // astrometric signature from 10 pc.
+  const double q = 1.0 / (units::kMjupPerMsun + 1.0);
+  const double P = period_from_a(5.2, 1.0 + 1.0 / units::kMjupPerMsun);
+  CHECK(P == Approx(11.86).epsilon(0.005));
+  const Orbit<double> o{P, 0.0, 0.0, 0.0, 0.0, 0.0, 2016.0};
+  const Reflex<double> r = host_reflex(o, 5.2, q, 100.0, 2016.3);
+  const double speed_m_s = std::hypot(r.pmra_mas_yr, r.pmdec_mas_yr) / 100.0 *
+                           units::kKmsPerAuYr * 1e3;
+  CHECK(speed_m_s == Approx(12.5).epsilon(0.01));
+  CHECK(std::hypot(r.dra_mas, r.ddec_mas) == Approx(0.5).epsilon(0.01));
+  CHECK(a_from_period(P, 1.0 + 1.0 / units::kMjupPerMsun) == Approx(5.2).epsilon(1e-12));
+}
+
+TEST_CASE("host RV is the time derivative of its line-of-sight coordinate", "[kepler]") {
+  // Definition (docs/orbits.md): z away from the observer, RV > 0 receding;
+  // checked by central differences on random eccentric orbits.
+  std::mt19937_64 g(9);
+  std::uniform_real_distribution<double> u(0, 1);
+  for (int n = 0; n < 200; ++n) {
+    const Orbit<double> o{0.5 + 30 * u(g), 0.95 * u(g), std::acos(2 * u(g) - 1),
+                          units::kTwoPi * u(g), units::kTwoPi * u(g), units::kTwoPi * u(g), 2016.0};
+    const double a_au = 1 + 10 * u(g), q = 0.1 * u(g), t = 2016.0 + 10 * u(g), h = 1e-5;
+    const double z_host = [&](double tt) { return -q * a_au * orbit_point(o, tt).z; }(t + h) -
+                          [&](double tt) { return -q * a_au * orbit_point(o, tt).z; }(t - h);
+    const double rv_fd = z_host / (2 * h) * units::kKmsPerAuYr;
+    CHECK(host_reflex(o, a_au, q, 10.0, t).rv_km_s == Approx(rv_fd).epsilon(1e-6).margin(1e-9));
+  }
+}
+
+TEST_CASE("position angle increases with time for i < 90 deg", "[kepler]") {
+  // Convention of docs/orbits.md (direct motion for i < 90 deg).
+  const Orbit<double> o{10.0, 0.3, rad(30.0), rad(40.0), rad(70.0), 0.0, 2000.0};
+  double s1, p1, s2, p2;
+  const auto a = orbit_point(o, 2001.0), b = orbit_point(o, 2001.01);
+  separation_pa(a.x, a.y, s1, p1);
+  separation_pa(b.x, b.y, s2, p2);
+  CHECK(p2 > p1);
+  // At the ascending node the companion recedes (z increasing).
+  Orbit<double> on = o;
+  on.arg_peri_rad = 0.0;  // periastron at the node: at T the companion is at the node
+  CHECK(orbit_point(on, 2000.0).vz > 0.0);
+  CHECK(std::abs(orbit_point(on, 2000.0).z) < 1e-12);
+}
