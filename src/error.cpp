@@ -11,7 +11,7 @@ std::string where(const std::string& file, long line, long column) {
 }  // namespace
 
 InputError::InputError(std::string file, long line, long column, const std::string& rule)
-    : Error(where(file, line, column) + ": " + rule),
+    : Error(file.empty() && line == 0 ? rule : where(file, line, column) + ": " + rule),
       file_(std::move(file)),
       line_(line),
       column_(column) {}

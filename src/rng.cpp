@@ -70,4 +70,25 @@ double Rng::log_uniform(double lo, double hi) {
   return lo * std::exp(std::log(hi / lo) * uniform());
 }
 
+double Rng::gamma(double shape) {
+  if (shape < 1.0) return gamma(shape + 1.0) * std::pow(uniform_open(), 1.0 / shape);
+  const double d = shape - 1.0 / 3.0, c = 1.0 / std::sqrt(9.0 * d);
+  for (;;) {
+    double x, v;
+    do {
+      x = normal();
+      v = 1.0 + c * x;
+    } while (v <= 0.0);
+    v = v * v * v;
+    const double u = uniform_open();
+    if (u < 1.0 - 0.0331 * x * x * x * x) return d * v;
+    if (std::log(u) < 0.5 * x * x + d * (1.0 - v + std::log(v))) return d * v;
+  }
+}
+
+double Rng::beta(double a, double b) {
+  const double x = gamma(a), y = gamma(b);
+  return x / (x + y);
+}
+
 }  // namespace heft

@@ -59,3 +59,192 @@ Astrometry make_astrometry(const SkyState<double>& truth, const CatalogueModel& 
 }
 
 }  // namespace heft
+
+#include <cstdio>
+
+#include "heft/anomaly.hpp"
+#include "heft/error.hpp"
+#include "heft/io.hpp"
+#include "heft/window.hpp"
+
+namespace heft {
+
+double Distribution::draw(Rng& rng) const {
+  switch (kind) {
+    case Kind::kFixed: return p1;
+    case Kind::kUniform: return rng.uniform(p1, p2);
+    case Kind::kLogUniform: return rng.log_uniform(p1, p2);
+    case Kind::kBeta: return rng.beta(p1, p2);
+  }
+  return p1;
+}
+
+std::string Distribution::str() const {
+  switch (kind) {
+    case Kind::kFixed: return format_double(p1);
+    case Kind::kUniform: return "uniform:" + format_double(p1) + "," + format_double(p2);
+    case Kind::kLogUniform: return "loguniform:" + format_double(p1) + "," + format_double(p2);
+    case Kind::kBeta: return "beta:" + format_double(p1) + "," + format_double(p2);
+  }
+  return "";
+}
+
+Distribution Distribution::parse(const std::string& text, const std::string& option) {
+  auto fail = [&](const std::string& why) -> Distribution {
+    throw InputError("", 0, 0, "option " + option + " '" + text + "': " + why);
+  };
+  Distribution d;
+  const auto colon = text.find(':');
+  const std::string kind = colon == std::string::npos ? "fixed" : text.substr(0, colon);
+  const std::string args = colon == std::string::npos ? text : text.substr(colon + 1);
+  if (kind == "fixed") {
+    if (!parse_double(args, d.p1) || !std::isfinite(d.p1)) return fail("not a number");
+    return d;
+  }
+  const auto comma = args.find(',');
+  if (comma == std::string::npos || !parse_double(args.substr(0, comma), d.p1) ||
+      !parse_double(args.substr(comma + 1), d.p2) || !std::isfinite(d.p1) || !std::isfinite(d.p2))
+    return fail("expected KIND:A,B with two numbers");
+  if (kind == "uniform") d.kind = Kind::kUniform;
+  else if (kind == "loguniform") d.kind = Kind::kLogUniform;
+  else if (kind == "beta") d.kind = Kind::kBeta;
+  else return fail("unknown distribution (fixed, uniform, loguniform, beta)");
+  if (d.kind != Kind::kBeta && !(d.p1 < d.p2)) return fail("need A < B");
+  if (d.kind == Kind::kLogUniform && !(d.p1 > 0)) return fail("loguniform needs A > 0");
+  if (d.kind == Kind::kBeta && !(d.p1 > 0 && d.p2 > 0)) return fail("beta needs A, B > 0");
+  return d;
+}
+
+std::string simulated_id(const SurveyModel& m, long index) {
+  char buf[32];
+  std::snprintf(buf, sizeof buf, "%05ld", index + 1);
+  return m.id_prefix + buf;
+}
+
+namespace {
+// Direction uniform in a cap of radius r around (ra0, dec0).
+void draw_direction(const SurveyModel& m, Rng& rng, double& ra, double& dec) {
+  const double r = units::deg_to_rad(std::min(m.sky_radius_deg, 180.0));
+  const double cz = 1.0 - rng.uniform() * (1.0 - std::cos(r));
+  const double sz = std::sqrt(std::max(0.0, 1.0 - cz * cz)), phi = units::kTwoPi * rng.uniform();
+  double p[3], q[3], c[3];
+  normal_triad(units::deg_to_rad(m.sky_ra_deg), units::deg_to_rad(m.sky_dec_deg), p, q, c);
+  double u[3];
+  for (int k = 0; k < 3; ++k) u[k] = cz * c[k] + sz * (std::cos(phi) * q[k] + std::sin(phi) * p[k]);
+  direction_to_radec(u, ra, dec);
+}
+
+// Catalogue entry of the host: barycentre at the catalogue epoch plus the
+// window fit of the reflex, with the entry's random covariance.
+Astrometry catalogue_entry(const SkyState<double>& bary_late, const CatalogueModel& cm,
+                           double late_epoch, const Orbit<double>* orbit, double a_au, double q,
+                           Rng& rng) {
+  const SkyState<double> bary = propagate(bary_late, cm.epoch_yr - late_epoch);
+  SkyState<double> seen = bary;
+  if (orbit) {
+    const Window w{cm.window_start_yr, cm.window_end_yr, cm.epoch_yr, {}, {}};
+    const WindowFit<double> f = fit_reflex(*orbit, a_au, q, bary.parallax_mas, w);
+    seen.dec_rad += units::mas_to_rad(f.ddec_mas);
+    seen.ra_rad += units::mas_to_rad(f.dra_mas) / std::cos(bary.dec_rad);
+    seen.pmra_mas_yr += f.pmra_mas_yr;
+    seen.pmdec_mas_yr += f.pmdec_mas_yr;
+  }
+  return make_astrometry(seen, cm, rng, false);
+}
+}  // namespace
+
+void simulate_star(const SurveyModel& m, long index, StarRecord& star, SimTruth& t) {
+  star = StarRecord{};
+  star.id = simulated_id(m, index);
+  Rng rng = Rng::for_star(m.seed, star.id);
+  t = SimTruth{};
+  t.id = star.id;
+  // Host and its barycentric motion at the late epoch.
+  t.host_mass_msun = m.host_mass_msun.draw(rng);
+  t.distance_pc = m.distance_pc.draw(rng);
+  t.parallax_mas = 1000.0 / t.distance_pc;
+  double ra, dec;
+  draw_direction(m, rng, ra, dec);
+  const double ve = m.v_east_km_s + m.v_sigma_km_s * rng.normal();
+  const double vn = m.v_north_km_s + m.v_sigma_km_s * rng.normal();
+  t.rv_km_s = m.v_radial_km_s + m.v_sigma_km_s * rng.normal();
+  const double k = t.parallax_mas / units::kKmsPerAuYr;  // mas/yr per km/s
+  const SkyState<double> bary{ra, dec, t.parallax_mas, ve * k, vn * k, t.rv_km_s};
+  // Companion.
+  t.companion = rng.uniform() < m.companion_fraction;
+  Orbit<double> orbit{};
+  double q = 0.0;
+  if (t.companion) {
+    t.mass_mjup = m.companion_mass_mjup.draw(rng);
+    t.a_au = m.a_au.draw(rng);
+    t.ecc = std::clamp(m.ecc.draw(rng), 0.0, 0.99);
+    const double m2 = t.mass_mjup / units::kMjupPerMsun;
+    q = m2 / (t.host_mass_msun + m2);
+    t.period_yr = period_from_a(t.a_au, t.host_mass_msun + m2);
+    orbit = {t.period_yr,
+             t.ecc,
+             std::acos(rng.uniform(-1.0, 1.0)),
+             units::kTwoPi * rng.uniform(),
+             units::kTwoPi * rng.uniform(),
+             units::kTwoPi * rng.uniform(),
+             m.late.epoch_yr};
+    t.inc_deg = units::rad_to_deg(orbit.inc_rad);
+    t.arg_peri_deg = units::rad_to_deg(orbit.arg_peri_rad);
+    t.node_deg = units::rad_to_deg(orbit.node_rad);
+    t.mean_anom_late_deg = units::rad_to_deg(orbit.mean_anom_ref_rad);
+  } else {
+    t.mass_mjup = t.a_au = t.period_yr = t.ecc = t.inc_deg = t.arg_peri_deg = t.node_deg =
+        t.mean_anom_late_deg = kAbsent;
+  }
+  const Orbit<double>* op = t.companion ? &orbit : nullptr;
+  star.early = catalogue_entry(bary, m.early, m.late.epoch_yr, op, t.a_au, q, rng);
+  star.late = catalogue_entry(bary, m.late, m.late.epoch_yr, op, t.a_au, q, rng);
+  // Noiseless anomalies, exactly as the screen computes them.
+  bool ok = false;
+  std::string why;
+  const AnomalyResult r = compute_anomaly(star.early, star.late, t.rv_km_s, 1.0, ok, why);
+  t.dpm_late_ra = r.dpm_late_mas_yr.x();
+  t.dpm_late_dec = r.dpm_late_mas_yr.y();
+  t.dpm_early_ra = r.dpm_early_mas_yr.x();
+  t.dpm_early_dec = r.dpm_early_mas_yr.y();
+  add_noise(star.early, rng);
+  add_noise(star.late, rng);
+  // Star-level columns.
+  star.mass_msun = t.host_mass_msun * (1.0 + m.host_mass_rel_error * rng.normal());
+  star.mass_msun = std::max(star.mass_msun, 0.05 * t.host_mass_msun);
+  star.mass_error_msun = m.host_mass_rel_error * t.host_mass_msun;
+  if (rng.uniform() < m.rv_fraction) {
+    const double reflex_rv =
+        t.companion ? host_reflex(orbit, t.a_au, q, t.parallax_mas, m.late.epoch_yr).rv_km_s : 0.0;
+    star.rv_km_s = t.rv_km_s + reflex_rv + m.rv_error_km_s * rng.normal();
+    star.rv_error_km_s = m.rv_error_km_s;
+  }
+  // Crude main-sequence magnitude, M = 4.83 - 10 log10(m / Msun) (L ~ m^4):
+  // for sorting and contrast estimates in the demo only.
+  star.mag = 4.83 - 10.0 * std::log10(t.host_mass_msun) + 5.0 * std::log10(t.distance_pc / 10.0);
+  star.age_myr = m.age_myr;
+}
+
+std::string truth_header() {
+  return "id,host_mass,parallax,distance_pc,rv_true,companion,mass_mjup,a_au,period_yr,ecc,"
+         "inc_deg,arg_peri_deg,node_deg,mean_anom_late_deg,dpm_late_ra,dpm_late_dec,"
+         "dpm_early_ra,dpm_early_dec\n";
+}
+
+void append_truth_row(std::string& out, const SimTruth& t) {
+  append_csv_field(out, t.id);
+  for (double v : {t.host_mass_msun, t.parallax_mas, t.distance_pc, t.rv_km_s}) {
+    out += ',';
+    append_double(out, v);
+  }
+  out += t.companion ? ",1" : ",0";
+  for (double v : {t.mass_mjup, t.a_au, t.period_yr, t.ecc, t.inc_deg, t.arg_peri_deg, t.node_deg,
+                   t.mean_anom_late_deg, t.dpm_late_ra, t.dpm_late_dec, t.dpm_early_ra,
+                   t.dpm_early_dec}) {
+    out += ',';
+    append_double(out, v);
+  }
+  out += '\n';
+}
+
+}  // namespace heft

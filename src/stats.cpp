@@ -96,4 +96,23 @@ double normal_quantile(double p) {
   return x - u / (1 + 0.5 * x * u);
 }
 
+double ks_test(std::vector<double>& sample, double (*cdf)(double), double& p_value) {
+  std::sort(sample.begin(), sample.end());
+  const double n = static_cast<double>(sample.size());
+  double d = 0.0;
+  for (std::size_t i = 0; i < sample.size(); ++i) {
+    const double f = cdf(sample[i]);
+    d = std::max({d, (i + 1) / n - f, f - i / n});
+  }
+  const double sn = std::sqrt(n), lambda = (sn + 0.12 + 0.11 / sn) * d;
+  double q = 0.0;
+  if (lambda < 0.2) {
+    q = 1.0;
+  } else {
+    for (int k = 1; k <= 100; ++k) q += 2.0 * ((k % 2) ? 1.0 : -1.0) * std::exp(-2.0 * k * k * lambda * lambda);
+  }
+  p_value = std::clamp(q, 0.0, 1.0);
+  return d;
+}
+
 }  // namespace heft

@@ -33,6 +33,11 @@ class Rng {
   double normal();
   /// Log-uniform in [lo, hi), lo > 0.
   double log_uniform(double lo, double hi);
+  /// Gamma(shape, 1) deviate (Marsaglia & Tsang 2000, ACM TOMS 26, 363;
+  /// shape < 1 through the boost U^(1/shape)).
+  double gamma(double shape);
+  /// Beta(a, b) deviate from two gamma deviates.
+  double beta(double a, double b);
 
  private:
   std::uint64_t s_[4];

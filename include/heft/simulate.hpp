@@ -4,6 +4,8 @@
 /// noise drawn from each entry's full covariance.
 
 #include <Eigen/Core>
+#include <cstdint>
+#include <string>
 
 #include "heft/catalog.hpp"
 #include "heft/propagate.hpp"
@@ -38,5 +40,65 @@ Astrometry make_astrometry(const SkyState<double>& truth, const CatalogueModel& 
 
 /// Adds a deviate of a.covariance() to the five values of `a`.
 void add_noise(Astrometry& a, Rng& rng);
+
+}  // namespace heft
+
+namespace heft {
+
+/// A one-parameter-family distribution given on the command line:
+/// "V" or "fixed:V", "uniform:A,B", "loguniform:A,B", "beta:A,B".
+struct Distribution {
+  enum class Kind { kFixed, kUniform, kLogUniform, kBeta } kind = Kind::kFixed;
+  double p1 = 0.0, p2 = 0.0;
+  double draw(Rng& rng) const;
+  std::string str() const;
+  /// Parses the text form; throws InputError naming `option`.
+  static Distribution parse(const std::string& text, const std::string& option);
+};
+
+/// Everything that defines a synthetic two-epoch survey.
+struct SurveyModel {
+  long n_stars = 1000;
+  std::uint64_t seed = 1;
+  std::string id_prefix = "SIM-";
+  Distribution host_mass_msun{Distribution::Kind::kLogUniform, 0.5, 1.5};
+  double host_mass_rel_error = 0.1;      ///< catalogue mass error (fraction)
+  Distribution distance_pc{Distribution::Kind::kUniform, 20.0, 200.0};
+  /// Sky: a cap of radius sky_radius_deg around (sky_ra_deg, sky_dec_deg),
+  /// uniform on the sphere when the radius is >= 180.
+  double sky_ra_deg = 0.0, sky_dec_deg = 0.0, sky_radius_deg = 180.0;
+  /// Space motion: mean velocity (km/s; towards east, north, receding) and
+  /// isotropic dispersion.
+  double v_east_km_s = 0.0, v_north_km_s = 0.0, v_radial_km_s = 0.0, v_sigma_km_s = 20.0;
+  double rv_fraction = 0.3;    ///< share of stars with a measured RV
+  double rv_error_km_s = 0.5;
+  double companion_fraction = 0.1;
+  Distribution companion_mass_mjup{Distribution::Kind::kLogUniform, 1.0, 80.0};
+  Distribution a_au{Distribution::Kind::kLogUniform, 1.0, 100.0};
+  Distribution ecc{Distribution::Kind::kUniform, 0.0, 0.8};
+  double age_myr = kAbsent;
+  CatalogueModel early = default_early_model(), late = default_late_model();
+};
+
+/// What was injected into one simulated star.
+struct SimTruth {
+  std::string id;
+  double host_mass_msun, parallax_mas, distance_pc, rv_km_s;
+  bool companion;
+  double mass_mjup, a_au, period_yr, ecc, inc_deg, arg_peri_deg, node_deg, mean_anom_late_deg;
+  /// Noiseless anomalies (mas/yr): the screen's anomaly of the noiseless catalogues.
+  double dpm_late_ra, dpm_late_dec, dpm_early_ra, dpm_early_dec;
+};
+
+/// Simulates star number `index` of the survey from its own random stream
+/// (seed, id), so results do not depend on order, threads or shards.
+void simulate_star(const SurveyModel& model, long index, StarRecord& star, SimTruth& truth);
+
+/// Truth table header and rows (CSV, with newline).
+std::string truth_header();
+void append_truth_row(std::string& out, const SimTruth& t);
+
+/// Id of star `index`: prefix + zero-padded number.
+std::string simulated_id(const SurveyModel& model, long index);
 
 }  // namespace heft

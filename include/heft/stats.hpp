@@ -3,6 +3,8 @@
 /// Tail probabilities and significance conversions that stay finite far in
 /// the tails (chi2 up to 1e4 and beyond), by working with log-probabilities.
 
+#include <vector>
+
 namespace heft {
 
 /// Natural log of the chi-squared survival function Q(dof/2, chi2/2), for an
@@ -29,5 +31,12 @@ double chi2_to_sigma(double chi2, int dof);
 /// Standard normal quantile Phi^{-1}(p), 0 < p < 1 (Acklam's rational
 /// approximation refined by one Halley step; ~1e-15 relative).
 double normal_quantile(double p);
+
+/// Kolmogorov-Smirnov test of a sample against a continuous CDF.
+/// Given: sample (sorted in place), cdf. Returned: the statistic D; `p_value`
+/// from the asymptotic Kolmogorov distribution with the small-sample
+/// correction lambda = (sqrt n + 0.12 + 0.11 / sqrt n) D (Stephens 1970, as
+/// in Numerical Recipes, 3rd ed., Sect. 14.3.3).
+double ks_test(std::vector<double>& sample, double (*cdf)(double), double& p_value);
 
 }  // namespace heft

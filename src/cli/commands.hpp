@@ -7,4 +7,5 @@
 namespace heft::cli {
 void setup_ingest(CLI::App& app, Runner& run);
 void setup_screen(CLI::App& app, Runner& run);
+void setup_simulate(CLI::App& app, Runner& run);
 }  // namespace heft::cli

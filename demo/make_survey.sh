@@ -1,0 +1,15 @@
+#!/usr/bin/env bash
+# Regenerates the bundled demo survey: the invented Keth Moving Group, a young
+# association ~120 pc away, screened by the (invented) Halcyon imaging survey.
+# 2,000 stars, about 2 % with an injected companion. Fixed seed: the files
+# are byte-identical on every machine.
+set -euo pipefail
+here=$(cd "$(dirname "$0")" && pwd)
+heft=${HEFT:-$here/../build/heft}
+"$heft" simulate -q --stars 2000 --seed 20261201 --id-prefix KMG- \
+  --sky 210.0,-38.0 --sky-radius 8 --distance uniform:100,140 \
+  --velocity -10,-18,5 --velocity-sigma 1.5 --host-mass loguniform:0.3,2.0 \
+  --rv-fraction 0.4 --age 25 \
+  --companion-fraction 0.02 --companion-mass loguniform:1,80 --a loguniform:2,200 \
+  --ecc uniform:0,0.6 \
+  -o "$here/survey/stars.csv" --truth "$here/survey/truth.csv"

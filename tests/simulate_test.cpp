@@ -1,0 +1,116 @@
+#include <catch2/catch.hpp>
+
+#include "heft/screen.hpp"
+#include "heft/simulate.hpp"
+#include "heft/stats.hpp"
+#include "test_util.hpp"
+
+using namespace heft;
+
+namespace {
+double chi2_2_cdf(double x) { return 1.0 - std::exp(-0.5 * x); }
+}  // namespace
+
+TEST_CASE("simulated single stars screen to chi2(2)", "[simulate]") {
+  // Source: chi2 of whitened Gaussian 2-vectors is chi2(2) (statistics);
+  // KS test with a fixed seed, p > 0.01.
+  SurveyModel m;
+  m.n_stars = 20000;
+  m.seed = 77;
+  m.companion_fraction = 0.0;
+  std::vector<double> late, early;
+  StarRecord s;
+  SimTruth t;
+  for (long i = 0; i < m.n_stars; ++i) {
+    simulate_star(m, i, s, t);
+    const ScreenRow r = screen_star(s, validate_star(s), ScreenOptions{});
+    REQUIRE(r.ok());
+    late.push_back(r.result.chi2_late);
+    early.push_back(r.result.chi2_early);
+  }
+  double p_late, p_early;
+  const double d = ks_test(late, chi2_2_cdf, p_late);
+  ks_test(early, chi2_2_cdf, p_early);
+  INFO("KS D = " << d << ", p_late = " << p_late << ", p_early = " << p_early);
+  CHECK(p_late > 0.01);
+  CHECK(p_early > 0.01);
+  // The KS test itself can fail: chi2(4) values are rejected as chi2(2).
+  std::vector<double> wrong;
+  for (long i = 0; i + 1 < m.n_stars; i += 2) wrong.push_back(late[i] + late[i + 1]);
+  double p_wrong;
+  ks_test(wrong, chi2_2_cdf, p_wrong);
+  CHECK(p_wrong < 1e-6);
+}
+
+TEST_CASE("injection-recovery: recovered anomalies scatter by their errors", "[simulate]") {
+  // Pull = (recovered dpm_late - noiseless truth) / reported error: mean 0 +- 0.05
+  // and standard deviation 1 +- 0.05 per axis (statistics, common practice).
+  SurveyModel m;
+  m.n_stars = 6000;
+  m.seed = 4242;
+  m.companion_fraction = 0.5;
+  double sum[2] = {0, 0}, sum2[2] = {0, 0};
+  long n = 0;
+  StarRecord s;
+  SimTruth t;
+  for (long i = 0; i < m.n_stars; ++i) {
+    simulate_star(m, i, s, t);
+    const ScreenRow r = screen_star(s, validate_star(s), ScreenOptions{});
+    REQUIRE(r.ok());
+    const double pr = (r.result.dpm_late_mas_yr.x() - t.dpm_late_ra) / std::sqrt(r.result.dpm_cov(0, 0));
+    const double pd = (r.result.dpm_late_mas_yr.y() - t.dpm_late_dec) / std::sqrt(r.result.dpm_cov(1, 1));
+    sum[0] += pr; sum2[0] += pr * pr;
+    sum[1] += pd; sum2[1] += pd * pd;
+    ++n;
+  }
+  for (int k = 0; k < 2; ++k) {
+    const double mean = sum[k] / n, sd = std::sqrt(sum2[k] / n - mean * mean);
+    INFO("axis " << k << ": mean " << mean << ", sd " << sd);
+    CHECK(std::abs(mean) < 0.05);
+    CHECK(std::abs(sd - 1.0) < 0.05);
+  }
+}
+
+TEST_CASE("simulated companions produce the expected anomaly scale", "[simulate]") {
+  // A companion injected with a well-defined orbit gives a noiseless late
+  // anomaly of the order of the reflex PM (a window-smeared version of it).
+  SurveyModel m;
+  m.n_stars = 300;
+  m.seed = 5;
+  m.companion_fraction = 1.0;
+  StarRecord s;
+  SimTruth t;
+  long big = 0;
+  for (long i = 0; i < m.n_stars; ++i) {
+    simulate_star(m, i, s, t);
+    REQUIRE(t.companion);
+    const double q = t.mass_mjup / units::kMjupPerMsun / (t.host_mass_msun + t.mass_mjup / units::kMjupPerMsun);
+    const double vmax = q * units::kTwoPi * t.a_au * t.parallax_mas / t.period_yr *
+                        std::sqrt((1 + t.ecc) / (1 - t.ecc));  // periastron speed, mas/yr
+    const double dpm = std::hypot(t.dpm_late_ra, t.dpm_late_dec);
+    CHECK(dpm <= 2.0 * vmax + 1e-9);  // |PM - long-baseline| <= 2 max reflex speed
+    big += dpm > 0.1 * vmax;
+  }
+  CHECK(big > 150);
+}
+
+TEST_CASE("simulate is byte-identical across runs and thread counts", "[simulate][cli]") {
+  const std::string a = test::tmp_path("sim_a.csv"), b = test::tmp_path("sim_b.csv"),
+                    ta = test::tmp_path("sim_ta.csv"), tb = test::tmp_path("sim_tb.csv");
+  REQUIRE(test::run_heft("simulate -q --stars 3000 --seed 9 --companion-fraction 0.3 -j 1 -o " + a + " --truth " + ta) == 0);
+  REQUIRE(test::run_heft("simulate -q --stars 3000 --seed 9 --companion-fraction 0.3 -j 2 -o " + b + " --truth " + tb) == 0);
+  CHECK(test::read_text(a) == test::read_text(b));
+  CHECK(test::read_text(ta) == test::read_text(tb));
+  const auto truth = test::read_table(ta);
+  for (const char* c : {"id", "host_mass", "parallax", "companion", "mass_mjup", "a_au", "period_yr",
+                        "ecc", "inc_deg", "arg_peri_deg", "node_deg", "mean_anom_late_deg",
+                        "dpm_late_ra", "dpm_late_dec", "dpm_early_ra", "dpm_early_dec"})
+    CHECK(truth.col(c) >= 0);
+  const auto stars = test::read_table(a);
+  REQUIRE(stars.rows.size() == 3000);
+  CHECK(stars.num(0, "early_window_start") == 1989.85);
+  CHECK(stars.num(0, "late_window_end") == 2017.41);
+  std::string err;
+  CHECK(test::run_heft("simulate --stars 10 --ecc beta:0", &err) == 2);
+  CHECK(err.find("--ecc") != std::string::npos);
+}
