@@ -63,7 +63,14 @@ double KeplerSolver::operator()(double M) const {
   const double t = (m - k * h_) / h_, t2 = t * t, t3 = t2 * t;
   double E = (2 * t3 - 3 * t2 + 1) * E_[k] + (t3 - 2 * t2 + t) * h_ * dE_[k] +
              (-2 * t3 + 3 * t2) * E_[k + 1] + (t3 - t2) * h_ * dE_[k + 1];
-  E = polish(E, m, e_, E_[k], E_[k + 1]);
+  // One Halley step (cubic convergence) polishes the interpolant to machine
+  // precision where the table is fine enough; the safeguarded Newton loop
+  // takes over only where it is not (high e next to periastron).
+  const double s = std::sin(E), c = std::cos(E);
+  const double f = E - e_ * s - m, fp = 1.0 - e_ * c;
+  const double step = f / (fp - 0.5 * f * e_ * s / fp);
+  E -= step;
+  if (std::abs(step) > 1e-6) E = polish(E, m, e_, E_[k], E_[k + 1]);
   return offset + sign * E;
 }
 

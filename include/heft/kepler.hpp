@@ -37,7 +37,7 @@ double solve_kepler(double mean_anom_rad, double ecc);
 /// solve_kepler.
 class KeplerSolver {
  public:
-  explicit KeplerSolver(double ecc, int n_nodes = 256);
+  explicit KeplerSolver(double ecc, int n_nodes = 1024);
   double operator()(double mean_anom_rad) const;
   void solve(const double* mean_anom_rad, double* ecc_anom_rad, std::size_t n) const;
   double ecc() const { return e_; }
