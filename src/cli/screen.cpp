@@ -1,5 +1,7 @@
 // heft screen: proper-motion anomaly of every star of a canonical star table.
 
+#include <omp.h>
+
 #include <memory>
 
 #include "cli/commands.hpp"
@@ -18,6 +20,7 @@ struct ScreenCliOptions {
   std::string json;
   std::string late_spin_table;
   bool strict = false;
+  int threads = 0;
   bool quiet = false;
   ScreenOptions screen;
   WindowDefaults windows;
@@ -38,6 +41,7 @@ nlohmann::ordered_json calibration_json(const EpochCalibration& c) {
 int run_screen(const ScreenCliOptions& o) {
   ScreenOptions opt = o.screen;
   if (!o.late_spin_table.empty()) opt.late.spin_table = read_spin_table(o.late_spin_table);
+  if (o.threads > 0) omp_set_num_threads(o.threads);
   InputFile in(o.input);
   StarTableReader reader(in.stream(), in.name(), o.windows);
   for (const auto& c : reader.unknown_columns())
@@ -50,25 +54,37 @@ int run_screen(const ScreenCliOptions& o) {
   }
   std::string buf = screen_header(), jbuf;
   StatusCounter counter;
-  StarRecord star;
-  std::string bad;
-  while (reader.next(star, bad)) {
-    if (o.strict && !bad.empty())
-      throw InputError(in.name(), reader.line(), 0, "star '" + star.id + "': bad input: " + bad);
-    const ScreenRow row = screen_star(star, bad, opt);
-    if (o.strict && !row.ok())
-      throw InputError(in.name(), reader.line(), 0, "star '" + star.id + "': " + row.status);
-    counter.add(row.status);
-    append_screen_row(buf, row);
+  // Rows are parsed in order, screened in parallel chunk by chunk, and
+  // written in order: the output does not depend on the thread count.
+  const std::size_t chunk = 2048;
+  std::vector<StarRecord> stars(chunk);
+  std::vector<std::string> bad(chunk);
+  std::vector<long> lines(chunk);
+  std::vector<ScreenRow> rows(chunk);
+  for (bool more = true; more;) {
+    std::size_t n = 0;
+    while (n < chunk && (more = reader.next(stars[n], bad[n]))) {
+      if (o.strict && !bad[n].empty())
+        throw InputError(in.name(), reader.line(), 0,
+                         "star '" + stars[n].id + "': bad input: " + bad[n]);
+      lines[n++] = reader.line();
+    }
+#pragma omp parallel for schedule(static)
+    for (std::size_t i = 0; i < n; ++i) rows[i] = screen_star(stars[i], bad[i], opt);
+    for (std::size_t i = 0; i < n; ++i) {
+      const ScreenRow& row = rows[i];
+      if (o.strict && !row.ok())
+        throw InputError(in.name(), lines[i], 0, "star '" + row.id + "': " + row.status);
+      counter.add(row.status);
+      append_screen_row(buf, row);
+      if (json) {
+        if (counter.total() > 1) jbuf += ",\n";
+        jbuf += screen_row_json(row).dump();
+      }
+    }
+    out.write(buf);
+    buf.clear();
     if (json) {
-      if (counter.total() > 1) jbuf += ",\n";
-      jbuf += screen_row_json(row).dump();
-    }
-    if (buf.size() > (1u << 20)) {
-      out.write(buf);
-      buf.clear();
-    }
-    if (jbuf.size() > (1u << 20)) {
       json->write(jbuf);
       jbuf.clear();
     }
@@ -153,6 +169,8 @@ void setup_screen(CLI::App& app, Runner& run) {
                   "default late observing window START,END (yr) for rows without one")
       ->default_str("2014.57,2017.41");
   sub->add_flag("--strict", o->strict, "the first bad row is fatal (exit 2)");
+  sub->add_option("-j,--threads", o->threads, "threads (default: all cores); output is identical")
+      ->check(CLI::NonNegativeNumber);
   sub->add_flag("-q,--quiet", o->quiet, "no informational messages");
   sub->footer(
       "Units: PMs and anomalies mas/yr, errors 1 sigma, dvt m/s, dt yr. Exit codes: 0 ok, 1 "
