@@ -19,6 +19,7 @@ int main(int argc, char** argv) {
   Runner run;
   setup_ingest(app, run);
   setup_screen(app, run);
+  setup_curve(app, run);
   setup_simulate(app, run);
   try {
     app.parse(argc, argv);

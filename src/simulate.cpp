@@ -61,6 +61,7 @@ Astrometry make_astrometry(const SkyState<double>& truth, const CatalogueModel& 
 }  // namespace heft
 
 #include <cstdio>
+#include <limits>
 
 #include "heft/anomaly.hpp"
 #include "heft/error.hpp"
@@ -77,6 +78,20 @@ double Distribution::draw(Rng& rng) const {
     case Kind::kBeta: return rng.beta(p1, p2);
   }
   return p1;
+}
+
+double Distribution::log_pdf(double x) const {
+  const double ninf = -std::numeric_limits<double>::infinity();
+  switch (kind) {
+    case Kind::kFixed: return 0.0;
+    case Kind::kUniform: return x >= p1 && x <= p2 ? -std::log(p2 - p1) : ninf;
+    case Kind::kLogUniform: return x >= p1 && x <= p2 ? -std::log(x * std::log(p2 / p1)) : ninf;
+    case Kind::kBeta:
+      if (!(x > 0 && x < 1)) return ninf;
+      return (p1 - 1) * std::log(x) + (p2 - 1) * std::log1p(-x) + std::lgamma(p1 + p2) -
+             std::lgamma(p1) - std::lgamma(p2);
+  }
+  return ninf;
 }
 
 std::string Distribution::str() const {

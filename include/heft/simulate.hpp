@@ -51,6 +51,8 @@ struct Distribution {
   enum class Kind { kFixed, kUniform, kLogUniform, kBeta } kind = Kind::kFixed;
   double p1 = 0.0, p2 = 0.0;
   double draw(Rng& rng) const;
+  /// Log density at x (-inf outside the support; 0 for kFixed).
+  double log_pdf(double x) const;
   std::string str() const;
   /// Parses the text form; throws InputError naming `option`.
   static Distribution parse(const std::string& text, const std::string& option);

@@ -13,6 +13,7 @@
 
 #include <array>
 #include <cmath>
+#include <limits>
 #include <vector>
 
 #include "heft/kepler.hpp"
@@ -63,6 +64,11 @@ WindowBasis<T> window_basis(const Orbit<T>& o, const Window& w) {
   const T b = sqrt(T(1.0) - e * e);
   const T k = o.period_yr / T(units::kTwoPi);  // yr per rad of mean anomaly
   T s0(0.0), s1(0.0), s2(0.0), sx(0.0), sxt(0.0), sy(0.0), syt(0.0);
+  const double e_val = scalar_of(e), p_val = scalar_of(o.period_yr);
+  if (!(e_val >= 0.0 && e_val < 1.0 && p_val > 0.0 && std::isfinite(p_val))) {
+    const T nan(std::numeric_limits<double>::quiet_NaN());
+    return {nan, nan, nan, nan};  // outside the domain: the caller sees NaN
+  }
   if (w.times_yr.empty()) {
     const double ts = w.start_yr - w.ref_epoch_yr, te = w.end_yr - w.ref_epoch_yr;
     s0 = T(te - ts);

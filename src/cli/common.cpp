@@ -2,6 +2,8 @@
 
 #include <iostream>
 
+#include "heft/calibrate.hpp"
+
 namespace heft::cli {
 
 void message(const std::string& command, const std::string& text) {
@@ -32,6 +34,53 @@ CLI::Option* add_pair_option(CLI::App* app, const std::string& name, double& a, 
       ->delimiter(',')
       ->expected(2)
       ->type_name("A,B");
+}
+
+void add_screen_options(CLI::App* app, ScreenOptions& screen, WindowDefaults& windows,
+                        std::string& late_spin_table) {
+  add_vec3_option(app, "--early-orient", screen.early.orient_mas,
+                  "orientation offset of the early frame at its epoch (mas), subtracted");
+  add_vec3_option(app, "--early-spin", screen.early.spin_uas_yr,
+                  "spin of the early frame (uas/yr), subtracted from its PMs");
+  add_vec3_option(app, "--late-spin", screen.late.spin_uas_yr,
+                  "spin of the late frame (uas/yr), subtracted from its PMs");
+  app->add_option("--late-spin-table", late_spin_table,
+                  "CSV mag_min,mag_max,wx,wy,wz (uas/yr): late-frame spin by the star's 'mag'")
+      ->check(CLI::ExistingFile);
+  app->add_option("--early-inflate", screen.early.inflate,
+                  "early errors x F (covariance x F^2)")
+      ->check(CLI::PositiveNumber)
+      ->default_val(1.0);
+  app->add_option("--late-inflate", screen.late.inflate, "late errors x F (covariance x F^2)")
+      ->check(CLI::PositiveNumber)
+      ->default_val(1.0);
+  app->add_option("--early-floor", screen.early.floor_mas_yr,
+                  "added in quadrature to the early PM errors (mas/yr)")
+      ->check(CLI::NonNegativeNumber)
+      ->default_val(0.0);
+  app->add_option("--late-floor", screen.late.floor_mas_yr,
+                  "added in quadrature to the late PM errors (mas/yr)")
+      ->check(CLI::NonNegativeNumber)
+      ->default_val(0.0);
+  app->add_option("--assume-rv", screen.assume_rv_km_s,
+                  "radial velocity of stars without 'rv' (km/s)")
+      ->default_val(0.0);
+  app->add_option("--rv-sigma", screen.rv_sigma_km_s,
+                  "prior width of that assumed radial velocity (km/s)")
+      ->check(CLI::NonNegativeNumber)
+      ->default_val(30.0);
+  add_pair_option(app, "--early-window", windows.early_start_yr, windows.early_end_yr,
+                  "default early observing window START,END (yr) for rows without one")
+      ->default_str("1989.85,1993.21");
+  add_pair_option(app, "--late-window", windows.late_start_yr, windows.late_end_yr,
+                  "default late observing window START,END (yr) for rows without one")
+      ->default_str("2014.57,2017.41");
+}
+
+ScreenOptions resolve_screen_options(const ScreenOptions& screen, const std::string& late_spin_table) {
+  ScreenOptions opt = screen;
+  if (!late_spin_table.empty()) opt.late.spin_table = read_spin_table(late_spin_table);
+  return opt;
 }
 
 void StatusCounter::add(const std::string& status) {

@@ -8,6 +8,9 @@
 #include <map>
 #include <string>
 
+#include "heft/catalog.hpp"
+#include "heft/screen.hpp"
+
 namespace heft::cli {
 
 /// Exit codes of every heft command.
@@ -31,6 +34,13 @@ CLI::Option* add_vec3_option(CLI::App* app, const std::string& name, Eigen::Vect
 /// Adds an option taking "A,B" into `a` and `b`.
 CLI::Option* add_pair_option(CLI::App* app, const std::string& name, double& a, double& b,
                              const std::string& help);
+
+/// Adds the calibration and RV options of the screen stage (shared by every
+/// command that screens stars).
+void add_screen_options(CLI::App* app, ScreenOptions& screen, WindowDefaults& windows,
+                        std::string& late_spin_table);
+/// The screen options with the spin table file read in.
+ScreenOptions resolve_screen_options(const ScreenOptions& screen, const std::string& late_spin_table);
 
 /// Counts rows by status; prints one summary line per non-ok status.
 class StatusCounter {

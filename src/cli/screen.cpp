@@ -39,8 +39,7 @@ nlohmann::ordered_json calibration_json(const EpochCalibration& c) {
 }
 
 int run_screen(const ScreenCliOptions& o) {
-  ScreenOptions opt = o.screen;
-  if (!o.late_spin_table.empty()) opt.late.spin_table = read_spin_table(o.late_spin_table);
+  const ScreenOptions opt = resolve_screen_options(o.screen, o.late_spin_table);
   if (o.threads > 0) omp_set_num_threads(o.threads);
   InputFile in(o.input);
   StarTableReader reader(in.stream(), in.name(), o.windows);
@@ -131,43 +130,7 @@ void setup_screen(CLI::App& app, Runner& run) {
   sub->add_option("stars", o->input, "canonical star table (CSV; '-' = stdin)")->required();
   sub->add_option("-o,--output", o->output, "anomaly table (CSV); default stdout");
   sub->add_option("--json", o->json, "also write the results as JSON (with a 'run' object)");
-  add_vec3_option(sub, "--early-orient", o->screen.early.orient_mas,
-                  "orientation offset of the early frame at its epoch (mas), subtracted");
-  add_vec3_option(sub, "--early-spin", o->screen.early.spin_uas_yr,
-                  "spin of the early frame (uas/yr), subtracted from its PMs");
-  add_vec3_option(sub, "--late-spin", o->screen.late.spin_uas_yr,
-                  "spin of the late frame (uas/yr), subtracted from its PMs");
-  sub->add_option("--late-spin-table", o->late_spin_table,
-                  "CSV mag_min,mag_max,wx,wy,wz (uas/yr): late-frame spin by the star's 'mag'")
-      ->check(CLI::ExistingFile);
-  sub->add_option("--early-inflate", o->screen.early.inflate,
-                  "early errors x F (covariance x F^2)")
-      ->check(CLI::PositiveNumber)
-      ->default_val(1.0);
-  sub->add_option("--late-inflate", o->screen.late.inflate, "late errors x F (covariance x F^2)")
-      ->check(CLI::PositiveNumber)
-      ->default_val(1.0);
-  sub->add_option("--early-floor", o->screen.early.floor_mas_yr,
-                  "added in quadrature to the early PM errors (mas/yr)")
-      ->check(CLI::NonNegativeNumber)
-      ->default_val(0.0);
-  sub->add_option("--late-floor", o->screen.late.floor_mas_yr,
-                  "added in quadrature to the late PM errors (mas/yr)")
-      ->check(CLI::NonNegativeNumber)
-      ->default_val(0.0);
-  sub->add_option("--assume-rv", o->screen.assume_rv_km_s,
-                  "radial velocity of stars without 'rv' (km/s)")
-      ->default_val(0.0);
-  sub->add_option("--rv-sigma", o->screen.rv_sigma_km_s,
-                  "prior width of that assumed radial velocity (km/s)")
-      ->check(CLI::NonNegativeNumber)
-      ->default_val(30.0);
-  add_pair_option(sub, "--early-window", o->windows.early_start_yr, o->windows.early_end_yr,
-                  "default early observing window START,END (yr) for rows without one")
-      ->default_str("1989.85,1993.21");
-  add_pair_option(sub, "--late-window", o->windows.late_start_yr, o->windows.late_end_yr,
-                  "default late observing window START,END (yr) for rows without one")
-      ->default_str("2014.57,2017.41");
+  add_screen_options(sub, o->screen, o->windows, o->late_spin_table);
   sub->add_flag("--strict", o->strict, "the first bad row is fatal (exit 2)");
   sub->add_option("-j,--threads", o->threads, "threads (default: all cores); output is identical")
       ->check(CLI::NonNegativeNumber);

@@ -1,0 +1,102 @@
+#pragma once
+/// \file curve.hpp
+/// Companion mass-separation constraints from the proper-motion anomaly:
+/// an analytic circular-orbit curve and a forward-model Monte Carlo
+/// posterior with the node angle and mass ratio marginalised analytically.
+///
+/// Dark companion assumed: the catalogues see the host (photocentre = host).
+/// References: Kervella et al. 2019, A&A 623, A72, Sect. 3; Kervella et al.
+/// 2022, A&A 657, A7 (the anomaly-to-mass relation and window smearing);
+/// the z-plane marginalisation is described in docs/method.md, Sect. 8.
+
+#include <Eigen/Core>
+#include <string>
+#include <vector>
+
+#include "heft/anomaly.hpp"
+#include "heft/catalog.hpp"
+#include "heft/simulate.hpp"
+#include "heft/window.hpp"
+
+namespace heft {
+
+/// The observation a curve is computed from.
+struct AnomalyData {
+  Eigen::Vector4d dpm;   ///< (late ra, late dec, early ra, early dec), mas/yr
+  Eigen::Matrix4d cov;   ///< its covariance, (mas/yr)^2
+  double parallax_mas, parallax_error_mas;
+  double host_mass_msun, host_mass_error_msun;
+  double sig_joint;
+  Window early, late;    ///< catalogue windows and reference epochs
+};
+
+/// Builds AnomalyData from a screened star (`row.ok()` required); the host
+/// mass comes from the star or from `host_mass_msun` when the star has none
+/// (`ok` false when neither).
+AnomalyData anomaly_data(const StarRecord& star, const AnomalyResult& r, double host_mass_msun,
+                         double host_mass_error_msun, bool& ok);
+
+/// Options of a curve (units in the names).
+struct CurveOptions {
+  std::vector<double> a_au;     ///< trial semi-major axes (sorted ascending)
+  int draws = 4096;             ///< orbit draws per separation (common random numbers)
+  int z_samples = 8;            ///< samples of z per draw
+  Distribution ecc{Distribution::Kind::kUniform, 0.0, 0.95};
+  double m_min_mjup = 0.1, m_max_mjup = 200.0;   ///< log-uniform prior bounds (detections)
+  double detect_sigma = 3.0;    ///< below: upper-limit mode, prior uniform in mass on [0, m_max]
+  int refine_rounds = 2;        ///< adaptive refinement of the a grid
+  std::uint64_t seed = 1;
+  bool keep_draws = false;
+};
+
+/// One separation of a curve. Masses in Jupiter masses; NaN where not given.
+struct CurvePoint {
+  double a_au, sep_mas, period_yr, weight;
+  double mass_lo95, mass_lo68, mass_med, mass_hi68, mass_hi95;
+  double ess;   ///< effective sample size of the weighted z samples
+};
+
+/// One weighted posterior draw (for `heft predict`).
+struct CurveDraw {
+  double a_au, mass_mjup, ecc, inc_deg, arg_peri_deg, node_deg, mean_anom_late_deg, weight;
+};
+
+struct Curve {
+  bool upper_limit = false;
+  std::vector<CurvePoint> points;
+  std::vector<CurveDraw> draws;
+  double min_ess = 0.0;
+};
+
+/// Forward-model Monte Carlo curve (docs/method.md, Sect. 8).
+/// The model anomalies are linear in z = q (cos Omega, sin Omega), so each
+/// draw of (i, omega, e, phase, host mass, parallax) is marginalised over z
+/// exactly in its Gaussian part; the mass prior enters by importance
+/// sampling of z; the period's dependence on m1 + m2 is corrected by
+/// fixed-point iteration. `rng_id` names the random stream (the star id).
+Curve montecarlo_curve(const AnomalyData& d, const CurveOptions& opt, const std::string& rng_id);
+
+/// Analytic circular-orbit curve: the host's reflex speed 2 pi q a / P
+/// (exact in q) times the window and long-baseline smearing of a circular
+/// orbit and the statistical projection factor for isotropic orientations
+/// (computed here), equated to the late anomaly.
+Curve analytic_curve(const AnomalyData& d, const CurveOptions& opt);
+
+/// Quantiles of the projection factor |v_sky| / |v| of a circular orbit for
+/// isotropic orientation and uniform phase (deterministic Monte Carlo with
+/// 2^18 samples); p in (0, 1).
+double projection_factor_quantile(double p);
+
+/// Model anomaly (late ra, late dec, early ra, early dec; mas/yr) of one
+/// companion through the window model, for tests and the simulator check.
+Eigen::Vector4d model_anomaly(const Orbit<double>& o, double a_au, double q, double parallax_mas,
+                              const Window& early, const Window& late);
+
+/// Log grid of n points from a_min to a_max (AU).
+std::vector<double> log_grid(double a_min, double a_max, int n);
+
+/// Column names of the curve table.
+std::string curve_header();
+void append_curve_rows(std::string& out, const std::string& id, const Curve& c);
+
+}  // namespace heft

@@ -1,0 +1,208 @@
+// heft curve: companion mass-separation constraint curves from the anomaly.
+
+#include <omp.h>
+
+#include <memory>
+
+#include "cli/commands.hpp"
+#include "heft/curve.hpp"
+#include "heft/error.hpp"
+#include "heft/io.hpp"
+#include "heft/version.hpp"
+
+namespace heft::cli {
+namespace {
+
+struct CurveCliOptions {
+  std::string input, output = "-", json, keep_draws, id, method = "montecarlo", ecc = "uniform:0,0.95";
+  std::string late_spin_table;
+  ScreenOptions screen;
+  WindowDefaults windows;
+  CurveOptions curve;
+  double host_mass_msun = kAbsent, host_mass_error_msun = kAbsent;
+  double a_min_au = 0.5, a_max_au = 500.0;
+  int n_a = 64;
+  std::vector<double> a_list;
+  int threads = 0;
+  bool quiet = false;
+};
+
+nlohmann::ordered_json point_json(const CurvePoint& p) {
+  auto num = [](double v) { return std::isfinite(v) ? nlohmann::ordered_json(v) : nlohmann::ordered_json(nullptr); };
+  return {{"a_au", p.a_au},           {"sep_mas", p.sep_mas},     {"period_yr", p.period_yr},
+          {"weight", p.weight},       {"mass_lo95", num(p.mass_lo95)}, {"mass_lo68", num(p.mass_lo68)},
+          {"mass_med", num(p.mass_med)}, {"mass_hi68", num(p.mass_hi68)}, {"mass_hi95", num(p.mass_hi95)},
+          {"ess", num(p.ess)}};
+}
+
+int run_curve(CurveCliOptions o) {
+  const ScreenOptions sopt = resolve_screen_options(o.screen, o.late_spin_table);
+  CurveOptions copt = o.curve;
+  copt.ecc = Distribution::parse(o.ecc, "--ecc");
+  if (!(copt.m_min_mjup < copt.m_max_mjup)) throw CLI::ValidationError("--m-min must be below --m-max");
+  if (!o.a_list.empty()) {
+    copt.a_au = o.a_list;
+    std::sort(copt.a_au.begin(), copt.a_au.end());
+    copt.refine_rounds = 0;  // an explicit list is evaluated as given
+  } else {
+    if (!(o.a_min_au < o.a_max_au)) throw CLI::ValidationError("--a-min must be below --a-max");
+    copt.a_au = log_grid(o.a_min_au, o.a_max_au, o.n_a);
+  }
+  copt.keep_draws = !o.keep_draws.empty();
+  if (o.method != "montecarlo") copt.refine_rounds = 0;
+  if (o.threads > 0) omp_set_num_threads(o.threads);
+
+  InputFile in(o.input);
+  StarTableReader reader(in.stream(), in.name(), o.windows);
+  AtomicOutput out(o.output);
+  std::unique_ptr<AtomicOutput> json, draws;
+  if (!o.json.empty()) {
+    json = std::make_unique<AtomicOutput>(o.json);
+    json->write("{\"stars\":[\n");
+  }
+  if (copt.keep_draws) {
+    draws = std::make_unique<AtomicOutput>(o.keep_draws);
+    draws->write("id,a_au,mass_mjup,ecc,inc_deg,arg_peri_deg,node_deg,mean_anom_late_deg,weight\n");
+  }
+  out.write(curve_header());
+  StatusCounter counter;
+  StarRecord star;
+  std::string bad;
+  bool found = false;
+  long n_json = 0;
+  while (reader.next(star, bad)) {
+    if (!o.id.empty() && star.id != o.id) continue;
+    found = true;
+    const ScreenRow row = screen_star(star, bad, sopt);
+    std::string status = row.status;
+    AnomalyData d;
+    if (row.ok()) {
+      bool have_mass = false;
+      d = anomaly_data(star, row.result, o.host_mass_msun, o.host_mass_error_msun, have_mass);
+      if (!have_mass) status = "bad_input:no_host_mass";
+    }
+    counter.add(status);
+    nlohmann::ordered_json j;
+    j["id"] = star.id;
+    j["status"] = status;
+    if (status == "ok") {
+      const Curve c = o.method == "analytic" ? analytic_curve(d, copt) : montecarlo_curve(d, copt, star.id);
+      std::string buf;
+      append_curve_rows(buf, star.id, c);
+      out.write(buf);
+      if (draws) {
+        std::string dbuf;
+        for (const auto& dr : c.draws) {
+          append_csv_field(dbuf, star.id);
+          for (double v : {dr.a_au, dr.mass_mjup, dr.ecc, dr.inc_deg, dr.arg_peri_deg, dr.node_deg,
+                           dr.mean_anom_late_deg, dr.weight}) {
+            dbuf += ',';
+            append_double(dbuf, v);
+          }
+          dbuf += '\n';
+        }
+        draws->write(dbuf);
+      }
+      const bool low_ess = o.method == "montecarlo" && c.min_ess < 100.0;
+      if (low_ess && !o.quiet)
+        message("curve", "warning: star " + star.id + ": effective sample size " +
+                             format_double(std::round(c.min_ess)) + " < 100 at some separation; raise --draws");
+      j["method"] = o.method;
+      j["mode"] = c.upper_limit ? "upper_limit" : "detection";
+      j["dark_companion_assumed"] = true;
+      j["sig_joint"] = d.sig_joint;
+      j["host_mass_msun"] = d.host_mass_msun;
+      j["parallax_mas"] = d.parallax_mas;
+      if (o.method == "montecarlo") {
+        j["min_ess"] = c.min_ess;
+        j["ess_warning"] = low_ess;
+      }
+      nlohmann::ordered_json pts = nlohmann::ordered_json::array();
+      for (const auto& p : c.points) pts.push_back(point_json(p));
+      j["points"] = pts;
+    }
+    if (json) json->write(std::string(n_json++ ? ",\n" : "") + j.dump());
+  }
+  if (!o.id.empty() && !found) throw InputError(in.name(), 0, 0, "no star with id '" + o.id + "'");
+  if (json) {
+    nlohmann::ordered_json run;
+    run["heft_version"] = kVersion;
+    run["command"] = "curve";
+    run["input"] = in.name();
+    run["rows"] = counter.total();
+    run["rows_ok"] = counter.total() - counter.not_ok();
+    run["method"] = o.method;
+    run["draws"] = copt.draws;
+    run["ecc_prior"] = copt.ecc.str();
+    run["mass_prior"] = {{"detection", "log-uniform in companion mass"},
+                         {"upper_limit", "uniform in companion mass on [0, m_max]"},
+                         {"m_min_mjup", copt.m_min_mjup}, {"m_max_mjup", copt.m_max_mjup}};
+    run["a_prior"] = "log-uniform";
+    run["detect_sigma"] = copt.detect_sigma;
+    run["seed"] = copt.seed;
+    run["dark_companion_assumed"] = true;
+    json->write("\n],\n\"run\":" + run.dump() + "}\n");
+    json->commit();
+  }
+  if (draws) draws->commit();
+  out.commit();
+  counter.print_summary("curve");
+  if (!o.quiet) message("curve", std::to_string(counter.total()) + " stars");
+  return counter.exit_code();
+}
+
+}  // namespace
+
+void setup_curve(CLI::App& app, Runner& run) {
+  auto o = std::make_shared<CurveCliOptions>();
+  CurveOptions& c = o->curve;
+  CLI::App* sub = app.add_subcommand(
+      "curve",
+      "Companion mass-separation constraints from each star's anomaly (dark companion assumed): "
+      "posterior mass quantiles (MJup) per trial semi-major axis (AU).");
+  sub->add_option("stars", o->input, "canonical star table (CSV; '-' = stdin)")->required();
+  sub->add_option("--id", o->id, "only this star (default: every row)");
+  sub->add_option("-o,--output", o->output, "curve table (CSV); default stdout");
+  sub->add_option("--json", o->json, "also write the curves as JSON (mode, ESS, priors)");
+  sub->add_option("--keep-draws", o->keep_draws,
+                  "write weighted posterior draws (a, mass, e, i, omega, Omega, phase) for predict");
+  sub->add_option("--method", o->method, "analytic (circular orbits) or montecarlo (forward model)")
+      ->check(CLI::IsMember({"analytic", "montecarlo"}))
+      ->capture_default_str();
+  sub->add_option("--host-mass", o->host_mass_msun, "host mass for stars without 'mass' (Msun)")
+      ->check(CLI::PositiveNumber);
+  sub->add_option("--host-mass-error", o->host_mass_error_msun, "its error (Msun)")
+      ->check(CLI::NonNegativeNumber);
+  sub->add_option("--a-min", o->a_min_au, "smallest trial semi-major axis (AU)")
+      ->check(CLI::PositiveNumber)->capture_default_str();
+  sub->add_option("--a-max", o->a_max_au, "largest trial semi-major axis (AU)")
+      ->check(CLI::PositiveNumber)->capture_default_str();
+  sub->add_option("--n-a", o->n_a, "points of the log grid in a (refined where needed)")
+      ->check(CLI::Range(1, 100000))->capture_default_str();
+  sub->add_option("--a-list", o->a_list, "explicit trial semi-major axes A1,A2,... (AU)")
+      ->delimiter(',')
+      ->check(CLI::PositiveNumber);
+  sub->add_option("--draws", c.draws, "orbit draws per separation")
+      ->check(CLI::Range(16, 10000000))->capture_default_str();
+  sub->add_option("--ecc", o->ecc, "eccentricity prior: V | uniform:A,B | beta:A,B")->capture_default_str();
+  sub->add_option("--m-min", c.m_min_mjup, "lower bound of the log-uniform mass prior (MJup)")
+      ->check(CLI::PositiveNumber)->capture_default_str();
+  sub->add_option("--m-max", c.m_max_mjup, "upper bound of the mass prior (MJup)")
+      ->check(CLI::PositiveNumber)->capture_default_str();
+  sub->add_option("--detect-sigma", c.detect_sigma,
+                  "below this sig_joint the curve is an upper limit (prior uniform in mass)")
+      ->capture_default_str();
+  sub->add_option("--seed", c.seed, "random seed (one stream per star id)")->capture_default_str();
+  add_screen_options(sub, o->screen, o->windows, o->late_spin_table);
+  sub->add_option("-j,--threads", o->threads, "threads (default: all cores); output is identical")
+      ->check(CLI::NonNegativeNumber);
+  sub->add_flag("-q,--quiet", o->quiet, "no informational messages");
+  sub->footer(
+      "Columns: id, a_au (AU), sep_mas (a x parallax, mas), period_yr, weight (posterior "
+      "probability of the separation bin, log-uniform prior on a), mass_lo95, mass_lo68, mass_med, "
+      "mass_hi68, mass_hi95 (MJup; 2.5/16/50/84/97.5 %). Upper limits: only mass_hi68, mass_hi95 "
+      "(68 %, 95 %).");
+  sub->callback([o, &run] { run = [o] { return run_curve(*o); }; });
+}
+
+}  // namespace heft::cli

@@ -1,0 +1,580 @@
+#include "heft/curve.hpp"
+
+#include <Eigen/Cholesky>
+#include <Eigen/Eigenvalues>
+#include <algorithm>
+#include <numeric>
+
+#include "heft/io.hpp"
+#include "heft/rng.hpp"
+#include "heft/window.hpp"
+
+namespace heft {
+
+AnomalyData anomaly_data(const StarRecord& star, const AnomalyResult& r, double host_mass_msun,
+                         double host_mass_error_msun, bool& ok) {
+  AnomalyData d;
+  d.dpm << r.dpm_late_mas_yr, r.dpm_early_mas_yr;
+  d.cov = r.dpm_cov;
+  d.parallax_mas = star.late.parallax_mas;
+  d.parallax_error_mas = star.late.parallax_error_mas;
+  d.host_mass_msun = present(star.mass_msun) ? star.mass_msun : host_mass_msun;
+  d.host_mass_error_msun = present(star.mass_msun)
+                               ? (present(star.mass_error_msun) ? star.mass_error_msun : 0.0)
+                               : (present(host_mass_error_msun) ? host_mass_error_msun : 0.0);
+  d.sig_joint = r.sig_joint;
+  d.early = {star.early.window_start_yr, star.early.window_end_yr, star.early.epoch_yr, {}, {}};
+  d.late = {star.late.window_start_yr, star.late.window_end_yr, star.late.epoch_yr, {}, {}};
+  ok = present(d.host_mass_msun) && d.host_mass_msun > 0;
+  return d;
+}
+
+std::vector<double> log_grid(double a_min, double a_max, int n) {
+  std::vector<double> g(n);
+  for (int k = 0; k < n; ++k)
+    g[k] = n == 1 ? a_min : a_min * std::pow(a_max / a_min, static_cast<double>(k) / (n - 1));
+  return g;
+}
+
+namespace {
+
+// (north, east) reflex anomaly vectors per unit s = q a parallax at node 0:
+// column 0 late, column 1 early.
+Eigen::Matrix<double, 2, 2> unit_anomalies(const Orbit<double>& o, const Window& early,
+                                           const Window& late) {
+  const WindowBasis<double> be = window_basis(o, early), bl = window_basis(o, late);
+  const ThieleInnes<double> ti = thiele_innes(1.0, o.inc_rad, o.arg_peri_rad, 0.0);
+  auto host = [&](double x, double y) {  // host side of the relative orbit
+    return Eigen::Vector2d(-(ti.A * x + ti.F * y), -(ti.B * x + ti.G * y));
+  };
+  const Eigen::Vector2d pos_l = host(bl.x0, bl.y0), pos_e = host(be.x0, be.y0);
+  const Eigen::Vector2d pml = (pos_l - pos_e) / (late.ref_epoch_yr - early.ref_epoch_yr);
+  Eigen::Matrix<double, 2, 2> v;
+  v.col(0) = host(bl.xs, bl.ys) - pml;
+  v.col(1) = host(be.xs, be.ys) - pml;
+  return v;
+}
+
+// Design matrix: observed (late ra, late dec, early ra, early dec) = K z.
+Eigen::Matrix<double, 4, 2> design(const Eigen::Matrix<double, 2, 2>& v, double scale) {
+  Eigen::Matrix<double, 4, 2> k;
+  for (int c = 0; c < 2; ++c) {
+    const double n = v(0, c), e = v(1, c);
+    k.row(2 * c) << e, n;       // east  = e z1 + n z2
+    k.row(2 * c + 1) << n, -e;  // north = n z1 - e z2
+  }
+  return k * scale;
+}
+
+struct Draw {
+  double inc, omega, ecc, m0, m1, plx;
+  std::vector<double> n1, n2, u1, u2;  // deviates for the z samples
+};
+
+// The random numbers of a star's curve, drawn once and shared by every
+// separation (common random numbers): first-stage prior draws, a second set
+// for the prior half of the adaptive stage, kernel deviates and picks.
+struct DrawSet {
+  std::vector<Draw> first, second;
+  std::vector<Eigen::Vector4d> kernel;  // (cos i, omega, M0, e) deviates
+  std::vector<double> pick;
+};
+
+Draw prior_draw(const AnomalyData& d, const CurveOptions& opt, Rng& rng) {
+  Draw dr;
+  dr.inc = std::acos(rng.uniform(-1.0, 1.0));
+  dr.omega = units::kTwoPi * rng.uniform();
+  dr.ecc = std::clamp(opt.ecc.draw(rng), 0.0, 0.99);
+  dr.m0 = units::kTwoPi * rng.uniform();
+  do dr.m1 = d.host_mass_msun + d.host_mass_error_msun * rng.normal(); while (!(dr.m1 > 0.01));
+  do dr.plx = d.parallax_mas + d.parallax_error_mas * rng.normal(); while (!(dr.plx > 0));
+  for (int s = 0; s < opt.z_samples; ++s) {
+    dr.n1.push_back(rng.normal());
+    dr.n2.push_back(rng.normal());
+    dr.u1.push_back(rng.uniform_open());
+    dr.u2.push_back(rng.uniform());
+  }
+  return dr;
+}
+
+DrawSet make_draws(const AnomalyData& d, const CurveOptions& opt, const std::string& id) {
+  Rng rng = Rng::for_star(opt.seed, id);
+  DrawSet ds;
+  for (int k = 0; k < opt.draws; ++k) ds.first.push_back(prior_draw(d, opt, rng));
+  for (int k = 0; k < opt.draws; ++k) ds.second.push_back(prior_draw(d, opt, rng));
+  for (int k = 0; k < opt.draws; ++k)
+    ds.kernel.emplace_back(rng.normal(), rng.normal(), rng.normal(), rng.normal());
+  for (int k = 0; k < 2 * opt.draws; ++k) ds.pick.push_back(rng.uniform());
+  return ds;
+}
+
+// Prior of companion mass, as a density in the z plane (normalised).
+struct MassPrior {
+  bool log_uniform;
+  double m_lo_msun, m_hi_msun;
+  double q_lo(double m1) const { return m_lo_msun / (m1 + m_lo_msun); }
+  double q_hi(double m1) const { return m_hi_msun / (m1 + m_hi_msun); }
+  double log_density(double q, double m1) const {
+    const double lo = q_lo(m1), hi = q_hi(m1);
+    if (!(q > lo && q < hi)) return -std::numeric_limits<double>::infinity();
+    // Log-uniform m2 with uniform Omega: p(q) = 1 / (q (1 - q) Z);
+    // uniform m2: p(q) = m1 / ((1 - q)^2 m_hi); p(z) = p(q) / (2 pi q).
+    double log_pq;
+    if (log_uniform) {
+      const double z = std::log(hi / (1 - hi)) - std::log(lo / (1 - lo));
+      log_pq = -std::log(q) - std::log1p(-q) - std::log(z);
+    } else {
+      log_pq = std::log(m1) - 2.0 * std::log1p(-q) - std::log(m_hi_msun);
+    }
+    return log_pq - std::log(units::kTwoPi * q);
+  }
+  // A draw of q from the prior itself, from a uniform deviate.
+  double draw_q(double u, double m1) const {
+    const double m2 = log_uniform ? m_lo_msun * std::pow(m_hi_msun / m_lo_msun, u)
+                                  : m_lo_msun + (m_hi_msun - m_lo_msun) * u;
+    return m2 / (m1 + m2);
+  }
+};
+
+struct Sample {
+  double log_w, m2_mjup, node;
+};
+
+double weighted_quantile(const std::vector<std::pair<double, double>>& sorted, double total,
+                         double p) {
+  double acc = 0.0;
+  for (const auto& [v, w] : sorted) {
+    acc += w;
+    if (acc >= p * total) return v;
+  }
+  return sorted.empty() ? kAbsent : sorted.back().first;
+}
+
+struct PointResult {
+  CurvePoint point;
+  double log_evidence;
+  std::vector<CurveDraw> draws;
+};
+
+// Everything a separation needs that does not depend on the draw.
+struct Problem {
+  const AnomalyData& d;
+  const CurveOptions& opt;
+  const MassPrior& prior;
+  Eigen::Matrix4d cinv;
+  double chi2_data;
+  double a_au;
+};
+
+// Weighted z samples of one draw of (i, omega, e, M0, m1, parallax):
+// z = q (cos Omega, sin Omega) is marginalised through its exact Gaussian
+// likelihood and importance-sampled against the mass prior. `log_extra` is
+// added to every weight (prior / proposal of the draw itself).
+void weigh_draw(const Problem& pb, const Draw& dr, double log_extra, Sample* out) {
+  const AnomalyData& d = pb.d;
+  const MassPrior& prior = pb.prior;
+  const double a_au = pb.a_au;
+  double q_hat = 0.0, period = 0.0;
+  Eigen::Matrix2d fisher;
+  Eigen::Vector2d z_hat;
+  auto design_at = [&](double per) {
+    const Orbit<double> o{per, dr.ecc, dr.inc, dr.omega, 0.0, dr.m0, d.late.ref_epoch_yr};
+    return design(unit_anomalies(o, d.early, d.late), a_au * dr.plx);
+  };
+  Eigen::Matrix<double, 4, 2> kmat;
+  // Fixed-point iteration of the period on m1 + m2 (m2 from the best z).
+  for (int it = 0; it < 3; ++it) {
+    const double p_new = period_from_a(a_au, dr.m1 / (1.0 - q_hat));
+    if (it > 0 && std::abs(p_new / period - 1.0) < 1e-4) break;
+    period = p_new;
+    kmat = design_at(period);
+    fisher = kmat.transpose() * pb.cinv * kmat;
+    const Eigen::Vector2d b = kmat.transpose() * pb.cinv * d.dpm;
+    z_hat = fisher.ldlt().solve(b);
+    q_hat = std::min(z_hat.norm(), 0.9);
+  }
+  const double chi2_min = pb.chi2_data - z_hat.dot(fisher * z_hat);
+  Eigen::SelfAdjointEigenSolver<Eigen::Matrix2d> es(fisher);
+  const Eigen::Vector2d lam = es.eigenvalues().cwiseMax(1e-300);
+  // Gaussian extent of z versus the prior range decides the proposal.
+  const bool gaussian = 1.0 / std::sqrt(lam.minCoeff()) < 0.3 * prior.q_hi(dr.m1);
+  for (int s = 0; s < pb.opt.z_samples; ++s) {
+    Eigen::Vector2d z;
+    double log_w;
+    if (gaussian) {
+      // z ~ N(z_hat, F^-1): weight = prior(z) exp(-chi2_min/2) 2 pi sqrt(det F^-1).
+      const Eigen::Vector2d n(dr.n1[s], dr.n2[s]);
+      z = z_hat + es.eigenvectors() * (n.array() / lam.array().sqrt()).matrix();
+      log_w = prior.log_density(z.norm(), dr.m1) - 0.5 * chi2_min + std::log(units::kTwoPi) -
+              0.5 * std::log(lam(0) * lam(1));
+    } else {
+      // z from the prior: weight = likelihood.
+      const double q = prior.draw_q(dr.u1[s], dr.m1), om = units::kTwoPi * dr.u2[s];
+      z << q * std::cos(om), q * std::sin(om);
+      const Eigen::Vector2d dz = z - z_hat;
+      log_w = -0.5 * chi2_min - 0.5 * dz.dot(fisher * dz);
+    }
+    const double q = z.norm();
+    // The Gaussian used the period of the best z; where this sample's own
+    // m1 + m2 moves the period, correct by the exact / Gaussian likelihood.
+    const double p_s = period_from_a(a_au, dr.m1 / (1.0 - std::min(q, 0.9)));
+    if (std::isfinite(log_w) && std::abs(p_s / period - 1.0) > 1e-4) {
+      const Eigen::Vector4d r_hat = d.dpm - kmat * z, r_s = d.dpm - design_at(p_s) * z;
+      log_w += -0.5 * r_s.dot(pb.cinv * r_s) + 0.5 * r_hat.dot(pb.cinv * r_hat);
+    }
+    log_w += log_extra;
+    Sample& o = out[s];
+    o.log_w = std::isfinite(log_w) ? log_w : -std::numeric_limits<double>::infinity();
+    o.m2_mjup = dr.m1 * q / (1.0 - std::min(q, 0.999999)) * units::kMjupPerMsun;
+    o.node = std::atan2(z.y(), z.x());
+  }
+}
+
+// The orbit-angle part of a draw in sampling coordinates:
+// (cos i, omega, M0, e); angles are periodic.
+using Coords = Eigen::Vector4d;
+Coords coords_of(const Draw& d) { return {std::cos(d.inc), d.omega, d.m0, d.ecc}; }
+
+double wrap_diff(double x) { return std::remainder(x, units::kTwoPi); }
+
+// Log density of the prior of the orbit-angle part.
+double log_prior_coords(const Coords& c, const Distribution& ecc) {
+  if (std::abs(c(0)) > 1.0 || c(3) < 0.0 || c(3) > 0.99) return -std::numeric_limits<double>::infinity();
+  return -std::log(2.0) - 2.0 * std::log(units::kTwoPi) + ecc.log_pdf(c(3));
+}
+
+double log_sum_exp(const std::vector<double>& v) {
+  double m = -std::numeric_limits<double>::infinity();
+  for (double x : v) m = std::max(m, x);
+  if (!std::isfinite(m)) return m;
+  double s = 0;
+  for (double x : v) s += std::exp(x - m);
+  return m + std::log(s);
+}
+
+PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const DrawSet& ds,
+                       const MassPrior& prior, bool upper, double a_au) {
+  const std::vector<Draw>& draws = ds.first;
+  const std::vector<Draw>& draws2 = ds.second;
+  const std::vector<Coords>& kernel_dev = ds.kernel;
+  const std::vector<double>& pick_dev = ds.pick;
+  Eigen::LLT<Eigen::Matrix4d> cllt(d.cov);
+  const Problem pb{d, opt, prior, cllt.solve(Eigen::Matrix4d::Identity()),
+                   d.dpm.dot(cllt.solve(d.dpm)), a_au};
+  const int nz = opt.z_samples;
+  const std::size_t n = draws.size();
+  std::vector<Sample> samples(n * nz);
+#pragma omp parallel for schedule(static)
+  for (std::size_t k = 0; k < n; ++k) weigh_draw(pb, draws[k], 0.0, &samples[k * nz]);
+
+  auto ess_of = [&](const std::vector<Sample>& ss) {
+    double m = -std::numeric_limits<double>::infinity(), sw = 0, sw2 = 0;
+    for (const auto& s : ss) m = std::max(m, s.log_w);
+    if (!std::isfinite(m)) return 0.0;
+    for (const auto& s : ss) {
+      const double w = std::exp(s.log_w - m);
+      sw += w;
+      sw2 += w * w;
+    }
+    return sw * sw / sw2;
+  };
+  const std::vector<Draw>* used = &draws;
+  // Second stage when the prior draws degenerate (high S/N): a defensive
+  // mixture of the prior and Gaussian kernels around draws resampled from
+  // the first stage (adaptive importance sampling, e.g. Cappe et al. 2004,
+  // J. Comput. Graph. Stat. 13, 907), with the same deviates for every a.
+  std::vector<Draw> adapted;
+  if (ess_of(samples) < 0.25 * samples.size() && !draws2.empty()) {
+    std::vector<double> ld(n);
+    for (std::size_t k = 0; k < n; ++k) {
+      std::vector<double> lw(nz);
+      for (int s = 0; s < nz; ++s) lw[s] = samples[k * nz + s].log_w;
+      ld[k] = log_sum_exp(lw);
+    }
+    const double lmax = *std::max_element(ld.begin(), ld.end());
+    std::vector<double> cw(n);
+    double acc = 0;
+    for (std::size_t k = 0; k < n; ++k) cw[k] = acc += std::isfinite(ld[k]) ? std::exp(ld[k] - lmax) : 0.0;
+    // Ancestors by systematic resampling, and their weighted spread.
+    const int n_anc = 64;
+    std::vector<Coords> anc;
+    for (int j = 0; j < n_anc; ++j) {
+      const double u = (j + 0.5) / n_anc * acc;
+      const std::size_t k = std::lower_bound(cw.begin(), cw.end(), u) - cw.begin();
+      anc.push_back(coords_of(draws[std::min(k, n - 1)]));
+    }
+    Coords mean = Coords::Zero(), var = Coords::Zero();
+    for (const auto& c : anc) mean += c;
+    mean /= n_anc;
+    for (const auto& c : anc) {
+      Coords dc = c - mean;
+      dc(1) = wrap_diff(c(1) - anc[0](1));  // spread of angles about one ancestor
+      dc(2) = wrap_diff(c(2) - anc[0](2));
+      var += dc.cwiseProduct(dc);
+    }
+    Coords width = (var / n_anc).cwiseSqrt() * 0.5;
+    const Coords floor_w(0.01, 0.02, 0.02, 0.005), cap_w(1.0, 2.0, 2.0, 0.5);
+    width = width.cwiseMax(floor_w).cwiseMin(cap_w);
+    if (opt.ecc.kind == Distribution::Kind::kFixed) width(3) = 0.0;
+    auto log_kernel_mix = [&](const Coords& c) {
+      std::vector<double> terms;
+      for (const auto& a : anc) {
+        double l = 0;
+        for (int i = 0; i < 4; ++i) {
+          if (width(i) == 0.0) continue;
+          const double dx = (i == 1 || i == 2) ? wrap_diff(c(i) - a(i)) : c(i) - a(i);
+          l += -0.5 * dx * dx / (width(i) * width(i)) - std::log(width(i) * std::sqrt(units::kTwoPi));
+        }
+        terms.push_back(l);
+      }
+      return log_sum_exp(terms) - std::log(static_cast<double>(anc.size()));
+    };
+    adapted = draws2;
+    std::vector<double> log_extra(n);
+    for (std::size_t j = 0; j < n; ++j) {
+      Draw& dr = adapted[j];
+      if (pick_dev[j] >= 0.5) {  // kernel component
+        const Coords& a = anc[static_cast<std::size_t>(pick_dev[j + n] * n_anc) % n_anc];
+        Coords c = a + width.cwiseProduct(kernel_dev[j]);
+        c(1) = std::fmod(c(1) + 4 * units::kTwoPi, units::kTwoPi);
+        c(2) = std::fmod(c(2) + 4 * units::kTwoPi, units::kTwoPi);
+        if (opt.ecc.kind == Distribution::Kind::kFixed) c(3) = dr.ecc;
+        dr.inc = std::acos(std::clamp(c(0), -1.0, 1.0));
+        dr.omega = c(1);
+        dr.m0 = c(2);
+        dr.ecc = c(3);
+      }
+      const Coords c = coords_of(adapted[j]);
+      const double lp = log_prior_coords(c, opt.ecc);
+      // Mixture density 0.5 prior + 0.5 kernels.
+      const double lk = log_kernel_mix(c);
+      const double mix = std::isfinite(lp) ? log_sum_exp({lp, lk}) - std::log(2.0) : lk;
+      log_extra[j] = std::isfinite(lp) ? lp - mix : -std::numeric_limits<double>::infinity();
+    }
+#pragma omp parallel for schedule(static)
+    for (std::size_t j = 0; j < n; ++j) {
+      if (std::isfinite(log_extra[j])) {
+        weigh_draw(pb, adapted[j], log_extra[j], &samples[j * nz]);
+      } else {  // outside the prior's support: no weight
+        for (int s = 0; s < nz; ++s) samples[j * nz + s] = {-std::numeric_limits<double>::infinity(), 0.0, 0.0};
+      }
+    }
+    used = &adapted;
+  }
+  const std::vector<Draw>& fin = *used;
+
+  // Reduce in a fixed order: results do not depend on the thread count.
+  double max_lw = -std::numeric_limits<double>::infinity();
+  for (const auto& s : samples) max_lw = std::max(max_lw, s.log_w);
+  std::vector<std::pair<double, double>> mw;
+  mw.reserve(samples.size());
+  double sw = 0, sw2 = 0;
+  for (const auto& s : samples) {
+    const double w = std::isfinite(max_lw) ? std::exp(s.log_w - max_lw) : 0.0;
+    mw.emplace_back(s.m2_mjup, w);
+    sw += w;
+    sw2 += w * w;
+  }
+  PointResult r;
+  CurvePoint& p = r.point;
+  p.a_au = a_au;
+  p.sep_mas = a_au * d.parallax_mas;
+  p.period_yr = period_from_a(a_au, d.host_mass_msun);
+  p.ess = sw2 > 0 ? sw * sw / sw2 : 0.0;
+  r.log_evidence = std::isfinite(max_lw) && sw > 0
+                       ? max_lw + std::log(sw) - std::log(static_cast<double>(samples.size()))
+                       : -std::numeric_limits<double>::infinity();
+  p.mass_lo95 = p.mass_lo68 = p.mass_med = p.mass_hi68 = p.mass_hi95 = kAbsent;
+  if (sw > 0) {
+    std::vector<std::pair<double, double>> sorted = mw;
+    std::sort(sorted.begin(), sorted.end());
+    if (upper) {
+      p.mass_hi68 = weighted_quantile(sorted, sw, 0.68);
+      p.mass_hi95 = weighted_quantile(sorted, sw, 0.95);
+    } else {
+      p.mass_lo95 = weighted_quantile(sorted, sw, 0.025);
+      p.mass_lo68 = weighted_quantile(sorted, sw, 0.16);
+      p.mass_med = weighted_quantile(sorted, sw, 0.5);
+      p.mass_hi68 = weighted_quantile(sorted, sw, 0.84);
+      p.mass_hi95 = weighted_quantile(sorted, sw, 0.975);
+    }
+  }
+  if (opt.keep_draws && sw > 0) {
+    // Systematic resampling to at most 256 equal-weight draws per separation.
+    const std::size_t keep = 256;
+    double acc = 0, next = 0.5 * sw / keep;
+    for (std::size_t i = 0; i < samples.size() && r.draws.size() < keep; ++i) {
+      acc += mw[i].second;
+      while (acc >= next && r.draws.size() < keep) {
+        const Draw& dr = fin[i / nz];
+        r.draws.push_back({a_au, samples[i].m2_mjup, dr.ecc, units::rad_to_deg(dr.inc),
+                           units::rad_to_deg(dr.omega),
+                           units::rad_to_deg(std::fmod(samples[i].node + units::kTwoPi, units::kTwoPi)),
+                           units::rad_to_deg(dr.m0), 1.0});
+        next += sw / keep;
+      }
+    }
+  }
+  return r;
+}
+
+bool bands_disjoint(const CurvePoint& a, const CurvePoint& b) {
+  if (!present(a.mass_lo68) || !present(b.mass_lo68)) return false;
+  return a.mass_hi68 < b.mass_lo68 || b.mass_hi68 < a.mass_lo68;
+}
+
+// Turns log evidences into bin weights under a log-uniform prior on a: each
+// point owns the bin between the geometric midpoints to its neighbours.
+void set_weights(std::vector<PointResult>& pts) {
+  const std::size_t n = pts.size();
+  double max_le = -std::numeric_limits<double>::infinity();
+  for (const auto& p : pts) max_le = std::max(max_le, p.log_evidence);
+  double total = 0;
+  for (std::size_t k = 0; k < n; ++k) {
+    const double la = std::log(pts[k].point.a_au);
+    const double lo = k > 0 ? 0.5 * (la + std::log(pts[k - 1].point.a_au)) : la;
+    const double hi = k + 1 < n ? 0.5 * (la + std::log(pts[k + 1].point.a_au)) : la;
+    const double width = n == 1 ? 1.0 : hi - lo;
+    const double w = std::isfinite(max_le) ? std::exp(pts[k].log_evidence - max_le) * width : 0.0;
+    pts[k].point.weight = w;
+    total += w;
+  }
+  for (auto& p : pts) p.point.weight = total > 0 ? p.point.weight / total : 0.0;
+}
+
+}  // namespace
+
+Eigen::Vector4d model_anomaly(const Orbit<double>& o, double a_au, double q, double parallax_mas,
+                              const Window& early, const Window& late) {
+  const Eigen::Vector2d z(q * std::cos(o.node_rad), q * std::sin(o.node_rad));
+  Orbit<double> o0 = o;
+  o0.node_rad = 0.0;
+  return design(unit_anomalies(o0, early, late), a_au * parallax_mas) * z;
+}
+
+Curve montecarlo_curve(const AnomalyData& d, const CurveOptions& opt, const std::string& rng_id) {
+  Curve c;
+  c.upper_limit = !(d.sig_joint >= opt.detect_sigma);
+  const double msun = 1.0 / units::kMjupPerMsun;
+  const MassPrior prior{!c.upper_limit, c.upper_limit ? 0.0 : opt.m_min_mjup * msun,
+                        opt.m_max_mjup * msun};
+  const DrawSet draws = make_draws(d, opt, rng_id);
+  std::vector<PointResult> pts;
+  for (double a : opt.a_au) pts.push_back(evaluate_a(d, opt, draws, prior, c.upper_limit, a));
+  // Adaptive refinement where neighbouring bands do not overlap or the
+  // posterior weight jumps by more than a factor 3.
+  for (int round = 0; round < opt.refine_rounds; ++round) {
+    set_weights(pts);
+    std::vector<PointResult> refined;
+    bool changed = false;
+    for (std::size_t k = 0; k < pts.size(); ++k) {
+      refined.push_back(pts[k]);
+      if (k + 1 == pts.size()) break;
+      const CurvePoint &p = pts[k].point, &q = pts[k + 1].point;
+      const double wmax = std::max(p.weight, q.weight), wmin = std::min(p.weight, q.weight);
+      const bool jump = wmax > 1e-3 && wmin < wmax / 3.0;
+      if (bands_disjoint(p, q) || jump) {
+        refined.push_back(evaluate_a(d, opt, draws, prior, c.upper_limit, std::sqrt(p.a_au * q.a_au)));
+        changed = true;
+      }
+    }
+    pts.swap(refined);
+    if (!changed) break;
+  }
+  set_weights(pts);
+  c.min_ess = std::numeric_limits<double>::infinity();
+  for (auto& p : pts) {
+    c.points.push_back(p.point);
+    c.min_ess = std::min(c.min_ess, p.point.ess);
+    const double per = p.draws.empty() ? 0.0 : p.point.weight / p.draws.size();
+    for (auto& dr : p.draws) {
+      dr.weight = per;
+      c.draws.push_back(dr);
+    }
+  }
+  return c;
+}
+
+double projection_factor_quantile(double p) {
+  static const std::vector<double> sorted = [] {
+    Rng rng(0x5eed);
+    std::vector<double> f(1 << 18);
+    for (auto& v : f) {
+      const double ci = rng.uniform(-1.0, 1.0), u = units::kTwoPi * rng.uniform();
+      const double s = std::sin(u), c = std::cos(u);
+      v = std::sqrt(s * s + c * c * ci * ci);
+    }
+    std::sort(f.begin(), f.end());
+    return f;
+  }();
+  const std::size_t i = std::min(sorted.size() - 1, static_cast<std::size_t>(p * sorted.size()));
+  return sorted[i];
+}
+
+Curve analytic_curve(const AnomalyData& d, const CurveOptions& opt) {
+  Curve c;
+  c.upper_limit = !(d.sig_joint >= opt.detect_sigma);
+  const Eigen::Vector2d dl = d.dpm.head<2>();
+  const double amp = dl.norm();
+  const Eigen::Vector2d u = amp > 0 ? Eigen::Vector2d(dl / amp) : Eigen::Vector2d(1.0, 0.0);
+  const double sigma = std::sqrt(u.dot(d.cov.block<2, 2>(0, 0) * u));
+  const double w_late = d.late.end_yr - d.late.start_yr;
+  const double baseline = d.late.ref_epoch_yr - d.early.ref_epoch_yr;
+  // Companion mass (MJup) whose circular orbit at a_au gives an anomaly of
+  // `speed` mas/yr with projection factor f.
+  auto mass_for = [&](double a_au, double speed, double f) {
+    double q = 0.0;
+    for (int it = 0; it < 50; ++it) {
+      const double period = period_from_a(a_au, d.host_mass_msun / (1.0 - q));
+      const double g = circular_window_efficiency(w_late / period);
+      const double xb = units::kPi * baseline / period;
+      const double s = std::sin(xb) / xb;
+      // Late-epoch anomaly of a circular face-on orbit: window-smeared
+      // velocity minus the mean velocity over the baseline (lagging by xb).
+      const double eta = std::sqrt(std::max(g * g + s * s - 2.0 * g * s * std::cos(xb), 1e-300));
+      const double q_new = speed / (f * eta) * period / (units::kTwoPi * a_au * d.parallax_mas);
+      if (!(q_new < 0.999)) return kAbsent;
+      if (std::abs(q_new - q) < 1e-12 * std::max(q_new, 1e-300)) break;
+      q = q_new;
+    }
+    return d.host_mass_msun * q / (1.0 - q) * units::kMjupPerMsun;
+  };
+  for (double a : opt.a_au) {
+    CurvePoint p{a, a * d.parallax_mas, period_from_a(a, d.host_mass_msun), 0.0,
+                 kAbsent, kAbsent, kAbsent, kAbsent, kAbsent, kAbsent};
+    if (c.upper_limit) {
+      p.mass_hi68 = mass_for(a, amp + sigma, projection_factor_quantile(0.5));
+      p.mass_hi95 = mass_for(a, amp + 2.0 * sigma, projection_factor_quantile(0.5));
+    } else {
+      // Orientation spread only: a small projection factor means a large mass.
+      p.mass_lo95 = mass_for(a, amp, projection_factor_quantile(0.975));
+      p.mass_lo68 = mass_for(a, amp, projection_factor_quantile(0.84));
+      p.mass_med = mass_for(a, amp, projection_factor_quantile(0.5));
+      p.mass_hi68 = mass_for(a, amp, projection_factor_quantile(0.16));
+      p.mass_hi95 = mass_for(a, amp, projection_factor_quantile(0.025));
+    }
+    p.weight = 1.0 / opt.a_au.size();
+    p.ess = kAbsent;
+    c.points.push_back(p);
+  }
+  c.min_ess = kAbsent;
+  return c;
+}
+
+std::string curve_header() {
+  return "id,a_au,sep_mas,period_yr,weight,mass_lo95,mass_lo68,mass_med,mass_hi68,mass_hi95\n";
+}
+
+void append_curve_rows(std::string& out, const std::string& id, const Curve& c) {
+  for (const auto& p : c.points) {
+    append_csv_field(out, id);
+    for (double v : {p.a_au, p.sep_mas, p.period_yr, p.weight, p.mass_lo95, p.mass_lo68,
+                     p.mass_med, p.mass_hi68, p.mass_hi95}) {
+      out += ',';
+      append_double(out, v);
+    }
+    out += '\n';
+  }
+}
+
+}  // namespace heft

@@ -1,0 +1,161 @@
+#include <catch2/catch.hpp>
+#include <nlohmann/json.hpp>
+
+#include "heft/curve.hpp"
+#include "test_util.hpp"
+
+using namespace heft;
+
+namespace {
+// Data of a companion on orbit o, noiseless, with per-epoch errors.
+AnomalyData data_for(const Orbit<double>& o, double a_au, double m2_mjup, double m1, double plx,
+                     double err_late, double err_early, const Window& early, const Window& late) {
+  const double m2 = m2_mjup / units::kMjupPerMsun, q = m2 / (m1 + m2);
+  AnomalyData d;
+  d.dpm = model_anomaly(o, a_au, q, plx, early, late);
+  d.cov = Eigen::Vector4d(err_late * err_late, err_late * err_late, err_early * err_early,
+                          err_early * err_early).asDiagonal();
+  d.parallax_mas = plx;
+  d.parallax_error_mas = 1e-6;
+  d.host_mass_msun = m1;
+  d.host_mass_error_msun = 0.0;
+  d.sig_joint = 1e3;
+  d.early = early;
+  d.late = late;
+  return d;
+}
+const Window kEarly{1989.85, 1993.21, 1991.25, {}, {}}, kLate{2014.57, 2017.41, 2016.0, {}, {}};
+}  // namespace
+
+TEST_CASE("Jupiter-Sun analogue: the curve at 5.2 AU brackets 1 MJup", "[curve]") {
+  // Common practice values, no source: 1 MJup at 5.2 AU around 1 Msun, 10 pc.
+  const double P = period_from_a(5.2, 1.0 + 1.0 / units::kMjupPerMsun);
+  const Orbit<double> o{P, 0.0, 0.0, 0.0, 0.0, 1.0, 2016.0};
+  const AnomalyData d = data_for(o, 5.2, 1.0, 1.0, 100.0, 0.002, 0.002, kEarly, kLate);
+  CurveOptions opt;
+  opt.a_au = {5.2};
+  opt.draws = 2048;
+  opt.m_min_mjup = 0.01;
+  opt.refine_rounds = 0;
+  const Curve c = montecarlo_curve(d, opt, "jupiter");
+  REQUIRE_FALSE(c.upper_limit);
+  const CurvePoint& p = c.points.at(0);
+  INFO("band " << p.mass_lo95 << " " << p.mass_lo68 << " " << p.mass_med << " " << p.mass_hi68 << " " << p.mass_hi95);
+  CHECK(p.mass_lo95 <= 1.0);
+  CHECK(p.mass_hi95 >= 1.0);
+  CHECK(p.mass_hi95 < 10.0);
+  CHECK(p.ess > 100);
+}
+
+TEST_CASE("analytic and Monte Carlo medians agree for circular orbits", "[curve]") {
+  // High S/N late anomaly, uninformative early one, P >> window, P << baseline
+  // (windows 0.1 yr, baseline ~1000 yr); analytic projection factor = median
+  // of the same isotropic orientation distribution (docs/method.md, Sect. 8).
+  const Window early{1015.95, 1016.05, 1016.0, {}, {}}, late{2015.95, 2016.05, 2016.0, {}, {}};
+  for (double a : {2.0, 8.0}) {
+    const double P = period_from_a(a, 1.0);
+    const Orbit<double> o{P, 0.0, 1.0, 0.3, 0.7, 2.0, 2016.0};
+    AnomalyData d = data_for(o, a, 5.0, 1.0, 50.0, 1e-4, 1e3, early, late);
+    CurveOptions opt;
+    opt.a_au = {a};
+    opt.draws = 4096;
+    opt.ecc = {Distribution::Kind::kFixed, 0.0, 0.0};
+    opt.refine_rounds = 0;
+    const double mc = montecarlo_curve(d, opt, "circ").points.at(0).mass_med;
+    const double an = analytic_curve(d, opt).points.at(0).mass_med;
+    INFO("a = " << a << ": montecarlo " << mc << ", analytic " << an);
+    CHECK(mc == Approx(an).epsilon(0.03));
+  }
+}
+
+TEST_CASE("curve limits: sqrt(a) law and the turn-up at both ends", "[curve]") {
+  // Physics of the relation (Kervella et al. 2019, Sect. 3): for
+  // window << P << baseline and m2 << m1, m2 ~ v P / a ~ sqrt(a) at fixed
+  // anomaly; with the real windows and baseline the signal is smeared at
+  // short periods (window) and at long periods (baseline).
+  const Window early{1015.995, 1016.005, 1016.0, {}, {}}, late{2015.995, 2016.005, 2016.0, {}, {}};
+  const Orbit<double> o{period_from_a(5.0, 1.0), 0.0, 0.8, 0.0, 0.5, 1.0, 2016.0};
+  AnomalyData d = data_for(o, 5.0, 0.5, 1.0, 20.0, 1e-3, 1e3, early, late);
+  CurveOptions opt;
+  opt.a_au = log_grid(1.0, 30.0, 6);
+  opt.draws = 1024;
+  opt.m_min_mjup = 1e-3;
+  opt.ecc = {Distribution::Kind::kFixed, 0.0, 0.0};
+  opt.refine_rounds = 0;
+  const Curve c = montecarlo_curve(d, opt, "slope");
+  const double slope = std::log(c.points.back().mass_med / c.points.front().mass_med) / std::log(30.0);
+  CHECK(slope == Approx(0.5).margin(0.02));
+
+  AnomalyData real = data_for(o, 5.0, 0.5, 1.0, 20.0, 1e-3, 1e3, kEarly, kLate);
+  opt.a_au = {0.3, 3.0, 300.0};
+  const Curve r = montecarlo_curve(real, opt, "ends");
+  auto norm = [&](int k) { return r.points[k].mass_med / std::sqrt(r.points[k].a_au); };
+  INFO("m/sqrt(a): " << norm(0) << " " << norm(1) << " " << norm(2));
+  CHECK(norm(0) > 1.5 * norm(1));
+  CHECK(norm(2) > 1.5 * norm(1));
+}
+
+TEST_CASE("upper limits are finite and do not depend on the lower mass bound", "[curve]") {
+  // A star with no significant anomaly: prior uniform in mass on [0, m_max].
+  AnomalyData d = data_for(Orbit<double>{10, 0, 0, 0, 0, 0, 2016}, 5.0, 0.0, 1.0, 20.0, 0.03, 0.5,
+                           kEarly, kLate);
+  d.dpm << 0.02, -0.01, 0.3, 0.2;
+  d.sig_joint = 1.0;
+  CurveOptions opt;
+  opt.a_au = {1.0, 10.0, 100.0};
+  opt.draws = 1024;
+  const Curve a = montecarlo_curve(d, opt, "single");
+  opt.m_min_mjup = 5.0;
+  const Curve b = montecarlo_curve(d, opt, "single");
+  REQUIRE(a.upper_limit);
+  for (std::size_t k = 0; k < a.points.size(); ++k) {
+    CHECK(std::isfinite(a.points[k].mass_hi95));
+    CHECK(a.points[k].mass_hi95 > 0.0);
+    CHECK(a.points[k].mass_hi95 >= a.points[k].mass_hi68);
+    CHECK(std::isnan(a.points[k].mass_med));
+    CHECK(a.points[k].mass_hi95 == b.points[k].mass_hi95);
+  }
+  double total = 0;
+  for (const auto& p : a.points) total += p.weight;
+  CHECK(total == Approx(1.0).epsilon(1e-12));
+}
+
+TEST_CASE("heft curve CLI: deterministic, modes in JSON, bad input", "[curve][cli]") {
+  const std::string stars = test::tmp_path("curve_stars.csv");
+  REQUIRE(test::run_heft("simulate -q --stars 6 --seed 31 --companion-fraction 0.5 --a loguniform:2,10 "
+                         "--companion-mass loguniform:20,80 --distance uniform:20,40 -o " + stars) == 0);
+  const std::string o1 = test::tmp_path("curve1.csv"), o2 = test::tmp_path("curve2.csv"),
+                    js = test::tmp_path("curve.json");
+  const std::string args = "curve -q " + stars + " --n-a 6 --draws 256 --a-min 1 --a-max 100 ";
+  REQUIRE(test::run_heft(args + "-j 1 -o " + o1 + " --json " + js) == 0);
+  REQUIRE(test::run_heft(args + "-j 2 -o " + o2) == 0);
+  CHECK(test::read_text(o1) == test::read_text(o2));
+  const auto t = test::read_table(o1);
+  CHECK(t.header == std::vector<std::string>{"id", "a_au", "sep_mas", "period_yr", "weight", "mass_lo95",
+                                             "mass_lo68", "mass_med", "mass_hi68", "mass_hi95"});
+  const auto j = nlohmann::json::parse(test::read_text(js));
+  REQUIRE(j["stars"].size() == 6);
+  for (const auto& s : j["stars"]) {
+    CHECK((s["mode"] == "detection" || s["mode"] == "upper_limit"));
+    CHECK(s["dark_companion_assumed"] == true);
+  }
+  // Empty mass values and no --host-mass: bad_input:no_host_mass, exit 4.
+  const auto tab = test::read_table(stars);
+  std::string csv;
+  for (std::size_t i = 0; i < tab.header.size(); ++i) csv += (i ? "," : "") + tab.header[i];
+  csv += "\n";
+  for (auto row : tab.rows) {
+    row[tab.col("mass")] = "";
+    for (std::size_t i = 0; i < row.size(); ++i) csv += (i ? "," : "") + row[i];
+    csv += "\n";
+  }
+  const std::string no_mass = test::tmp_path("curve_nomass.csv"), js2 = test::tmp_path("curve_nomass.json");
+  test::write_text(no_mass, csv);
+  CHECK(test::run_heft(args.substr(0, 9) + no_mass + " --n-a 3 --draws 64 -o /dev/null --json " + js2) == 4);
+  CHECK(nlohmann::json::parse(test::read_text(js2))["stars"][0]["status"] == "bad_input:no_host_mass");
+  CHECK(test::run_heft(args.substr(0, 9) + no_mass + " --n-a 3 --draws 64 -o /dev/null --host-mass 1.1") == 0);
+  std::string err;
+  CHECK(test::run_heft("curve -q " + stars + " --id NOPE", &err) == 2);
+  CHECK(err.find("NOPE") != std::string::npos);
+  CHECK(test::run_heft("curve -q " + stars + " --ecc beta:1", &err) == 2);
+}
