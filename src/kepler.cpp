@@ -47,10 +47,13 @@ double solve_kepler(double M, double e) {
   return offset + sign * polish(E0, m, e, m, std::min(units::kPi, m + e));
 }
 
-KeplerSolver::KeplerSolver(double ecc, int n) : e_(ecc), h_(units::kPi / n), E_(n + 1), dE_(n + 1) {
+KeplerSolver::KeplerSolver(double ecc, int n)
+    : e_(ecc), h_(units::kPi / n), E_(n + 1), dE_(n + 1), sin_(n + 1), cos_(n + 1) {
   for (int k = 0; k <= n; ++k) {
     E_[k] = solve_kepler(k * h_, e_);
-    dE_[k] = 1.0 / (1.0 - e_ * std::cos(E_[k]));
+    sin_[k] = std::sin(E_[k]);
+    cos_[k] = std::cos(E_[k]);
+    dE_[k] = 1.0 / (1.0 - e_ * cos_[k]);
   }
 }
 
@@ -58,17 +61,26 @@ double KeplerSolver::operator()(double M) const {
   double offset, sign;
   const double m = reduce(M, offset, sign);
   const int n = static_cast<int>(E_.size()) - 1;
-  const int k = std::min(n - 1, static_cast<int>(m / h_));
+  const double inv_h = 1.0 / h_;  // constant: the compiler hoists it out of loops
+  const int k = std::min(n - 1, static_cast<int>(m * inv_h));
   // Cubic Hermite interpolation in the panel [k h, (k+1) h].
-  const double t = (m - k * h_) / h_, t2 = t * t, t3 = t2 * t;
+  const double t = m * inv_h - k, t2 = t * t, t3 = t2 * t;
   double E = (2 * t3 - 3 * t2 + 1) * E_[k] + (t3 - 2 * t2 + t) * h_ * dE_[k] +
              (-2 * t3 + 3 * t2) * E_[k + 1] + (t3 - t2) * h_ * dE_[k + 1];
   // One Halley step (cubic convergence) polishes the interpolant to machine
   // precision where the table is fine enough; the safeguarded Newton loop
   // takes over only where it is not (high e next to periastron).
-  const double s = std::sin(E), c = std::cos(E);
+  // sin E, cos E from the node's values and the Taylor series of the offset
+  // d = E - E_k (|d| < 0.3 rad even next to periastron at e = 0.99; terms to
+  // d^13 and d^14 leave < 1e-17): no libm call on the hot path.
+  const double d = E - E_[k], d2 = d * d;
+  const double sd =
+      d * (1 - d2 / 6 * (1 - d2 / 20 * (1 - d2 / 42 * (1 - d2 / 72 * (1 - d2 / 110 * (1 - d2 / 156))))));
+  const double cd =
+      1 - d2 / 2 * (1 - d2 / 12 * (1 - d2 / 30 * (1 - d2 / 56 * (1 - d2 / 90 * (1 - d2 / 132 * (1 - d2 / 182))))));
+  const double s = sin_[k] * cd + cos_[k] * sd, c = cos_[k] * cd - sin_[k] * sd;
   const double f = E - e_ * s - m, fp = 1.0 - e_ * c;
-  const double step = f / (fp - 0.5 * f * e_ * s / fp);
+  const double step = f * fp / (fp * fp - 0.5 * f * e_ * s);  // Halley, one division
   E -= step;
   if (std::abs(step) > 1e-6) E = polish(E, m, e_, E_[k], E_[k + 1]);
   return offset + sign * E;

@@ -44,7 +44,7 @@ class KeplerSolver {
 
  private:
   double e_, h_;
-  std::vector<double> E_, dE_;
+  std::vector<double> E_, dE_, sin_, cos_;
 };
 
 /// The value part of a scalar (the Jet's .a), for control flow.
