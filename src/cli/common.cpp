@@ -3,6 +3,7 @@
 #include <iostream>
 
 #include "heft/calibrate.hpp"
+#include "heft/version.hpp"
 
 namespace heft::cli {
 
@@ -87,6 +88,20 @@ void StatusCounter::add(const std::string& status) {
   ++total_;
   if (status == "ok") ++ok_;
   else ++counts_[status];
+}
+
+nlohmann::ordered_json StatusCounter::run_json(const std::string& command,
+                                              const std::string& input) const {
+  nlohmann::ordered_json run;
+  run["heft_version"] = kVersion;
+  run["command"] = command;
+  run["input"] = input;
+  run["rows"] = total_;
+  run["rows_ok"] = ok_;
+  nlohmann::ordered_json bad = nlohmann::ordered_json::object();
+  for (const auto& [status, n] : counts_) bad[status] = n;
+  run["rows_not_ok"] = bad;
+  return run;
 }
 
 void StatusCounter::print_summary(const std::string& command) const {

@@ -6,6 +6,7 @@
 #include <Eigen/Core>
 #include <functional>
 #include <map>
+#include <nlohmann/json.hpp>
 #include <string>
 
 #include "heft/catalog.hpp"
@@ -51,6 +52,9 @@ class StatusCounter {
   const std::map<std::string, long>& counts() const { return counts_; }
   void print_summary(const std::string& command) const;
   int exit_code() const { return not_ok() > 0 ? kPartial : kOk; }
+  /// The common part of a command's JSON "run" object: heft version,
+  /// command, input and its row counts (per status).
+  nlohmann::ordered_json run_json(const std::string& command, const std::string& input) const;
 
  private:
   std::map<std::string, long> counts_;

@@ -8,7 +8,6 @@
 #include "heft/curve.hpp"
 #include "heft/error.hpp"
 #include "heft/io.hpp"
-#include "heft/version.hpp"
 
 namespace heft::cli {
 namespace {
@@ -125,12 +124,7 @@ int run_curve(CurveCliOptions o) {
   }
   if (!o.id.empty() && !found) throw InputError(in.name(), 0, 0, "no star with id '" + o.id + "'");
   if (json) {
-    nlohmann::ordered_json run;
-    run["heft_version"] = kVersion;
-    run["command"] = "curve";
-    run["input"] = in.name();
-    run["rows"] = counter.total();
-    run["rows_ok"] = counter.total() - counter.not_ok();
+    nlohmann::ordered_json run = counter.run_json("curve", in.name());
     run["method"] = o.method;
     run["draws"] = copt.draws;
     run["ecc_prior"] = copt.ecc.str();

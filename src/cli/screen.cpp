@@ -9,7 +9,6 @@
 #include "heft/error.hpp"
 #include "heft/io.hpp"
 #include "heft/screen.hpp"
-#include "heft/version.hpp"
 
 namespace heft::cli {
 namespace {
@@ -90,15 +89,7 @@ int run_screen(const ScreenCliOptions& o) {
   }
   out.write(buf);
   if (json) {
-    nlohmann::ordered_json run;
-    run["heft_version"] = kVersion;
-    run["command"] = "screen";
-    run["input"] = in.name();
-    run["rows"] = counter.total();
-    run["rows_ok"] = counter.total() - counter.not_ok();
-    nlohmann::ordered_json bad_counts = nlohmann::ordered_json::object();
-    for (const auto& [status, n] : counter.counts()) bad_counts[status] = n;
-    run["rows_not_ok"] = bad_counts;
+    nlohmann::ordered_json run = counter.run_json("screen", in.name());
     nlohmann::ordered_json options;
     options["early"] = calibration_json(opt.early);
     options["late"] = calibration_json(opt.late);
