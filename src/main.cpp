@@ -20,6 +20,7 @@ int main(int argc, char** argv) {
   setup_ingest(app, run);
   setup_screen(app, run);
   setup_curve(app, run);
+  setup_plot(app, run);
   setup_simulate(app, run);
   try {
     app.parse(argc, argv);

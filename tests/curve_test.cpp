@@ -159,3 +159,30 @@ TEST_CASE("heft curve CLI: deterministic, modes in JSON, bad input", "[curve][cl
   CHECK(err.find("NOPE") != std::string::npos);
   CHECK(test::run_heft("curve -q " + stars + " --ecc beta:1", &err) == 2);
 }
+
+TEST_CASE("heft plot curve writes an SVG that renders", "[curve][cli][plot]") {
+  // Rendering check with rsvg-convert (librsvg2-bin, Debian).
+  const std::string stars = test::tmp_path("plot_stars.csv"), curve = test::tmp_path("plot_curve.csv"),
+                    svg = test::tmp_path("plot.svg"), png = test::tmp_path("plot.png");
+  REQUIRE(test::run_heft("simulate -q --stars 3 --seed 8 --companion-fraction 1 --a loguniform:3,10 "
+                         "--companion-mass loguniform:30,60 --distance uniform:20,30 -o " + stars) == 0);
+  REQUIRE(test::run_heft("curve -q " + stars + " --n-a 8 --draws 256 -o " + curve) == 0);
+  REQUIRE(test::run_heft("plot curve " + curve + " -o " + svg) == 0);
+  const std::string text = test::read_text(svg);
+  CHECK(text.find("<svg") != std::string::npos);
+  CHECK(text.find("semi-major axis a (AU)") != std::string::npos);
+  CHECK(text.find("projected separation") != std::string::npos);
+  CHECK(text.find("deuterium burning") != std::string::npos);
+  std::remove(png.c_str());
+  REQUIRE(std::system(("rsvg-convert " + svg + " -o " + png).c_str()) == 0);
+  CHECK(test::read_text(png).size() > 5000);
+  // A malformed curve table names file, line and column.
+  std::string bad = test::read_text(curve);
+  const auto second = bad.find('\n') + 1;
+  const auto comma = bad.find(',', second);
+  bad.replace(comma + 1, bad.find(',', comma + 1) - comma - 1, "x1");
+  test::write_text(curve, bad);
+  std::string err;
+  CHECK(test::run_heft("plot curve " + curve + " -o " + svg, &err) == 2);
+  CHECK(err.find(curve + ":2:") != std::string::npos);
+}

@@ -1,0 +1,118 @@
+// heft plot: SVG figures of heft outputs. `heft plot curve`: the companion
+// mass-separation constraints of one star.
+
+#include <algorithm>
+#include <cmath>
+#include <memory>
+
+#include "cli/commands.hpp"
+#include "heft/error.hpp"
+#include "heft/io.hpp"
+#include "heft/svg.hpp"
+
+namespace heft::cli {
+namespace {
+
+struct PlotCurveOptions {
+  std::string input, output = "-", id;
+};
+
+struct Row {
+  double a, sep, lo95, lo68, med, hi68, hi95;
+};
+
+int run_plot_curve(const PlotCurveOptions& o) {
+  InputFile in(o.input);
+  CsvReader csv(in.stream(), in.name());
+  if (!csv.next()) throw InputError(in.name(), 0, 0, "empty file: no header row");
+  const char* names[] = {"id", "a_au", "sep_mas", "mass_lo95", "mass_lo68", "mass_med", "mass_hi68", "mass_hi95"};
+  int idx[8];
+  for (int k = 0; k < 8; ++k) {
+    const auto& h = csv.fields();
+    const auto it = std::find(h.begin(), h.end(), names[k]);
+    if (it == h.end()) throw InputError(in.name(), csv.line(), 0, std::string("missing required column '") + names[k] + "'");
+    idx[k] = static_cast<int>(it - h.begin());
+  }
+  std::string id = o.id;
+  std::vector<Row> rows;
+  while (csv.next()) {
+    const auto& f = csv.fields();
+    if (id.empty()) id = std::string(f[idx[0]]);
+    if (f[idx[0]] != id) continue;
+    double v[7];
+    for (int k = 1; k < 8; ++k) {
+      v[k - 1] = kAbsent;
+      if (f[idx[k]].empty()) continue;
+      if (!parse_double(f[idx[k]], v[k - 1]) || !std::isfinite(v[k - 1]))
+        throw InputError(in.name(), csv.line(), csv.column(idx[k]),
+                         std::string("column '") + names[k] + "': not a finite number");
+    }
+    if (!(v[0] > 0 && v[1] > 0)) throw InputError(in.name(), csv.line(), csv.column(idx[1]), "a_au and sep_mas must be positive");
+    rows.push_back({v[0], v[1], v[2], v[3], v[4], v[5], v[6]});
+  }
+  if (rows.empty()) throw InputError(in.name(), 0, 0, id.empty() ? "no curve rows" : "no rows for star '" + id + "'");
+  std::sort(rows.begin(), rows.end(), [](const Row& a, const Row& b) { return a.a < b.a; });
+  const bool upper = std::none_of(rows.begin(), rows.end(), [](const Row& r) { return present(r.med); });
+  double y_lo = 1e300, y_hi = 0;
+  for (const auto& r : rows)
+    for (double y : {r.lo95, r.med, r.hi95})
+      if (present(y) && y > 0) {
+        y_lo = std::min(y_lo, y);
+        y_hi = std::max(y_hi, y);
+      }
+  if (!(y_hi > 0)) throw InputError(in.name(), 0, 0, "no finite masses to plot");
+  y_lo = std::min(y_lo, 5.0);
+  y_hi = std::max(y_hi, 150.0);
+  y_lo = std::pow(10.0, std::floor(std::log10(y_lo)));
+  y_hi = std::pow(10.0, std::ceil(std::log10(y_hi)));
+  const double x_lo = std::pow(10.0, std::floor(std::log10(rows.front().a)));
+  const double x_hi = std::pow(10.0, std::ceil(std::log10(rows.back().a)));
+  LogLogPlot plot(x_lo, x_hi, y_lo, y_hi, "semi-major axis a (AU)", "companion mass (Jupiter masses)",
+                  "heft curve: " + id + (upper ? " (upper limits)" : "") + ", dark companion assumed");
+  plot.top_axis(rows.front().sep / rows.front().a, "projected separation a x parallax (mas)");
+  auto band = [&](double Row::*lo, double Row::*hi, const std::string& colour, double op) {
+    std::vector<std::pair<double, double>> pts;
+    for (const auto& r : rows)
+      if (present(r.*hi)) pts.emplace_back(r.a, r.*hi);
+    for (auto it = rows.rbegin(); it != rows.rend(); ++it)
+      if (present((*it).*hi)) pts.emplace_back(it->a, lo && (*it).*lo > 0 ? (*it).*lo : y_lo);
+    plot.band(pts, colour, op);
+  };
+  if (upper) {
+    band(nullptr, &Row::hi95, "#9ecae1", 0.6);
+    band(nullptr, &Row::hi68, "#3182bd", 0.6);
+    plot.legend("#9ecae1", "allowed at 95 % (below the edge)");
+    plot.legend("#3182bd", "allowed at 68 %");
+  } else {
+    band(&Row::lo95, &Row::hi95, "#9ecae1", 0.6);
+    band(&Row::lo68, &Row::hi68, "#3182bd", 0.6);
+    std::vector<std::pair<double, double>> med;
+    for (const auto& r : rows)
+      if (present(r.med)) med.emplace_back(r.a, r.med);
+    plot.line(med, "#08306b", 2.0);
+    plot.legend("#9ecae1", "95 % band");
+    plot.legend("#3182bd", "68 % band");
+    plot.legend("#08306b", "median");
+  }
+  // Deuterium and hydrogen burning limits (~13 and ~80 MJup; common practice).
+  plot.hline(13.0, "deuterium burning ~13 MJup", "#a63603");
+  plot.hline(80.0, "hydrogen burning ~80 MJup", "#54278f");
+  write_file_atomic(o.output, plot.str());
+  return kOk;
+}
+
+}  // namespace
+
+void setup_plot(CLI::App& app, Runner& run) {
+  CLI::App* plot = app.add_subcommand("plot", "SVG figures of heft outputs");
+  plot->require_subcommand(1);
+  auto o = std::make_shared<PlotCurveOptions>();
+  CLI::App* sub = plot->add_subcommand(
+      "curve", "Mass vs separation (log-log) with the 68 % and 95 % bands of a heft curve table");
+  sub->add_option("curve", o->input, "curve table from heft curve (CSV; '-' = stdin)")->required();
+  sub->add_option("--id", o->id, "star to plot (default: the first in the table)");
+  sub->add_option("-o,--output", o->output, "SVG file; default stdout");
+  sub->callback([o, &run] { run = [o] { return run_plot_curve(*o); }; });
+}
+
+}  // namespace heft::cli
