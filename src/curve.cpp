@@ -284,7 +284,10 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const Draw
   // the first stage (adaptive importance sampling, e.g. Cappe et al. 2004,
   // J. Comput. Graph. Stat. 13, 907), with the same deviates for every a.
   std::vector<Draw> adapted;
-  if (ess_of(samples) < 0.25 * samples.size() && !draws2.empty()) {
+  // Up to three rounds, each proposing around the previous round's draws.
+  for (int round = 0; round < 3 && ess_of(samples) < 0.25 * samples.size() && !draws2.empty();
+       ++round) {
+    const std::vector<Draw>& src = *used;
     std::vector<double> ld(n);
     for (std::size_t k = 0; k < n; ++k) {
       std::vector<double> lw(nz);
@@ -301,7 +304,7 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const Draw
     for (int j = 0; j < n_anc; ++j) {
       const double u = (j + 0.5) / n_anc * acc;
       const std::size_t k = std::lower_bound(cw.begin(), cw.end(), u) - cw.begin();
-      anc.push_back(coords_of(draws[std::min(k, n - 1)]));
+      anc.push_back(coords_of(src[std::min(k, n - 1)]));
     }
     Coords mean = Coords::Zero(), var = Coords::Zero();
     for (const auto& c : anc) mean += c;
@@ -312,7 +315,7 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const Draw
       dc(2) = wrap_diff(c(2) - anc[0](2));
       var += dc.cwiseProduct(dc);
     }
-    Coords width = (var / n_anc).cwiseSqrt() * 0.5;
+    Coords width = (var / n_anc).cwiseSqrt() * 0.7;
     const Coords floor_w(0.01, 0.02, 0.02, 0.005), cap_w(1.0, 2.0, 2.0, 0.5);
     width = width.cwiseMax(floor_w).cwiseMin(cap_w);
     if (opt.ecc.kind == Distribution::Kind::kFixed) width(3) = 0.0;
@@ -329,10 +332,10 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const Draw
       }
       return log_sum_exp(terms) - std::log(static_cast<double>(anc.size()));
     };
-    adapted = draws2;
+    std::vector<Draw> next = draws2;
     std::vector<double> log_extra(n);
     for (std::size_t j = 0; j < n; ++j) {
-      Draw& dr = adapted[j];
+      Draw& dr = next[j];
       if (pick_dev[j] >= 0.5) {  // kernel component
         const Coords& a = anc[static_cast<std::size_t>(pick_dev[j + n] * n_anc) % n_anc];
         Coords c = a + width.cwiseProduct(kernel_dev[j]);
@@ -344,7 +347,7 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const Draw
         dr.m0 = c(2);
         dr.ecc = c(3);
       }
-      const Coords c = coords_of(adapted[j]);
+      const Coords c = coords_of(next[j]);
       const double lp = log_prior_coords(c, opt.ecc);
       // Mixture density 0.5 prior + 0.5 kernels.
       const double lk = log_kernel_mix(c);
@@ -354,11 +357,12 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const Draw
 #pragma omp parallel for schedule(static)
     for (std::size_t j = 0; j < n; ++j) {
       if (std::isfinite(log_extra[j])) {
-        weigh_draw(pb, adapted[j], log_extra[j], &samples[j * nz]);
+        weigh_draw(pb, next[j], log_extra[j], &samples[j * nz]);
       } else {  // outside the prior's support: no weight
         for (int s = 0; s < nz; ++s) samples[j * nz + s] = {-std::numeric_limits<double>::infinity(), 0.0, 0.0};
       }
     }
+    adapted.swap(next);
     used = &adapted;
   }
   const std::vector<Draw>& fin = *used;
