@@ -2,6 +2,7 @@
 #include <nlohmann/json.hpp>
 
 #include "heft/curve.hpp"
+#include "heft/screen.hpp"
 #include "test_util.hpp"
 
 using namespace heft;
@@ -185,4 +186,26 @@ TEST_CASE("heft plot curve writes an SVG that renders", "[curve][cli][plot]") {
   std::string err;
   CHECK(test::run_heft("plot curve " + curve + " -o " + svg, &err) == 2);
   CHECK(err.find(curve + ":2:") != std::string::npos);
+}
+
+TEST_CASE("single stars: false-detection rate matches the chosen sigma", "[curve]") {
+  // A star is a detection when sig_joint >= --detect-sigma (3): for single
+  // stars the rate is 2 Phi(-3) = 0.27 % (chi2(4) converted to a two-sided
+  // Gaussian tail; statistics, common practice).
+  SurveyModel m;
+  m.n_stars = 30000;
+  m.seed = 313;
+  m.companion_fraction = 0.0;
+  long detections = 0;
+  StarRecord s;
+  SimTruth t;
+  for (long i = 0; i < m.n_stars; ++i) {
+    simulate_star(m, i, s, t);
+    const ScreenRow r = screen_star(s, validate_star(s), ScreenOptions{});
+    REQUIRE(r.ok());
+    bool ok;
+    const AnomalyData d = anomaly_data(s, r.result, kAbsent, kAbsent, ok);
+    detections += d.sig_joint >= CurveOptions{}.detect_sigma;
+  }
+  CHECK(double(detections) / m.n_stars == Approx(0.0027).margin(0.0011));
 }
