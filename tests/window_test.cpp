@@ -1,4 +1,5 @@
 #include <catch2/catch.hpp>
+#include <array>
 #include <random>
 
 #include "heft/window.hpp"
@@ -80,4 +81,70 @@ TEST_CASE("window fit converges with the panel rule (1e-9)", "[window]") {
   const WindowBasis<double> f = window_basis(slow, w);
   const OrbitPoint<double> v = orbit_point(slow, 2016.0);
   CHECK(f.xs == Approx(v.vx).epsilon(1e-5));
+}
+
+namespace {
+// Independent reference: the moments integrated numerically in E with one
+// 12-node Gauss-Legendre panel per half orbit (nodes by Newton iteration on
+// P_12; Abramowitz & Stegun 25.4.29), then the same line fit.
+WindowBasis<double> panel_rule(const Orbit<double>& o, const Window& w) {
+  static const auto rule = [] {
+    std::array<double, 12> x{}, wt{};
+    for (int i = 0; i < 12; ++i) {
+      double z = std::cos(units::kPi * (i + 0.75) / 12.5), pp = 0;
+      for (int it = 0; it < 100; ++it) {
+        double p1 = 1, p2 = 0;
+        for (int j = 1; j <= 12; ++j) {
+          const double p3 = p2;
+          p2 = p1;
+          p1 = ((2.0 * j - 1.0) * z * p2 - (j - 1.0) * p3) / j;
+        }
+        pp = 12 * (z * p1 - p2) / (z * z - 1.0);
+        z -= p1 / pp;
+      }
+      x[i] = z;
+      wt[i] = 2.0 / ((1.0 - z * z) * pp * pp);
+    }
+    return std::make_pair(x, wt);
+  }();
+  const double e = o.ecc, b = std::sqrt(1 - e * e), k = o.period_yr / units::kTwoPi;
+  const double ts = w.start_yr - w.ref_epoch_yr, te = w.end_yr - w.ref_epoch_yr;
+  const double s0 = te - ts, s1 = (te * te - ts * ts) / 2, s2 = (te * te * te - ts * ts * ts) / 3;
+  const double Ms = mean_anomaly(o, w.start_yr), Me = mean_anomaly(o, w.end_yr);
+  const double Es = solve_kepler(Ms, e), Ee = solve_kepler(Me, e);
+  double sx = 0, sxt = 0, sy = 0, syt = 0;
+  for (long kpi = static_cast<long>(std::floor(Es / units::kPi)) + 1;; ++kpi) {
+    const double a_edge = std::max(Es, (kpi - 1) * units::kPi), b_edge = std::min(Ee, kpi * units::kPi);
+    const double mid = 0.5 * (a_edge + b_edge), half = 0.5 * (b_edge - a_edge);
+    for (int j = 0; j < 12; ++j) {
+      const double E = mid + half * rule.first[j];
+      const double dt = k * (1 - e * std::cos(E)) * half * rule.second[j];
+      const double tau = ts + k * (E - e * std::sin(E) - Ms);
+      const double X = std::cos(E) - e, Y = b * std::sin(E);
+      sx += X * dt; sxt += X * tau * dt; sy += Y * dt; syt += Y * tau * dt;
+    }
+    if (kpi * units::kPi >= Ee) break;
+  }
+  const double det = s0 * s2 - s1 * s1;
+  const double xs = (s0 * sxt - s1 * sx) / det, ys = (s0 * syt - s1 * sy) / det;
+  return {(sx - xs * s1) / s0, xs, (sy - ys * s1) / s0, ys};
+}
+}  // namespace
+
+TEST_CASE("closed-form window moments equal the Gauss-Legendre panel rule", "[window]") {
+  std::mt19937_64 g(33);
+  std::uniform_real_distribution<double> u(0, 1);
+  const Window w{1989.85, 1993.21, 1991.25, {}, {}};
+  for (int n = 0; n < 300; ++n) {
+    const double e = n % 5 == 0 ? 0.99 : 0.98 * u(g);
+    const double P = std::exp(std::log(0.05) + u(g) * std::log(1e5));
+    const Orbit<double> o{P, e, 0.0, 0.0, 0.0, units::kTwoPi * u(g), 2016.0};
+    const WindowBasis<double> a = window_basis(o, w), b = panel_rule(o, w);
+    const double vscale = units::kTwoPi / P;
+    INFO("P = " << P << " e = " << e);
+    CHECK(a.x0 == Approx(b.x0).margin(1e-9));
+    CHECK(a.y0 == Approx(b.y0).margin(1e-9));
+    CHECK(a.xs == Approx(b.xs).margin(1e-9 * vscale));
+    CHECK(a.ys == Approx(b.ys).margin(1e-9 * vscale));
+  }
 }

@@ -11,7 +11,6 @@
 /// Reference for the method: Kervella et al. 2019, A&A 623, A72, Sect. 3;
 /// derivation and the closed-form test oracle in docs/method.md.
 
-#include <array>
 #include <cmath>
 #include <limits>
 #include <vector>
@@ -45,15 +44,29 @@ struct WindowFit {
 };
 
 namespace detail {
-/// 12-point Gauss-Legendre nodes and weights on [-1, 1].
-const std::array<double, 12>& gl_nodes();
-const std::array<double, 12>& gl_weights();
+/// Antiderivatives in E of X w, X w u, Y w / b and Y w u / b, with
+/// X = cos E - e, b Y = sqrt(1 - e^2) sin E, w = 1 - e cos E (= du/dE) and
+/// u = E - e sin E (docs/method.md, Sect. 6): the window moments in closed form.
+template <typename T>
+void window_antiderivatives(const T& E, const T& e, T f[4]) {
+  using std::cos;
+  using std::sin;
+  const T s = sin(E), c = cos(E), s2 = T(2.0) * s * c, c2 = c * c - s * s;
+  const T ee = T(1.0) + e * e;
+  f[0] = ee * s - T(1.5) * e * E - T(0.25) * e * s2;
+  f[1] = ee * (E * s + c) - e * (E * E * T(0.25) + E * s2 * T(0.25) + c2 * T(0.125)) -
+         e * E * E * T(0.5) - e * ee * s * s * T(0.5) - e * e * c * c * c / T(3.0) - e * e * c;
+  f[2] = -c - e * s * s * T(0.5);
+  f[3] = s - E * c - e * (E * T(0.5) - s2 * T(0.25)) - e * (-E * c2 * T(0.25) + s2 * T(0.125)) +
+         e * e * s * s * s / T(3.0);
+}
 }  // namespace detail
 
 /// Window fit of X(t), Y(t) for orbit (P, e, M0) (angles of `o` unused).
 /// Continuous sampling is integrated in eccentric anomaly,
-/// dt = P (1 - e cos E) dE / 2 pi, one 12-node Gauss-Legendre panel per half
-/// orbit; Kepler's equation is solved only at the window ends.
+/// dt = P (1 - e cos E) dE / 2 pi, where every moment has an elementary
+/// antiderivative: Kepler's equation is solved only at the window ends and
+/// the cost does not grow with the number of orbits in the window.
 template <typename T>
 WindowBasis<T> window_basis(const Orbit<T>& o, const Window& w) {
   using std::cos;
@@ -74,33 +87,19 @@ WindowBasis<T> window_basis(const Orbit<T>& o, const Window& w) {
     s0 = T(te - ts);
     s1 = T((te * te - ts * ts) / 2.0);
     s2 = T((te * te * te - ts * ts * ts) / 3.0);
-    const T Ms = mean_anomaly(o, w.start_yr), Me = mean_anomaly(o, w.end_yr);
+    // Both ends shifted by the same whole turns: only differences matter.
+    const double turns = units::kTwoPi * floor(scalar_of(mean_anomaly(o, w.start_yr)) / units::kTwoPi);
+    const T Ms = mean_anomaly(o, w.start_yr) - T(turns), Me = mean_anomaly(o, w.end_yr) - T(turns);
     const T Es = eccentric_anomaly(Ms, e), Ee = eccentric_anomaly(Me, e);
-    const auto& xi = detail::gl_nodes();
-    const auto& wt = detail::gl_weights();
-    // Panels between Es and Ee broken at multiples of pi.
-    const double es = scalar_of(Es), ee = scalar_of(Ee);
-    long kpi = static_cast<long>(floor(es / units::kPi)) + 1;
-    T a_edge = Es;
-    for (;;) {
-      const bool last = kpi * units::kPi >= ee;
-      const T b_edge = last ? Ee : T(kpi * units::kPi);
-      const T mid = (a_edge + b_edge) * 0.5, half = (b_edge - a_edge) * 0.5;
-      for (int j = 0; j < 12; ++j) {
-        const T E = mid + half * xi[j];
-        const T cE = cos(E), sE = sin(E);
-        const T dt = k * (T(1.0) - e * cE) * half * wt[j];
-        const T tau = T(ts) + k * (E - e * sE - Ms);
-        const T X = cE - e, Y = b * sE;
-        sx += X * dt;
-        sxt += X * tau * dt;
-        sy += Y * dt;
-        syt += Y * tau * dt;
-      }
-      if (last) break;
-      a_edge = b_edge;
-      ++kpi;
-    }
+    T fs[4], fe[4];
+    detail::window_antiderivatives(Es, e, fs);
+    detail::window_antiderivatives(Ee, e, fe);
+    // dt = k w dE and tau = ts + k (u - Ms), u = E - e sin E (du = w dE).
+    const T c0 = T(ts) - k * Ms;
+    sx = k * (fe[0] - fs[0]);
+    sxt = c0 * sx + k * k * (fe[1] - fs[1]);
+    sy = k * b * (fe[2] - fs[2]);
+    syt = c0 * sy + k * k * b * (fe[3] - fs[3]);
   } else {
     for (std::size_t i = 0; i < w.times_yr.size(); ++i) {
       const T wi(w.weights.empty() ? 1.0 : w.weights[i]);
