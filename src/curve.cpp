@@ -164,6 +164,8 @@ struct Problem {
   Eigen::Matrix4d cinv;
   double chi2_data;
   double a_au;
+  double baseline_yr;
+  double snr;  ///< sqrt(chi2_data)
 };
 
 // Weighted z samples of one draw of (i, omega, e, M0, m1, parallax):
@@ -217,8 +219,11 @@ void weigh_draw(const Problem& pb, const Draw& dr, double log_extra, Sample* out
     const double q = z.norm();
     // The Gaussian used the period of the best z; where this sample's own
     // m1 + m2 moves the period, correct by the exact / Gaussian likelihood.
+    // The model moves by about the phase drift over the baseline,
+    // 2 pi (baseline / P + 1) |dP / P|, relative; chi2 by that times S/N, squared.
     const double p_s = period_from_a(a_au, dr.m1 / (1.0 - std::min(q, 0.9)));
-    if (std::isfinite(log_w) && std::abs(p_s / period - 1.0) > 1e-4) {
+    const double drift = units::kTwoPi * (pb.baseline_yr / period + 1.0) * std::abs(p_s / period - 1.0);
+    if (std::isfinite(log_w) && drift * pb.snr > 0.05) {
       const Eigen::Vector4d r_hat = d.dpm - kmat * z, r_s = d.dpm - design_at(p_s) * z;
       log_w += -0.5 * r_s.dot(pb.cinv * r_s) + 0.5 * r_hat.dot(pb.cinv * r_hat);
     }
@@ -259,8 +264,9 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const Draw
   const std::vector<Coords>& kernel_dev = ds.kernel;
   const std::vector<double>& pick_dev = ds.pick;
   Eigen::LLT<Eigen::Matrix4d> cllt(d.cov);
-  const Problem pb{d, opt, prior, cllt.solve(Eigen::Matrix4d::Identity()),
-                   d.dpm.dot(cllt.solve(d.dpm)), a_au};
+  const double chi2_data = d.dpm.dot(cllt.solve(d.dpm));
+  const Problem pb{d, opt, prior, cllt.solve(Eigen::Matrix4d::Identity()), chi2_data, a_au,
+                   d.late.ref_epoch_yr - d.early.ref_epoch_yr, std::sqrt(chi2_data)};
   const int nz = opt.z_samples;
   const std::size_t n = draws.size();
   std::vector<Sample> samples(n * nz);
@@ -319,18 +325,25 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const Draw
     const Coords floor_w(0.01, 0.02, 0.02, 0.005), cap_w(1.0, 2.0, 2.0, 0.5);
     width = width.cwiseMax(floor_w).cwiseMin(cap_w);
     if (opt.ecc.kind == Distribution::Kind::kFixed) width(3) = 0.0;
-    auto log_kernel_mix = [&](const Coords& c) {
-      std::vector<double> terms;
-      for (const auto& a : anc) {
-        double l = 0;
-        for (int i = 0; i < 4; ++i) {
-          if (width(i) == 0.0) continue;
-          const double dx = (i == 1 || i == 2) ? wrap_diff(c(i) - a(i)) : c(i) - a(i);
-          l += -0.5 * dx * dx / (width(i) * width(i)) - std::log(width(i) * std::sqrt(units::kTwoPi));
-        }
-        terms.push_back(l);
+    double log_norm = std::log(static_cast<double>(anc.size()));
+    Coords inv_w2 = Coords::Zero();
+    for (int i = 0; i < 4; ++i)
+      if (width(i) > 0.0) {
+        inv_w2(i) = 1.0 / (width(i) * width(i));
+        log_norm += std::log(width(i) * std::sqrt(units::kTwoPi));
       }
-      return log_sum_exp(terms) - std::log(static_cast<double>(anc.size()));
+    std::vector<double> terms(anc.size());
+    auto log_kernel_mix = [&](const Coords& c) {
+      for (std::size_t m = 0; m < anc.size(); ++m) {
+        double q = 0;
+        for (int i = 0; i < 4; ++i) {
+          double dx = c(i) - anc[m](i);
+          if (i == 1 || i == 2) dx = dx > units::kPi ? dx - units::kTwoPi : (dx < -units::kPi ? dx + units::kTwoPi : dx);
+          q += dx * dx * inv_w2(i);
+        }
+        terms[m] = -0.5 * q;
+      }
+      return log_sum_exp(terms) - log_norm;
     };
     std::vector<Draw> next = draws2;
     std::vector<double> log_extra(n);
