@@ -221,7 +221,7 @@ std::string star_table_header() {
 
 void append_star_row(std::string& out, const StarRecord& star) {
   append_csv_field(out, star.id);
-  StarRecord& s = const_cast<StarRecord&>(star);  // accessors are shared with the reader
+  StarRecord s = star;  // the accessors are the reader's (non-const) ones
   for (const auto& c : columns()) {
     out += ',';
     append_double(out, c.get(s));
