@@ -200,8 +200,7 @@ TEST_CASE("single stars: false-detection rate matches the chosen sigma", "[curve
   StarRecord s;
   SimTruth t;
   for (long i = 0; i < m.n_stars; ++i) {
-    simulate_star(m, i, s, t);
-    const ScreenRow r = screen_star(s, validate_star(s), ScreenOptions{});
+    const ScreenRow r = test::simulate_and_screen(m, i, s, t);
     REQUIRE(r.ok());
     bool ok;
     const AnomalyData d = anomaly_data(s, r.result, kAbsent, kAbsent, ok);

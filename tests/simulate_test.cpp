@@ -22,8 +22,7 @@ TEST_CASE("simulated single stars screen to chi2(2)", "[simulate]") {
   StarRecord s;
   SimTruth t;
   for (long i = 0; i < m.n_stars; ++i) {
-    simulate_star(m, i, s, t);
-    const ScreenRow r = screen_star(s, validate_star(s), ScreenOptions{});
+    const ScreenRow r = test::simulate_and_screen(m, i, s, t);
     REQUIRE(r.ok());
     late.push_back(r.result.chi2_late);
     early.push_back(r.result.chi2_early);
@@ -54,8 +53,7 @@ TEST_CASE("injection-recovery: recovered anomalies scatter by their errors", "[s
   StarRecord s;
   SimTruth t;
   for (long i = 0; i < m.n_stars; ++i) {
-    simulate_star(m, i, s, t);
-    const ScreenRow r = screen_star(s, validate_star(s), ScreenOptions{});
+    const ScreenRow r = test::simulate_and_screen(m, i, s, t);
     REQUIRE(r.ok());
     const double pr = (r.result.dpm_late_mas_yr.x() - t.dpm_late_ra) / std::sqrt(r.result.dpm_cov(0, 0));
     const double pd = (r.result.dpm_late_mas_yr.y() - t.dpm_late_dec) / std::sqrt(r.result.dpm_cov(1, 1));

@@ -90,4 +90,10 @@ SkyState<double> erfa_propagate(const SkyState<double>& s, double epoch_from, do
           rv};
 }
 
+ScreenRow simulate_and_screen(const SurveyModel& model, long index, StarRecord& star,
+                              SimTruth& truth) {
+  simulate_star(model, index, star, truth);
+  return screen_star(star, validate_star(star), ScreenOptions{});
+}
+
 }  // namespace heft::test

@@ -7,6 +7,8 @@
 
 #include "heft/catalog.hpp"
 #include "heft/propagate.hpp"
+#include "heft/screen.hpp"
+#include "heft/simulate.hpp"
 
 namespace heft::test {
 
@@ -38,5 +40,9 @@ Astrometry entry(const SkyState<double>& s, double epoch_yr, double pos_err, dou
 /// The state at `epoch_to` of a star whose late state is `late` (ERFA
 /// eraStarpm with its light-time term, i.e. the reference library).
 SkyState<double> erfa_propagate(const SkyState<double>& s, double epoch_from, double epoch_to);
+
+/// Simulates star `index` of `model` and screens it with default options.
+ScreenRow simulate_and_screen(const SurveyModel& model, long index, StarRecord& star,
+                              SimTruth& truth);
 
 }  // namespace heft::test

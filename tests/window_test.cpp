@@ -22,6 +22,14 @@ WindowBasis<double> brute_force(const Orbit<double>& o, const Window& w, int n) 
   const double xs = (s0 * sxt - s1 * sx) / det, ys = (s0 * syt - s1 * sy) / det;
   return {(sx - xs * s1) / s0, xs, (sy - ys * s1) / s0, ys};
 }
+// a equals b to `tol` (positions) and tol * 2 pi / P (slopes).
+void check_same(const WindowBasis<double>& a, const WindowBasis<double>& b, double tol, double P) {
+  const double vscale = units::kTwoPi / P;
+  CHECK(a.x0 == Approx(b.x0).margin(tol));
+  CHECK(a.y0 == Approx(b.y0).margin(tol));
+  CHECK(a.xs == Approx(b.xs).margin(tol * vscale));
+  CHECK(a.ys == Approx(b.ys).margin(tol * vscale));
+}
 }  // namespace
 
 TEST_CASE("window fit of a circular face-on orbit equals g(x)", "[window]") {
@@ -54,14 +62,9 @@ TEST_CASE("window fit of eccentric orbits matches a dense brute-force fit", "[wi
     const Orbit<double> o{P, e, 0.0, 0.0, 0.0, units::kTwoPi * u(g), 2016.0};
     // An off-centre window.
     const Window w{2014.57, 2017.41, 2016.0, {}, {}};
-    const WindowBasis<double> a = window_basis(o, w), b = brute_force(o, w, 400000);
-    const double vscale = units::kTwoPi / P;
     INFO("P = " << P << " e = " << e);
     // Midpoint rule with 4e5 points: error ~ (W/n)^2 |X''| ~ 1e-9 relative at e = 0.99.
-    CHECK(a.x0 == Approx(b.x0).margin(2e-8));
-    CHECK(a.y0 == Approx(b.y0).margin(2e-8));
-    CHECK(a.xs == Approx(b.xs).margin(2e-8 * vscale));
-    CHECK(a.ys == Approx(b.ys).margin(2e-8 * vscale));
+    check_same(window_basis(o, w), brute_force(o, w, 400000), 2e-8, P);
   }
 }
 
@@ -139,12 +142,7 @@ TEST_CASE("closed-form window moments equal the Gauss-Legendre panel rule", "[wi
     const double e = n % 5 == 0 ? 0.99 : 0.98 * u(g);
     const double P = std::exp(std::log(0.05) + u(g) * std::log(1e5));
     const Orbit<double> o{P, e, 0.0, 0.0, 0.0, units::kTwoPi * u(g), 2016.0};
-    const WindowBasis<double> a = window_basis(o, w), b = panel_rule(o, w);
-    const double vscale = units::kTwoPi / P;
     INFO("P = " << P << " e = " << e);
-    CHECK(a.x0 == Approx(b.x0).margin(1e-9));
-    CHECK(a.y0 == Approx(b.y0).margin(1e-9));
-    CHECK(a.xs == Approx(b.xs).margin(1e-9 * vscale));
-    CHECK(a.ys == Approx(b.ys).margin(1e-9 * vscale));
+    check_same(window_basis(o, w), panel_rule(o, w), 1e-9, P);
   }
 }
