@@ -25,30 +25,13 @@ int main(int argc, char** argv) {
   m.distance_pc = {Distribution::Kind::kUniform, 10, 60};
   m.host_mass_rel_error = 0.05;
   m.rv_fraction = 1.0;
-  int n = 0, in68 = 0, in95 = 0;
-  double max_sig = 0;
-  for (long i = 0; n < n_sys; ++i) {
-    StarRecord s;
-    SimTruth t;
-    simulate_star(m, i, s, t);
-    const ScreenRow r = screen_star(s, "", ScreenOptions{});
-    if (!r.ok() || r.result.sig_joint < 6) continue;
-    bool ok;
-    const AnomalyData d = anomaly_data(s, r.result, kAbsent, kAbsent, ok);
-    CurveOptions o;
-    o.a_au = {t.a_au};
-    o.draws = draws;
-    o.m_min_mjup = 1;
-    o.m_max_mjup = 200;
-    o.refine_rounds = 0;
-    const CurvePoint p = montecarlo_curve(d, o, s.id).points[0];
-    in68 += t.mass_mjup >= p.mass_lo68 && t.mass_mjup <= p.mass_hi68;
-    in95 += t.mass_mjup >= p.mass_lo95 && t.mass_mjup <= p.mass_hi95;
-    max_sig = std::max(max_sig, d.sig_joint);
-    ++n;
-  }
+  CurveOptions o;
+  o.draws = draws;
+  o.m_min_mjup = 1;
+  o.m_max_mjup = 200;
+  const Coverage cov = curve_coverage(m, o, n_sys, 6.0);
   std::printf("%d systems (S/N 6 to %.0f), %d draws: 68 %% band covers %.1f %%, 95 %% band %.1f %%\n",
-              n, max_sig, draws, 100.0 * in68 / n, 100.0 * in95 / n);
+              cov.systems, cov.max_sig, draws, 100.0 * cov.in68, 100.0 * cov.in95);
 
   // One star's curve at the defaults (64 separations x 4096 draws).
   StarRecord s;
@@ -58,7 +41,7 @@ int main(int argc, char** argv) {
   const ScreenRow r = screen_star(s, "", ScreenOptions{});
   bool ok;
   const AnomalyData d = anomaly_data(s, r.result, kAbsent, kAbsent, ok);
-  CurveOptions o;
+  o = CurveOptions{};
   o.a_au = log_grid(0.5, 500, 64);
   const auto t0 = std::chrono::steady_clock::now();
   const Curve c = montecarlo_curve(d, o, s.id);

@@ -92,6 +92,17 @@ double projection_factor_quantile(double p);
 Eigen::Vector4d model_anomaly(const Orbit<double>& o, double a_au, double q, double parallax_mas,
                               const Window& early, const Window& late);
 
+/// Coverage of the Monte Carlo bands on injected systems (a sensitivity and
+/// calibration study): companions drawn by `survey`, kept when their observed
+/// sig_joint >= min_sig, each curve evaluated at its true a only.
+struct Coverage {
+  int systems = 0;
+  double in68 = 0.0, in95 = 0.0;  ///< fractions with the true mass inside the band
+  double max_sig = 0.0;
+};
+Coverage curve_coverage(const SurveyModel& survey, const CurveOptions& opt, int n_systems,
+                        double min_sig);
+
 /// Log grid of n points from a_min to a_max (AU).
 std::vector<double> log_grid(double a_min, double a_max, int n);
 
