@@ -169,6 +169,14 @@ struct Problem {
   double snr;  ///< sqrt(chi2_data)
 };
 
+// Relative change of the model when the period moves from p to p_new: about
+// the phase drift over the baseline, 2 pi (baseline / P + 1) |dP / P|; chi2
+// changes by about (drift x S/N)^2, so changes with drift x S/N < 0.05 are
+// negligible.
+double period_drift(const Problem& pb, double p, double p_new) {
+  return units::kTwoPi * (pb.baseline_yr / p + 1.0) * std::abs(p_new / p - 1.0);
+}
+
 // Weighted z samples of one draw of (i, omega, e, M0, m1, parallax):
 // z = q (cos Omega, sin Omega) is marginalised through its exact Gaussian
 // likelihood and importance-sampled against the mass prior. `log_extra` is
@@ -188,7 +196,7 @@ void weigh_draw(const Problem& pb, const Draw& dr, double log_extra, Sample* out
   // Fixed-point iteration of the period on m1 + m2 (m2 from the best z).
   for (int it = 0; it < 3; ++it) {
     const double p_new = period_from_a(a_au, dr.m1 / (1.0 - q_hat));
-    if (it > 0 && std::abs(p_new / period - 1.0) < 1e-4) break;
+    if (it > 0 && period_drift(pb, period, p_new) * pb.snr < 0.05) break;
     period = p_new;
     kmat = design_at(period);
     fisher = kmat.transpose() * pb.cinv * kmat;
@@ -220,11 +228,8 @@ void weigh_draw(const Problem& pb, const Draw& dr, double log_extra, Sample* out
     const double q = z.norm();
     // The Gaussian used the period of the best z; where this sample's own
     // m1 + m2 moves the period, correct by the exact / Gaussian likelihood.
-    // The model moves by about the phase drift over the baseline,
-    // 2 pi (baseline / P + 1) |dP / P|, relative; chi2 by that times S/N, squared.
     const double p_s = period_from_a(a_au, dr.m1 / (1.0 - std::min(q, 0.9)));
-    const double drift = units::kTwoPi * (pb.baseline_yr / period + 1.0) * std::abs(p_s / period - 1.0);
-    if (std::isfinite(log_w) && drift * pb.snr > 0.05) {
+    if (std::isfinite(log_w) && period_drift(pb, period, p_s) * pb.snr > 0.05) {
       const Eigen::Vector4d r_hat = d.dpm - kmat * z, r_s = d.dpm - design_at(p_s) * z;
       log_w += -0.5 * r_s.dot(pb.cinv * r_s) + 0.5 * r_hat.dot(pb.cinv * r_hat);
     }
@@ -290,9 +295,12 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const Draw
   // mixture of the prior and Gaussian kernels around draws resampled from
   // the first stage (adaptive importance sampling, e.g. Cappe et al. 2004,
   // J. Comput. Graph. Stat. 13, 907), with the same deviates for every a.
+  // Effective sample size below which the adaptive stage runs: enough for
+  // percentiles to ~2 % of the band.
+  constexpr double kAdaptEss = 1000.0;
   std::vector<Draw> adapted;
   // Up to three rounds, each proposing around the previous round's draws.
-  for (int round = 0; round < 3 && ess_of(samples) < 0.25 * samples.size() && !draws2.empty();
+  for (int round = 0; round < 3 && ess_of(samples) < kAdaptEss && !draws2.empty();
        ++round) {
     const std::vector<Draw>& src = *used;
     std::vector<double> ld(n);
