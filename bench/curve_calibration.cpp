@@ -18,19 +18,11 @@ using namespace heft;
 int main(int argc, char** argv) {
   const int n_sys = argc > 1 ? std::atoi(argv[1]) : 400;
   const int draws = argc > 2 ? std::atoi(argv[2]) : 2048;
-  SurveyModel m;
-  m.seed = 99;
-  m.companion_fraction = 1.0;
-  m.companion_mass_mjup = {Distribution::Kind::kLogUniform, 1, 200};
-  m.a_au = {Distribution::Kind::kLogUniform, 1, 50};
-  m.ecc = {Distribution::Kind::kUniform, 0, 0.95};
-  m.distance_pc = {Distribution::Kind::kUniform, 10, 60};
-  m.host_mass_rel_error = 0.05;
-  m.rv_fraction = 1.0;
   CurveOptions o;
   o.draws = draws;
   o.m_min_mjup = 1;
   o.m_max_mjup = 200;
+  SurveyModel m = coverage_survey(o, 1.0, 50.0, 99);
   const Coverage cov = curve_coverage(m, o, n_sys, 6.0);
   std::printf("%d systems (S/N 6 to %.0f), %d draws: 68 %% band covers %.1f %%, 95 %% band %.1f %%\n",
               cov.systems, cov.max_sig, draws, 100.0 * cov.in68, 100.0 * cov.in95);

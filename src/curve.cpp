@@ -614,6 +614,20 @@ Coverage curve_coverage(const SurveyModel& survey, const CurveOptions& opt, int 
   return cov;
 }
 
+SurveyModel coverage_survey(const CurveOptions& opt, double a_lo_au, double a_hi_au,
+                            std::uint64_t seed) {
+  SurveyModel m;
+  m.seed = seed;
+  m.companion_fraction = 1.0;
+  m.companion_mass_mjup = {Distribution::Kind::kLogUniform, opt.m_min_mjup, opt.m_max_mjup};
+  m.a_au = {Distribution::Kind::kLogUniform, a_lo_au, a_hi_au};
+  m.ecc = opt.ecc;
+  m.distance_pc = {Distribution::Kind::kUniform, 10, 60};
+  m.host_mass_rel_error = 0.05;
+  m.rv_fraction = 1.0;
+  return m;
+}
+
 std::string curve_header() {
   return "id,a_au,sep_mas,period_yr,weight,mass_lo95,mass_lo68,mass_med,mass_hi68,mass_hi95\n";
 }

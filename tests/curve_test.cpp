@@ -214,19 +214,10 @@ TEST_CASE("calibration: bands cover injected masses at their nominal rates", "[c
   // (log-uniform 1-200 MJup, isotropic, e uniform 0-0.95), selected on observed
   // S/N > 6; the true mass must lie in the 68 % band in 68 +- 6 % and in the 95 %
   // band in 95 +- 3 % of cases (Bayesian coverage; statistics, common practice).
-  SurveyModel m;
-  m.seed = 99;
-  m.companion_fraction = 1.0;
-  m.companion_mass_mjup = {Distribution::Kind::kLogUniform, 1, 200};
-  m.a_au = {Distribution::Kind::kLogUniform, 1, 50};
-  m.ecc = {Distribution::Kind::kUniform, 0, 0.95};
-  m.distance_pc = {Distribution::Kind::kUniform, 10, 60};
-  m.host_mass_rel_error = 0.05;
-  m.rv_fraction = 1.0;
   CurveOptions opt;  // default draws (4096)
   opt.m_min_mjup = 1;
   opt.m_max_mjup = 200;
-  const Coverage c = curve_coverage(m, opt, 400, 6.0);
+  const Coverage c = curve_coverage(coverage_survey(opt, 1.0, 50.0, 99), opt, 400, 6.0);
   INFO("68 % band: " << c.in68 << ", 95 % band: " << c.in95 << ", S/N up to " << c.max_sig);
   CHECK(c.max_sig > 300);
   CHECK(c.in68 == Approx(0.68).margin(0.06));

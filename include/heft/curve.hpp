@@ -103,6 +103,13 @@ struct Coverage {
 Coverage curve_coverage(const SurveyModel& survey, const CurveOptions& opt, int n_systems,
                         double min_sig);
 
+/// A survey of companions drawn from the prior of `opt` (log-uniform mass in
+/// [m_min, m_max], e from opt.ecc, isotropic) with a log-uniform in [a_lo, a_hi],
+/// hosts at 10-60 pc with 5 % mass errors and RVs: the population for which
+/// curve_coverage must give nominal coverage.
+SurveyModel coverage_survey(const CurveOptions& opt, double a_lo_au, double a_hi_au,
+                            std::uint64_t seed);
+
 /// Log grid of n points from a_min to a_max (AU).
 std::vector<double> log_grid(double a_min, double a_max, int n);
 
