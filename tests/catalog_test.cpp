@@ -3,3 +3,60 @@
 
 #include "heft/catalog.hpp"
 #include "heft/error.hpp"
+#include "heft/io.hpp"
+
+using namespace heft;
+
+TEST_CASE("CSV tokenizer: quotes, escapes, line breaks, comments", "[catalog]") {
+  // RFC 4180 rules (quoted commas, doubled quotes, quoted line breaks).
+  std::istringstream in("\xEF\xBB\xBF# comment\r\na, \"b,c\" ,\"say \"\"hi\"\"\"\r\n\n\"multi\nline\",x,\r\n");
+  CsvReader csv(in, "mem.csv");
+  REQUIRE(csv.next());
+  REQUIRE(csv.fields().size() == 3);
+  CHECK(csv.fields()[0] == "a");
+  CHECK(csv.fields()[1] == "b,c");
+  CHECK(csv.fields()[2] == "say \"hi\"");
+  CHECK(csv.line() == 2);
+  CHECK(csv.column(1) == 4);
+  REQUIRE(csv.next());
+  CHECK(csv.fields()[0] == "multi\nline");
+  CHECK(csv.fields()[2].empty());
+  CHECK(csv.line() == 4);
+  CHECK_FALSE(csv.next());
+  std::istringstream bad("\"open,1\n");
+  CsvReader csv2(bad, "bad.csv");
+  CHECK_THROWS_AS(csv2.next(), InputError);
+}
+
+TEST_CASE("numbers: exact parsing and shortest round trip", "[catalog]") {
+  double v = 0;
+  CHECK(parse_double("+1.5e-3", v));
+  CHECK(v == 1.5e-3);
+  CHECK_FALSE(parse_double("1.5x", v));
+  CHECK_FALSE(parse_double("", v));
+  // Shortest text that reads back to the same double (std::to_chars).
+  for (double x : {0.1, 1.0 / 3.0, 83.80000000000001, -2.5e-300, 123456789.123456789}) {
+    double back = 0;
+    REQUIRE(parse_double(format_double(x), back));
+    CHECK(back == x);
+  }
+  CHECK(format_double(0.1) == "0.1");
+  CHECK(format_double(std::nan("")).empty());
+}
+
+TEST_CASE("covariance of a 5-parameter solution round-trips", "[catalog]") {
+  Astrometry a;
+  a.ra_error_mas = 0.3;
+  a.dec_error_mas = 0.2;
+  a.parallax_error_mas = 0.4;
+  a.pmra_error_mas_yr = 0.5;
+  a.pmdec_error_mas_yr = 0.6;
+  a.corr = {0.1, -0.2, 0.3, 0.0, 0.05, -0.1, 0.2, 0.15, -0.05, 0.25};
+  const Eigen::Matrix<double, 5, 5> c = a.covariance();
+  CHECK(c(0, 1) == Approx(0.1 * 0.3 * 0.2));
+  CHECK(c(3, 4) == Approx(0.25 * 0.5 * 0.6));
+  Astrometry b;
+  b.set_covariance(c * 4.0);
+  CHECK(b.pmdec_error_mas_yr == Approx(1.2));
+  CHECK(b.corr[7] == Approx(0.15));
+}
