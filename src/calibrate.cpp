@@ -8,11 +8,6 @@
 
 namespace heft {
 
-bool EpochCalibration::is_identity() const {
-  return orient_mas.isZero(0) && spin_uas_yr.isZero(0) && spin_table.empty() && inflate == 1.0 &&
-         floor_mas_yr == 0.0;
-}
-
 Eigen::Vector2d rotation_pattern(const Eigen::Vector3d& w, double ra_rad, double dec_rad) {
   const double sa = std::sin(ra_rad), ca = std::cos(ra_rad);
   const double sd = std::sin(dec_rad), cd = std::cos(dec_rad);

@@ -76,7 +76,7 @@ struct AnomalyResult {
   /// Covariance of (dpm_late ra, dec, dpm_early ra, dec), (mas/yr)^2.
   Eigen::Matrix4d dpm_cov;
   double chi2_late = kAbsent, chi2_early = kAbsent, chi2_joint = kAbsent;
-  double sig_late = kAbsent, sig_early = kAbsent, sig_joint = kAbsent;
+  double sig_late = kAbsent, sig_joint = kAbsent;
   double dvt_late_m_s = kAbsent, dvt_late_error_m_s = kAbsent;
 };
 

@@ -35,7 +35,6 @@ struct EpochCalibration {
   std::vector<SpinBin> spin_table;                         ///< added, by magnitude
   double inflate = 1.0;        ///< errors x inflate (covariance x inflate^2)
   double floor_mas_yr = 0.0;   ///< added in quadrature to the PM errors
-  bool is_identity() const;
 };
 
 /// The rotation pattern of the header note for vector w at (ra, dec):
