@@ -94,6 +94,7 @@ AnomalyResult compute_anomaly(const Astrometry& early, const Astrometry& late, d
   r.dpm_late_mas_yr = y.segment<2>(2);
   r.dpm_early_mas_yr = y.segment<2>(4);
   r.dpm_cov = cout.block<4, 4>(2, 2);
+  r.pml_dpm_cov = cout.block<2, 4>(0, 2);
   r.chi2_late = chi2_of<2>(r.dpm_late_mas_yr, r.dpm_cov.block<2, 2>(0, 0));
   r.chi2_early = chi2_of<2>(r.dpm_early_mas_yr, r.dpm_cov.block<2, 2>(2, 2));
   r.chi2_joint = chi2_of<4>(y.segment<4>(2), r.dpm_cov);

@@ -148,6 +148,21 @@ std::string validate_star(const StarRecord& s) {
   return "";
 }
 
+double* star_field(StarRecord& star, std::string_view name, bool* required) {
+  for (const auto& c : columns())
+    if (c.name == name) {
+      if (required) *required = c.required;
+      return &c.get(star);
+    }
+  return nullptr;
+}
+
+std::vector<std::string> star_field_names() {
+  std::vector<std::string> names;
+  for (const auto& c : columns()) names.push_back(c.name);
+  return names;
+}
+
 StarTableReader::StarTableReader(std::istream& in, std::string name, WindowDefaults windows)
     : csv_(in, std::move(name)), windows_(windows) {
   if (!csv_.next()) throw InputError(csv_.name(), 0, 0, "empty file: no header row");

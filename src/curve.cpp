@@ -154,7 +154,7 @@ double weighted_quantile(const std::vector<std::pair<double, double>>& sorted, d
 struct PointResult {
   CurvePoint point;
   double log_evidence;
-  std::vector<CurveDraw> draws;
+  std::vector<OrbitDraw> draws;
 };
 
 // Everything a separation needs that does not depend on the draw.
@@ -433,10 +433,12 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const Draw
       acc += mw[i].second;
       while (acc >= next && r.draws.size() < keep) {
         const Draw& dr = fin[i / nz];
+        const double m2_msun = samples[i].m2_mjup / units::kMjupPerMsun;
         r.draws.push_back({a_au, samples[i].m2_mjup, dr.ecc, units::rad_to_deg(dr.inc),
                            units::rad_to_deg(dr.omega),
                            units::rad_to_deg(std::fmod(samples[i].node + units::kTwoPi, units::kTwoPi)),
-                           units::rad_to_deg(dr.m0), 1.0});
+                           units::rad_to_deg(dr.m0), d.late.ref_epoch_yr,
+                           period_from_a(a_au, dr.m1 + m2_msun), dr.plx, dr.m1, 1.0});
         next += sw / keep;
       }
     }

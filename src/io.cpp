@@ -192,3 +192,46 @@ void write_file_atomic(const std::string& path, std::string_view data) {
 }
 
 }  // namespace heft
+
+namespace heft {
+
+ColumnTable::ColumnTable(std::istream& in, std::string name, const std::vector<std::string>& required)
+    : csv_(in, std::move(name)) {
+  if (!csv_.next()) throw InputError(csv_.name(), 0, 0, "empty file: no header row");
+  for (std::size_t f = 0; f < csv_.fields().size(); ++f) {
+    std::string h(csv_.fields()[f]);
+    if (index(h) >= 0)
+      throw InputError(csv_.name(), csv_.line(), csv_.column(f), "duplicated column '" + h + "'");
+    header_.push_back(std::move(h));
+  }
+  for (const auto& r : required)
+    if (index(r) < 0) throw InputError(csv_.name(), csv_.line(), 0, "missing required column '" + r + "'");
+}
+
+bool ColumnTable::next() {
+  if (!csv_.next()) return false;
+  if (csv_.fields().size() != header_.size())
+    throw InputError(csv_.name(), csv_.line(), 0,
+                     "row has " + std::to_string(csv_.fields().size()) + " fields, header has " +
+                         std::to_string(header_.size()));
+  return true;
+}
+
+int ColumnTable::index(std::string_view name) const {
+  for (std::size_t k = 0; k < header_.size(); ++k)
+    if (header_[k] == name) return static_cast<int>(k);
+  return -1;
+}
+
+double ColumnTable::number(int col) const {
+  double v = 0.0;
+  if (!parse_double(text(col), v) || !std::isfinite(v))
+    fail(col, "not a finite number: '" + std::string(text(col)) + "'");
+  return v;
+}
+
+void ColumnTable::fail(int col, const std::string& rule) const {
+  throw InputError(csv_.name(), csv_.line(), csv_.column(col), "column '" + header_[col] + "': " + rule);
+}
+
+}  // namespace heft

@@ -240,6 +240,27 @@ void simulate_star(const SurveyModel& m, long index, StarRecord& star, SimTruth&
   star.age_myr = m.age_myr;
 }
 
+Orbit<double> truth_orbit(const SimTruth& t, double late_epoch_yr) {
+  return {t.period_yr,
+          t.ecc,
+          units::deg_to_rad(t.inc_deg),
+          units::deg_to_rad(t.arg_peri_deg),
+          units::deg_to_rad(t.node_deg),
+          units::deg_to_rad(t.mean_anom_late_deg),
+          late_epoch_yr};
+}
+
+RelativeEpoch observe_companion(const SimTruth& t, double late_epoch_yr, double epoch_yr,
+                                double sep_error_mas, double pa_error_deg, Rng& rng) {
+  const OrbitPoint<double> p = orbit_point(truth_orbit(t, late_epoch_yr), epoch_yr);
+  const double s = t.a_au * t.parallax_mas;
+  double sep, pa;
+  separation_pa(s * p.x, s * p.y, sep, pa);
+  const double pa_deg = units::rad_to_deg(pa) + pa_error_deg * rng.normal();
+  return {epoch_yr, true, sep + sep_error_mas * rng.normal(), std::fmod(pa_deg + 360.0, 360.0),
+          sep_error_mas, pa_error_deg, 0.0};
+}
+
 std::string truth_header() {
   return "id,host_mass,parallax,distance_pc,rv_true,companion,mass_mjup,a_au,period_yr,ecc,"
          "inc_deg,arg_peri_deg,node_deg,mean_anom_late_deg,dpm_late_ra,dpm_late_dec,"

@@ -75,6 +75,8 @@ struct AnomalyResult {
   Eigen::Vector2d dpm_late_mas_yr, dpm_early_mas_yr;
   /// Covariance of (dpm_late ra, dec, dpm_early ra, dec), (mas/yr)^2.
   Eigen::Matrix4d dpm_cov;
+  /// Cross-covariance of pml_late (rows) with the dpm vector (columns).
+  Eigen::Matrix<double, 2, 4> pml_dpm_cov;
   double chi2_late = kAbsent, chi2_early = kAbsent, chi2_joint = kAbsent;
   double sig_late = kAbsent, sig_joint = kAbsent;
   double dvt_late_m_s = kAbsent, dvt_late_error_m_s = kAbsent;

@@ -15,6 +15,7 @@
 #include <iosfwd>
 #include <limits>
 #include <string>
+#include <string_view>
 #include <unordered_set>
 #include <vector>
 
@@ -98,6 +99,13 @@ class StarTableReader {
   std::unordered_set<std::uint64_t> seen_ids_;
   std::vector<std::string> unknown_columns_;
 };
+
+/// A canonical numeric column of `star` by its table name (e.g. "late_pmra"),
+/// or nullptr when `name` is not one; `required` tells whether the table
+/// requires it. For readers of other formats (the fit's JSON star file).
+double* star_field(StarRecord& star, std::string_view name, bool* required = nullptr);
+/// The canonical numeric column names, in table order.
+std::vector<std::string> star_field_names();
 
 /// Validates a record; returns "" when valid, else the reason.
 std::string validate_star(const StarRecord& star);

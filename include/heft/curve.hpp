@@ -15,6 +15,7 @@
 
 #include "heft/anomaly.hpp"
 #include "heft/catalog.hpp"
+#include "heft/draws.hpp"
 #include "heft/simulate.hpp"
 #include "heft/window.hpp"
 
@@ -56,15 +57,10 @@ struct CurvePoint {
   double ess;   ///< effective sample size of the weighted z samples
 };
 
-/// One weighted posterior draw (for `heft predict`).
-struct CurveDraw {
-  double a_au, mass_mjup, ecc, inc_deg, arg_peri_deg, node_deg, mean_anom_late_deg, weight;
-};
-
 struct Curve {
   bool upper_limit = false;
   std::vector<CurvePoint> points;
-  std::vector<CurveDraw> draws;
+  std::vector<OrbitDraw> draws;  ///< with keep_draws (for `heft predict`)
   double min_ess = 0.0;
 };
 

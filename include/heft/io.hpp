@@ -53,6 +53,34 @@ class CsvReader {
   bool first_ = true;
 };
 
+/// A CSV table read by column name (header row first, CsvReader rules):
+/// for the small numeric tables heft reads besides the star table (orbit
+/// draws, contrast and mass-magnitude curves, rank outputs).
+class ColumnTable {
+ public:
+  /// Throws InputError when the header lacks a column of `required`,
+  /// repeats a name, or the input is empty.
+  ColumnTable(std::istream& in, std::string name, const std::vector<std::string>& required);
+  /// Next data row; false at the end. Throws InputError when the field count
+  /// differs from the header's.
+  bool next();
+  /// Index of column `name`, or -1.
+  int index(std::string_view name) const;
+  std::string_view text(int col) const { return csv_.fields()[col]; }
+  /// Field `col` as a finite number; InputError naming file, line, column
+  /// and the column name otherwise.
+  double number(int col) const;
+  long line() const { return csv_.line(); }
+  const std::string& name() const { return csv_.name(); }
+  const std::vector<std::string>& header() const { return header_; }
+  /// InputError at field `col` of the current row with `rule`.
+  [[noreturn]] void fail(int col, const std::string& rule) const;
+
+ private:
+  CsvReader csv_;
+  std::vector<std::string> header_;
+};
+
 /// Parses a whole field as a double (std::from_chars: exact, locale-free).
 /// Returns false when the text is not a number (leading '+' is accepted;
 /// "nan"/"inf" parse and are reported as non-finite by the caller).

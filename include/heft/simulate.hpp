@@ -9,7 +9,9 @@
 
 #include "heft/catalog.hpp"
 #include "heft/propagate.hpp"
+#include "heft/kepler.hpp"
 #include "heft/rng.hpp"
+#include "heft/starfile.hpp"
 
 namespace heft {
 
@@ -95,6 +97,15 @@ struct SimTruth {
 /// Simulates star number `index` of the survey from its own random stream
 /// (seed, id), so results do not depend on order, threads or shards.
 void simulate_star(const SurveyModel& model, long index, StarRecord& star, SimTruth& truth);
+
+/// The injected companion's relative orbit (reference epoch: the late
+/// catalogue epoch `late_epoch_yr`); t.companion must be true.
+Orbit<double> truth_orbit(const SimTruth& t, double late_epoch_yr);
+
+/// An imaging epoch of the injected companion: separation and position
+/// angle at epoch_yr with Gaussian errors (mas, deg).
+RelativeEpoch observe_companion(const SimTruth& t, double late_epoch_yr, double epoch_yr,
+                                double sep_error_mas, double pa_error_deg, Rng& rng);
 
 /// Truth table header and rows (CSV, with newline).
 std::string truth_header();

@@ -61,7 +61,7 @@ int run_curve(CurveCliOptions o) {
   }
   if (copt.keep_draws) {
     draws = std::make_unique<AtomicOutput>(o.keep_draws);
-    draws->write("id,a_au,mass_mjup,ecc,inc_deg,arg_peri_deg,node_deg,mean_anom_late_deg,weight\n");
+    draws->write(draws_header());
   }
   out.write(curve_header());
   StatusCounter counter;
@@ -91,15 +91,7 @@ int run_curve(CurveCliOptions o) {
       out.write(buf);
       if (draws) {
         std::string dbuf;
-        for (const auto& dr : c.draws) {
-          append_csv_field(dbuf, star.id);
-          for (double v : {dr.a_au, dr.mass_mjup, dr.ecc, dr.inc_deg, dr.arg_peri_deg, dr.node_deg,
-                           dr.mean_anom_late_deg, dr.weight}) {
-            dbuf += ',';
-            append_double(dbuf, v);
-          }
-          dbuf += '\n';
-        }
+        for (const auto& dr : c.draws) append_draw_row(dbuf, star.id, dr);
         draws->write(dbuf);
       }
       const bool low_ess = o.method == "montecarlo" && c.min_ess < 100.0;
@@ -159,7 +151,7 @@ void setup_curve(CLI::App& app, Runner& run) {
   sub->add_option("-o,--output", o->output, "curve table (CSV); default stdout");
   sub->add_option("--json", o->json, "also write the curves as JSON (mode, ESS, priors)");
   sub->add_option("--keep-draws", o->keep_draws,
-                  "write weighted posterior draws (a, mass, e, i, omega, Omega, phase) for predict");
+                  "write weighted posterior orbit draws (CSV, docs/formats.md) for heft predict");
   sub->add_option("--method", o->method, "analytic (circular orbits) or montecarlo (forward model)")
       ->check(CLI::IsMember({"analytic", "montecarlo"}))
       ->capture_default_str();

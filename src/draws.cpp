@@ -1,0 +1,67 @@
+#include "heft/draws.hpp"
+
+#include <set>
+
+#include "heft/io.hpp"
+
+namespace heft {
+namespace {
+
+const std::vector<std::string>& draw_columns() {
+  static const std::vector<std::string> cols = {
+      "id",           "a_au",         "mass_mjup",    "ecc",         "inc_deg",
+      "arg_peri_deg", "node_deg",     "mean_anom_deg", "ref_epoch_yr", "period_yr",
+      "parallax_mas", "host_mass_msun", "weight"};
+  return cols;
+}
+
+}  // namespace
+
+std::string draws_header() {
+  std::string h;
+  for (const auto& c : draw_columns()) h += (h.empty() ? "" : ",") + c;
+  return h + '\n';
+}
+
+void append_draw_row(std::string& out, const std::string& id, const OrbitDraw& d) {
+  append_csv_field(out, id);
+  for (double v : {d.a_au, d.mass_mjup, d.ecc, d.inc_deg, d.arg_peri_deg, d.node_deg, d.mean_anom_deg,
+                   d.ref_epoch_yr, d.period_yr, d.parallax_mas, d.host_mass_msun, d.weight}) {
+    out += ',';
+    append_double(out, v);
+  }
+  out += '\n';
+}
+
+std::vector<StarDraws> read_draws(std::istream& in, const std::string& name) {
+  ColumnTable t(in, name, draw_columns());
+  std::vector<int> col;
+  for (const auto& c : draw_columns()) col.push_back(t.index(c));
+  std::vector<StarDraws> out;
+  std::set<std::string> done;
+  while (t.next()) {
+    const std::string id(t.text(col[0]));
+    if (out.empty() || out.back().id != id) {
+      if (!done.insert(id).second) t.fail(col[0], "rows of star '" + id + "' are not contiguous");
+      out.push_back({id, {}});
+    }
+    double v[12];
+    for (int k = 0; k < 12; ++k) v[k] = t.number(col[k + 1]);
+    OrbitDraw d{v[0], v[1], v[2], v[3], v[4], v[5], v[6], v[7], v[8], v[9], v[10], v[11]};
+    auto check = [&](bool ok, int k, const char* rule) {
+      if (!ok) t.fail(col[k + 1], rule);
+    };
+    check(d.a_au > 0, 0, "must be > 0");
+    check(d.mass_mjup >= 0, 1, "must be >= 0");
+    check(d.ecc >= 0 && d.ecc < 1, 2, "must be in [0, 1)");
+    check(d.inc_deg >= 0 && d.inc_deg <= 180, 3, "must be in [0, 180]");
+    check(d.period_yr > 0, 8, "must be > 0");
+    check(d.parallax_mas > 0, 9, "must be > 0");
+    check(d.host_mass_msun > 0, 10, "must be > 0");
+    check(d.weight >= 0, 11, "must be >= 0");
+    out.back().draws.push_back(d);
+  }
+  return out;
+}
+
+}  // namespace heft

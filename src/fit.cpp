@@ -1,0 +1,711 @@
+#include "heft/fit.hpp"
+
+#include <ceres/ceres.h>
+
+#include <Eigen/Cholesky>
+#include <Eigen/Eigenvalues>
+#include <algorithm>
+#include <cmath>
+#include <limits>
+#include <numeric>
+
+#include "heft/error.hpp"
+#include "heft/kepler.hpp"
+#include "heft/rng.hpp"
+#include "heft/window.hpp"
+
+namespace heft {
+namespace {
+
+constexpr double kInf = std::numeric_limits<double>::infinity();
+using Jet = ceres::Jet<double, kMaxFitParams>;
+
+double wrap_pi(double x) { return x - units::kTwoPi * std::round(x / units::kTwoPi); }
+double wrap_2pi(double x) {
+  const double y = std::fmod(x, units::kTwoPi);
+  return y < 0 ? y + units::kTwoPi : y;
+}
+
+// ln prior density of e, up to a constant, for any scalar.
+template <typename T>
+T ecc_log_prior(const Distribution& d, const T& e) {
+  using std::log;
+  switch (d.kind) {
+    case Distribution::Kind::kLogUniform: return -log(e);
+    case Distribution::Kind::kBeta: return T(d.p1 - 1) * log(e) + T(d.p2 - 1) * log(T(1.0) - e);
+    default: return T(0.0);
+  }
+}
+
+}  // namespace
+
+StarFile star_file_of(const StarRecord& star, double host_mass_msun, double host_mass_error_msun, bool& ok) {
+  StarFile f;
+  f.star = star;
+  const double m = present(star.mass_msun) ? star.mass_msun : host_mass_msun;
+  double s = present(star.mass_msun) ? star.mass_error_msun : host_mass_error_msun;
+  ok = present(m) && m > 0;
+  // A mass without an error still needs a proper prior: 1 % of the mass.
+  if (!(present(s) && s > 0)) s = 0.01 * m;
+  f.host_mass = {HostMassPrior::Kind::kNormal, m, s};
+  return f;
+}
+
+FitModel::FitModel(const StarFile& f, const AnomalyResult& r, const FitOptions& opt)
+    : host_(f.host_mass), rel_(f.relative), rv_(f.rv), instruments_(f.instruments), opt_(opt) {
+  const StarRecord& s = f.star;
+  early_ = {s.early.window_start_yr, s.early.window_end_yr, s.early.epoch_yr, {}, {}};
+  late_ = {s.late.window_start_yr, s.late.window_end_yr, s.late.epoch_yr, {}, {}};
+  dt_yr_ = s.late.epoch_yr - s.early.epoch_yr;
+  n_inst_ = static_cast<int>(instruments_.size());
+  if (n_inst_ > kMaxInstruments)
+    throw InputError::at_json("star file", "/radial_velocities",
+                              "at most " + std::to_string(kMaxInstruments) + " instruments");
+  n_res_ = 6 + 2 * static_cast<int>(rel_.size()) + static_cast<int>(rv_.size()) + 2;
+  pm_obs_ << r.pml_late_mas_yr, r.dpm_late_mas_yr, r.dpm_early_mas_yr;
+  Eigen::Matrix<double, 6, 6> cov;
+  cov.block<2, 2>(0, 0) = r.pml_cov;
+  cov.block<2, 4>(0, 2) = r.pml_dpm_cov;
+  cov.block<4, 2>(2, 0) = r.pml_dpm_cov.transpose();
+  cov.block<4, 4>(2, 2) = r.dpm_cov;
+  const Eigen::LLT<Eigen::Matrix<double, 6, 6>> llt(cov);
+  if (llt.info() != Eigen::Success) throw NumericError(s.id, "fit", "proper-motion covariance not positive definite");
+  pm_whiten_ = llt.matrixL().solve(Eigen::Matrix<double, 6, 6>::Identity());
+  pml_obs_ = r.pml_late_mas_yr;
+  pml_cov_ = r.pml_cov;
+  plx_cat_ = s.late.parallax_mas;
+  plx_sigma_ = s.late.parallax_error_mas;
+  upper_limit_ = rel_.empty() && !(r.sig_joint >= opt.detect_sigma);
+  // Upper limits: uniform in mass on (0, m_max], truncated at 1e-4 m_max.
+  ln_m_lo_ = std::log(upper_limit_ ? 1e-4 * opt.m_max_mjup : opt.m_min_mjup);
+  ln_m_hi_ = std::log(opt.m_max_mjup);
+  ln_a_lo_ = std::log(opt.a_min_au);
+  ln_a_hi_ = std::log(opt.a_max_au);
+  ecc_max_ = 0.99;
+  if (opt.ecc.kind == Distribution::Kind::kUniform || opt.ecc.kind == Distribution::Kind::kLogUniform)
+    ecc_max_ = std::min(ecc_max_, opt.ecc.p2);
+  ln_a_start_lo_ = ln_a_lo_;
+  ln_a_start_hi_ = ln_a_hi_;
+  if (!rel_.empty()) {
+    // An imaged companion: a is near (sep / parallax) / (1 -+ e).
+    const RelativeEpoch& e0 = rel_.front();
+    const double sep = e0.polar ? e0.v1 : std::hypot(e0.v1, e0.v2);
+    const double a0 = sep / plx_cat_;
+    ln_a_start_lo_ = std::clamp(std::log(0.6 * a0), ln_a_lo_, ln_a_hi_);
+    ln_a_start_hi_ = std::clamp(std::log(2.5 * a0), ln_a_lo_, ln_a_hi_);
+  }
+  rv_mean_.assign(n_inst_, 0.0);
+  rv_spread_.assign(n_inst_, 0.0);
+  std::vector<int> count(n_inst_, 0);
+  for (const auto& v : rv_) {
+    rv_mean_[v.instrument] += v.rv_m_s;
+    ++count[v.instrument];
+  }
+  for (int k = 0; k < n_inst_; ++k) rv_mean_[k] /= count[k];
+  for (const auto& v : rv_)
+    rv_spread_[v.instrument] = std::max(rv_spread_[v.instrument], std::abs(v.rv_m_s - rv_mean_[v.instrument]) + v.error_m_s);
+}
+
+template <typename T>
+bool FitModel::evaluate(const T* p, T* r, T& extra) const {
+  using std::acos;
+  using std::atan2;
+  using std::exp;
+  using std::log;
+  using std::sqrt;
+  const double lnm = scalar_of(p[kLnMass]), lna = scalar_of(p[kLnA]);
+  const double h = scalar_of(p[kSqrtECos]), k = scalar_of(p[kSqrtESin]), ci = scalar_of(p[kCosInc]);
+  if (!(lnm >= ln_m_lo_ && lnm <= ln_m_hi_ && lna >= ln_a_lo_ && lna <= ln_a_hi_)) return false;
+  if (!(h * h + k * k < ecc_max_ && std::abs(ci) < 1.0)) return false;
+  if (!(scalar_of(p[kHostMass]) > 0.0 && scalar_of(p[kParallax]) > 0.0)) return false;
+  for (int j = 0; j < n_inst_; ++j) {
+    const double lj = scalar_of(p[kFitCore + n_inst_ + j]);
+    if (!(lj >= std::log(opt_.jitter_min_m_s) && lj <= std::log(opt_.jitter_max_m_s))) return false;
+  }
+  const T m2 = exp(p[kLnMass]) / T(units::kMjupPerMsun);
+  const T m1 = p[kHostMass], mt = m1 + m2, q = m2 / mt;
+  const T a = exp(p[kLnA]), plx = p[kParallax];
+  const T e = p[kSqrtECos] * p[kSqrtECos] + p[kSqrtESin] * p[kSqrtESin];
+  // omega is undefined at e = 0: any value, with no derivative.
+  const T omega = h * h + k * k > 0.0 ? atan2(p[kSqrtESin], p[kSqrtECos]) : T(0.0);
+  const Orbit<T> o{period_from_a(a, mt), e, acos(p[kCosInc]), omega, p[kNode],
+                   p[kLambda] - omega - p[kNode], late_.ref_epoch_yr};
+
+  // Proper motions: (pml_late, dpm_late, dpm_early) of docs/method.md Sect. 9.
+  const WindowFit<T> wl = fit_reflex(o, a, q, plx, late_), we = fit_reflex(o, a, q, plx, early_);
+  const T lra = (wl.dra_mas - we.dra_mas) / T(dt_yr_), ldec = (wl.ddec_mas - we.ddec_mas) / T(dt_yr_);
+  const T y[6] = {p[kPmra] + lra,        p[kPmdec] + ldec,      wl.pmra_mas_yr - lra,
+                  wl.pmdec_mas_yr - ldec, we.pmra_mas_yr - lra, we.pmdec_mas_yr - ldec};
+  int n = 0;
+  for (int i = 0; i < 6; ++i) {
+    T s(0.0);
+    for (int j = 0; j <= i; ++j) s += T(pm_whiten_(i, j)) * (y[j] - T(pm_obs_(j)));
+    r[n++] = s;
+  }
+  // Relative astrometry: the companion's offset from the host.
+  for (const auto& ep : rel_) {
+    const OrbitPoint<T> op = orbit_point(o, ep.epoch_yr);
+    const T north = a * plx * op.x, east = a * plx * op.y;
+    T d1, d2;
+    if (ep.polar) {
+      T sep, pa;
+      separation_pa(north, east, sep, pa);
+      d1 = (sep - T(ep.v1)) / T(ep.e1);
+      const T dpa = pa - T(units::deg_to_rad(ep.v2));
+      d2 = (dpa - T(units::kTwoPi * std::round(scalar_of(dpa) / units::kTwoPi))) /
+           T(units::deg_to_rad(ep.e2));
+    } else {
+      d1 = (east - T(ep.v1)) / T(ep.e1);
+      d2 = (north - T(ep.v2)) / T(ep.e2);
+    }
+    r[n++] = d1;
+    r[n++] = (d2 - T(ep.corr) * d1) / T(std::sqrt(1.0 - ep.corr * ep.corr));
+  }
+  // Radial velocities of the host with per-instrument offset and jitter:
+  // -ln L has the log-normaliser ln sqrt(sigma^2 + s^2), which is not a square.
+  for (const auto& v : rv_) {
+    const OrbitPoint<T> op = orbit_point(o, v.epoch_yr);
+    const T model = -q * a * op.vz * T(units::kKmsPerAuYr * 1e3) + p[kFitCore + v.instrument];
+    const T jit = exp(p[kFitCore + n_inst_ + v.instrument]);
+    const T var = T(v.error_m_s * v.error_m_s) + jit * jit;
+    r[n++] = (model - T(v.rv_m_s)) / sqrt(var);
+    extra += T(0.5) * log(var);
+  }
+  // Priors: host mass, catalogue parallax, eccentricity, and for upper
+  // limits the uniform-in-mass prior (density m in ln m).
+  if (host_.kind == HostMassPrior::Kind::kNormal) {
+    r[n++] = (m1 - T(host_.center_msun)) / T(host_.width);
+  } else {
+    r[n++] = (log(m1) / T(std::log(10.0)) - T(std::log10(host_.center_msun))) / T(host_.width);
+    extra += log(m1);
+  }
+  r[n++] = (plx - T(plx_cat_)) / T(plx_sigma_);
+  extra -= ecc_log_prior(opt_.ecc, e);
+  if (upper_limit_) extra -= p[kLnMass];
+  for (int i = 0; i < n; ++i)
+    if (!std::isfinite(scalar_of(r[i]))) return false;
+  return std::isfinite(scalar_of(extra));
+}
+
+double FitModel::neg_log_post(const double* p, double* m2lnl) const {
+  std::vector<double> r(n_res_);
+  double extra = 0.0;
+  if (!evaluate(p, r.data(), extra)) return kInf;
+  double chi2 = 0.0;
+  for (double v : r) chi2 += v * v;
+  if (m2lnl) {
+    double data = 0.0;
+    for (double v : r) data += v * v;
+    for (const auto& v : rv_) {
+      const double jit = std::exp(p[kFitCore + n_inst_ + v.instrument]);
+      data += std::log(v.error_m_s * v.error_m_s + jit * jit);
+    }
+    *m2lnl = data;
+  }
+  return 0.5 * chi2 + extra;
+}
+
+Eigen::VectorXd FitModel::prior_draw(Rng& rng) const {
+  Eigen::VectorXd p(n_params());
+  p[kLnMass] = rng.uniform(ln_m_lo_, ln_m_hi_);
+  p[kLnA] = rng.uniform(ln_a_start_lo_, ln_a_start_hi_);
+  double e;
+  do e = opt_.ecc.draw(rng); while (!(e >= 0.0 && e < ecc_max_));
+  const double w = units::kTwoPi * rng.uniform();
+  p[kSqrtECos] = std::sqrt(e) * std::cos(w);
+  p[kSqrtESin] = std::sqrt(e) * std::sin(w);
+  p[kCosInc] = rng.uniform(-1.0, 1.0);
+  p[kNode] = units::kTwoPi * rng.uniform();
+  p[kLambda] = units::kTwoPi * rng.uniform();
+  const double lnm1_lo = std::log(0.01);
+  do {
+    p[kHostMass] = host_.kind == HostMassPrior::Kind::kNormal
+                       ? host_.center_msun + host_.width * rng.normal()
+                       : host_.center_msun * std::pow(10.0, host_.width * rng.normal());
+  } while (!(std::log(p[kHostMass]) > lnm1_lo));
+  do p[kParallax] = plx_cat_ + plx_sigma_ * rng.normal(); while (!(p[kParallax] > 0));
+  const Eigen::LLT<Eigen::Matrix2d> llt(pml_cov_);
+  const Eigen::Vector2d pm = pml_obs_ + llt.matrixL() * Eigen::Vector2d(rng.normal(), rng.normal());
+  p[kPmra] = pm[0];
+  p[kPmdec] = pm[1];
+  for (int j = 0; j < n_inst_; ++j) {
+    p[kFitCore + j] = rv_mean_[j] + rv_spread_[j] * rng.normal();
+    p[kFitCore + n_inst_ + j] = rng.uniform(std::log(opt_.jitter_min_m_s), std::log(opt_.jitter_max_m_s));
+  }
+  return p;
+}
+
+double FitModel::prior_draw_log_density(const Eigen::VectorXd& p) const {
+  const double e = p[kSqrtECos] * p[kSqrtECos] + p[kSqrtESin] * p[kSqrtESin];
+  const double lna = p[kLnA], lnm = p[kLnMass];
+  if (!(lnm >= ln_m_lo_ && lnm <= ln_m_hi_ && lna >= ln_a_start_lo_ && lna <= ln_a_start_hi_ && e < ecc_max_ &&
+        std::abs(p[kCosInc]) < 1.0 && p[kHostMass] > 0 && p[kParallax] > 0))
+    return -kInf;
+  // (h, k) = sqrt(e) (cos w, sin w): dh dk = de dw / 2, so p(h, k) = p(e) / pi
+  // (the truncation of the e draw at ecc_max changes only a constant).
+  double l = -std::log(ln_m_hi_ - ln_m_lo_) - std::log(ln_a_start_hi_ - ln_a_start_lo_) +
+             opt_.ecc.log_pdf(e) - std::log(units::kPi) - std::log(2.0) - 2.0 * std::log(units::kTwoPi);
+  if (opt_.ecc.kind == Distribution::Kind::kFixed) return -kInf;
+  const double m1 = p[kHostMass];
+  if (host_.kind == HostMassPrior::Kind::kNormal) {
+    const double z = (m1 - host_.center_msun) / host_.width;
+    l += -0.5 * z * z - std::log(host_.width);
+  } else {
+    const double z = (std::log10(m1) - std::log10(host_.center_msun)) / host_.width;
+    l += -0.5 * z * z - std::log(m1 * std::log(10.0) * host_.width);
+  }
+  const double zp = (p[kParallax] - plx_cat_) / plx_sigma_;
+  l += -0.5 * zp * zp - std::log(plx_sigma_);
+  const Eigen::Vector2d d(p[kPmra] - pml_obs_[0], p[kPmdec] - pml_obs_[1]);
+  l += -0.5 * d.dot(pml_cov_.ldlt().solve(d)) - 0.5 * std::log(pml_cov_.determinant());
+  const double jl = std::log(opt_.jitter_max_m_s) - std::log(opt_.jitter_min_m_s);
+  for (int j = 0; j < n_inst_; ++j) {
+    const double z = (p[kFitCore + j] - rv_mean_[j]) / rv_spread_[j];
+    l += -0.5 * z * z - std::log(rv_spread_[j]) - std::log(jl);
+  }
+  return l;
+}
+
+OrbitDraw FitModel::orbit(const double* p) const {
+  OrbitDraw d;
+  d.mass_mjup = std::exp(p[kLnMass]);
+  d.a_au = std::exp(p[kLnA]);
+  d.ecc = p[kSqrtECos] * p[kSqrtECos] + p[kSqrtESin] * p[kSqrtESin];
+  const double omega = d.ecc > 0 ? std::atan2(p[kSqrtESin], p[kSqrtECos]) : 0.0;
+  d.inc_deg = units::rad_to_deg(std::acos(std::clamp(p[kCosInc], -1.0, 1.0)));
+  d.arg_peri_deg = units::rad_to_deg(wrap_2pi(omega));
+  d.node_deg = units::rad_to_deg(wrap_2pi(p[kNode]));
+  d.mean_anom_deg = units::rad_to_deg(wrap_2pi(p[kLambda] - omega - p[kNode]));
+  d.ref_epoch_yr = late_.ref_epoch_yr;
+  d.host_mass_msun = p[kHostMass];
+  d.period_yr = period_from_a(d.a_au, d.host_mass_msun + d.mass_mjup / units::kMjupPerMsun);
+  d.parallax_mas = p[kParallax];
+  d.weight = 1.0;
+  return d;
+}
+
+std::vector<std::string> FitModel::param_names() const {
+  std::vector<std::string> n = {"ln_mass_mjup", "ln_a_au", "sqrt_e_cos_omega", "sqrt_e_sin_omega", "cos_inc",
+                                "node_rad",     "mean_longitude_rad", "host_mass_msun", "parallax_mas",
+                                "pmra_mas_yr",  "pmdec_mas_yr"};
+  for (const auto& s : instruments_) n.push_back("rv_offset_m_s:" + s);
+  for (const auto& s : instruments_) n.push_back("ln_jitter_m_s:" + s);
+  return n;
+}
+
+const std::vector<std::string>& derived_names() {
+  static const std::vector<std::string> n = {"mass_mjup", "a_au", "ecc", "period_yr", "inc_deg"};
+  return n;
+}
+
+namespace {
+
+// Parameters held fixed (the profile's a and mass) by index.
+struct Pinned {
+  std::vector<int> index;
+  std::vector<double> value;
+  template <typename T>
+  void apply(T* p) const {
+    for (std::size_t k = 0; k < index.size(); ++k) p[index[k]] = T(value[k]);
+  }
+};
+
+// Residuals for Ceres' least-squares solver; blocks: core + offsets, jitters.
+struct LsqFunctor {
+  const FitModel* model;
+  const Pinned* pinned;
+  template <typename T>
+  bool operator()(T const* const* blocks, T* r) const {
+    const int nc = kFitCore + model->n_instruments();
+    T p[kMaxFitParams];
+    for (int i = 0; i < nc; ++i) p[i] = blocks[0][i];
+    for (int i = nc; i < model->n_params(); ++i) p[i] = blocks[1][i - nc];
+    pinned->apply(p);
+    T extra(0.0);
+    return model->evaluate(p, r, extra);
+  }
+};
+
+// The full negative log posterior over the free parameters, scaled:
+// p[free[i]] = base[free[i]] + scale[i] u[i]. Derivatives by Ceres Jets.
+class Objective final : public ceres::FirstOrderFunction {
+ public:
+  Objective(const FitModel& m, const Eigen::VectorXd& base, std::vector<int> free, std::vector<double> scale)
+      : m_(m), base_(base), free_(std::move(free)), scale_(std::move(scale)) {}
+  int NumParameters() const override { return static_cast<int>(free_.size()); }
+  bool Evaluate(const double* u, double* cost, double* grad) const override {
+    std::vector<Jet> p(m_.n_params()), r(m_.n_residuals());
+    for (int i = 0; i < m_.n_params(); ++i) p[i] = Jet(base_[i]);
+    for (std::size_t i = 0; i < free_.size(); ++i) p[free_[i]] = Jet(base_[free_[i]] + scale_[i] * u[i], static_cast<int>(i));
+    Jet extra(0.0);
+    if (!m_.evaluate(p.data(), r.data(), extra)) return false;
+    Jet f = extra;
+    for (const Jet& v : r) f += 0.5 * v * v;
+    *cost = f.a;
+    if (grad)
+      for (std::size_t i = 0; i < free_.size(); ++i) grad[i] = f.v[i];
+    return std::isfinite(f.a);
+  }
+  Eigen::VectorXd point(const double* u) const {
+    Eigen::VectorXd p = base_;
+    for (std::size_t i = 0; i < free_.size(); ++i) p[free_[i]] += scale_[i] * u[i];
+    return p;
+  }
+
+ private:
+  const FitModel& m_;
+  Eigen::VectorXd base_;
+  std::vector<int> free_;
+  std::vector<double> scale_;
+};
+
+struct Local {
+  Eigen::VectorXd p;
+  double f = kInf;
+  bool converged = false;
+};
+
+// One start: Levenberg-Marquardt on the residuals with the jitters held
+// fixed, then L-BFGS on the whole negative log posterior.
+Local minimise(const FitModel& m, Eigen::VectorXd p, const Pinned& pinned) {
+  const int nc = kFitCore + m.n_instruments(), nj = m.n_instruments();
+  pinned.apply(p.data());
+  Local out;
+  if (!std::isfinite(m.neg_log_post(p.data()))) return out;
+  {
+    ceres::Problem::Options popt;
+    ceres::Problem problem(popt);
+    auto* cost = new ceres::DynamicAutoDiffCostFunction<LsqFunctor, 4>(new LsqFunctor{&m, &pinned});
+    cost->AddParameterBlock(nc);
+    if (nj > 0) cost->AddParameterBlock(nj);
+    cost->SetNumResiduals(m.n_residuals());
+    std::vector<double*> blocks = {p.data()};
+    if (nj > 0) blocks.push_back(p.data() + nc);
+    problem.AddResidualBlock(cost, nullptr, blocks);
+    if (nj > 0) problem.SetParameterBlockConstant(p.data() + nc);
+    problem.SetParameterLowerBound(p.data(), kCosInc, -1.0 + 1e-9);
+    problem.SetParameterUpperBound(p.data(), kCosInc, 1.0 - 1e-9);
+    ceres::Solver::Options so;
+    so.logging_type = ceres::SILENT;
+    so.max_num_iterations = 200;
+    so.num_threads = 1;
+    so.function_tolerance = 1e-10;
+    so.parameter_tolerance = 1e-10;
+    ceres::Solver::Summary sum;
+    ceres::Solve(so, &problem, &sum);
+  }
+  std::vector<int> free;
+  std::vector<double> scale;
+  for (int i = 0; i < m.n_params(); ++i) {
+    if (std::find(pinned.index.begin(), pinned.index.end(), i) != pinned.index.end()) continue;
+    free.push_back(i);
+    scale.push_back(1.0);
+  }
+  // Scale the gradient problem by the curvature of the residuals, so that
+  // L-BFGS sees unit-free, comparable parameters.
+  {
+    std::vector<Jet> pj(m.n_params()), r(m.n_residuals());
+    for (int i = 0; i < m.n_params(); ++i) pj[i] = Jet(p[i]);
+    for (std::size_t i = 0; i < free.size(); ++i) pj[free[i]] = Jet(p[free[i]], static_cast<int>(i));
+    Jet extra(0.0);
+    if (m.evaluate(pj.data(), r.data(), extra))
+      for (std::size_t i = 0; i < free.size(); ++i) {
+        double c = 0.0;
+        for (const Jet& v : r) c += v.v[i] * v.v[i];
+        if (c > 0 && std::isfinite(c)) scale[i] = std::min(1.0, 1.0 / std::sqrt(c));
+      }
+  }
+  auto* obj = new Objective(m, p, free, scale);
+  ceres::GradientProblem gp(obj);
+  std::vector<double> u(free.size(), 0.0);
+  ceres::GradientProblemSolver::Options go;
+  go.logging_type = ceres::SILENT;
+  go.max_num_iterations = 500;
+  go.function_tolerance = 1e-12;
+  go.gradient_tolerance = 1e-9;
+  go.parameter_tolerance = 1e-12;
+  ceres::GradientProblemSolver::Summary gs;
+  ceres::Solve(go, gp, u.data(), &gs);
+  out.p = obj->point(u.data());
+  out.f = m.neg_log_post(out.p.data());
+  out.converged = std::isfinite(out.f) && gs.termination_type == ceres::CONVERGENCE;
+  return out;
+}
+
+// Ceres covariance of the core parameters and offsets at a minimum (jitters
+// held at their values); flags instead of failing.
+void covariance_at(const FitModel& m, FitMinimum& mn) {
+  const int nc = kFitCore + m.n_instruments(), nj = m.n_instruments();
+  Eigen::VectorXd p = mn.p;
+  const Pinned none;
+  ceres::Problem problem;
+  auto* cost = new ceres::DynamicAutoDiffCostFunction<LsqFunctor, 4>(new LsqFunctor{&m, &none});
+  cost->AddParameterBlock(nc);
+  if (nj > 0) cost->AddParameterBlock(nj);
+  cost->SetNumResiduals(m.n_residuals());
+  std::vector<double*> blocks = {p.data()};
+  if (nj > 0) blocks.push_back(p.data() + nc);
+  problem.AddResidualBlock(cost, nullptr, blocks);
+  if (nj > 0) problem.SetParameterBlockConstant(p.data() + nc);
+  ceres::Covariance::Options co;
+  co.algorithm_type = ceres::DENSE_SVD;
+  co.null_space_rank = 0;
+  co.min_reciprocal_condition_number = 1e-12;
+  ceres::Covariance cov(co);
+  const std::vector<std::pair<const double*, const double*>> pairs = {{p.data(), p.data()}};
+  Eigen::MatrixXd c(nc, nc);
+  if (!cov.Compute(pairs, &problem) || !cov.GetCovarianceBlock(p.data(), p.data(), c.data())) {
+    mn.flag = "covariance_degenerate";
+    return;
+  }
+  c = 0.5 * (c + c.transpose()).eval();  // column- vs row-major: symmetric either way
+  const Eigen::SelfAdjointEigenSolver<Eigen::MatrixXd> es(c);
+  if (!c.allFinite() || es.eigenvalues().minCoeff() <= 0) {
+    mn.flag = "covariance_degenerate";
+    return;
+  }
+  mn.cov = c;
+  mn.covariance_ok = true;
+}
+
+// Derived values (mass, a, e, P, i) and their linearised errors by Jets.
+void derive(FitMinimum& mn) {
+  using J = ceres::Jet<double, kFitCore>;
+  J p[kFitCore];
+  for (int i = 0; i < kFitCore; ++i) p[i] = J(mn.p[i], i);
+  const J mass = exp(p[kLnMass]), a = exp(p[kLnA]);
+  const J e = p[kSqrtECos] * p[kSqrtECos] + p[kSqrtESin] * p[kSqrtESin];
+  const J per = period_from_a(a, p[kHostMass] + mass / units::kMjupPerMsun);
+  const J inc = acos(p[kCosInc]) * units::kDegPerRad;
+  const J d[5] = {mass, a, e, per, inc};
+  for (int k = 0; k < 5; ++k) {
+    mn.derived[k] = d[k].a;
+    mn.derived_sigma[k] = kAbsent;
+    if (mn.covariance_ok) {
+      const Eigen::Matrix<double, kFitCore, 1> g = d[k].v;
+      mn.derived_sigma[k] = std::sqrt(g.dot(mn.cov.topLeftCorner<kFitCore, kFitCore>() * g));
+    }
+  }
+}
+
+bool same_minimum(const FitMinimum& a, const Eigen::VectorXd& p, double m2lnpost) {
+  if (std::abs(a.m2lnpost - m2lnpost) > 0.02) return false;
+  for (int i : {kLnMass, kLnA, kSqrtECos, kSqrtESin, kCosInc})
+    if (std::abs(a.p[i] - p[i]) > 0.01) return false;
+  for (int i : {kNode, kLambda})
+    if (std::abs(wrap_pi(a.p[i] - p[i])) > 0.02) return false;
+  return true;
+}
+
+std::vector<FitMinimum> find_minima(const FitModel& m, const Pinned& pinned,
+                                    const std::vector<Eigen::VectorXd>& starts) {
+  std::vector<Local> loc(starts.size());
+#pragma omp parallel for schedule(dynamic)
+  for (std::size_t s = 0; s < starts.size(); ++s) loc[s] = minimise(m, starts[s], pinned);
+  std::vector<std::size_t> order(loc.size());
+  std::iota(order.begin(), order.end(), 0);
+  std::stable_sort(order.begin(), order.end(), [&](std::size_t x, std::size_t y) { return loc[x].f < loc[y].f; });
+  std::vector<FitMinimum> out;
+  for (std::size_t s : order) {
+    if (!std::isfinite(loc[s].f)) continue;
+    double m2lnl = 0.0;
+    const double m2lnpost = 2.0 * m.neg_log_post(loc[s].p.data(), &m2lnl);
+    bool merged = false;
+    for (auto& mn : out)
+      if (same_minimum(mn, loc[s].p, m2lnpost)) {
+        ++mn.hits;
+        merged = true;
+        break;
+      }
+    if (merged) continue;
+    FitMinimum mn;
+    mn.p = loc[s].p;
+    mn.m2lnl = m2lnl;
+    mn.m2lnpost = m2lnpost;
+    out.push_back(std::move(mn));
+  }
+  return out;
+}
+
+std::vector<Eigen::VectorXd> draw_starts(const FitModel& m, int n, Rng& rng) {
+  std::vector<Eigen::VectorXd> s;
+  for (int k = 0; k < n; ++k) s.push_back(m.prior_draw(rng));
+  return s;
+}
+
+// Walkers for the sampler: importance-weighted draws from a mixture of the
+// prior draw distribution and Gaussians at the minima (covariance inflated
+// 1.5x, jitters +-0.3 in ln), picked without replacement by the keys
+// u^(1/w) (Efraimidis & Spirakis 2006, Inf. Process. Lett. 97, 181), so
+// that separated modes enter with their posterior weights.
+Eigen::MatrixXd initial_walkers(const FitModel& m, const std::vector<FitMinimum>& minima, int walkers, Rng& rng,
+                                double& ess) {
+  const int n = m.n_params(), nc = kFitCore + m.n_instruments();
+  struct Comp {
+    Eigen::VectorXd mean;
+    Eigen::MatrixXd chol;  // of the full n x n proposal covariance
+    double log_norm;
+  };
+  std::vector<Comp> comps;
+  for (const auto& mn : minima) {
+    if (!mn.covariance_ok) continue;
+    Eigen::MatrixXd c = Eigen::MatrixXd::Zero(n, n);
+    c.topLeftCorner(nc, nc) = 2.25 * mn.cov;
+    for (int i = nc; i < n; ++i) c(i, i) = 0.09;
+    const Eigen::LLT<Eigen::MatrixXd> llt(c);
+    if (llt.info() != Eigen::Success) continue;
+    const Eigen::MatrixXd L = llt.matrixL();
+    comps.push_back({mn.p, L, -L.diagonal().array().log().sum() - 0.5 * n * std::log(units::kTwoPi)});
+    if (comps.size() >= 16) break;
+  }
+  const double w_prior = comps.empty() ? 1.0 : 0.2;
+  const double w_comp = comps.empty() ? 0.0 : (1.0 - w_prior) / comps.size();
+  auto log_q = [&](const Eigen::VectorXd& x) {
+    double lq = std::log(w_prior) + m.prior_draw_log_density(x);
+    for (const auto& c : comps) {
+      Eigen::VectorXd d = x - c.mean;
+      d[kNode] = wrap_pi(d[kNode]);
+      d[kLambda] = wrap_pi(d[kLambda]);
+      const Eigen::VectorXd z = c.chol.triangularView<Eigen::Lower>().solve(d);
+      const double l = std::log(w_comp) + c.log_norm - 0.5 * z.squaredNorm();
+      lq = std::max(lq, l) + std::log1p(std::exp(-std::abs(lq - l)));
+    }
+    return lq;
+  };
+  const int pool = std::max(64 * walkers, 4096);
+  std::vector<Eigen::VectorXd> xs;
+  std::vector<double> lw;
+  for (int k = 0; k < pool; ++k) {
+    Eigen::VectorXd x;
+    const double u = rng.uniform();
+    if (u < w_prior) {
+      x = m.prior_draw(rng);
+    } else {
+      const Comp& c = comps[std::min<std::size_t>(static_cast<std::size_t>((u - w_prior) / w_comp), comps.size() - 1)];
+      Eigen::VectorXd z(n);
+      for (int i = 0; i < n; ++i) z[i] = rng.normal();
+      x = c.mean + c.chol * z;
+    }
+    x[kNode] = wrap_2pi(x[kNode]);
+    x[kLambda] = wrap_2pi(x[kLambda]);
+    const double lp = -m.neg_log_post(x.data());
+    xs.push_back(x);
+    lw.push_back(std::isfinite(lp) ? lp - log_q(x) : -kInf);
+  }
+  const double mx = *std::max_element(lw.begin(), lw.end());
+  double sw = 0, sw2 = 0;
+  std::vector<std::pair<double, int>> keys;
+  for (int k = 0; k < pool; ++k) {
+    const double w = std::isfinite(lw[k]) ? std::exp(lw[k] - mx) : 0.0;
+    sw += w;
+    sw2 += w * w;
+    if (w > 0) keys.emplace_back(std::log(rng.uniform_open()) / w, k);
+  }
+  ess = sw2 > 0 ? sw * sw / sw2 : 0.0;
+  if (static_cast<int>(keys.size()) < walkers)
+    throw NumericError("", "fit", "fewer importance draws with finite posterior than walkers");
+  std::partial_sort(keys.begin(), keys.begin() + walkers, keys.end(),
+                    [](const auto& x, const auto& y) { return x.first > y.first; });
+  Eigen::MatrixXd w(n, walkers);
+  for (int k = 0; k < walkers; ++k) w.col(k) = xs[keys[k].second];
+  return w;
+}
+
+}  // namespace
+
+FitResult run_fit(const FitModel& m, const FitOptions& opt, const std::string& rng_id) {
+  FitResult res;
+  res.upper_limit = m.upper_limit();
+  Rng rng = Rng::for_star(opt.seed, rng_id);
+  const Pinned none;
+  res.minima = find_minima(m, none, draw_starts(m, opt.starts, rng));
+  if (res.minima.empty()) throw NumericError(rng_id, "fit", "no start reached a finite posterior");
+  for (auto& mn : res.minima) {
+    covariance_at(m, mn);
+    derive(mn);
+  }
+  if (!opt.sample) return res;
+  Rng srng = Rng::for_star(opt.seed ^ 0x5a3c9e1fULL, rng_id);
+  const Eigen::MatrixXd start = initial_walkers(m, res.minima, opt.walkers, srng, res.init_ess);
+  EnsembleOptions eo = opt.sampler;
+  eo.seed = srng.next();
+  res.chain = run_ensemble([&m](const double* p) { return -m.neg_log_post(p); }, start, eo);
+  res.sampled = true;
+  const double tau = *std::max_element(res.chain.iat_steps.begin(), res.chain.iat_steps.end());
+  if (!(opt.sampler.steps >= 50.0 * tau))
+    res.warnings.push_back("chain shorter than 50 autocorrelation times (max tau " +
+                           std::to_string(static_cast<long>(std::ceil(tau))) + " steps); raise --steps");
+  if (res.init_ess < opt.walkers)
+    res.warnings.push_back("importance draws for the walkers have effective size " +
+                           std::to_string(static_cast<long>(res.init_ess)) + " < walkers; mode weights are uncertain");
+  return res;
+}
+
+Curve profile_curve(const FitModel& m, const std::vector<double>& a_au, const FitOptions& opt,
+                    const std::string& rng_id) {
+  Curve c;
+  c.upper_limit = m.upper_limit();
+  Rng rng = Rng::for_star(opt.seed, rng_id);
+  std::vector<double> best(a_au.size(), kInf);
+  const int n_starts = std::max(4, opt.starts / 4);
+  for (std::size_t ia = 0; ia < a_au.size(); ++ia) {
+    const double lna = std::log(a_au[ia]);
+    // Best mass at this a: minimise over everything but a.
+    const Pinned at_a{{kLnA}, {lna}};
+    const auto mins = find_minima(m, at_a, draw_starts(m, n_starts, rng));
+    CurvePoint pt{};
+    pt.a_au = a_au[ia];
+    pt.mass_lo95 = pt.mass_lo68 = pt.mass_med = pt.mass_hi68 = pt.mass_hi95 = kAbsent;
+    pt.ess = kAbsent;
+    if (!mins.empty()) {
+      const FitMinimum& b = mins.front();
+      double m2lnl_best = b.m2lnl;
+      best[ia] = m2lnl_best;
+      const OrbitDraw o = m.orbit(b.p.data());
+      pt.sep_mas = a_au[ia] * o.parallax_mas;
+      pt.period_yr = o.period_yr;
+      pt.mass_med = o.mass_mjup;
+      // Walk out in ln mass from the best, warm-started, until -2 ln L has
+      // risen by 3.84 or the prior bound is reached; crossings by linear
+      // interpolation in ln mass.
+      for (int dir : {-1, 1}) {
+        const double step = 0.1 * dir;
+        const double bound = dir < 0 ? std::log(m.mass_floor_mjup()) : std::log(opt.m_max_mjup);
+        double x_prev = std::log(o.mass_mjup), d_prev = 0.0;
+        Eigen::VectorXd warm = b.p;
+        double cross68 = kAbsent, cross95 = kAbsent;
+        for (int it = 0; it < 200; ++it) {
+          double x = x_prev + step;
+          if ((x - bound) * dir > 0) x = bound;
+          const Pinned pin{{kLnA, kLnMass}, {lna, x}};
+          std::vector<Eigen::VectorXd> st = {warm};
+          for (int k = 0; k < 3; ++k) st.push_back(m.prior_draw(rng));
+          const auto mm = find_minima(m, pin, st);
+          if (mm.empty()) break;
+          const double dchi = mm.front().m2lnl - m2lnl_best;
+          warm = mm.front().p;
+          auto cross = [&](double level, double& out) {
+            if (present(out) || !(dchi >= level)) return;
+            out = std::exp(x_prev + (x - x_prev) * (level - d_prev) / (dchi - d_prev));
+          };
+          cross(1.0, cross68);
+          cross(3.84, cross95);
+          x_prev = x;
+          d_prev = std::max(dchi, d_prev);
+          if (present(cross95) || x == bound) break;
+        }
+        (dir < 0 ? pt.mass_lo68 : pt.mass_hi68) = cross68;
+        (dir < 0 ? pt.mass_lo95 : pt.mass_hi95) = cross95;
+      }
+    }
+    c.points.push_back(pt);
+  }
+  const double mn = *std::min_element(best.begin(), best.end());
+  double sw = 0.0;
+  for (std::size_t k = 0; k < best.size(); ++k) sw += std::isfinite(best[k]) ? std::exp(-0.5 * (best[k] - mn)) : 0.0;
+  for (std::size_t k = 0; k < best.size(); ++k)
+    c.points[k].weight = std::isfinite(best[k]) && sw > 0 ? std::exp(-0.5 * (best[k] - mn)) / sw : 0.0;
+  return c;
+}
+
+}  // namespace heft
