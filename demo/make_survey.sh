@@ -1,7 +1,8 @@
 #!/usr/bin/env bash
 # Regenerates the bundled demo survey: the invented Keth Moving Group, a young
 # association ~120 pc away, screened by the (invented) Halcyon imaging survey.
-# 2,000 stars, about 2 % with an injected companion. Fixed seed: the files
+# 2,000 stars, about 2 % with an injected companion. The follow-up star file
+# holds three epochs of (invented) Halcyon imaging of KMG-00754's companion. Fixed seed: the files
 # are byte-identical on every machine.
 set -euo pipefail
 here=$(cd "$(dirname "$0")" && pwd)
@@ -12,4 +13,6 @@ heft=${HEFT:-$here/../build/heft}
   --rv-fraction 0.4 --age 25 \
   --companion-fraction 0.02 --companion-mass loguniform:1,80 --a loguniform:2,200 \
   --ecc uniform:0,0.6 \
-  -o "$here/survey/stars.csv" --truth "$here/survey/truth.csv"
+  -o "$here/survey/stars.csv" --truth "$here/survey/truth.csv" \
+  --star-file "$here/followup/KMG-00754.json" --star-file-id KMG-00754 \
+  --imaging-epochs 2025.42,2026.13,2026.88 --sep-error 1.5 --pa-error 0.4

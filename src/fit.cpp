@@ -73,6 +73,12 @@ FitModel::FitModel(const StarFile& f, const AnomalyResult& r, const FitOptions& 
   pm_whiten_ = llt.matrixL().solve(Eigen::Matrix<double, 6, 6>::Identity());
   pml_obs_ = r.pml_late_mas_yr;
   pml_cov_ = r.pml_cov;
+  bool have_mass = false;
+  const double center = host_.center_msun;
+  const double width = host_.kind == HostMassPrior::Kind::kNormal ? host_.width : center * std::log(10.0) * host_.width;
+  anomaly_ = anomaly_data(s, r, center, width, have_mass);
+  anomaly_.host_mass_msun = center;  // the star file's prior rules over the star's mass columns
+  anomaly_.host_mass_error_msun = width;
   plx_cat_ = s.late.parallax_mas;
   plx_sigma_ = s.late.parallax_error_mas;
   upper_limit_ = rel_.empty() && !(r.sig_joint >= opt.detect_sigma);
@@ -107,9 +113,107 @@ FitModel::FitModel(const StarFile& f, const AnomalyResult& r, const FitOptions& 
 }
 
 template <typename T>
-bool FitModel::evaluate(const T* p, T* r, T& extra) const {
+Orbit<T> FitModel::orbit_at(const T* p) const {
   using std::acos;
   using std::atan2;
+  using std::exp;
+  const T m2 = exp(p[kLnMass]) / T(units::kMjupPerMsun);
+  const T e = p[kSqrtECos] * p[kSqrtECos] + p[kSqrtESin] * p[kSqrtESin];
+  // omega is undefined at e = 0: any value, with no derivative.
+  const double h = scalar_of(p[kSqrtECos]), k = scalar_of(p[kSqrtESin]);
+  const T omega = h * h + k * k > 0.0 ? atan2(p[kSqrtESin], p[kSqrtECos]) : T(0.0);
+  return {period_from_a(exp(p[kLnA]), p[kHostMass] + m2), e, acos(p[kCosInc]), omega, p[kNode],
+          p[kLambda] - omega - p[kNode], late_.ref_epoch_yr};
+}
+
+// Proper motions (pml_late, dpm_late, dpm_early) of docs/method.md Sect. 9:
+// the long-baseline PM is the barycentric PM plus the reflex displacement
+// between the catalogue epochs over their separation in time.
+template <typename T>
+void FitModel::model_pm(const Orbit<T>& o, const T& a, const T& q, const T& plx, const T& pmra,
+                        const T& pmdec, T y[6]) const {
+  const WindowFit<T> wl = fit_reflex(o, a, q, plx, late_), we = fit_reflex(o, a, q, plx, early_);
+  const T lra = (wl.dra_mas - we.dra_mas) / T(dt_yr_), ldec = (wl.ddec_mas - we.ddec_mas) / T(dt_yr_);
+  y[0] = pmra + lra;
+  y[1] = pmdec + ldec;
+  y[2] = wl.pmra_mas_yr - lra;
+  y[3] = wl.pmdec_mas_yr - ldec;
+  y[4] = we.pmra_mas_yr - lra;
+  y[5] = we.pmdec_mas_yr - ldec;
+}
+
+// Whitened residual of one host RV; adds its log-normaliser to `extra`.
+template <typename T>
+T FitModel::rv_residual(const Orbit<T>& o, const T& a, const T& q, const T* p, const RvPoint& v, T& extra) const {
+  using std::exp;
+  using std::log;
+  using std::sqrt;
+  const OrbitPoint<T> op = orbit_point(o, v.epoch_yr);
+  const T model = -q * a * op.vz * T(units::kKmsPerAuYr * 1e3) + p[kFitCore + v.instrument];
+  const T jit = exp(p[kFitCore + n_inst_ + v.instrument]);
+  const T var = T(v.error_m_s * v.error_m_s) + jit * jit;
+  extra += T(0.5) * log(var);
+  return (model - T(v.rv_m_s)) / sqrt(var);
+}
+
+Eigen::VectorXd FitModel::from_orbit(const OrbitDraw& d, Rng& rng) const {
+  Eigen::VectorXd p = Eigen::VectorXd::Zero(n_params());
+  const double w = units::deg_to_rad(d.arg_peri_deg), node = units::deg_to_rad(d.node_deg);
+  p[kLnMass] = std::log(std::max(d.mass_mjup, 1e-300));
+  p[kLnA] = std::log(d.a_au);
+  p[kSqrtECos] = std::sqrt(d.ecc) * std::cos(w);
+  p[kSqrtESin] = std::sqrt(d.ecc) * std::sin(w);
+  p[kCosInc] = std::cos(units::deg_to_rad(d.inc_deg));
+  p[kNode] = node;
+  p[kLambda] = wrap_2pi(units::deg_to_rad(d.mean_anom_deg) + w + node);
+  p[kHostMass] = d.host_mass_msun;
+  p[kParallax] = d.parallax_mas;
+  // Barycentric PM: the long-baseline PM minus this orbit's reflex term, with
+  // the long-baseline PM's noise.
+  const double m2 = d.mass_mjup / units::kMjupPerMsun, q = m2 / (d.host_mass_msun + m2);
+  double y[6];
+  model_pm(orbit_at(p.data()), d.a_au, q, d.parallax_mas, 0.0, 0.0, y);
+  const Eigen::LLT<Eigen::Matrix2d> llt(pml_cov_);
+  const Eigen::Vector2d pm = pml_obs_ - Eigen::Vector2d(y[0], y[1]) + llt.matrixL() * Eigen::Vector2d(rng.normal(), rng.normal());
+  p[kPmra] = pm[0];
+  p[kPmdec] = pm[1];
+  // RV offsets: the error-weighted mean residual of each instrument; jitter
+  // at the instrument's median error.
+  std::vector<double> sw(n_inst_, 0.0), swr(n_inst_, 0.0);
+  std::vector<std::vector<double>> errs(n_inst_);
+  const Orbit<double> o = orbit_at(p.data());
+  for (const auto& v : rv_) {
+    double extra = 0.0;
+    p[kFitCore + n_inst_ + v.instrument] = std::log(opt_.jitter_min_m_s);
+    const double r = rv_residual(o, d.a_au, q, p.data(), v, extra);  // offset 0
+    const double s2 = v.error_m_s * v.error_m_s;
+    swr[v.instrument] += -r * std::sqrt(s2 + opt_.jitter_min_m_s * opt_.jitter_min_m_s) / s2;
+    sw[v.instrument] += 1.0 / s2;
+    errs[v.instrument].push_back(v.error_m_s);
+  }
+  for (int j = 0; j < n_inst_; ++j) {
+    p[kFitCore + j] = swr[j] / sw[j];
+    std::nth_element(errs[j].begin(), errs[j].begin() + errs[j].size() / 2, errs[j].end());
+    p[kFitCore + n_inst_ + j] = std::clamp(std::log(errs[j][errs[j].size() / 2]), std::log(opt_.jitter_min_m_s),
+                                           std::log(opt_.jitter_max_m_s));
+  }
+  return p;
+}
+
+double FitModel::rv_neg_log_like(const double* p) const {
+  if (rv_.empty()) return 0.0;
+  const double m2 = std::exp(p[kLnMass]) / units::kMjupPerMsun, q = m2 / (p[kHostMass] + m2);
+  const Orbit<double> o = orbit_at(p);
+  double extra = 0.0, chi2 = 0.0;
+  for (const auto& v : rv_) {
+    const double r = rv_residual(o, std::exp(p[kLnA]), q, p, v, extra);
+    chi2 += r * r;
+  }
+  return 0.5 * chi2 + extra;
+}
+
+template <typename T>
+bool FitModel::evaluate(const T* p, T* r, T& extra) const {
   using std::exp;
   using std::log;
   using std::sqrt;
@@ -122,20 +226,11 @@ bool FitModel::evaluate(const T* p, T* r, T& extra) const {
     const double lj = scalar_of(p[kFitCore + n_inst_ + j]);
     if (!(lj >= std::log(opt_.jitter_min_m_s) && lj <= std::log(opt_.jitter_max_m_s))) return false;
   }
-  const T m2 = exp(p[kLnMass]) / T(units::kMjupPerMsun);
-  const T m1 = p[kHostMass], mt = m1 + m2, q = m2 / mt;
-  const T a = exp(p[kLnA]), plx = p[kParallax];
-  const T e = p[kSqrtECos] * p[kSqrtECos] + p[kSqrtESin] * p[kSqrtESin];
-  // omega is undefined at e = 0: any value, with no derivative.
-  const T omega = h * h + k * k > 0.0 ? atan2(p[kSqrtESin], p[kSqrtECos]) : T(0.0);
-  const Orbit<T> o{period_from_a(a, mt), e, acos(p[kCosInc]), omega, p[kNode],
-                   p[kLambda] - omega - p[kNode], late_.ref_epoch_yr};
-
-  // Proper motions: (pml_late, dpm_late, dpm_early) of docs/method.md Sect. 9.
-  const WindowFit<T> wl = fit_reflex(o, a, q, plx, late_), we = fit_reflex(o, a, q, plx, early_);
-  const T lra = (wl.dra_mas - we.dra_mas) / T(dt_yr_), ldec = (wl.ddec_mas - we.ddec_mas) / T(dt_yr_);
-  const T y[6] = {p[kPmra] + lra,        p[kPmdec] + ldec,      wl.pmra_mas_yr - lra,
-                  wl.pmdec_mas_yr - ldec, we.pmra_mas_yr - lra, we.pmdec_mas_yr - ldec};
+  const T m1 = p[kHostMass], m2 = exp(p[kLnMass]) / T(units::kMjupPerMsun), q = m2 / (m1 + m2);
+  const T a = exp(p[kLnA]), plx = p[kParallax], e = p[kSqrtECos] * p[kSqrtECos] + p[kSqrtESin] * p[kSqrtESin];
+  const Orbit<T> o = orbit_at(p);
+  T y[6];
+  model_pm(o, a, q, plx, p[kPmra], p[kPmdec], y);
   int n = 0;
   for (int i = 0; i < 6; ++i) {
     T s(0.0);
@@ -163,14 +258,7 @@ bool FitModel::evaluate(const T* p, T* r, T& extra) const {
   }
   // Radial velocities of the host with per-instrument offset and jitter:
   // -ln L has the log-normaliser ln sqrt(sigma^2 + s^2), which is not a square.
-  for (const auto& v : rv_) {
-    const OrbitPoint<T> op = orbit_point(o, v.epoch_yr);
-    const T model = -q * a * op.vz * T(units::kKmsPerAuYr * 1e3) + p[kFitCore + v.instrument];
-    const T jit = exp(p[kFitCore + n_inst_ + v.instrument]);
-    const T var = T(v.error_m_s * v.error_m_s) + jit * jit;
-    r[n++] = (model - T(v.rv_m_s)) / sqrt(var);
-    extra += T(0.5) * log(var);
-  }
+  for (const auto& v : rv_) r[n++] = rv_residual(o, a, q, p, v, extra);
   // Priors: host mass, catalogue parallax, eccentricity, and for upper
   // limits the uniform-in-mass prior (density m in ln m).
   if (host_.kind == HostMassPrior::Kind::kNormal) {
@@ -450,7 +538,11 @@ void covariance_at(const FitModel& m, FitMinimum& mn) {
   ceres::Covariance::Options co;
   co.algorithm_type = ceres::DENSE_SVD;
   co.null_space_rank = 0;
-  co.min_reciprocal_condition_number = 1e-12;
+  // The parameters span many decades of scale (mas/yr against radians), so
+  // the conditioning threshold is set near double precision; true
+  // degeneracies (e.g. no relative astrometry) fall far below it and are
+  // flagged, and the result is checked to be positive definite below.
+  co.min_reciprocal_condition_number = 1e-17;
   ceres::Covariance cov(co);
   const std::vector<std::pair<const double*, const double*>> pairs = {{p.data(), p.data()}};
   Eigen::MatrixXd c(nc, nc);
@@ -535,11 +627,14 @@ std::vector<Eigen::VectorXd> draw_starts(const FitModel& m, int n, Rng& rng) {
 
 // Walkers for the sampler: importance-weighted draws from a mixture of the
 // prior draw distribution and Gaussians at the minima (covariance inflated
-// 1.5x, jitters +-0.3 in ln), picked without replacement by the keys
+// as given, jitters +-0.2 in ln), picked without replacement by the keys
 // u^(1/w) (Efraimidis & Spirakis 2006, Inf. Process. Lett. 97, 181), so
 // that separated modes enter with their posterior weights.
+// Without relative astrometry the pool is instead heft curve's Monte Carlo
+// posterior over the whole prior (the same anomaly model), reweighted by
+// the RV likelihood.
 Eigen::MatrixXd initial_walkers(const FitModel& m, const std::vector<FitMinimum>& minima, int walkers, Rng& rng,
-                                double& ess) {
+                                const std::string& rng_id, double& ess) {
   const int n = m.n_params(), nc = kFitCore + m.n_instruments();
   struct Comp {
     Eigen::VectorXd mean;
@@ -550,8 +645,8 @@ Eigen::MatrixXd initial_walkers(const FitModel& m, const std::vector<FitMinimum>
   for (const auto& mn : minima) {
     if (!mn.covariance_ok) continue;
     Eigen::MatrixXd c = Eigen::MatrixXd::Zero(n, n);
-    c.topLeftCorner(nc, nc) = 2.25 * mn.cov;
-    for (int i = nc; i < n; ++i) c(i, i) = 0.09;
+    c.topLeftCorner(nc, nc) = mn.cov;
+    for (int i = nc; i < n; ++i) c(i, i) = 0.04;
     const Eigen::LLT<Eigen::MatrixXd> llt(c);
     if (llt.info() != Eigen::Success) continue;
     const Eigen::MatrixXd L = llt.matrixL();
@@ -572,9 +667,30 @@ Eigen::MatrixXd initial_walkers(const FitModel& m, const std::vector<FitMinimum>
     }
     return lq;
   };
-  const int pool = std::max(64 * walkers, 4096);
   std::vector<Eigen::VectorXd> xs;
   std::vector<double> lw;
+  const int pool = m.has_relative() ? std::max(64 * walkers, 4096) : 0;
+  if (!m.has_relative()) {
+    const FitOptions& fo = m.options();
+    CurveOptions co;
+    co.a_au = log_grid(fo.a_min_au, fo.a_max_au, 24);
+    co.draws = 1024;
+    co.ecc = fo.ecc;
+    co.m_min_mjup = fo.m_min_mjup;
+    co.m_max_mjup = fo.m_max_mjup;
+    co.detect_sigma = fo.detect_sigma;
+    co.refine_rounds = 1;
+    co.seed = rng.next();
+    co.keep_draws = true;
+    for (const OrbitDraw& d : montecarlo_curve(m.anomaly(), co, rng_id).draws) {
+      if (!(d.weight > 0)) continue;
+      Eigen::VectorXd x = m.from_orbit(d, rng);
+      const double nlp = m.neg_log_post(x.data());
+      xs.push_back(x);
+      lw.push_back(std::isfinite(nlp) ? std::log(d.weight) - m.rv_neg_log_like(x.data()) : -kInf);
+    }
+    if (xs.empty()) throw NumericError(rng_id, "fit", "the Monte Carlo curve gave no draws for the walkers");
+  }
   for (int k = 0; k < pool; ++k) {
     Eigen::VectorXd x;
     const double u = rng.uniform();
@@ -595,19 +711,33 @@ Eigen::MatrixXd initial_walkers(const FitModel& m, const std::vector<FitMinimum>
   const double mx = *std::max_element(lw.begin(), lw.end());
   double sw = 0, sw2 = 0;
   std::vector<std::pair<double, int>> keys;
-  for (int k = 0; k < pool; ++k) {
+  for (int k = 0; k < static_cast<int>(xs.size()); ++k) {
     const double w = std::isfinite(lw[k]) ? std::exp(lw[k] - mx) : 0.0;
     sw += w;
     sw2 += w * w;
     if (w > 0) keys.emplace_back(std::log(rng.uniform_open()) / w, k);
   }
   ess = sw2 > 0 ? sw * sw / sw2 : 0.0;
-  if (static_cast<int>(keys.size()) < walkers)
-    throw NumericError("", "fit", "fewer importance draws with finite posterior than walkers");
-  std::partial_sort(keys.begin(), keys.begin() + walkers, keys.end(),
+  const int picked = std::min<int>(walkers, static_cast<int>(keys.size()));
+  std::partial_sort(keys.begin(), keys.begin() + picked, keys.end(),
                     [](const auto& x, const auto& y) { return x.first > y.first; });
   Eigen::MatrixXd w(n, walkers);
-  for (int k = 0; k < walkers; ++k) w.col(k) = xs[keys[k].second];
+  for (int k = 0; k < picked; ++k) w.col(k) = xs[keys[k].second];
+  // Too few usable draws (a posterior far narrower than any proposal):
+  // the rest start in a small ball around the best minimum, and burn-in
+  // spreads them; the caller warns through `ess`.
+  for (int k = picked; k < walkers; ++k) {
+    Eigen::VectorXd x = minima.front().p;
+    for (int tries = 0; tries < 100; ++tries) {
+      Eigen::VectorXd y = minima.front().p;
+      for (int i = 0; i < n; ++i) y[i] += 1e-6 * (1.0 + std::abs(y[i])) * rng.normal();
+      if (std::isfinite(m.neg_log_post(y.data()))) {
+        x = y;
+        break;
+      }
+    }
+    w.col(k) = x;
+  }
   return w;
 }
 
@@ -626,7 +756,7 @@ FitResult run_fit(const FitModel& m, const FitOptions& opt, const std::string& r
   }
   if (!opt.sample) return res;
   Rng srng = Rng::for_star(opt.seed ^ 0x5a3c9e1fULL, rng_id);
-  const Eigen::MatrixXd start = initial_walkers(m, res.minima, opt.walkers, srng, res.init_ess);
+  const Eigen::MatrixXd start = initial_walkers(m, res.minima, opt.walkers, srng, rng_id, res.init_ess);
   EnsembleOptions eo = opt.sampler;
   eo.seed = srng.next();
   res.chain = run_ensemble([&m](const double* p) { return -m.neg_log_post(p); }, start, eo);

@@ -2,6 +2,7 @@
 // main only registers the subcommands, parses, and maps errors to exit codes.
 
 #include <CLI/CLI.hpp>
+#include <glog/logging.h>
 #include <iostream>
 
 #include "cli/commands.hpp"
@@ -16,10 +17,13 @@ int main(int argc, char** argv) {
       "astrometric catalogues, and tells an imaging team where to point."};
   app.set_version_flag("--version", heft::kVersion);
   app.require_subcommand(1);
+  // Ceres reports through glog; heft reports failures itself (as flags).
+  FLAGS_minloglevel = google::GLOG_FATAL;
   Runner run;
   setup_ingest(app, run);
   setup_screen(app, run);
   setup_curve(app, run);
+  setup_fit(app, run);
   setup_plot(app, run);
   setup_simulate(app, run);
   try {

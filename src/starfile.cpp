@@ -212,4 +212,44 @@ StarFile read_star_file(std::istream& in, const std::string& name, const WindowD
   return f;
 }
 
+std::string star_file_json(const StarFile& f) {
+  nlohmann::ordered_json j;
+  j["id"] = f.star.id;
+  nlohmann::ordered_json star;
+  StarRecord s = f.star;
+  for (const auto& n : star_field_names()) {
+    const double v = *star_field(s, n);
+    if (present(v)) star[n] = v;
+  }
+  j["star"] = star;
+  if (f.host_mass.kind == HostMassPrior::Kind::kNormal)
+    j["host_mass"] = {{"prior", "normal"}, {"mean_msun", f.host_mass.center_msun}, {"sigma_msun", f.host_mass.width}};
+  else
+    j["host_mass"] = {{"prior", "lognormal"}, {"median_msun", f.host_mass.center_msun}, {"sigma_dex", f.host_mass.width}};
+  nlohmann::ordered_json rel = nlohmann::ordered_json::array();
+  for (const auto& e : f.relative) {
+    nlohmann::ordered_json x = {{"epoch_yr", e.epoch_yr}};
+    if (e.polar) {
+      x["sep_mas"] = e.v1;
+      x["sep_error_mas"] = e.e1;
+      x["pa_deg"] = e.v2;
+      x["pa_error_deg"] = e.e2;
+    } else {
+      x["dra_mas"] = e.v1;
+      x["dra_error_mas"] = e.e1;
+      x["ddec_mas"] = e.v2;
+      x["ddec_error_mas"] = e.e2;
+    }
+    if (e.corr != 0.0) x["corr"] = e.corr;
+    rel.push_back(x);
+  }
+  j["relative_astrometry"] = rel;
+  nlohmann::ordered_json rv = nlohmann::ordered_json::array();
+  for (const auto& v : f.rv)
+    rv.push_back({{"epoch_yr", v.epoch_yr}, {"rv_m_s", v.rv_m_s}, {"error_m_s", v.error_m_s},
+                  {"instrument", f.instruments.at(v.instrument)}});
+  j["radial_velocities"] = rv;
+  return j.dump(1) + "\n";
+}
+
 }  // namespace heft

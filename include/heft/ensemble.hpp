@@ -14,9 +14,9 @@
 namespace heft {
 
 struct EnsembleOptions {
-  int steps = 4000;        ///< ensemble steps after burn-in
-  int burn = 1000;         ///< ensemble steps discarded first
-  int thin = 10;           ///< keep every thin-th step
+  int steps = 20000;       ///< ensemble steps after burn-in
+  int burn = 5000;         ///< ensemble steps discarded first
+  int thin = 50;           ///< keep every thin-th step
   double stretch = 2.0;    ///< scale a of the stretch move, z ~ 1/sqrt(z) on [1/a, a]
   std::uint64_t seed = 1;
 };

@@ -92,6 +92,17 @@ class FitModel {
   /// Log density of prior_draw's distribution at p (angles taken mod 2 pi).
   double prior_draw_log_density(const Eigen::VectorXd& p) const;
 
+  /// Parameters of an orbit draw (e.g. from heft curve): the barycentric PM
+  /// drawn given the orbit's reflex, RV offsets at their weighted best,
+  /// jitters at the median RV error.
+  Eigen::VectorXd from_orbit(const OrbitDraw& d, Rng& rng) const;
+  /// -ln L of the radial velocities alone (0 without RVs).
+  double rv_neg_log_like(const double* p) const;
+  /// The anomaly as heft curve sees it (for its Monte Carlo draws).
+  const AnomalyData& anomaly() const { return anomaly_; }
+  const FitOptions& options() const { return opt_; }
+  bool has_relative() const { return !rel_.empty(); }
+
   /// The posterior orbit at parameters p.
   OrbitDraw orbit(const double* p) const;
   std::vector<std::string> param_names() const;
@@ -99,6 +110,14 @@ class FitModel {
   const std::vector<std::string>& instruments() const { return instruments_; }
 
  private:
+  template <typename T>
+  Orbit<T> orbit_at(const T* p) const;
+  template <typename T>
+  T rv_residual(const Orbit<T>& o, const T& a, const T& q, const T* p, const RvPoint& v, T& extra) const;
+  template <typename T>
+  void model_pm(const Orbit<T>& o, const T& a, const T& q, const T& plx, const T& pmra, const T& pmdec,
+                T y[6]) const;
+
   Window early_, late_;
   double dt_yr_;
   Eigen::Matrix<double, 6, 1> pm_obs_;
@@ -114,6 +133,7 @@ class FitModel {
   FitOptions opt_;
   double ln_m_lo_, ln_m_hi_, ln_a_lo_, ln_a_hi_, ecc_max_;
   double ln_a_start_lo_, ln_a_start_hi_;
+  AnomalyData anomaly_;
   Eigen::Vector2d pml_obs_;
   Eigen::Matrix2d pml_cov_;
 };

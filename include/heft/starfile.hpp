@@ -54,4 +54,8 @@ inline constexpr double kEpochMinYr = 1900.0, kEpochMaxYr = 2200.0;
 /// `windows`.
 StarFile read_star_file(std::istream& in, const std::string& name, const WindowDefaults& windows = {});
 
+/// The star file as JSON text (the schema read_star_file reads; numbers in
+/// shortest round-trip form).
+std::string star_file_json(const StarFile& f);
+
 }  // namespace heft

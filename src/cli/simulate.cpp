@@ -18,6 +18,9 @@ struct SimulateCliOptions {
               companion_mass = "loguniform:1,80", a_au = "loguniform:1,100",
               ecc = "uniform:0,0.8";
   Eigen::Vector3d velocity = Eigen::Vector3d::Zero();
+  std::string star_file, star_file_id;
+  std::vector<double> imaging_epochs;
+  double sep_error_mas = 1.0, pa_error_deg = 0.2;
   int threads = 0;
   bool quiet = false;
 };
@@ -36,6 +39,28 @@ void add_catalogue_options(CLI::App* sub, const std::string& which, CatalogueMod
                   "PM errors, log-uniform LO,HI (mas/yr)")
       ->default_str(format_double(c.pm_error_lo_mas_yr) + "," +
                     format_double(c.pm_error_hi_mas_yr));
+}
+
+// The follow-up star file of one simulated star: its catalogue row, a normal
+// host-mass prior from its mass columns and imaging epochs of its companion.
+void write_star_file(const SimulateCliOptions& o) {
+  const SurveyModel& m = o.model;
+  if (o.star_file_id.empty() || o.imaging_epochs.empty())
+    throw CLI::ValidationError("--star-file needs --star-file-id and --imaging-epochs");
+  for (long i = 0; i < m.n_stars; ++i) {
+    if (simulated_id(m, i) != o.star_file_id) continue;
+    StarFile f;
+    SimTruth t;
+    simulate_star(m, i, f.star, t);
+    if (!t.companion) throw CLI::ValidationError("--star-file-id: star " + o.star_file_id + " has no companion");
+    f.host_mass = {HostMassPrior::Kind::kNormal, f.star.mass_msun, f.star.mass_error_msun};
+    Rng rng = Rng::for_star(m.seed ^ 0x1a6e5ULL, f.star.id);
+    for (double ep : o.imaging_epochs)
+      f.relative.push_back(observe_companion(t, f.star.late.epoch_yr, ep, o.sep_error_mas, o.pa_error_deg, rng));
+    write_file_atomic(o.star_file, star_file_json(f));
+    return;
+  }
+  throw CLI::ValidationError("--star-file-id: no simulated star '" + o.star_file_id + "'");
 }
 
 int run_simulate(SimulateCliOptions o) {
@@ -81,6 +106,7 @@ int run_simulate(SimulateCliOptions o) {
       if (truth) truth->write(trows[i]);
     }
   }
+  if (!o.star_file.empty()) write_star_file(o);
   out.commit();
   if (truth) truth->commit();
   if (!o.quiet)
@@ -102,6 +128,15 @@ void setup_simulate(CLI::App& app, Runner& run) {
   sub->add_option("--seed", m.seed, "random seed (one stream per (seed, star id))")->capture_default_str();
   sub->add_option("-o,--output", o->output, "star table (CSV); default stdout");
   sub->add_option("--truth", o->truth, "truth table (CSV): injected elements, noiseless anomalies");
+  sub->add_option("--star-file", o->star_file,
+                  "also write the follow-up star file (JSON, for heft fit) of --star-file-id");
+  sub->add_option("--star-file-id", o->star_file_id, "id of a star with a companion");
+  sub->add_option("--imaging-epochs", o->imaging_epochs, "epochs T1,T2,... of relative astrometry (yr)")
+      ->delimiter(',');
+  sub->add_option("--sep-error", o->sep_error_mas, "separation error of each epoch (mas)")
+      ->check(CLI::PositiveNumber)->capture_default_str();
+  sub->add_option("--pa-error", o->pa_error_deg, "position-angle error of each epoch (deg)")
+      ->check(CLI::PositiveNumber)->capture_default_str();
   sub->add_option("--id-prefix", m.id_prefix, "star id prefix")->capture_default_str();
   sub->add_option("--host-mass", o->host_mass, "host mass distribution (Msun)")->capture_default_str();
   sub->add_option("--host-mass-error", m.host_mass_rel_error,
