@@ -3,6 +3,8 @@
 
 #include <catch2/catch.hpp>
 #include <cmath>
+#include <fstream>
+#include <nlohmann/json.hpp>
 #include <sstream>
 
 #include "heft/error.hpp"
@@ -68,4 +70,146 @@ TEST_CASE("fit: optimiser recovers injected mass, a and e within the Ceres covar
     CHECK(std::abs(m) < 0.5);
     CHECK(std::abs(sd - 1.0) < 0.4);
   }
+}
+
+namespace {
+
+// A valid star of the default survey (no companion) and its screen result.
+ScreenRow plain_star(long index, StarRecord& star) {
+  SurveyModel sm;
+  sm.companion_fraction = 0.0;
+  sm.seed = 11;
+  SimTruth truth;
+  return test::simulate_and_screen(sm, index, star, truth);
+}
+
+}  // namespace
+
+TEST_CASE("fit: relative-astrometry model reproduces the visual-binary worked example", "[fit]") {
+  // Source: Meeus, Astronomical Algorithms (2nd ed.), ch. 57, Example 57.a
+  // (values from memory): eta CrB, P = 41.623 yr, T = 1934.008, e = 0.2763,
+  // a = 0.907", i = 59.025, Omega = 23.717, omega = 219.907 deg; at 1980.0
+  // theta = 318.4 deg, rho = 0.411". The same epoch is given in both forms.
+  StarRecord star;
+  const ScreenRow row = plain_star(0, star);
+  REQUIRE(row.ok());
+  const double plx = 50.0, a_au = 907.0 / plx, per = 41.623;
+  const double mt = units::kTwoPi * units::kTwoPi * a_au * a_au * a_au / (units::kGMSunAu3Yr2 * per * per);
+  const double m2_mjup = 1.0, m1 = mt - m2_mjup / units::kMjupPerMsun;
+  StarFile f;
+  f.star = star;
+  f.host_mass = {HostMassPrior::Kind::kNormal, m1, 0.01};
+  const double th = 318.4 * units::kPi / 180.0;
+  f.relative.push_back({1980.0, true, 411.0, 318.4, 0.5, 0.05, 0.0});
+  f.relative.push_back({1980.0, false, 411.0 * std::sin(th), 411.0 * std::cos(th), 0.5, 0.5, 0.0});
+  const FitModel m(f, row.result, FitOptions{});
+  const double w = units::deg_to_rad(219.907), node = units::deg_to_rad(23.717), e = 0.2763;
+  const double mean_ref = units::kTwoPi * (star.late.epoch_yr - 1934.008) / per;
+  std::vector<double> p = {std::log(m2_mjup), std::log(a_au), std::sqrt(e) * std::cos(w), std::sqrt(e) * std::sin(w),
+                           std::cos(units::deg_to_rad(59.025)), node, mean_ref + w + node, m1, plx,
+                           row.result.pml_late_mas_yr[0], row.result.pml_late_mas_yr[1]};
+  std::vector<double> r(m.n_residuals());
+  double extra = 0.0;
+  REQUIRE(m.evaluate(p.data(), r.data(), extra));
+  const OrbitDraw o = m.orbit(p.data());
+  CHECK(o.period_yr == Approx(per).epsilon(1e-4));
+  // Residuals 6-9: (sep, PA) then (dRA*, dDec); handbook rounding is 0.05 deg
+  // and 0.5 mas, i.e. |r| < 1.
+  for (int k = 6; k < 10; ++k) {
+    INFO("residual " << k << " = " << r[k]);
+    CHECK(std::abs(r[k]) < 1.0);
+  }
+}
+
+TEST_CASE("fit: no signal, no imaging gives an upper limit that matches heft curve and ignores m_min", "[fit]") {
+  // Consistency with the Monte Carlo curve (same anomaly model and prior,
+  // uniform in mass for upper limits); the comparison tolerance covers the
+  // two Monte Carlo errors (common practice, no source).
+  StarRecord star;
+  ScreenRow row;
+  long i = 0;
+  do row = plain_star(i++, star); while (!(row.ok() && row.result.sig_joint < 1.5));
+  bool ok = false;
+  const StarFile f = star_file_of(star, kAbsent, kAbsent, ok);
+  REQUIRE(ok);
+  FitOptions opt;
+  opt.a_min_au = 2.0;
+  opt.a_max_au = 50.0;
+  opt.walkers = 32;
+  opt.sampler.steps = 6000;
+  opt.sampler.burn = 2000;
+  opt.sampler.thin = 10;
+  opt.starts = 8;
+  auto upper95 = [&](double m_min) {
+    FitOptions o = opt;
+    o.m_min_mjup = m_min;
+    const FitModel m(f, row.result, o);
+    REQUIRE(m.upper_limit());
+    const FitResult r = run_fit(m, o, star.id);
+    std::vector<double> mass;
+    for (Eigen::Index k = 0; k < r.chain.samples.rows(); ++k) {
+      const Eigen::VectorXd p = r.chain.samples.row(k).transpose();
+      mass.push_back(std::exp(p[kLnMass]));
+    }
+    std::sort(mass.begin(), mass.end());
+    return mass[static_cast<std::size_t>(0.95 * (mass.size() - 1))];
+  };
+  const double fit_lo = upper95(0.1), fit_hi = upper95(10.0);
+  CHECK(fit_hi == Approx(fit_lo).epsilon(0.05));
+
+  const FitModel m(f, row.result, opt);
+  CurveOptions co;
+  co.a_au = log_grid(opt.a_min_au, opt.a_max_au, 24);
+  co.keep_draws = true;
+  co.draws = 2048;
+  const Curve c = montecarlo_curve(m.anomaly(), co, star.id);
+  REQUIRE(c.upper_limit);
+  std::vector<std::pair<double, double>> mw;
+  for (const auto& d : c.draws) mw.emplace_back(d.mass_mjup, d.weight);
+  std::sort(mw.begin(), mw.end());
+  double acc = 0.0, curve95 = 0.0;
+  for (const auto& [mass, w] : mw)
+    if ((acc += w) >= 0.95) {
+      curve95 = mass;
+      break;
+    }
+  INFO("fit 95% upper limit " << fit_lo << " MJup, curve " << curve95 << " MJup");
+  CHECK(fit_lo == Approx(curve95).epsilon(0.2));
+}
+
+TEST_CASE("fit: star-file errors name the JSON path and the rule", "[fit]") {
+  // Common practice, no source: each rule of docs/formats.md, "Star file".
+  std::ifstream good(std::string(HEFT_SOURCE_DIR) + "/demo/followup/KMG-00754.json");
+  const nlohmann::json base = nlohmann::json::parse(good);
+  auto error_of = [](const nlohmann::json& j) {
+    std::istringstream in(j.dump());
+    try {
+      read_star_file(in, "t.json");
+    } catch (const InputError& e) {
+      return std::string(e.what());
+    }
+    return std::string();
+  };
+  CHECK(error_of(base).empty());
+  nlohmann::json j = base;
+  j["star"].erase("late_pmra");
+  CHECK_THAT(error_of(j), Catch::Contains("/star/late_pmra") && Catch::Contains("missing"));
+  j = base;
+  j["relative_astrometry"][1]["sep_arcsec"] = 0.07;
+  j["relative_astrometry"][1].erase("sep_mas");
+  CHECK_THAT(error_of(j), Catch::Contains("/relative_astrometry/1/sep_arcsec") && Catch::Contains("wrong unit"));
+  j = base;
+  j["relative_astrometry"][0]["seeing"] = 0.7;
+  CHECK_THAT(error_of(j), Catch::Contains("/relative_astrometry/0/seeing") && Catch::Contains("unknown key"));
+  j = base;
+  j["relative_astrometry"][2]["epoch_yr"] = 26.88;
+  CHECK_THAT(error_of(j), Catch::Contains("/relative_astrometry/2/epoch_yr") && Catch::Contains("plausible"));
+  j = base;
+  j["radial_velocities"] = {{{"epoch_yr", 2020.0}, {"rv_m_s", 3.0}, {"error_m_s", -1.0}, {"instrument", "A"}}};
+  CHECK_THAT(error_of(j), Catch::Contains("/radial_velocities/0/error_m_s") && Catch::Contains("> 0"));
+  j = base;
+  j["host_mass"] = {{"prior", "normal"}, {"mean_msun", 0.4}};
+  CHECK_THAT(error_of(j), Catch::Contains("/host_mass/sigma_msun"));
+  std::istringstream broken("{\"id\": \"x\",");
+  CHECK_THROWS_AS(read_star_file(broken, "t.json"), InputError);
 }
