@@ -11,6 +11,29 @@
 
 namespace heft {
 
+namespace {
+
+// Burn-in only: a walker stranded far below the ensemble (stretch moves
+// towards the others cross low-density ground and are all rejected) is
+// moved onto a random walker of the better half with a small jitter.
+void rescue_stranded(Eigen::MatrixXd& pos, std::vector<double>& lp, Rng& rng) {
+  const int dim = static_cast<int>(pos.rows()), nw = static_cast<int>(pos.cols());
+  std::vector<double> sorted = lp;
+  std::nth_element(sorted.begin(), sorted.begin() + nw / 2, sorted.end());
+  const double median = sorted[nw / 2];
+  const Eigen::VectorXd spread =
+      ((pos.colwise() - pos.rowwise().mean()).array().square().rowwise().mean()).sqrt().matrix();
+  for (int k = 0; k < nw; ++k) {
+    if (lp[k] >= median - 2.0 * dim - 10.0) continue;
+    int j;
+    do j = static_cast<int>(rng.uniform() * nw); while (!(lp[j] >= median));
+    for (int d = 0; d < dim; ++d) pos(d, k) = pos(d, j) + 1e-3 * spread[d] * rng.normal();
+    lp[k] = lp[j];  // refreshed by the next accepted move; jitter is tiny
+  }
+}
+
+}  // namespace
+
 EnsembleChain run_ensemble(const std::function<double(const double*)>& log_prob,
                            const Eigen::MatrixXd& start, const EnsembleOptions& opt) {
   const int dim = static_cast<int>(start.rows()), nw = static_cast<int>(start.cols());
@@ -54,7 +77,10 @@ EnsembleChain run_ensemble(const std::function<double(const double*)>& log_prob,
         }
       }
     }
-    if (step < opt.burn) continue;
+    if (step < opt.burn) {
+      if ((step + 1) % std::max(1, opt.burn / 4) == 0) rescue_stranded(pos, lp, rng[0]);
+      continue;
+    }
     accepted += acc_step;
     const int t = step - opt.burn;
     for (int d = 0; d < dim; ++d) series[d].row(t) = pos.row(d);

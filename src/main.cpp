@@ -24,6 +24,7 @@ int main(int argc, char** argv) {
   setup_screen(app, run);
   setup_curve(app, run);
   setup_fit(app, run);
+  setup_predict(app, run);
   setup_plot(app, run);
   setup_simulate(app, run);
   try {

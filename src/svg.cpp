@@ -144,4 +144,89 @@ std::string LogLogPlot::str() const {
   return s;
 }
 
+namespace {
+constexpr double kMapSize = 560, kMapLeft = 80, kMapTop = 60;
+}  // namespace
+
+SkyMap::SkyMap(double half_mas, std::string title) : half_(half_mas), title_(std::move(title)) {}
+
+double SkyMap::px(double east_mas) const { return kMapLeft + kMapSize * (half_ - east_mas) / (2 * half_); }
+double SkyMap::py(double north_mas) const { return kMapTop + kMapSize * (half_ - north_mas) / (2 * half_); }
+
+void SkyMap::image(const std::vector<double>& density, int n) {
+  double peak = 0.0;
+  for (double v : density) peak = std::max(peak, v);
+  if (!(peak > 0)) return;
+  const double cell = 2 * half_ / n;
+  for (int j = 0; j < n; ++j)
+    for (int i = 0; i < n; ++i) {
+      const double v = density[static_cast<std::size_t>(j) * n + i] / peak;
+      if (!(v > 0.002)) continue;
+      // White (255,255,255) to dark blue (8,48,107).
+      auto ch = [v](double hi, double lo) { return static_cast<int>(std::lround(hi + (lo - hi) * v)); };
+      char col[16];
+      std::snprintf(col, sizeof col, "#%02x%02x%02x", ch(255, 8), ch(255, 48), ch(255, 107));
+      const double east_hi = -half_ + (i + 1) * cell, north_hi = -half_ + (j + 1) * cell;
+      body_ += "<rect x=\"" + num(px(east_hi)) + "\" y=\"" + num(py(north_hi)) + "\" width=\"" +
+               num(kMapSize / n + 0.3) + "\" height=\"" + num(kMapSize / n + 0.3) + "\" fill=\"" + col + "\"/>\n";
+    }
+}
+
+void SkyMap::circle(double r_mas, const std::string& label, const std::string& stroke, bool dashed) {
+  if (!(r_mas > 0 && r_mas < 1.5 * half_)) return;
+  body_ += "<circle clip-path=\"url(#map)\" cx=\"" + num(px(0)) + "\" cy=\"" + num(py(0)) + "\" r=\"" +
+           num(kMapSize * r_mas / (2 * half_)) + "\" fill=\"none\" stroke=\"" + stroke + "\" stroke-width=\"1.5\"" +
+           (dashed ? " stroke-dasharray=\"6,4\"" : "") + "/>\n";
+  body_ += "<text x=\"" + num(px(0) + 4) + "\" y=\"" + num(py(r_mas) - 4) + "\" font-size=\"12\" fill=\"" + stroke +
+           "\">" + xml_escape(label) + "</text>\n";
+}
+
+std::string SkyMap::str() const {
+  const double w = kMapLeft + kMapSize + 40, h = kMapTop + kMapSize + 60;
+  std::string s = "<?xml version=\"1.0\" encoding=\"UTF-8\"?>\n";
+  s += "<svg xmlns=\"http://www.w3.org/2000/svg\" width=\"" + num(w) + "\" height=\"" + num(h) + "\" viewBox=\"0 0 " +
+       num(w) + " " + num(h) + "\" font-family=\"DejaVu Sans, sans-serif\">\n";
+  s += "<rect width=\"100%\" height=\"100%\" fill=\"white\"/>\n";
+  s += "<defs><clipPath id=\"map\"><rect x=\"" + num(kMapLeft) + "\" y=\"" + num(kMapTop) + "\" width=\"" +
+       num(kMapSize) + "\" height=\"" + num(kMapSize) + "\"/></clipPath></defs>\n";
+  s += "<g clip-path=\"url(#map)\">\n" + body_ + "</g>\n";
+  // Ticks: a round step giving about five intervals per half.
+  const double raw = half_ / 4, mag = std::pow(10.0, std::floor(std::log10(raw)));
+  const double step = raw / mag < 2 ? 2 * mag : (raw / mag < 5 ? 5 * mag : 10 * mag);
+  for (double v = -std::floor(half_ / step) * step; v <= half_ + 1e-9; v += step) {
+    char b[32];
+    std::snprintf(b, sizeof b, "%g", std::abs(v) < 1e-9 ? 0.0 : v);
+    s += "<line x1=\"" + num(px(v)) + "\" x2=\"" + num(px(v)) + "\" y1=\"" + num(kMapTop + kMapSize) + "\" y2=\"" +
+         num(kMapTop + kMapSize + 6) + "\" stroke=\"black\"/>\n";
+    s += "<text x=\"" + num(px(v)) + "\" y=\"" + num(kMapTop + kMapSize + 20) + "\" font-size=\"12\" text-anchor=\"middle\">" +
+         b + "</text>\n";
+    s += "<line x1=\"" + num(kMapLeft - 6) + "\" x2=\"" + num(kMapLeft) + "\" y1=\"" + num(py(v)) + "\" y2=\"" +
+         num(py(v)) + "\" stroke=\"black\"/>\n";
+    s += "<text x=\"" + num(kMapLeft - 9) + "\" y=\"" + num(py(v) + 4) + "\" font-size=\"12\" text-anchor=\"end\">" + b +
+         "</text>\n";
+  }
+  s += "<rect x=\"" + num(kMapLeft) + "\" y=\"" + num(kMapTop) + "\" width=\"" + num(kMapSize) + "\" height=\"" +
+       num(kMapSize) + "\" fill=\"none\" stroke=\"black\"/>\n";
+  // The star, and a compass: north up, east left.
+  s += "<path d=\"M" + num(px(0)) + " " + num(py(0) - 7) + " L" + num(px(0) + 2) + " " + num(py(0) - 2) + " L" +
+       num(px(0) + 7) + " " + num(py(0)) + " L" + num(px(0) + 2) + " " + num(py(0) + 2) + " L" + num(px(0)) + " " +
+       num(py(0) + 7) + " L" + num(px(0) - 2) + " " + num(py(0) + 2) + " L" + num(px(0) - 7) + " " + num(py(0)) +
+       " L" + num(px(0) - 2) + " " + num(py(0) - 2) + " Z\" fill=\"#e6550d\"/>\n";
+  const double cx = kMapLeft + kMapSize - 30, cy = kMapTop + 50;
+  s += "<line x1=\"" + num(cx) + "\" y1=\"" + num(cy) + "\" x2=\"" + num(cx) + "\" y2=\"" + num(cy - 30) +
+       "\" stroke=\"black\" stroke-width=\"1.5\"/><text x=\"" + num(cx) + "\" y=\"" + num(cy - 34) +
+       "\" font-size=\"13\" text-anchor=\"middle\">N</text>\n";
+  s += "<line x1=\"" + num(cx) + "\" y1=\"" + num(cy) + "\" x2=\"" + num(cx - 30) + "\" y2=\"" + num(cy) +
+       "\" stroke=\"black\" stroke-width=\"1.5\"/><text x=\"" + num(cx - 36) + "\" y=\"" + num(cy + 4) +
+       "\" font-size=\"13\" text-anchor=\"end\">E</text>\n";
+  s += "<text x=\"" + num(kMapLeft + kMapSize / 2) + "\" y=\"" + num(kMapTop + kMapSize + 44) +
+       "\" font-size=\"14\" text-anchor=\"middle\">offset east, &#916;&#945;* (mas; east to the left)</text>\n";
+  s += "<text transform=\"translate(" + num(kMapLeft - 52) + "," + num(kMapTop + kMapSize / 2) +
+       ") rotate(-90)\" font-size=\"14\" text-anchor=\"middle\">offset north, &#916;&#948; (mas)</text>\n";
+  s += "<text x=\"" + num(kMapLeft + kMapSize / 2) + "\" y=\"" + num(kMapTop - 22) +
+       "\" font-size=\"15\" text-anchor=\"middle\">" + xml_escape(title_) + "</text>\n";
+  s += "</svg>\n";
+  return s;
+}
+
 }  // namespace heft

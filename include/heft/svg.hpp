@@ -39,6 +39,26 @@ class LogLogPlot {
   std::vector<std::pair<std::string, std::string>> legend_;
 };
 
+/// A square sky map centred on the star: east to the left, north up (as on
+/// the sky), linear offsets in mas, a density image, circles and a compass.
+class SkyMap {
+ public:
+  SkyMap(double half_mas, std::string title);
+  /// A density image on n x n cells over the map (index j * n + i, i
+  /// eastwards, j northwards, as SkyPrediction::density), shaded linearly
+  /// from white to dark blue up to its maximum.
+  void image(const std::vector<double>& density, int n);
+  /// A circle of radius r_mas around the star, labelled.
+  void circle(double r_mas, const std::string& label, const std::string& stroke, bool dashed);
+  std::string str() const;
+
+ private:
+  double px(double east_mas) const;
+  double py(double north_mas) const;
+  double half_;
+  std::string title_, body_;
+};
+
 /// Escapes text for SVG/XML.
 std::string xml_escape(const std::string& s);
 

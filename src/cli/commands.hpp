@@ -8,6 +8,7 @@ namespace heft::cli {
 void setup_ingest(CLI::App& app, Runner& run);
 void setup_curve(CLI::App& app, Runner& run);
 void setup_fit(CLI::App& app, Runner& run);
+void setup_predict(CLI::App& app, Runner& run);
 void setup_plot(CLI::App& app, Runner& run);
 void setup_screen(CLI::App& app, Runner& run);
 void setup_simulate(CLI::App& app, Runner& run);

@@ -2,6 +2,7 @@
 // mass-separation constraints of one star.
 
 #include <algorithm>
+#include <array>
 #include <cmath>
 #include <memory>
 
@@ -20,6 +21,52 @@ struct PlotCurveOptions {
 struct Row {
   double a, sep, lo95, lo68, med, hi68, hi95;
 };
+
+struct PlotSkyOptions {
+  std::string input, output = "-", id;
+  double date_yr = kAbsent, iwa_mas = 0.0, owa_mas = 0.0;
+};
+
+// The density map of one star and date from heft predict --grid.
+int run_plot_sky(const PlotSkyOptions& o) {
+  InputFile in(o.input);
+  ColumnTable t(in.stream(), in.name(), {"id", "date_yr", "dra_mas", "ddec_mas", "density_per_mas2"});
+  const int c_id = t.index("id"), c_date = t.index("date_yr"), c_e = t.index("dra_mas"), c_n = t.index("ddec_mas"),
+            c_d = t.index("density_per_mas2");
+  std::string id = o.id;
+  double date = o.date_yr;
+  std::vector<std::array<double, 3>> cells;
+  while (t.next()) {
+    if (id.empty()) id = std::string(t.text(c_id));
+    if (t.text(c_id) != id) continue;
+    const double d = t.number(c_date);
+    if (!present(date)) date = d;
+    if (std::abs(d - date) > 1e-9) continue;
+    const double v = t.number(c_d);
+    if (v < 0) t.fail(c_d, "density must be >= 0");
+    cells.push_back({t.number(c_e), t.number(c_n), v});
+  }
+  const int n = static_cast<int>(std::lround(std::sqrt(static_cast<double>(cells.size()))));
+  if (cells.empty() || static_cast<std::size_t>(n) * n != cells.size())
+    throw InputError(in.name(), 0, 0, "no square density map for star '" + id + "' at the date");
+  double lo = 1e300, hi = -1e300;
+  for (const auto& c : cells) {
+    lo = std::min(lo, c[0]);
+    hi = std::max(hi, c[0]);
+  }
+  const double cell = n > 1 ? (hi - lo) / (n - 1) : 1.0, half = (hi - lo + cell) / 2;
+  std::vector<double> density(cells.size(), 0.0);
+  for (const auto& c : cells) {
+    const int i = static_cast<int>(std::floor((c[0] + half) / cell)), j = static_cast<int>(std::floor((c[1] + half) / cell));
+    if (i >= 0 && i < n && j >= 0 && j < n) density[static_cast<std::size_t>(j) * n + i] = c[2];
+  }
+  SkyMap map(half, "heft predict: " + id + " at " + format_double(date));
+  map.image(density, n);
+  if (o.iwa_mas > 0) map.circle(o.iwa_mas, "inner working angle", "#a63603", true);
+  if (o.owa_mas > 0) map.circle(o.owa_mas, "outer working angle", "#54278f", true);
+  write_file_atomic(o.output, map.str());
+  return kOk;
+}
 
 int run_plot_curve(const PlotCurveOptions& o) {
   InputFile in(o.input);
@@ -113,6 +160,18 @@ void setup_plot(CLI::App& app, Runner& run) {
   sub->add_option("--id", o->id, "star to plot (default: the first in the table)");
   sub->add_option("-o,--output", o->output, "SVG file; default stdout");
   sub->callback([o, &run] { run = [o] { return run_plot_curve(*o); }; });
+
+  auto k = std::make_shared<PlotSkyOptions>();
+  CLI::App* sky = plot->add_subcommand(
+      "sky", "Where the companion probably is at a date: the density map of heft predict --grid, north up, "
+             "east left, star at the centre, working-angle circles.");
+  sky->add_option("grid", k->input, "density map from heft predict --grid (CSV; '-' = stdin)")->required();
+  sky->add_option("--id", k->id, "star to plot (default: the first in the map)");
+  sky->add_option("--date", k->date_yr, "date to plot (decimal yr; default: the first in the map)");
+  sky->add_option("--iwa", k->iwa_mas, "inner working angle circle (mas)")->check(CLI::NonNegativeNumber);
+  sky->add_option("--owa", k->owa_mas, "outer working angle circle (mas)")->check(CLI::NonNegativeNumber);
+  sky->add_option("-o,--output", k->output, "SVG file; default stdout");
+  sky->callback([k, &run] { run = [k] { return run_plot_sky(*k); }; });
 }
 
 }  // namespace heft::cli

@@ -1,0 +1,59 @@
+#pragma once
+/// \file predict.hpp
+/// Where the companion is on the sky at a date, from weighted orbit draws
+/// (heft fit --samples or heft curve --keep-draws): separation quantiles,
+/// position angle with circular statistics (modes, shortest 68 % arc), the
+/// probability of lying between two working angles, and a density map.
+
+#include <limits>
+#include <vector>
+
+#include "heft/draws.hpp"
+
+namespace heft {
+
+/// Offset of the companion from the host (mas): east = Delta alpha*, north =
+/// Delta delta; its separation (mas) and position angle (deg, [0, 360),
+/// north through east).
+struct SkyOffset {
+  double east_mas, north_mas, sep_mas, pa_deg, weight;
+};
+
+/// The companion's offset for each draw at date_yr (docs/orbits.md).
+std::vector<SkyOffset> sky_offsets(const std::vector<OrbitDraw>& draws, double date_yr);
+
+struct PredictOptions {
+  double iwa_mas = 0.0;                                        ///< inner working angle
+  double owa_mas = std::numeric_limits<double>::infinity();    ///< outer working angle
+  int grid_n = 101;             ///< cells per side of the density map
+  double grid_half_mas = 0.0;   ///< half width of the map; 0 = automatic
+};
+
+struct SkyPrediction {
+  double date_yr = 0.0;
+  double ess = 0.0;             ///< effective number of draws
+  double sep_q[5] = {};         ///< separation quantiles 2.5, 16, 50, 84, 97.5 % (mas)
+  double pa_mean_deg = 0.0;     ///< circular mean of the position angle
+  double pa_resultant = 0.0;    ///< mean resultant length R (1: one direction, 0: uniform)
+  /// Modes of the position-angle density (smoothed with a 5 deg Gaussian
+  /// kernel; maxima above a quarter of the highest), strongest first.
+  std::vector<double> pa_modes_deg;
+  double pa_arc68_start_deg = 0.0;  ///< shortest arc with 68 % of the weight, from its start
+  double pa_arc68_width_deg = 0.0;  ///< through increasing position angle
+  double p_in_wa = 0.0;         ///< P(iwa <= sep <= owa)
+  /// Density map (per mas^2): cell (i, j) is centred at east =
+  /// -h + (i + 0.5) 2h / n, north = -h + (j + 0.5) 2h / n; index j * n + i.
+  double grid_half_mas = 0.0;
+  int grid_n = 0;
+  std::vector<double> density;
+};
+
+/// Summary of the draws at one date. Weights need not be normalised.
+SkyPrediction predict_sky(const std::vector<OrbitDraw>& draws, double date_yr, const PredictOptions& opt);
+
+/// Shortest arc (deg) holding `fraction` of the weight of angles `deg`
+/// (any values; taken mod 360): start and width through increasing angle.
+void shortest_arc(std::vector<std::pair<double, double>> deg_weight, double fraction, double& start_deg,
+                  double& width_deg);
+
+}  // namespace heft

@@ -1,0 +1,136 @@
+// heft predict: the companion's separation and position angle at dates.
+
+#include <memory>
+
+#include "cli/commands.hpp"
+#include "heft/error.hpp"
+#include "heft/io.hpp"
+#include "heft/predict.hpp"
+#include "heft/version.hpp"
+
+namespace heft::cli {
+namespace {
+
+struct PredictCliOptions {
+  std::string input, output = "-", json, grid, id;
+  std::vector<double> dates;
+  PredictOptions predict;
+  bool quiet = false;
+};
+
+std::string modes_text(const std::vector<double>& modes) {
+  std::string s;
+  for (double m : modes) {
+    if (!s.empty()) s += '|';
+    append_double(s, m);
+  }
+  return s;
+}
+
+int run_predict(const PredictCliOptions& o) {
+  if (!(o.predict.iwa_mas < o.predict.owa_mas)) throw CLI::ValidationError("--iwa must be below --owa");
+  InputFile in(o.input);
+  const std::vector<StarDraws> stars = read_draws(in.stream(), in.name());
+  AtomicOutput out(o.output);
+  std::unique_ptr<AtomicOutput> json, grid;
+  if (!o.json.empty()) json = std::make_unique<AtomicOutput>(o.json);
+  if (!o.grid.empty()) grid = std::make_unique<AtomicOutput>(o.grid);
+  out.write(
+      "id,date_yr,n_draws,ess,sep_lo95,sep_lo68,sep_med,sep_hi68,sep_hi95,pa_mean_deg,pa_resultant,"
+      "pa_modes_deg,pa_arc68_start_deg,pa_arc68_width_deg,p_in_wa\n");
+  if (grid) grid->write("id,date_yr,dra_mas,ddec_mas,density_per_mas2\n");
+  nlohmann::ordered_json jstars = nlohmann::ordered_json::array();
+  bool found = false;
+  for (const auto& st : stars) {
+    if (!o.id.empty() && st.id != o.id) continue;
+    found = true;
+    for (double date : o.dates) {
+      const SkyPrediction p = predict_sky(st.draws, date, o.predict);
+      std::string row;
+      append_csv_field(row, st.id);
+      for (double v : {date, static_cast<double>(st.draws.size()), p.ess, p.sep_q[0], p.sep_q[1], p.sep_q[2],
+                       p.sep_q[3], p.sep_q[4], p.pa_mean_deg, p.pa_resultant}) {
+        row += ',';
+        append_double(row, v);
+      }
+      row += ',' + modes_text(p.pa_modes_deg);
+      for (double v : {p.pa_arc68_start_deg, p.pa_arc68_width_deg, p.p_in_wa}) {
+        row += ',';
+        append_double(row, v);
+      }
+      out.write(row + '\n');
+      if (grid) {
+        std::string g;
+        const int n = p.grid_n;
+        const double cell = 2.0 * p.grid_half_mas / n;
+        for (int j = 0; j < n; ++j)
+          for (int i = 0; i < n; ++i) {
+            append_csv_field(g, st.id);
+            for (double v : {date, -p.grid_half_mas + (i + 0.5) * cell, -p.grid_half_mas + (j + 0.5) * cell,
+                             p.density[static_cast<std::size_t>(j) * n + i]}) {
+              g += ',';
+              append_double(g, v);
+            }
+            g += '\n';
+          }
+        grid->write(g);
+      }
+      if (json)
+        jstars.push_back({{"id", st.id},
+                          {"date_yr", date},
+                          {"n_draws", st.draws.size()},
+                          {"ess", p.ess},
+                          {"sep_mas", {{"q2.5", p.sep_q[0]}, {"q16", p.sep_q[1]}, {"q50", p.sep_q[2]},
+                                       {"q84", p.sep_q[3]}, {"q97.5", p.sep_q[4]}}},
+                          {"pa_deg", {{"circular_mean", p.pa_mean_deg}, {"resultant", p.pa_resultant},
+                                      {"modes", p.pa_modes_deg}, {"arc68_start", p.pa_arc68_start_deg},
+                                      {"arc68_width", p.pa_arc68_width_deg}}},
+                          {"p_in_wa", p.p_in_wa}});
+    }
+  }
+  if (!o.id.empty() && !found) throw InputError(in.name(), 0, 0, "no draws of star '" + o.id + "'");
+  if (json) {
+    nlohmann::ordered_json j = {{"predictions", jstars},
+                                {"run", {{"heft_version", kVersion}, {"command", "predict"}, {"input", in.name()},
+                                         {"iwa_mas", o.predict.iwa_mas},
+                                         {"owa_mas", std::isfinite(o.predict.owa_mas) ? nlohmann::ordered_json(o.predict.owa_mas)
+                                                                                      : nlohmann::ordered_json(nullptr)}}}};
+    json->write(j.dump() + "\n");
+    json->commit();
+  }
+  if (grid) grid->commit();
+  out.commit();
+  if (!o.quiet) message("predict", std::to_string(found ? stars.size() : 0) + " stars x " + std::to_string(o.dates.size()) + " dates");
+  return kOk;
+}
+
+}  // namespace
+
+void setup_predict(CLI::App& app, Runner& run) {
+  auto o = std::make_shared<PredictCliOptions>();
+  CLI::App* sub = app.add_subcommand(
+      "predict",
+      "Where the companion is at given dates, from weighted orbit draws (heft fit --samples, heft "
+      "curve --keep-draws): separation (mas), position angle (deg) and the chance of lying between "
+      "two working angles.");
+  sub->add_option("draws", o->input, "orbit-draw table (CSV; '-' = stdin)")->required();
+  sub->add_option("--date", o->dates, "dates D1,D2,... (decimal Julian years)")->delimiter(',')->required();
+  sub->add_option("--id", o->id, "only this star");
+  sub->add_option("--iwa", o->predict.iwa_mas, "inner working angle (mas)")->check(CLI::NonNegativeNumber)->capture_default_str();
+  sub->add_option("--owa", o->predict.owa_mas, "outer working angle (mas; default none)")->check(CLI::PositiveNumber);
+  sub->add_option("-o,--output", o->output, "summary table (CSV); default stdout");
+  sub->add_option("--json", o->json, "also write the summary as JSON");
+  sub->add_option("--grid", o->grid, "2-D density map (CSV: id, date_yr, dra_mas, ddec_mas, density_per_mas2)");
+  sub->add_option("--grid-size", o->predict.grid_n, "cells per side of the map")->check(CLI::Range(4, 2000))->capture_default_str();
+  sub->add_option("--grid-extent", o->predict.grid_half_mas, "half width of the map (mas; default: 1.1 x the 99 % separation)")
+      ->check(CLI::PositiveNumber);
+  sub->add_flag("-q,--quiet", o->quiet, "no informational messages");
+  sub->footer(
+      "Columns: id, date_yr, n_draws, ess (effective draws), sep_lo95, sep_lo68, sep_med, sep_hi68, sep_hi95 "
+      "(mas; 2.5/16/50/84/97.5 %), pa_mean_deg (circular mean), pa_resultant (mean resultant length), "
+      "pa_modes_deg (modes, strongest first, '|'-separated), pa_arc68_start_deg and pa_arc68_width_deg "
+      "(shortest arc holding 68 %, through increasing PA), p_in_wa (probability iwa <= sep <= owa).");
+  sub->callback([o, &run] { run = [o] { return run_predict(*o); }; });
+}
+
+}  // namespace heft::cli

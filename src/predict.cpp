@@ -1,0 +1,132 @@
+#include "heft/predict.hpp"
+
+#include <algorithm>
+#include <cmath>
+
+#include "heft/kepler.hpp"
+
+namespace heft {
+
+std::vector<SkyOffset> sky_offsets(const std::vector<OrbitDraw>& draws, double date_yr) {
+  std::vector<SkyOffset> out;
+  out.reserve(draws.size());
+  for (const auto& d : draws) {
+    const Orbit<double> o{d.period_yr,
+                          d.ecc,
+                          units::deg_to_rad(d.inc_deg),
+                          units::deg_to_rad(d.arg_peri_deg),
+                          units::deg_to_rad(d.node_deg),
+                          units::deg_to_rad(d.mean_anom_deg),
+                          d.ref_epoch_yr};
+    const OrbitPoint<double> p = orbit_point(o, date_yr);
+    const double s = d.a_au * d.parallax_mas;
+    double sep, pa;
+    separation_pa(s * p.x, s * p.y, sep, pa);
+    out.push_back({s * p.y, s * p.x, sep, units::rad_to_deg(pa), d.weight});
+  }
+  return out;
+}
+
+void shortest_arc(std::vector<std::pair<double, double>> a, double fraction, double& start_deg, double& width_deg) {
+  start_deg = 0.0;
+  width_deg = 360.0;
+  if (a.empty()) return;
+  double total = 0.0;
+  for (auto& [x, w] : a) {
+    x = std::fmod(std::fmod(x, 360.0) + 360.0, 360.0);
+    total += w;
+  }
+  std::sort(a.begin(), a.end());
+  const std::size_t n = a.size();
+  // Two pointers over the circle unrolled once: arc from a[i] to a[j mod n].
+  double acc = 0.0;
+  std::size_t j = 0;
+  for (std::size_t i = 0; i < n; ++i) {
+    if (j < i) {
+      j = i;
+      acc = 0.0;
+    }
+    while (acc < fraction * total && j < i + n) {
+      acc += a[j % n].second;
+      ++j;
+    }
+    if (acc < fraction * total) break;
+    const double end = a[(j - 1) % n].first + (j - 1 >= n ? 360.0 : 0.0);
+    const double width = end - a[i].first;
+    if (width < width_deg) {
+      width_deg = width;
+      start_deg = a[i].first;
+    }
+    acc -= a[i].second;
+  }
+}
+
+namespace {
+
+double weighted_quantile(const std::vector<std::pair<double, double>>& sorted, double total, double p) {
+  double acc = 0.0;
+  for (const auto& [x, w] : sorted) {
+    acc += w;
+    if (acc >= p * total) return x;
+  }
+  return sorted.back().first;
+}
+
+}  // namespace
+
+SkyPrediction predict_sky(const std::vector<OrbitDraw>& draws, double date_yr, const PredictOptions& opt) {
+  SkyPrediction r;
+  r.date_yr = date_yr;
+  const std::vector<SkyOffset> off = sky_offsets(draws, date_yr);
+  double sw = 0.0, sw2 = 0.0, c = 0.0, s = 0.0, in = 0.0;
+  std::vector<std::pair<double, double>> sep, pa;
+  for (const auto& o : off) {
+    sw += o.weight;
+    sw2 += o.weight * o.weight;
+    sep.emplace_back(o.sep_mas, o.weight);
+    pa.emplace_back(o.pa_deg, o.weight);
+    c += o.weight * std::cos(units::deg_to_rad(o.pa_deg));
+    s += o.weight * std::sin(units::deg_to_rad(o.pa_deg));
+    if (o.sep_mas >= opt.iwa_mas && o.sep_mas <= opt.owa_mas) in += o.weight;
+  }
+  if (!(sw > 0)) return r;
+  r.ess = sw * sw / sw2;
+  std::sort(sep.begin(), sep.end());
+  const double qs[5] = {0.025, 0.16, 0.5, 0.84, 0.975};
+  for (int k = 0; k < 5; ++k) r.sep_q[k] = weighted_quantile(sep, sw, qs[k]);
+  r.p_in_wa = in / sw;
+  // Circular statistics (e.g. Mardia & Jupp 2000, Directional Statistics, ch. 2).
+  r.pa_mean_deg = std::fmod(units::rad_to_deg(std::atan2(s, c)) + 360.0, 360.0);
+  r.pa_resultant = std::hypot(c, s) / sw;
+  shortest_arc(pa, 0.68, r.pa_arc68_start_deg, r.pa_arc68_width_deg);
+  // Modes: 1-deg histogram smoothed with a circular 5-deg Gaussian kernel.
+  std::vector<double> hist(360, 0.0), smooth(360, 0.0);
+  for (const auto& [x, w] : pa) hist[std::min(359, static_cast<int>(x))] += w;
+  for (int i = 0; i < 360; ++i)
+    for (int d = -15; d <= 15; ++d) smooth[i] += hist[(i + d + 360) % 360] * std::exp(-0.5 * d * d / 25.0);
+  const double peak = *std::max_element(smooth.begin(), smooth.end());
+  std::vector<std::pair<double, double>> modes;
+  for (int i = 0; i < 360; ++i) {
+    const double l = smooth[(i + 359) % 360], h = smooth[(i + 1) % 360];
+    if (smooth[i] > l && smooth[i] >= h && smooth[i] >= 0.25 * peak) modes.emplace_back(smooth[i], i + 0.5);
+  }
+  std::sort(modes.rbegin(), modes.rend());
+  for (const auto& m : modes) r.pa_modes_deg.push_back(m.second);
+  // Density map.
+  r.grid_n = opt.grid_n;
+  r.grid_half_mas = opt.grid_half_mas > 0 ? opt.grid_half_mas
+                                          : std::max(1.1 * weighted_quantile(sep, sw, 0.99),
+                                                     std::isfinite(opt.owa_mas) ? 1.05 * opt.owa_mas : 0.0);
+  const int n = r.grid_n;
+  const double h = r.grid_half_mas, cell = 2.0 * h / n;
+  r.density.assign(static_cast<std::size_t>(n) * n, 0.0);
+  for (const auto& o : off) {
+    const int i = static_cast<int>(std::floor((o.east_mas + h) / cell));
+    const int j = static_cast<int>(std::floor((o.north_mas + h) / cell));
+    if (i >= 0 && i < n && j >= 0 && j < n) r.density[static_cast<std::size_t>(j) * n + i] += o.weight;
+  }
+  for (double& v : r.density) v /= sw * cell * cell;
+  return r;
+}
+
+}  // namespace heft
