@@ -1,0 +1,124 @@
+// heft predict: sky positions from orbit draws, circular statistics, CLI.
+
+#include <catch2/catch.hpp>
+#include <cmath>
+#include <cstdio>
+#include <cstdlib>
+#include <sstream>
+
+#include "heft/draws.hpp"
+#include "heft/error.hpp"
+#include "heft/predict.hpp"
+#include "heft/rng.hpp"
+#include "heft/stats.hpp"
+#include "test_util.hpp"
+
+using namespace heft;
+
+namespace {
+
+// Face-on (i = 0) circular orbits at a x parallax = 200 mas, random phases.
+std::vector<OrbitDraw> face_on_ring(int n, std::uint64_t seed) {
+  Rng rng(seed);
+  std::vector<OrbitDraw> d;
+  for (int k = 0; k < n; ++k)
+    d.push_back({10.0, 5.0, 0.0, 0.0, 0.0, 0.0, 360.0 * rng.uniform(), 2016.0, 30.0, 20.0, 1.0, 1.0 / n});
+  return d;
+}
+
+double uniform_360(double x) { return x / 360.0; }
+
+}  // namespace
+
+TEST_CASE("predict: a circular face-on orbit gives a ring and a uniform position angle", "[predict]") {
+  // Geometry of a face-on circular orbit (common practice, no source):
+  // separation a x parallax at every phase; for i = 0 the position angle is
+  // Omega + omega + M, so uniform phases give a uniform position angle.
+  const auto draws = face_on_ring(20000, 5);
+  const SkyPrediction p = predict_sky(draws, 2027.5, {150.0, 250.0, 51, 0.0});
+  for (double q : p.sep_q) CHECK(q == Approx(200.0).epsilon(1e-9));
+  CHECK(p.p_in_wa == Approx(1.0));
+  CHECK(p.pa_resultant < 0.03);
+  CHECK(p.pa_arc68_width_deg == Approx(0.68 * 360.0).margin(5.0));
+  std::vector<double> pa;
+  for (const auto& o : sky_offsets(draws, 2027.5)) pa.push_back(o.pa_deg);
+  double pv = 0.0;
+  ks_test(pa, uniform_360, pv);
+  CHECK(pv > 0.01);
+  // The density map integrates to one and lies on the ring.
+  const double cell = 2.0 * p.grid_half_mas / p.grid_n;
+  double total = 0.0, off_ring = 0.0;
+  for (int j = 0; j < p.grid_n; ++j)
+    for (int i = 0; i < p.grid_n; ++i) {
+      const double m = p.density[j * p.grid_n + i] * cell * cell;
+      const double r = std::hypot(-p.grid_half_mas + (i + 0.5) * cell, -p.grid_half_mas + (j + 0.5) * cell);
+      total += m;
+      if (std::abs(r - 200.0) > 1.5 * cell) off_ring += m;
+    }
+  CHECK(total == Approx(1.0).epsilon(1e-9));
+  CHECK(off_ring < 1e-9);
+  // One phase: PA = Omega + omega + M for i = 0 (docs/orbits.md).
+  std::vector<OrbitDraw> one = {{10.0, 5.0, 0.0, 0.0, 40.0, 20.0, 30.0, 2027.5, 30.0, 20.0, 1.0, 1.0}};
+  const auto o = sky_offsets(one, 2027.5).front();
+  CHECK(o.pa_deg == Approx(90.0).margin(1e-9));
+  CHECK(o.east_mas == Approx(200.0).epsilon(1e-12));
+}
+
+TEST_CASE("predict: shortest arc and modes of a bimodal position angle", "[predict]") {
+  // Circular statistics (Mardia & Jupp 2000, ch. 2; common practice): a
+  // normal cluster at 350 deg has its shortest 68 % arc at +-0.994 sigma; a
+  // second cluster at 5 deg makes the arc straddle 0; a 1:2 mixture at 170
+  // and 350 deg has two modes, the heavier first.
+  Rng rng(3);
+  std::vector<std::pair<double, double>> a;
+  for (int k = 0; k < 4000; ++k) a.emplace_back(350.0 + 2.0 * rng.normal(), 1.0);
+  double start, width;
+  shortest_arc(a, 0.68, start, width);
+  CHECK(width == Approx(2.0 * 0.994 * 2.0).margin(0.3));  // +-0.994 sigma holds 68 %
+  CHECK(std::fmod(start + width / 2 + 360.0, 360.0) == Approx(350.0).margin(0.3));
+  for (int k = 0; k < 4000; ++k) a.emplace_back(5.0 + 2.0 * rng.normal(), 1.0);  // straddles 0
+  shortest_arc(a, 0.68, start, width);
+  CHECK(width < 25.0);
+  CHECK((start > 340.0 && start < 352.0));
+  std::vector<OrbitDraw> draws;
+  for (int k = 0; k < 2000; ++k) {
+    const double node = (k % 3 == 0 ? 170.0 : 350.0) + 3.0 * rng.normal();
+    draws.push_back({10.0, 5.0, 0.0, 0.0, 0.0, node, 0.0, 2027.5, 30.0, 20.0, 1.0, 1.0});
+  }
+  const SkyPrediction p = predict_sky(draws, 2027.5, {});
+  REQUIRE(p.pa_modes_deg.size() == 2);
+  CHECK(std::fmod(p.pa_modes_deg[0], 360.0) == Approx(350.0).margin(2.0));
+  CHECK(p.pa_modes_deg[1] == Approx(170.0).margin(2.0));
+}
+
+TEST_CASE("heft predict and plot sky from fit samples; bad draw tables", "[predict][cli]") {
+  const std::string draws = test::tmp_path("pred_draws.csv"), summary = test::tmp_path("pred.csv"),
+                    grid = test::tmp_path("pred_grid.csv"), svg = test::tmp_path("sky.svg"),
+                    png = test::tmp_path("sky.png");
+  std::string text = draws_header();
+  for (const auto& d : face_on_ring(500, 9)) append_draw_row(text, "RING-1", d);
+  test::write_text(draws, text);
+  REQUIRE(test::run_heft("predict -q " + draws + " --date 2027.5,2028 --iwa 150 --owa 250 -o " + summary +
+                         " --grid " + grid + " --grid-size 40") == 0);
+  const test::Table t = test::read_table(summary);
+  REQUIRE(t.rows.size() == 2);
+  CHECK(t.num(0, "sep_med") == Approx(200.0));
+  CHECK(t.num(1, "p_in_wa") == Approx(1.0));
+  CHECK(test::read_table(grid).rows.size() == 2 * 40 * 40);
+  REQUIRE(test::run_heft("plot sky " + grid + " --iwa 150 --owa 250 --date 2028 -o " + svg) == 0);
+  CHECK(test::read_text(svg).find("outer working angle") != std::string::npos);
+  std::remove(png.c_str());
+  // Rendering check with rsvg-convert (librsvg2-bin, Debian).
+  REQUIRE(std::system(("rsvg-convert " + svg + " -o " + png).c_str()) == 0);
+  // Bad tables name file, line and column.
+  std::string err;
+  std::string bad = text;
+  const auto line2 = bad.find('\n') + 1;
+  bad.replace(bad.find(",10,", line2), 4, ",-3,");
+  test::write_text(draws, bad);
+  CHECK(test::run_heft("predict -q " + draws + " --date 2027", &err) == 2);
+  CHECK_THAT(err, Catch::Contains(":2:") && Catch::Contains("a_au"));
+  test::write_text(draws, "id,a_au\nX,1\n");
+  CHECK(test::run_heft("predict -q " + draws + " --date 2027", &err) == 2);
+  CHECK_THAT(err, Catch::Contains("missing required column"));
+}
