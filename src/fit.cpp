@@ -778,11 +778,19 @@ Curve profile_curve(const FitModel& m, const std::vector<double>& a_au, const Fi
   Rng rng = Rng::for_star(opt.seed, rng_id);
   std::vector<double> best(a_au.size(), kInf);
   const int n_starts = std::max(4, opt.starts / 4);
+  // Continuation: every a also starts from the global best and from the
+  // previous a's best, so that the profile follows its valley.
+  const auto global = find_minima(m, Pinned{}, draw_starts(m, opt.starts, rng));
+  Eigen::VectorXd previous = global.empty() ? m.prior_draw(rng) : global.front().p;
   for (std::size_t ia = 0; ia < a_au.size(); ++ia) {
     const double lna = std::log(a_au[ia]);
     // Best mass at this a: minimise over everything but a.
     const Pinned at_a{{kLnA}, {lna}};
-    const auto mins = find_minima(m, at_a, draw_starts(m, n_starts, rng));
+    std::vector<Eigen::VectorXd> starts = draw_starts(m, n_starts, rng);
+    starts.push_back(previous);
+    if (!global.empty()) starts.push_back(global.front().p);
+    const auto mins = find_minima(m, at_a, starts);
+    if (!mins.empty()) previous = mins.front().p;
     CurvePoint pt{};
     pt.a_au = a_au[ia];
     pt.mass_lo95 = pt.mass_lo68 = pt.mass_med = pt.mass_hi68 = pt.mass_hi95 = kAbsent;

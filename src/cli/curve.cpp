@@ -7,6 +7,7 @@
 #include "cli/commands.hpp"
 #include "heft/curve.hpp"
 #include "heft/error.hpp"
+#include "heft/fit.hpp"
 #include "heft/io.hpp"
 
 namespace heft::cli {
@@ -22,7 +23,7 @@ struct CurveCliOptions {
   double a_min_au = 0.5, a_max_au = 500.0;
   int n_a = 64;
   std::vector<double> a_list;
-  int threads = 0;
+  int threads = 0, starts = 16;
   bool quiet = false;
 };
 
@@ -85,7 +86,25 @@ int run_curve(CurveCliOptions o) {
     j["id"] = star.id;
     j["status"] = status;
     if (status == "ok") {
-      const Curve c = o.method == "analytic" ? analytic_curve(d, copt) : montecarlo_curve(d, copt, star.id);
+      Curve c;
+      if (o.method == "analytic") {
+        c = analytic_curve(d, copt);
+      } else if (o.method == "profile") {
+        bool have = false;
+        const StarFile f = star_file_of(star, o.host_mass_msun, o.host_mass_error_msun, have);
+        FitOptions fo;
+        fo.m_min_mjup = copt.m_min_mjup;
+        fo.m_max_mjup = copt.m_max_mjup;
+        fo.a_min_au = copt.a_au.front();
+        fo.a_max_au = copt.a_au.back();
+        fo.ecc = copt.ecc;
+        fo.detect_sigma = copt.detect_sigma;
+        fo.seed = copt.seed;
+        fo.starts = o.starts;
+        c = profile_curve(FitModel(f, row.result, fo), copt.a_au, fo, star.id);
+      } else {
+        c = montecarlo_curve(d, copt, star.id);
+      }
       std::string buf;
       append_curve_rows(buf, star.id, c);
       out.write(buf);
@@ -152,8 +171,10 @@ void setup_curve(CLI::App& app, Runner& run) {
   sub->add_option("--json", o->json, "also write the curves as JSON (mode, ESS, priors)");
   sub->add_option("--keep-draws", o->keep_draws,
                   "write weighted posterior orbit draws (CSV, docs/formats.md) for heft predict");
-  sub->add_option("--method", o->method, "analytic (circular orbits) or montecarlo (forward model)")
-      ->check(CLI::IsMember({"analytic", "montecarlo"}))
+  sub->add_option("--method", o->method,
+                  "analytic (circular orbits), montecarlo (forward model, marginal posterior) or profile "
+                  "(profile likelihood over all other elements, by Ceres)")
+      ->check(CLI::IsMember({"analytic", "montecarlo", "profile"}))
       ->capture_default_str();
   sub->add_option("--host-mass", o->host_mass_msun, "host mass for stars without 'mass' (Msun)")
       ->check(CLI::PositiveNumber);
@@ -178,6 +199,8 @@ void setup_curve(CLI::App& app, Runner& run) {
   sub->add_option("--detect-sigma", c.detect_sigma,
                   "below this sig_joint the curve is an upper limit (prior uniform in mass)")
       ->capture_default_str();
+  sub->add_option("--starts", o->starts, "optimiser starts per separation (profile method)")
+      ->check(CLI::Range(1, 10000))->capture_default_str();
   sub->add_option("--seed", c.seed, "random seed (one stream per star id)")->capture_default_str();
   add_screen_options(sub, o->screen, o->windows, o->late_spin_table);
   sub->add_option("-j,--threads", o->threads, "threads (default: all cores); output is identical")
