@@ -13,7 +13,8 @@
 
 namespace heft {
 
-CsvReader::CsvReader(std::istream& in, std::string name) : in_(in), name_(std::move(name)) {}
+CsvReader::CsvReader(std::istream& in, std::string name, long first_line)
+    : in_(in), name_(std::move(name)), next_line_(first_line) {}
 
 bool CsvReader::next() {
   fields_.clear();
@@ -195,8 +196,9 @@ void write_file_atomic(const std::string& path, std::string_view data) {
 
 namespace heft {
 
-ColumnTable::ColumnTable(std::istream& in, std::string name, const std::vector<std::string>& required)
-    : csv_(in, std::move(name)) {
+ColumnTable::ColumnTable(std::istream& in, std::string name, const std::vector<std::string>& required,
+                         long first_line)
+    : csv_(in, std::move(name), first_line) {
   if (!csv_.next()) throw InputError(csv_.name(), 0, 0, "empty file: no header row");
   for (std::size_t f = 0; f < csv_.fields().size(); ++f) {
     std::string h(csv_.fields()[f]);

@@ -25,6 +25,8 @@ int main(int argc, char** argv) {
   setup_curve(app, run);
   setup_fit(app, run);
   setup_predict(app, run);
+  setup_rank(app, run);
+  setup_merge(app, run);
   setup_plot(app, run);
   setup_simulate(app, run);
   try {

@@ -25,8 +25,9 @@ namespace heft {
 ///    whitespace of unquoted fields is trimmed.
 class CsvReader {
  public:
-  /// `name` is the file name used in error messages.
-  CsvReader(std::istream& in, std::string name);
+  /// `name` is the file name used in error messages; `first_line` is the
+  /// line number of the stream's first line (when a caller consumed some).
+  CsvReader(std::istream& in, std::string name, long first_line = 1);
 
   /// Reads the next record into fields(); false at end of input.
   /// Throws InputError on an unterminated quote.
@@ -60,7 +61,7 @@ class ColumnTable {
  public:
   /// Throws InputError when the header lacks a column of `required`,
   /// repeats a name, or the input is empty.
-  ColumnTable(std::istream& in, std::string name, const std::vector<std::string>& required);
+  ColumnTable(std::istream& in, std::string name, const std::vector<std::string>& required, long first_line = 1);
   /// Next data row; false at the end. Throws InputError when the field count
   /// differs from the header's.
   bool next();

@@ -9,6 +9,8 @@ void setup_ingest(CLI::App& app, Runner& run);
 void setup_curve(CLI::App& app, Runner& run);
 void setup_fit(CLI::App& app, Runner& run);
 void setup_predict(CLI::App& app, Runner& run);
+void setup_rank(CLI::App& app, Runner& run);
+void setup_merge(CLI::App& app, Runner& run);
 void setup_plot(CLI::App& app, Runner& run);
 void setup_screen(CLI::App& app, Runner& run);
 void setup_simulate(CLI::App& app, Runner& run);

@@ -1,8 +1,16 @@
 #include "cli/common.hpp"
 
+#include <unistd.h>
+
+#include <chrono>
+#include <cmath>
+#include <cstdio>
+
 #include <iostream>
 
 #include "heft/calibrate.hpp"
+#include "heft/io.hpp"
+#include "heft/rng.hpp"
 #include "heft/version.hpp"
 
 namespace heft::cli {
@@ -107,6 +115,65 @@ nlohmann::ordered_json StatusCounter::run_json(const std::string& command,
 void StatusCounter::print_summary(const std::string& command) const {
   for (const auto& [status, n] : counts_)
     message(command, std::to_string(n) + " row" + (n == 1 ? "" : "s") + " " + status);
+}
+
+namespace {
+double now_s() {
+  return std::chrono::duration<double>(std::chrono::steady_clock::now().time_since_epoch()).count();
+}
+std::string clock_text(double s) {
+  const long t = static_cast<long>(std::lround(s));
+  char b[32];
+  std::snprintf(b, sizeof b, "%ld:%02ld:%02ld", t / 3600, (t / 60) % 60, t % 60);
+  return b;
+}
+}  // namespace
+
+ProgressBar::ProgressBar(std::string command, long total, bool quiet)
+    : command_(std::move(command)), total_(total), enabled_(!quiet && total > 0 && isatty(STDERR_FILENO)),
+      start_s_(now_s()) {}
+
+ProgressBar::~ProgressBar() { finish(); }
+
+void ProgressBar::update(long done) {
+  if (!enabled_) return;
+#pragma omp critical(heft_progress)
+  {
+    const double t = now_s();
+    if (t - last_s_ >= 0.2 || done == total_) {
+      last_s_ = t;
+      const double el = t - start_s_, rate = el > 0 ? done / el : 0.0;
+      const int width = 30, full = static_cast<int>(width * static_cast<double>(done) / total_);
+      std::string bar(full, '#');
+      bar.resize(width, '-');
+      char b[160];
+      std::snprintf(b, sizeof b, "\rheft %s [%s] %ld/%ld  %.1f/s  ETA %s ", command_.c_str(), bar.c_str(), done,
+                    total_, rate, rate > 0 ? clock_text((total_ - done) / rate).c_str() : "?");
+      std::cerr << b << std::flush;
+    }
+  }
+}
+
+void ProgressBar::finish() {
+  if (!enabled_) return;
+  std::cerr << "\r" << std::string(100, ' ') << "\r" << std::flush;
+  enabled_ = false;
+}
+
+std::string screen_fingerprint(const ScreenOptions& s, const WindowDefaults& w) {
+  std::string text;
+  for (const EpochCalibration* c : {&s.early, &s.late}) {
+    for (int k = 0; k < 3; ++k) text += format_double(c->orient_mas[k]) + "," + format_double(c->spin_uas_yr[k]) + ",";
+    for (const auto& b : c->spin_table)
+      text += format_double(b.mag_lo) + "," + format_double(b.mag_hi) + "," + format_double(b.spin_uas_yr[0]) + "," +
+              format_double(b.spin_uas_yr[1]) + "," + format_double(b.spin_uas_yr[2]) + ",";
+    text += format_double(c->inflate) + "," + format_double(c->floor_mas_yr) + ";";
+  }
+  text += format_double(s.assume_rv_km_s) + "," + format_double(s.rv_sigma_km_s) + ";";
+  for (double v : {w.early_start_yr, w.early_end_yr, w.late_start_yr, w.late_end_yr}) text += format_double(v) + ",";
+  char b[32];
+  std::snprintf(b, sizeof b, "%016llx", static_cast<unsigned long long>(fnv1a64(text)));
+  return b;
 }
 
 }  // namespace heft::cli

@@ -61,4 +61,26 @@ class StatusCounter {
   long total_ = 0, ok_ = 0;
 };
 
+/// A progress bar with rate and ETA on stderr, drawn only when stderr is a
+/// terminal and not quiet (silent in pipelines, make and batch jobs).
+/// update() may be called from any thread; it redraws at most 5 times a second.
+class ProgressBar {
+ public:
+  ProgressBar(std::string command, long total, bool quiet);
+  ~ProgressBar();
+  void update(long done);
+  /// Clears the bar's line.
+  void finish();
+
+ private:
+  std::string command_;
+  long total_;
+  bool enabled_;
+  double start_s_, last_s_ = -1.0;
+};
+
+/// A fingerprint (16 hex digits) of the screen options and window defaults,
+/// for run metadata that must match between shards.
+std::string screen_fingerprint(const ScreenOptions& screen, const WindowDefaults& windows);
+
 }  // namespace heft::cli

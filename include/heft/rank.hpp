@@ -1,0 +1,113 @@
+#pragma once
+/// \file rank.hpp
+/// Survey-scale ranking of imaging candidates: each star is screened, its
+/// Monte Carlo curve computed when the anomaly is significant, and its
+/// companion's sky position at the planned date predicted from the curve's
+/// draws; the score is the posterior probability that the companion lies
+/// between the working angles with a mass inside the target window
+/// (docs/method.md, Sect. 10). The ranked table and its run metadata are
+/// defined so that shards merge into exactly the table of a single run.
+
+#include <iosfwd>
+#include <limits>
+#include <map>
+#include <string>
+#include <vector>
+
+#include "heft/curve.hpp"
+#include "heft/io.hpp"
+#include "heft/screen.hpp"
+
+namespace heft {
+
+/// An instrument's contrast limit: the faintest detectable companion as a
+/// magnitude difference from the host, against separation (mas). Linear
+/// interpolation; nothing is detectable outside the tabulated separations.
+class ContrastCurve {
+ public:
+  /// Reads a CSV with columns sep_mas, delta_mag (separations strictly
+  /// increasing, delta_mag >= 0); errors name file, line and column.
+  static ContrastCurve read(std::istream& in, const std::string& name);
+  /// The limit at sep_mas, or -inf outside the table.
+  double limit_mag(double sep_mas) const;
+
+ private:
+  std::vector<double> sep_, dmag_;
+};
+
+/// The user's mass-magnitude relation in the band of the contrast curve:
+/// absolute magnitude against companion mass (MJup), linear in log mass.
+/// Below the lightest mass the companion counts as too faint; above the
+/// heaviest it takes the heaviest's magnitude.
+class MassMagnitude {
+ public:
+  /// Reads a CSV with columns mass_mjup, abs_mag (masses > 0, strictly
+  /// increasing); errors name file, line and column.
+  static MassMagnitude read(std::istream& in, const std::string& name);
+  double abs_mag(double mass_mjup) const;
+
+ private:
+  std::vector<double> log_mass_, mag_;
+};
+
+struct RankOptions {
+  double date_yr = 2027.5;
+  double iwa_mas = 0.0, owa_mas = std::numeric_limits<double>::infinity();
+  double target_min_mjup = 1.0, target_max_mjup = 80.0;  ///< scoring window in mass
+  CurveOptions curve;           ///< prior bounds, a grid, draws, seed, detect_sigma
+  double host_mass_msun = kAbsent, host_mass_error_msun = kAbsent;
+  const ContrastCurve* contrast = nullptr;
+  const MassMagnitude* mass_mag = nullptr;
+};
+
+/// One ranked star (units in the names; NaN where not computed).
+struct RankRecord {
+  std::string id;
+  double score = kAbsent, p_detect = kAbsent, sig_joint = kAbsent;
+  double a_best_au = kAbsent, mass_lo68 = kAbsent, mass_med = kAbsent, mass_hi68 = kAbsent;
+  double sep_lo68 = kAbsent, sep_med = kAbsent, sep_hi68 = kAbsent;
+  double pa_mode_deg = kAbsent, pa_arc68_start_deg = kAbsent, pa_arc68_width_deg = kAbsent;
+  std::string status, notes;
+  long rank = 0;  ///< 1-based; 0 before ranking
+};
+
+/// Screens one star and, when its anomaly is significant, scores it.
+/// `bad_reason` as from StarTableReader. Per-star numerical failures become
+/// a "failed:..." status, never an exception.
+RankRecord rank_star(const StarRecord& star, const std::string& bad_reason, const ScreenOptions& screen,
+                     const RankOptions& opt);
+
+/// The screen-only part of rank_star: the record of a star whose curve is
+/// not computed (below the detection threshold, or bad input).
+RankRecord screened_record(const ScreenRow& row);
+
+/// Sorts by score (descending; stars without a score last), then sig_joint
+/// (descending), then id, and numbers the ranks.
+void assign_ranks(std::vector<RankRecord>& records);
+
+/// The ranked table's columns (docs/formats.md, "Ranked candidates").
+const std::vector<std::string>& rank_columns();
+std::string rank_header();
+void append_rank_row(std::string& out, const RankRecord& r);
+/// One data row of a ranked table as read back (columns by name).
+RankRecord parse_rank_row(const ColumnTable& t);
+
+/// Run metadata of a ranked table, written as its first line
+/// "# heft-rank key=value ..." so that `heft merge` can check that parts
+/// belong together and that no star is missing. `shard` is "K/N".
+struct RankRunInfo {
+  std::map<std::string, std::string> fields;  ///< options, input, rows, shard
+  std::string line() const;
+  static RankRunInfo parse(const std::string& line, const std::string& file);
+};
+
+/// The ranked table as written: metadata line, header, rows in rank order.
+std::string ranked_table(const RankRunInfo& info, const std::vector<RankRecord>& ranked);
+/// The same as JSON: {"stars": [...], "run": {metadata, rows per status}}.
+std::string ranked_json(const RankRunInfo& info, const std::vector<RankRecord>& ranked);
+
+/// Reads a ranked table (or a checkpoint: the same without ranks) back:
+/// its metadata line and records. Errors name file, line and column.
+std::vector<RankRecord> read_ranked(std::istream& in, const std::string& name, RankRunInfo& info);
+
+}  // namespace heft

@@ -1,0 +1,275 @@
+#include "heft/rank.hpp"
+
+#include <algorithm>
+#include <cmath>
+#include <nlohmann/json.hpp>
+#include <sstream>
+
+#include "heft/error.hpp"
+#include "heft/predict.hpp"
+
+namespace heft {
+namespace {
+
+constexpr double kNegInf = -std::numeric_limits<double>::infinity();
+
+// Reads two numeric columns, the first strictly increasing.
+void read_pairs(std::istream& in, const std::string& name, const std::string& xc, const std::string& yc,
+                std::vector<double>& xs, std::vector<double>& ys, bool x_positive, bool y_nonnegative) {
+  ColumnTable t(in, name, {xc, yc});
+  const int ix = t.index(xc), iy = t.index(yc);
+  while (t.next()) {
+    const double x = t.number(ix), y = t.number(iy);
+    if (x_positive && !(x > 0)) t.fail(ix, "must be > 0");
+    if (!xs.empty() && !(x > xs.back())) t.fail(ix, "must increase strictly from row to row");
+    if (y_nonnegative && !(y >= 0)) t.fail(iy, "must be >= 0");
+    xs.push_back(x);
+    ys.push_back(y);
+  }
+  if (xs.size() < 2) throw InputError(name, t.line(), 0, "needs at least two rows");
+}
+
+double interpolate(const std::vector<double>& xs, const std::vector<double>& ys, double x) {
+  const auto it = std::upper_bound(xs.begin(), xs.end(), x);
+  const std::size_t k = std::clamp<std::size_t>(it - xs.begin(), 1, xs.size() - 1);
+  const double f = (x - xs[k - 1]) / (xs[k] - xs[k - 1]);
+  return ys[k - 1] + f * (ys[k] - ys[k - 1]);
+}
+
+
+}  // namespace
+
+ContrastCurve ContrastCurve::read(std::istream& in, const std::string& name) {
+  ContrastCurve c;
+  read_pairs(in, name, "sep_mas", "delta_mag", c.sep_, c.dmag_, true, true);
+  return c;
+}
+
+double ContrastCurve::limit_mag(double sep_mas) const {
+  if (!(sep_mas >= sep_.front() && sep_mas <= sep_.back())) return kNegInf;
+  return interpolate(sep_, dmag_, sep_mas);
+}
+
+MassMagnitude MassMagnitude::read(std::istream& in, const std::string& name) {
+  MassMagnitude m;
+  std::vector<double> mass;
+  read_pairs(in, name, "mass_mjup", "abs_mag", mass, m.mag_, true, false);
+  for (double x : mass) m.log_mass_.push_back(std::log(x));
+  return m;
+}
+
+double MassMagnitude::abs_mag(double mass_mjup) const {
+  const double lm = std::log(mass_mjup);
+  if (!(lm >= log_mass_.front())) return std::numeric_limits<double>::infinity();
+  if (lm >= log_mass_.back()) return mag_.back();
+  return interpolate(log_mass_, mag_, lm);
+}
+
+RankRecord screened_record(const ScreenRow& row) {
+  RankRecord r;
+  r.id = row.id;
+  r.status = row.status;
+  r.notes = join_notes(row.notes);
+  if (row.ok()) {
+    r.sig_joint = row.result.sig_joint;
+    r.score = 0.0;
+  }
+  return r;
+}
+
+RankRecord rank_star(const StarRecord& star, const std::string& bad_reason, const ScreenOptions& screen,
+                     const RankOptions& opt) {
+  const ScreenRow row = screen_star(star, bad_reason, screen);
+  RankRecord r = screened_record(row);
+  if (!row.ok() || !(row.result.sig_joint >= opt.curve.detect_sigma)) return r;
+  bool have_mass = false;
+  const AnomalyData d = anomaly_data(star, row.result, opt.host_mass_msun, opt.host_mass_error_msun, have_mass);
+  if (!have_mass) {
+    r.status = "bad_input:no_host_mass";
+    r.score = kAbsent;
+    return r;
+  }
+  CurveOptions co = opt.curve;
+  co.keep_draws = true;
+  Curve c;
+  try {
+    c = montecarlo_curve(d, co, star.id);
+  } catch (const Error& e) {
+    r.status = "failed:curve";
+    r.score = kAbsent;
+    return r;
+  }
+  if (c.draws.empty() || c.points.empty()) {
+    r.status = "failed:no_posterior_draws";
+    r.score = kAbsent;
+    return r;
+  }
+  const CurvePoint* best = &c.points.front();
+  for (const auto& p : c.points)
+    if (p.weight > best->weight) best = &p;
+  r.a_best_au = best->a_au;
+  r.mass_lo68 = best->mass_lo68;
+  r.mass_med = best->mass_med;
+  r.mass_hi68 = best->mass_hi68;
+  // The draws carry the curve's per-separation weights: sums over them are
+  // the marginalisation over separation.
+  const std::vector<SkyOffset> off = sky_offsets(c.draws, opt.date_yr);
+  const bool detect = opt.contrast && opt.mass_mag && present(star.mag);
+  double sw = 0.0, in_window = 0.0, detected = 0.0;
+  for (std::size_t k = 0; k < off.size(); ++k) {
+    const OrbitDraw& dr = c.draws[k];
+    const double w = dr.weight;
+    sw += w;
+    const bool in_wa = off[k].sep_mas >= opt.iwa_mas && off[k].sep_mas <= opt.owa_mas;
+    if (in_wa && dr.mass_mjup >= opt.target_min_mjup && dr.mass_mjup <= opt.target_max_mjup) in_window += w;
+    if (detect && in_wa) {
+      // Distance modulus from the draw's parallax; contrast in the host's band.
+      const double app = opt.mass_mag->abs_mag(dr.mass_mjup) + 5.0 * std::log10(100.0 / dr.parallax_mas);
+      if (app - star.mag <= opt.contrast->limit_mag(off[k].sep_mas)) detected += w;
+    }
+  }
+  r.score = sw > 0 ? in_window / sw : 0.0;
+  if (detect) r.p_detect = sw > 0 ? detected / sw : 0.0;
+  if (opt.contrast && opt.mass_mag && !present(star.mag)) r.notes += std::string(r.notes.empty() ? "" : "|") + "no_mag";
+  if (c.upper_limit) r.notes += std::string(r.notes.empty() ? "" : "|") + "upper_limit";
+  PredictOptions po;
+  po.iwa_mas = opt.iwa_mas;
+  po.owa_mas = opt.owa_mas;
+  po.grid_n = 4;
+  const SkyPrediction p = predict_sky(c.draws, opt.date_yr, po);
+  r.sep_lo68 = p.sep_q[1];
+  r.sep_med = p.sep_q[2];
+  r.sep_hi68 = p.sep_q[3];
+  if (!p.pa_modes_deg.empty()) r.pa_mode_deg = p.pa_modes_deg.front();
+  r.pa_arc68_start_deg = p.pa_arc68_start_deg;
+  r.pa_arc68_width_deg = p.pa_arc68_width_deg;
+  return r;
+}
+
+void assign_ranks(std::vector<RankRecord>& records) {
+  auto key = [](const RankRecord& r) { return present(r.score) ? r.score : -1.0; };
+  auto sig = [](const RankRecord& r) { return present(r.sig_joint) ? r.sig_joint : -1.0; };
+  std::sort(records.begin(), records.end(), [&](const RankRecord& a, const RankRecord& b) {
+    if (key(a) != key(b)) return key(a) > key(b);
+    if (sig(a) != sig(b)) return sig(a) > sig(b);
+    return a.id < b.id;
+  });
+  for (std::size_t k = 0; k < records.size(); ++k) records[k].rank = static_cast<long>(k + 1);
+}
+
+const std::vector<std::string>& rank_columns() {
+  static const std::vector<std::string> c = {
+      "id",         "rank",      "score",     "p_detect",  "sig_joint", "a_best_au",          "mass_lo68",
+      "mass_med",   "mass_hi68", "sep_lo68",  "sep_med",   "sep_hi68",  "pa_mode_deg",        "pa_arc68_start_deg",
+      "pa_arc68_width_deg",      "status",    "notes"};
+  return c;
+}
+
+std::string rank_header() {
+  std::string h;
+  for (const auto& c : rank_columns()) h += (h.empty() ? "" : ",") + c;
+  return h + '\n';
+}
+
+void append_rank_row(std::string& out, const RankRecord& r) {
+  append_csv_field(out, r.id);
+  out += ',' + std::to_string(r.rank);
+  for (double v : {r.score, r.p_detect, r.sig_joint, r.a_best_au, r.mass_lo68, r.mass_med, r.mass_hi68, r.sep_lo68,
+                   r.sep_med, r.sep_hi68, r.pa_mode_deg, r.pa_arc68_start_deg, r.pa_arc68_width_deg}) {
+    out += ',';
+    append_double(out, v);
+  }
+  out += ',';
+  append_csv_field(out, r.status);
+  out += ',';
+  append_csv_field(out, r.notes);
+  out += '\n';
+}
+
+RankRecord parse_rank_row(const ColumnTable& t) {
+  RankRecord r;
+  const auto& cols = rank_columns();
+  r.id = std::string(t.text(t.index(cols[0])));
+  const int ir = t.index("rank");
+  r.rank = static_cast<long>(t.number(ir));
+  double* slots[] = {&r.score,    &r.p_detect, &r.sig_joint, &r.a_best_au, &r.mass_lo68,
+                     &r.mass_med, &r.mass_hi68, &r.sep_lo68, &r.sep_med,   &r.sep_hi68,
+                     &r.pa_mode_deg, &r.pa_arc68_start_deg, &r.pa_arc68_width_deg};
+  for (int k = 0; k < 13; ++k) {
+    const int c = t.index(cols[k + 2]);
+    *slots[k] = t.text(c).empty() ? kAbsent : t.number(c);
+  }
+  r.status = std::string(t.text(t.index("status")));
+  r.notes = std::string(t.text(t.index("notes")));
+  return r;
+}
+
+std::string RankRunInfo::line() const {
+  std::string s = "# heft-rank";
+  for (const auto& [k, v] : fields) s += " " + k + "=" + v;
+  return s + '\n';
+}
+
+RankRunInfo RankRunInfo::parse(const std::string& line, const std::string& file) {
+  RankRunInfo info;
+  std::istringstream in(line);
+  std::string word;
+  in >> word;
+  if (word != "#") throw InputError(file, 1, 1, "first line is not heft rank run metadata ('# heft-rank ...')");
+  in >> word;
+  if (word != "heft-rank") throw InputError(file, 1, 3, "first line is not heft rank run metadata ('# heft-rank ...')");
+  while (in >> word) {
+    const auto eq = word.find('=');
+    if (eq == std::string::npos) throw InputError(file, 1, 0, "run metadata field without '=': '" + word + "'");
+    info.fields[word.substr(0, eq)] = word.substr(eq + 1);
+  }
+  return info;
+}
+
+std::string ranked_table(const RankRunInfo& info, const std::vector<RankRecord>& ranked) {
+  std::string out = info.line() + rank_header();
+  for (const auto& r : ranked) append_rank_row(out, r);
+  return out;
+}
+
+std::string ranked_json(const RankRunInfo& info, const std::vector<RankRecord>& ranked) {
+  using oj = nlohmann::ordered_json;
+  auto num = [](double v) { return std::isfinite(v) ? oj(v) : oj(nullptr); };
+  std::string out = "{\"stars\":[\n";
+  std::map<std::string, long> counts;
+  for (std::size_t k = 0; k < ranked.size(); ++k) {
+    const RankRecord& r = ranked[k];
+    ++counts[r.status];
+    const oj j = {{"id", r.id},
+                  {"rank", r.rank},
+                  {"score", num(r.score)},
+                  {"p_detect", num(r.p_detect)},
+                  {"sig_joint", num(r.sig_joint)},
+                  {"a_best_au", num(r.a_best_au)},
+                  {"mass_mjup", {{"lo68", num(r.mass_lo68)}, {"med", num(r.mass_med)}, {"hi68", num(r.mass_hi68)}}},
+                  {"sep_mas", {{"lo68", num(r.sep_lo68)}, {"med", num(r.sep_med)}, {"hi68", num(r.sep_hi68)}}},
+                  {"pa_deg", {{"mode", num(r.pa_mode_deg)}, {"arc68_start", num(r.pa_arc68_start_deg)},
+                              {"arc68_width", num(r.pa_arc68_width_deg)}}},
+                  {"status", r.status},
+                  {"notes", r.notes}};
+    out += (k ? ",\n" : "") + j.dump();
+  }
+  oj run;
+  run["command"] = "rank";
+  for (const auto& [k, v] : info.fields) run[k] = v;
+  run["rows_per_status"] = counts;
+  return out + "\n],\n\"run\":" + run.dump() + "}\n";
+}
+
+std::vector<RankRecord> read_ranked(std::istream& in, const std::string& name, RankRunInfo& info) {
+  std::string first;
+  if (!std::getline(in, first)) throw InputError(name, 0, 0, "empty file: no run metadata line");
+  if (!first.empty() && first.back() == '\r') first.pop_back();
+  info = RankRunInfo::parse(first, name);
+  ColumnTable t(in, name, rank_columns(), 2);
+  std::vector<RankRecord> out;
+  while (t.next()) out.push_back(parse_rank_row(t));
+  return out;
+}
+
+}  // namespace heft
