@@ -7,6 +7,7 @@
 //
 // Usage: fit_bench [systems=50] [steps=20000]
 
+#include <glog/logging.h>
 #include <omp.h>
 
 #include <algorithm>
@@ -34,6 +35,7 @@ double quantile(std::vector<double> v, double p) {
 }  // namespace
 
 int main(int argc, char** argv) {
+  FLAGS_minloglevel = google::GLOG_FATAL;  // Ceres' covariance notes; flags report them
   const int n_sys = argc > 1 ? std::atoi(argv[1]) : 50;
   const int steps = argc > 2 ? std::atoi(argv[2]) : 20000;
 

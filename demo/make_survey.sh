@@ -16,3 +16,11 @@ heft=${HEFT:-$here/../build/heft}
   -o "$here/survey/stars.csv" --truth "$here/survey/truth.csv" \
   --star-file "$here/followup/KMG-00754.json" --star-file-id KMG-00754 \
   --imaging-epochs 2025.42,2026.13,2026.88 --sep-error 1.5 --pa-error 0.4
+
+# The raw extracts a planner starts from (for demo/Makefile's ingest step):
+# the same stars as two catalogue files with their own column names, joined
+# back by heft ingest through demo/raw/map.json.
+awk -F, -v OFS=, '{ out = ($1 == "id" ? "hid" : $1); for (k = 2; k <= 24; ++k) { h = $k; if (NR == 1) sub(/^early_/, "", h); out = out OFS h } print out }' \
+  "$here/survey/stars.csv" > "$here/raw/early.csv"
+awk -F, -v OFS=, '{ out = ($1 == "id" ? "src" : $1); for (k = 25; k <= 53; ++k) { h = $k; if (NR == 1) sub(/^late_/, "", h); out = out OFS h } print out }' \
+  "$here/survey/stars.csv" > "$here/raw/late.csv"

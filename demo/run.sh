@@ -1,7 +1,10 @@
 #!/usr/bin/env bash
-# The main job on the bundled demo survey: configure, build (Release), then
-# screen the Keth Moving Group for proper-motion anomalies and show the most
-# significant stars.
+# The main job on the bundled demo survey (the invented Keth Moving Group and
+# the invented Halcyon imaging campaign): configure and build (Release),
+# screen every star, rank the imaging candidates at the planned date
+# (curves, sky positions, Halcyon contrast), plot the three best, run the
+# deep fit of the one star with follow-up imaging, and end with the ten
+# best candidates and where to look.
 set -euo pipefail
 root=$(cd "$(dirname "$0")/.." && pwd)
 bash "$root/.ci/ensure-packages.sh"
@@ -9,30 +12,49 @@ build="${HEFT_BUILD_DIR:-$root/build}"
 cmake -S "$root" -B "$build" -DCMAKE_BUILD_TYPE=Release >/dev/null
 cmake --build "$build" -j "$(nproc)" --target heft
 heft="$build/heft"
-out="$root/demo/out"
+demo="$root/demo"
+stars="$demo/survey/stars.csv"
+out="$demo/out"
+date=2027.25
+wa="--iwa 80 --owa 2000"
 mkdir -p "$out"
 
-echo "== screening $(($(grep -vc '^#' "$root/demo/survey/stars.csv") - 1)) stars of the Keth Moving Group"
-"$heft" screen "$root/demo/survey/stars.csv" -o "$out/anomalies.csv" --json "$out/anomalies.json"
+echo "== 1. screening $(($(grep -vc '^#' "$stars") - 1)) stars of the Keth Moving Group"
+"$heft" screen -q "$stars" -o "$out/anomalies.csv" --json "$out/anomalies.json"
+awk -F, 'NR > 1 && $2 == "ok" && $22 >= 3 { n++ } END { printf "%d stars with sig_joint >= 3\n", n }' "$out/anomalies.csv"
 
 echo
-echo "== most significant proper-motion anomalies (sig_joint, Gaussian-equivalent sigma)"
-# Columns: 1 id, 2 status, 8-9 dpm_late (mas/yr), 22 sig_joint, 23 dvt_late (m/s).
-awk -F, 'NR > 1 && $2 == "ok" { printf "%-10s %8.1f %9.3f %9.3f %10.1f\n", $1, $22, $8, $9, $23 }' \
-    "$out/anomalies.csv" | sort -k2,2 -g -r | awk 'NR <= 10' |
-  awk 'BEGIN { printf "%-10s %8s %9s %9s %10s\n", "id", "sig", "dpm_ra", "dpm_dec", "dvt_m_s" } { print }'
+echo "== 2. ranking imaging candidates for $date (Halcyon coronagraph, working angles 80-2000 mas)"
+"$heft" rank "$stars" --date "$date" $wa --target-mass 5,80 \
+  --contrast "$demo/halcyon_contrast.csv" --mass-mag "$demo/keth_mass_mag.csv" \
+  -o "$out/ranked.csv" --json "$out/ranked.json"
+
 echo
-echo "== mass-separation constraints of the three most significant stars (dark companion assumed)"
-top=$(awk -F, 'NR > 1 && $2 == "ok" { print $22, $1 }' "$out/anomalies.csv" | sort -g -r | awk 'NR <= 3 { print $2 }')
-: > "$out/curves.csv"
-for id in $top; do
-  "$heft" curve -q "$root/demo/survey/stars.csv" --id "$id" --draws 512 --n-a 24 --a-min 1 --a-max 300 \
-    -o "$out/curve_$id.csv"
-  # The separation bin of highest posterior weight: a (AU), sep (mas), mass range (MJup).
-  awk -F, 'NR > 1 && $5 > best { best = $5; line = $0 } END {
-      split(line, f, ",");
-      printf "%-10s most probable a %6.1f AU (%6.1f mas), weight %.2f: mass %6.1f MJup (68 %%: %.1f-%.1f)\n",
-             f[1], f[2], f[3], f[5], f[8], f[7], f[9] }' "$out/curve_$id.csv"
+echo "== 3. curves and sky maps of the three best candidates"
+for id in $(awk -F, 'NR > 2 && NR <= 5 { print $1 }' "$out/ranked.csv"); do
+  "$heft" curve -q "$stars" --id "$id" --draws 1024 --n-a 32 -o "$out/curve_$id.csv" --keep-draws "$out/draws_$id.csv"
+  "$heft" plot curve "$out/curve_$id.csv" -o "$out/curve_$id.svg"
+  "$heft" predict -q "$out/draws_$id.csv" --date "$date" $wa -o "$out/where_$id.csv" --grid "$out/grid_$id.csv"
+  "$heft" plot sky "$out/grid_$id.csv" $wa -o "$out/sky_$id.svg"
+  echo "$id: $out/curve_$id.svg, $out/sky_$id.svg"
 done
+
 echo
+echo "== 4. deep fit of KMG-00754 (catalogues + three Halcyon epochs of its companion)"
+"$heft" fit -q "$demo/followup/KMG-00754.json" -o "$out/fit_KMG-00754.json" --samples "$out/fit_KMG-00754_samples.csv"
+"$heft" predict -q "$out/fit_KMG-00754_samples.csv" --date "$date" $wa -o "$out/fit_KMG-00754_where.csv" \
+  --grid "$out/fit_KMG-00754_grid.csv"
+"$heft" plot sky "$out/fit_KMG-00754_grid.csv" $wa -o "$out/fit_KMG-00754_sky.svg"
+awk -F, 'NR == 2 { printf "at %s: separation %.1f mas (68 %%: %.1f-%.1f), position angle %.1f deg (68 %% arc from %.1f, %.1f wide)\n",
+                   $2, $7, $6, $8, $12, $13, $14 }' "$out/fit_KMG-00754_where.csv"
+
+echo
+echo "== the ten best imaging candidates at $date"
+# ranked.csv: line 1 run metadata, line 2 header; columns 1 id, 2 rank,
+# 3 score, 4 p_detect, 7-9 mass lo68/med/hi68, 10-12 sep lo68/med/hi68,
+# 13 pa_mode, 14 pa_arc68_start, 15 pa_arc68_width.
+awk -F, 'NR == 2 { printf "%4s %-10s %6s %6s %19s %21s %8s %15s\n", "rank", "id", "score", "p_det",
+                   "mass MJup (68 %)", "sep mas (68 %)", "PA mode", "PA 68 % arc" }
+         NR > 2 && NR <= 12 { printf "%4d %-10s %6.3f %6.3f %6.1f (%5.1f-%5.1f) %6.0f (%5.0f-%6.0f) %8.0f %6.0f+%-6.0f\n",
+                   $2, $1, $3, $4, $8, $7, $9, $11, $10, $12, $13, $14, $15 }' "$out/ranked.csv"
 echo "outputs in $out"

@@ -1,0 +1,181 @@
+// heft rank and heft merge: ranking quality, determinism across threads and
+// shards, resume after a kill, bad instrument files.
+
+#include <catch2/catch.hpp>
+#include <chrono>
+#include <cmath>
+#include <csignal>
+#include <cstdio>
+#include <cstdlib>
+#include <fstream>
+#include <map>
+#include <sstream>
+#include <thread>
+
+#include "heft/kepler.hpp"
+#include "heft/simulate.hpp"
+#include "test_util.hpp"
+
+using namespace heft;
+
+namespace {
+
+const char* kSurveyArgs =
+    "simulate -q --stars 200 --seed 606 --companion-fraction 0.3 --companion-mass loguniform:5,80 "
+    "--a loguniform:3,60 --distance uniform:20,60 --rv-fraction 0.5";
+const char* kRankArgs = " --date 2027.5 --iwa 100 --owa 1500 --target-mass 5,80 --n-a 12 -q";
+const char* kFast = " --draws 128";
+
+std::string survey(const std::string& tag, std::string* truth = nullptr) {
+  const std::string stars = test::tmp_path(tag + "_stars.csv"), t = test::tmp_path(tag + "_truth.csv");
+  REQUIRE(test::run_heft(std::string(kSurveyArgs) + " -o " + stars + " --truth " + t) == 0);
+  if (truth) *truth = t;
+  return stars;
+}
+
+long lines_of(const std::string& path) {
+  std::ifstream f(path);
+  long n = 0;
+  std::string l;
+  while (std::getline(f, l)) ++n;
+  return n;
+}
+
+}  // namespace
+
+TEST_CASE("rank: imageable injected companions rank above single stars (ROC AUC >= 0.9)", "[rank]") {
+  // Area under the ROC curve by the Mann-Whitney statistic, ties counted
+  // half (Hanley & McNeil 1982, Radiology 143, 29). Positives: injected
+  // companions detected (sig_joint >= 3) whose true separation at the date
+  // is inside the working angles and whose mass is in the target window;
+  // negatives: stars without a companion.
+  std::string truth;
+  const std::string stars = survey("roc", &truth), ranked = test::tmp_path("roc_ranked.csv");
+  REQUIRE(test::run_heft("rank " + stars + kRankArgs + kFast + " -o " + ranked) == 0);
+  const test::Table r = test::read_table(ranked), t = test::read_table(truth), s = test::read_table(stars);
+  std::map<std::string, std::size_t> row_of;
+  for (std::size_t k = 0; k < r.rows.size(); ++k) row_of[r.str(k, "id")] = k;
+  std::map<std::string, double> late_epoch;
+  for (std::size_t k = 0; k < s.rows.size(); ++k) late_epoch[s.str(k, "id")] = s.num(k, "late_epoch");
+  std::vector<double> pos, neg;
+  for (std::size_t k = 0; k < t.rows.size(); ++k) {
+    const std::string id = t.str(k, "id");
+    const std::size_t i = row_of.at(id);
+    const double score = r.str(i, "score").empty() ? 0.0 : r.num(i, "score");
+    if (t.num(k, "companion") == 0) {
+      neg.push_back(score);
+      continue;
+    }
+    if (r.str(i, "sig_joint").empty() || r.num(i, "sig_joint") < 3.0) continue;
+    SimTruth st{};
+    st.period_yr = t.num(k, "period_yr");
+    st.ecc = t.num(k, "ecc");
+    st.inc_deg = t.num(k, "inc_deg");
+    st.arg_peri_deg = t.num(k, "arg_peri_deg");
+    st.node_deg = t.num(k, "node_deg");
+    st.mean_anom_late_deg = t.num(k, "mean_anom_late_deg");
+    const OrbitPoint<double> p = orbit_point(truth_orbit(st, late_epoch[id]), 2027.5);
+    const double sep = t.num(k, "a_au") * t.num(k, "parallax") * std::hypot(p.x, p.y);
+    const double m = t.num(k, "mass_mjup");
+    if (sep >= 100 && sep <= 1500 && m >= 5 && m <= 80) pos.push_back(score);
+  }
+  REQUIRE(pos.size() >= 8);
+  double u = 0.0;
+  for (double a : pos)
+    for (double b : neg) u += a > b ? 1.0 : (a == b ? 0.5 : 0.0);
+  const double auc = u / (static_cast<double>(pos.size()) * neg.size());
+  INFO(pos.size() << " positives, " << neg.size() << " single stars, AUC " << auc);
+  CHECK(auc >= 0.9);
+}
+
+TEST_CASE("rank: -j 1 equals -j 2, and shards merged equal a single run", "[rank][cli]") {
+  const std::string stars = survey("shard"), one = test::tmp_path("shard_j1.csv"), two = test::tmp_path("shard_j2.csv"),
+                    j1 = test::tmp_path("shard_j1.json"), merged = test::tmp_path("shard_merged.csv"),
+                    mj = test::tmp_path("shard_merged.json");
+  REQUIRE(test::run_heft("rank " + stars + kRankArgs + kFast + " -j 1 -o " + one + " --json " + j1) == 0);
+  REQUIRE(test::run_heft("rank " + stars + kRankArgs + kFast + " -j 2 -o " + two) == 0);
+  CHECK(test::read_text(one) == test::read_text(two));
+  std::string parts;
+  for (int k = 1; k <= 3; ++k) {
+    const std::string p = test::tmp_path("shard_part" + std::to_string(k) + ".csv");
+    REQUIRE(test::run_heft("rank " + stars + kRankArgs + kFast + " --shard " + std::to_string(k) + "/3 -o " + p) == 0);
+    CHECK(test::read_text(p).find("shard=" + std::to_string(k) + "/3") != std::string::npos);
+    parts += " " + p;
+  }
+  REQUIRE(test::run_heft("merge -q" + parts + " -o " + merged + " --json " + mj) == 0);
+  CHECK(test::read_text(merged) == test::read_text(one));
+  CHECK(test::read_text(mj) == test::read_text(j1));
+  // A missing shard and a duplicated one are errors naming the problem.
+  std::string err;
+  const std::string p1 = test::tmp_path("shard_part1.csv"), p2 = test::tmp_path("shard_part2.csv");
+  CHECK(test::run_heft("merge -q " + p1 + " " + p2 + " -o " + merged, &err) == 2);
+  CHECK_THAT(err, Catch::Contains("missing shard(s): 3/3"));
+  CHECK(test::run_heft("merge -q " + p1 + " " + p1 + " -o " + merged, &err) == 2);
+  CHECK_THAT(err, Catch::Contains("given twice"));
+}
+
+TEST_CASE("rank: a killed run leaves no output and --resume completes it", "[rank][cli]") {
+  const std::string stars = survey("resume"), full = test::tmp_path("resume_full.csv"),
+                    out = test::tmp_path("resume_out.csv"), cp = out + ".checkpoint";
+  REQUIRE(test::run_heft("rank " + stars + kRankArgs + kFast + " -j 1 -o " + full) == 0);
+  std::remove(out.c_str());
+  std::remove(cp.c_str());
+  const std::string pid_file = test::tmp_path("resume_pid");
+  REQUIRE(std::system((std::string(HEFT_BINARY) + " rank " + stars + kRankArgs + " --draws 512 -j 1 -o " + out +
+                       " & echo $! > " + pid_file)
+                          .c_str()) == 0);
+  long pid = 0;
+  std::istringstream(test::read_text(pid_file)) >> pid;
+  REQUIRE(pid > 0);
+  // Kill once at least three stars are in the checkpoint (header lines: 2).
+  const auto t0 = std::chrono::steady_clock::now();
+  while (lines_of(cp) < 5 && std::chrono::steady_clock::now() - t0 < std::chrono::seconds(120))
+    std::this_thread::sleep_for(std::chrono::milliseconds(20));
+  REQUIRE(::kill(static_cast<pid_t>(pid), SIGKILL) == 0);
+  std::this_thread::sleep_for(std::chrono::milliseconds(200));
+  CHECK_FALSE(test::file_exists(out));
+  const long kept = lines_of(cp) - 2;
+  CHECK(kept >= 3);
+  std::string err;
+  REQUIRE(test::run_heft("rank " + stars + kRankArgs + " --draws 512 -j 2 --resume -o " + out, &err) == 0);
+  CHECK_FALSE(test::file_exists(cp));
+  // The resumed table equals an uninterrupted run with the same options.
+  const std::string fresh = test::tmp_path("resume_fresh.csv");
+  REQUIRE(test::run_heft("rank " + stars + kRankArgs + " --draws 512 -j 2 -o " + fresh) == 0);
+  CHECK(test::read_text(out) == test::read_text(fresh));
+  // A checkpoint of other options is refused.
+  test::write_text(cp, "# heft-rank draws=1 rows=1 shard=1/1\n" + test::read_text(full).substr(test::read_text(full).find('\n') + 1));
+  CHECK(test::run_heft("rank " + stars + kRankArgs + kFast + " --resume -o " + out, &err) == 2);
+  CHECK_THAT(err, Catch::Contains("checkpoint of a run with other options"));
+  std::remove(cp.c_str());
+}
+
+TEST_CASE("rank: detection probability, and malformed contrast and mass-magnitude files", "[rank][cli]") {
+  const std::string stars = survey("contrast"), contrast = test::tmp_path("contrast.csv"),
+                    massmag = test::tmp_path("massmag.csv"), out = test::tmp_path("contrast_ranked.csv");
+  // Invented instrument and relation (demo-style values, no source).
+  test::write_text(contrast, "sep_mas,delta_mag\n80,6\n200,10\n500,13\n2000,15\n");
+  test::write_text(massmag, "mass_mjup,abs_mag\n1,22\n10,15\n80,10\n");
+  std::string err;
+  REQUIRE(test::run_heft("rank " + stars + kRankArgs + kFast + " --contrast " + contrast + " --mass-mag " + massmag + " -o " + out,
+                         &err) == 0);
+  const test::Table t = test::read_table(out);
+  int with_p = 0;
+  for (std::size_t k = 0; k < t.rows.size(); ++k)
+    if (!t.str(k, "p_detect").empty()) {
+      ++with_p;
+      CHECK(t.num(k, "p_detect") >= 0.0);
+      CHECK(t.num(k, "p_detect") <= 1.0);
+    }
+  CHECK(with_p > 0);
+  test::write_text(contrast, "sep_mas,delta_mag\n80,6\n70,10\n");
+  CHECK(test::run_heft("rank " + stars + kRankArgs + kFast + " --contrast " + contrast + " --mass-mag " + massmag, &err) == 2);
+  CHECK_THAT(err, Catch::Contains("contrast.csv:3:1") && Catch::Contains("increase"));
+  test::write_text(contrast, "sep_mas,delta_mag\n80,6\n200,10\n");
+  test::write_text(massmag, "mass_mjup,abs_mag\n1,22\n10,bright\n");
+  CHECK(test::run_heft("rank " + stars + kRankArgs + kFast + " --contrast " + contrast + " --mass-mag " + massmag, &err) == 2);
+  CHECK_THAT(err, Catch::Contains("massmag.csv:3:4") && Catch::Contains("abs_mag"));
+  test::write_text(massmag, "mass,abs_mag\n1,22\n");
+  CHECK(test::run_heft("rank " + stars + kRankArgs + kFast + " --contrast " + contrast + " --mass-mag " + massmag, &err) == 2);
+  CHECK_THAT(err, Catch::Contains("missing required column 'mass_mjup'"));
+}
