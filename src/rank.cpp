@@ -1,6 +1,7 @@
 #include "heft/rank.hpp"
 
 #include <algorithm>
+#include <chrono>
 #include <cmath>
 #include <nlohmann/json.hpp>
 #include <sstream>
@@ -92,6 +93,7 @@ RankRecord rank_star(const StarRecord& star, const std::string& bad_reason, cons
   CurveOptions co = opt.curve;
   co.keep_draws = true;
   Curve c;
+  const auto t0 = std::chrono::steady_clock::now();
   try {
     c = montecarlo_curve(d, co, star.id);
   } catch (const Error& e) {
@@ -104,6 +106,8 @@ RankRecord rank_star(const StarRecord& star, const std::string& bad_reason, cons
     r.score = kAbsent;
     return r;
   }
+  const auto t1 = std::chrono::steady_clock::now();
+  r.curve_s = std::chrono::duration<double>(t1 - t0).count();
   const CurvePoint* best = &c.points.front();
   for (const auto& p : c.points)
     if (p.weight > best->weight) best = &p;
@@ -143,6 +147,7 @@ RankRecord rank_star(const StarRecord& star, const std::string& bad_reason, cons
   if (!p.pa_modes_deg.empty()) r.pa_mode_deg = p.pa_modes_deg.front();
   r.pa_arc68_start_deg = p.pa_arc68_start_deg;
   r.pa_arc68_width_deg = p.pa_arc68_width_deg;
+  r.predict_s = std::chrono::duration<double>(std::chrono::steady_clock::now() - t1).count();
   return r;
 }
 

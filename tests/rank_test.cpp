@@ -179,3 +179,20 @@ TEST_CASE("rank: detection probability, and malformed contrast and mass-magnitud
   CHECK(test::run_heft("rank " + stars + kRankArgs + kFast + " --contrast " + contrast + " --mass-mag " + massmag, &err) == 2);
   CHECK_THAT(err, Catch::Contains("missing required column 'mass_mjup'"));
 }
+
+TEST_CASE("rank: progress bar only on a terminal, never under -q or in a pipe", "[rank][cli]") {
+  // `script` (util-linux) runs the command on a pseudo-terminal.
+  const std::string stars = test::tmp_path("bar_stars.csv"), out = test::tmp_path("bar_out.csv"),
+                    log = test::tmp_path("bar_log.txt");
+  REQUIRE(test::run_heft("simulate -q --stars 60 --seed 4 --companion-fraction 0.5 --companion-mass loguniform:20,80 "
+                         "--a loguniform:3,30 --distance uniform:20,40 -o " + stars) == 0);
+  const std::string rank = std::string(HEFT_BINARY) + " rank " + stars + " --date 2027.5 --draws 64 --n-a 8 -o " + out;
+  REQUIRE(std::system(("script -qec '" + rank + "' " + log + " > /dev/null").c_str()) == 0);
+  CHECK_THAT(test::read_text(log), Catch::Contains("ETA") && Catch::Contains("/s"));
+  REQUIRE(std::system(("script -qec '" + rank + " -q' " + log + " > /dev/null").c_str()) == 0);
+  CHECK_THAT(test::read_text(log), !Catch::Contains("ETA"));
+  std::string err;
+  REQUIRE(test::run_heft("rank " + stars + " --date 2027.5 --draws 64 --n-a 8 -o " + out, &err) == 0);
+  CHECK_THAT(err, !Catch::Contains("ETA"));
+  CHECK_THAT(err, Catch::Contains("with curves"));
+}

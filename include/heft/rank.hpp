@@ -69,6 +69,9 @@ struct RankRecord {
   double pa_mode_deg = kAbsent, pa_arc68_start_deg = kAbsent, pa_arc68_width_deg = kAbsent;
   std::string status, notes;
   long rank = 0;  ///< 1-based; 0 before ranking
+  /// Wall time of this star's curve and of its sky prediction and score (s);
+  /// for the run's stage summary, never written to the outputs.
+  double curve_s = 0.0, predict_s = 0.0;
 };
 
 /// Screens one star and, when its anomaly is significant, scores it.

@@ -3,6 +3,7 @@
 
 #include <omp.h>
 
+#include <chrono>
 #include <cstdio>
 #include <fstream>
 #include <map>
@@ -25,7 +26,7 @@ struct RankCliOptions {
   WindowDefaults windows;
   RankOptions rank;
   double a_min_au = 0.5, a_max_au = 500.0;
-  int n_a = 32;
+  int n_a = 24;
   long max_curves = 0;
   int threads = 0;
   bool resume = false, quiet = false;
@@ -80,6 +81,7 @@ int run_rank(RankCliOptions o) {
     ropt.mass_mag = mass_mag.get();
   }
 
+  const auto t_start = std::chrono::steady_clock::now();
   // Pass 1: read every row, keep this shard's, screen them.
   InputFile in(o.input);
   StarTableReader reader(in.stream(), in.name(), o.windows);
@@ -104,6 +106,7 @@ int run_rank(RankCliOptions o) {
     }
   }
   const long total_rows = reader.rows();
+  const double screen_s = std::chrono::duration<double>(std::chrono::steady_clock::now() - t_start).count();
   // The most significant first, so that --max-curves keeps the best.
   std::vector<std::size_t> order(candidates.size());
   for (std::size_t k = 0; k < order.size(); ++k) order[k] = k;
@@ -199,6 +202,14 @@ int run_rank(RankCliOptions o) {
     bar.update(now);
   }
   bar.finish();
+  double curve_s = 0.0, predict_s = 0.0;
+  for (std::size_t k = 0; k < todo.size(); ++k)
+    if (!have[k]) {
+      curve_s += computed[k].curve_s;
+      predict_s += computed[k].predict_s;
+    }
+  const double stage2_s =
+      std::chrono::duration<double>(std::chrono::steady_clock::now() - t_start).count() - screen_s;
   if (cp_out && !*cp_out) throw Error("heft rank: writing the checkpoint " + checkpoint + " failed");
   for (auto& r : computed) records.push_back(std::move(r));
   assign_ranks(records);
@@ -212,9 +223,15 @@ int run_rank(RankCliOptions o) {
   StatusCounter counter;
   for (const auto& r : records) counter.add(r.status);
   counter.print_summary("rank");
-  if (!o.quiet)
+  if (!o.quiet) {
     message("rank", std::to_string(records.size()) + " stars (shard " + f["shard"] + "), " +
                         std::to_string(todo.size()) + " with curves");
+    char b[200];
+    std::snprintf(b, sizeof b,
+                  "time: read + screen %.2f s; curves + predict %.2f s wall (thread sums: curves %.2f s, predict %.3f s)",
+                  screen_s, stage2_s, curve_s, predict_s);
+    message("rank", b);
+  }
   return counter.exit_code();
 }
 
@@ -224,7 +241,7 @@ void setup_rank(CLI::App& app, Runner& run) {
   auto o = std::make_shared<RankCliOptions>();
   RankOptions& r = o->rank;
   CurveOptions& c = r.curve;
-  c.draws = 1024;
+  c.draws = 256;
   CLI::App* sub = app.add_subcommand(
       "rank",
       "Rank imaging candidates: screen every star, compute curves above --detect-sigma, predict the "
