@@ -1,10 +1,12 @@
 #!/usr/bin/env bash
-# Installs the Debian packages listed in .ci/debian-packages.txt that are
-# missing. As root it runs apt-get; otherwise it prints the one apt line and
-# fails. Sourced-or-run by demo/run.sh and tests/run.sh.
+# Installs the Debian packages listed in .ci/debian-packages.txt (or in the
+# list file given as $1) that are missing. As root it runs apt-get; otherwise
+# it prints the one apt line and fails. Run by demo/run.sh and tests/run.sh
+# (the main list) and by bench/cluster/check.sh (.ci/bench-packages.txt).
 set -euo pipefail
 here=$(cd "$(dirname "${BASH_SOURCE[0]}")" && pwd)
-mapfile -t wanted < <(grep -v -e '^#' -e '^[[:space:]]*$' "$here/debian-packages.txt")
+list=${1:-$here/debian-packages.txt}
+mapfile -t wanted < <(grep -v -e '^#' -e '^[[:space:]]*$' "$list")
 missing=()
 for p in "${wanted[@]}"; do
   dpkg-query -W -f='${Status}' "$p" 2>/dev/null | grep -q 'install ok installed' || missing+=("$p")

@@ -6,6 +6,7 @@
 # Usage: bench/cluster/check.sh [stars=20000]   (not part of the test suite)
 set -euo pipefail
 here=$(cd "$(dirname "$0")" && pwd)
+bash "$here/../../.ci/ensure-packages.sh" "$here/../../.ci/bench-packages.txt"
 heft=${HEFT:-$here/../../build/heft}
 n=${1:-20000}
 work=$(mktemp -d /tmp/heft-cluster.XXXXXX)

@@ -257,8 +257,11 @@ void setup_fit(CLI::App& app, Runner& run) {
   sub->footer(
       "Parameters: ln mass (MJup), ln a (AU), sqrt(e) cos/sin omega, cos i, Omega, mean longitude at the "
       "late catalogue epoch (rad), host mass (Msun), parallax (mas), barycentric pmra/pmdec (mas/yr), "
-      "per instrument an RV offset (m/s) and ln jitter (ln m/s). Output quantiles 2.5/16/50/84/97.5 % of "
-      "mass (MJup), a (AU), P (yr), e, i (deg). Exit 3 when no start reaches a finite posterior.");
+      "per instrument an RV offset (m/s) and ln jitter (ln m/s). Priors: mass log-uniform on [m_min, m_max] "
+      "(uniform on (0, m_max] for an upper limit), a log-uniform, e from --ecc, isotropic orientation (cos i, "
+      "Omega, mean longitude uniform), host mass from the star file, parallax normal (late catalogue), PM and "
+      "RV offsets uniform, jitter log-uniform. Output quantiles 2.5/16/50/84/97.5 % of mass (MJup), a (AU), "
+      "P (yr), e, i (deg). Exit 3 when no start reaches a finite posterior.");
   sub->callback([o, &run] { run = [o] { return run_fit_command(*o); }; });
 }
 
