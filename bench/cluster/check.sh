@@ -27,9 +27,9 @@ echo "GNU parallel: $(echo "$t2 - $t1" | bc) s"
 # 2. Slurm array job, then the merge.
 sinfo >/dev/null 2>&1 || bash "$here/start_slurm.sh"
 cd "$work"
-sbatch --wait --array=1-4 --cpus-per-task=1 \
-  --export=ALL,STARS="$work/stars.csv",PARTS="$work/slurm",HEFT="$heft",RANK_OPTS="$opts" \
-  "$here/rank_array.sbatch" >/dev/null
+# Options hold commas, which --export=VAR=... would split: export instead.
+export STARS="$work/stars.csv" PARTS="$work/slurm" HEFT="$heft" RANK_OPTS="$opts"
+sbatch --wait --array=1-4 --cpus-per-task=1 --export=ALL "$here/rank_array.sbatch" >/dev/null
 "$heft" merge -q "$work"/slurm/part-{1,2,3,4}.csv -o "$work/slurm.csv"
 cmp "$work/single.csv" "$work/slurm.csv" && echo "Slurm array job, 4 tasks: identical to the single run"
 t3=$(date +%s.%N)
