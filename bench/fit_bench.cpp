@@ -27,9 +27,12 @@ double seconds_since(std::chrono::steady_clock::time_point t0) {
   return std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
 }
 
-double quantile(std::vector<double> v, double p) {
+double quantile(std::vector<std::pair<double, double>> v, double p) {
   std::sort(v.begin(), v.end());
-  return v[static_cast<std::size_t>(p * (v.size() - 1))];
+  double acc = 0.0;
+  for (const auto& [x, w] : v)
+    if ((acc += w) >= p) return x;
+  return v.back().first;
 }
 
 }  // namespace
@@ -91,13 +94,14 @@ int main(int argc, char** argv) {
       f.relative.push_back(observe_companion(t, f.star.late.epoch_yr, ep, 2.0, 0.3, rng));
     const FitModel m(f, row.result, o);
     const FitResult r = run_fit(m, o, f.star.id);
-    std::vector<double> v[3];
+    std::vector<std::pair<double, double>> v[3];
     for (Eigen::Index k = 0; k < r.chain.samples.rows(); ++k) {
       const Eigen::VectorXd p = r.chain.samples.row(k).transpose();
       const OrbitDraw d = m.orbit(p.data());
-      v[0].push_back(d.mass_mjup);
-      v[1].push_back(d.a_au);
-      v[2].push_back(d.ecc);
+      const double w = r.sample_weight[k];
+      v[0].emplace_back(d.mass_mjup, w);
+      v[1].emplace_back(d.a_au, w);
+      v[2].emplace_back(d.ecc, w);
     }
     const double truth[3] = {t.mass_mjup, t.a_au, t.ecc};
     for (int k = 0; k < 3; ++k) {

@@ -78,7 +78,7 @@ EnsembleChain run_ensemble(const std::function<double(const double*)>& log_prob,
       }
     }
     if (step < opt.burn) {
-      if ((step + 1) % std::max(1, opt.burn / 4) == 0) rescue_stranded(pos, lp, rng[0]);
+      if (opt.rescue && (step + 1) % std::max(1, opt.burn / 4) == 0) rescue_stranded(pos, lp, rng[0]);
       continue;
     }
     accepted += acc_step;

@@ -104,7 +104,7 @@ TEST_CASE("fit: relative-astrometry model reproduces the visual-binary worked ex
   f.relative.push_back({1980.0, false, 411.0 * std::sin(th), 411.0 * std::cos(th), 0.5, 0.5, 0.0});
   const FitModel m(f, row.result, FitOptions{});
   const double w = units::deg_to_rad(219.907), node = units::deg_to_rad(23.717), e = 0.2763;
-  const double mean_ref = units::kTwoPi * (star.late.epoch_yr - 1934.008) / per;
+  const double mean_ref = units::kTwoPi * (m.ref_epoch_yr() - 1934.008) / per;
   std::vector<double> p = {std::log(m2_mjup), std::log(a_au), std::sqrt(e) * std::cos(w), std::sqrt(e) * std::sin(w),
                            std::cos(units::deg_to_rad(59.025)), node, mean_ref + w + node, m1, plx,
                            row.result.pml_late_mas_yr[0], row.result.pml_late_mas_yr[1]};
@@ -280,7 +280,7 @@ TEST_CASE("heft fit: same output for -j 1 and -j 2; errors name the JSON path", 
   const nlohmann::json j = nlohmann::json::parse(test::read_text(a));
   CHECK(j["orbit_constraint"] == "relative_astrometry");
   CHECK(j["posterior"]["quantiles"]["mass_mjup"]["q50"].get<double>() > 0.0);
-  CHECK(test::read_table(sa).rows.size() == 20u * 64u);
+  CHECK(test::read_table(sa).rows.size() % (20u * 64u) == 0);  // 20 kept steps x 64 walkers per mode
   std::string err;
   const std::string bad = test::tmp_path("fit_bad.json");
   test::write_text(bad, "{\"id\": \"X\", \"star\": {}, \"colour\": 1}");

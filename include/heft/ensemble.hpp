@@ -19,6 +19,10 @@ struct EnsembleOptions {
   int thin = 50;           ///< keep every thin-th step
   double stretch = 2.0;    ///< scale a of the stretch move, z ~ 1/sqrt(z) on [1/a, a]
   std::uint64_t seed = 1;
+  /// During burn-in, move walkers stranded far below the ensemble's median
+  /// log density onto better ones (for starts that are not yet posterior
+  /// draws; it would distort starts that are).
+  bool rescue = true;
 };
 
 struct EnsembleChain {

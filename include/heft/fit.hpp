@@ -31,7 +31,7 @@ enum FitParam : int {
   kSqrtESin,    ///< sqrt(e) sin omega
   kCosInc,      ///< cos i
   kNode,        ///< Omega (rad)
-  kLambda,      ///< mean longitude M + omega + Omega at the late catalogue epoch (rad)
+  kLambda,      ///< mean longitude M + omega + Omega at FitModel::ref_epoch_yr() (rad)
   kHostMass,    ///< host mass (Msun)
   kParallax,    ///< parallax (mas)
   kPmra,        ///< barycentric mu_alpha* at the late epoch (mas/yr)
@@ -69,7 +69,9 @@ class FitModel {
   int n_instruments() const { return n_inst_; }
   int n_residuals() const { return n_res_; }
   bool upper_limit() const { return upper_limit_; }
-  double ref_epoch_yr() const { return late_.ref_epoch_yr; }
+  /// Epoch of the mean longitude kLambda: the mean epoch of the relative
+  /// astrometry, else the late catalogue epoch.
+  double ref_epoch_yr() const { return phase_epoch_yr_; }
   /// Lower end of the mass prior (MJup): m_min, or 1e-4 m_max for upper limits.
   double mass_floor_mjup() const { return std::exp(ln_m_lo_); }
 
@@ -89,8 +91,6 @@ class FitModel {
   /// A start drawn from the prior (orientation, phase, e, mass, a; a near
   /// the imaged separation when there is relative astrometry).
   Eigen::VectorXd prior_draw(Rng& rng) const;
-  /// Log density of prior_draw's distribution at p (angles taken mod 2 pi).
-  double prior_draw_log_density(const Eigen::VectorXd& p) const;
 
   /// Parameters of an orbit draw (e.g. from heft curve): the barycentric PM
   /// drawn given the orbit's reflex, RV offsets at their weighted best,
@@ -119,7 +119,7 @@ class FitModel {
                 T y[6]) const;
 
   Window early_, late_;
-  double dt_yr_;
+  double dt_yr_, phase_epoch_yr_;
   Eigen::Matrix<double, 6, 1> pm_obs_;
   Eigen::Matrix<double, 6, 6> pm_whiten_;  ///< L^-1 of the 6x6 covariance
   double plx_cat_, plx_sigma_;
@@ -157,21 +157,35 @@ struct FitMinimum {
 /// Names of FitMinimum::derived.
 const std::vector<std::string>& derived_names();
 
+/// A mode sampled by its own ensemble (runs with relative astrometry; one
+/// mode of weight 1 otherwise).
+struct ModeStart {
+  double m2lnpost;  ///< at its minimum
+  double weight;    ///< posterior weight (Laplace evidence share)
+  int walkers;
+};
+
 struct FitResult {
   std::vector<FitMinimum> minima;  ///< best first
   bool upper_limit = false;
   bool orbit_statistical = false;  ///< no relative astrometry
   bool sampled = false;
+  /// The pooled chains of the modes (iat_steps: the largest over modes;
+  /// acceptance: weighted by the modes) and each kept sample's weight
+  /// (summing to 1).
   EnsembleChain chain;
-  double init_ess = 0.0;           ///< effective size of the walkers' importance draws
+  std::vector<double> sample_weight;
+  double init_ess = 0.0;           ///< without imaging: effective size of the walkers' pool
+  std::vector<ModeStart> modes;    ///< the sampled modes
   std::vector<std::string> warnings;
 };
 
 /// Multi-start optimisation (Levenberg-Marquardt on the residuals, then
 /// Ceres' gradient-problem solver on the full negative log posterior),
 /// distinct minima with Ceres covariances, then (opt.sample) the ensemble
-/// sampler started from importance-weighted draws of a mixture of the
-/// prior and Gaussians at the minima.
+/// sampler: with relative astrometry one ensemble per mode, the modes
+/// weighted by their Laplace evidence; without, one ensemble started from
+/// heft curve's importance-weighted draws.
 FitResult run_fit(const FitModel& model, const FitOptions& opt, const std::string& rng_id);
 
 /// Profile-likelihood curve: for each a of `a_au`, -2 ln L minimised over

@@ -60,11 +60,13 @@ ojson minimum_json(const FitModel& m, const FitMinimum& mn, bool with_cov) {
   return j;
 }
 
-double quantile(std::vector<double> v, double p) {
+// Weighted quantile of (value, weight) pairs (weights summing to 1).
+double quantile(std::vector<std::pair<double, double>> v, double p) {
   std::sort(v.begin(), v.end());
-  const double x = p * (v.size() - 1);
-  const std::size_t i = static_cast<std::size_t>(x);
-  return i + 1 < v.size() ? v[i] + (x - i) * (v[i + 1] - v[i]) : v.back();
+  double acc = 0.0;
+  for (const auto& [x, w] : v)
+    if ((acc += w) >= p) return x;
+  return v.back().first;
 }
 
 int run_fit_command(FitCliOptions o) {
@@ -131,14 +133,20 @@ int run_fit_command(FitCliOptions o) {
     post["thin"] = fopt.sampler.thin;
     post["kept"] = draws.size();
     post["acceptance"] = c.acceptance;
-    post["init_ess"] = r.init_ess;
+    ojson modes = ojson::array();
+    for (const auto& md : r.modes)
+      modes.push_back({{"m2lnpost", md.m2lnpost}, {"weight", md.weight}, {"walkers", md.walkers}});
+    if (f.relative.empty())
+      post["start"] = {{"method", "heft curve draws, importance-weighted"}, {"ess", r.init_ess}};
+    else
+      post["start"] = {{"method", "one ensemble per mode, modes weighted by Laplace evidence"}, {"modes", modes}};
     ojson tau;
     for (int i = 0; i < model.n_params(); ++i) tau[names[i]] = num(c.iat_steps[i]);
     post["autocorr_steps"] = tau;
     ojson q;
     auto add = [&](const char* name, auto get) {
-      std::vector<double> v;
-      for (const auto& d : draws) v.push_back(get(d));
+      std::vector<std::pair<double, double>> v;
+      for (std::size_t k = 0; k < draws.size(); ++k) v.emplace_back(get(draws[k]), r.sample_weight[k]);
       if (r.upper_limit && std::string(name) == "mass_mjup") {
         q[name] = {{"upper68", quantile(v, 0.68)}, {"upper95", quantile(v, 0.95)}};
         return;
@@ -157,9 +165,9 @@ int run_fit_command(FitCliOptions o) {
     j["posterior"] = post;
     if (samples) {
       std::string buf = draws_header();
-      for (auto& d : draws) {
-        d.weight = 1.0 / draws.size();
-        append_draw_row(buf, f.star.id, d);
+      for (std::size_t k = 0; k < draws.size(); ++k) {
+        draws[k].weight = r.sample_weight[k];
+        append_draw_row(buf, f.star.id, draws[k]);
       }
       samples->write(buf);
     }
@@ -256,7 +264,7 @@ void setup_fit(CLI::App& app, Runner& run) {
   sub->add_flag("-q,--quiet", o->quiet, "no informational messages");
   sub->footer(
       "Parameters: ln mass (MJup), ln a (AU), sqrt(e) cos/sin omega, cos i, Omega, mean longitude at the "
-      "late catalogue epoch (rad), host mass (Msun), parallax (mas), barycentric pmra/pmdec (mas/yr), "
+      "mean epoch of the relative astrometry, else the late catalogue epoch (rad), host mass (Msun), parallax (mas), barycentric pmra/pmdec (mas/yr), "
       "per instrument an RV offset (m/s) and ln jitter (ln m/s). Priors: mass log-uniform on [m_min, m_max] "
       "(uniform on (0, m_max] for an upper limit), a log-uniform, e from --ecc, isotropic orientation (cos i, "
       "Omega, mean longitude uniform), host mass from the star file, parallax normal (late catalogue), PM and "
