@@ -649,15 +649,26 @@ Eigen::MatrixXd walkers_from_curve(const FitModel& m, int walkers, Rng& rng, con
   return w;
 }
 
+// The mirror orbit (omega + pi, Omega + pi; the mean longitude is unchanged):
+// the same sky motion with the line of sight reversed, so without RVs the
+// same likelihood.
+Eigen::VectorXd mirror(Eigen::VectorXd p) {
+  p[kSqrtECos] = -p[kSqrtECos];
+  p[kSqrtESin] = -p[kSqrtESin];
+  p[kNode] = wrap_2pi(p[kNode] + units::kPi);
+  return p;
+}
+
 // Starts with relative astrometry: the minima are the modes (a minimum
 // within a Mahalanobis distance of 3 of a better one is the same mode; the
 // mirror orbit with omega + pi, Omega + pi is a separate mode of equal
-// likelihood without RVs). Each mode keeps its Laplace evidence
+// likelihood without RVs, sampled once with half its samples mirrored).
+// Each mode keeps its Laplace evidence
 // exp(-nlp) sqrt(det C) (e.g. MacKay 2003, Information Theory, Inference and
 // Learning Algorithms, ch. 27) as its posterior weight and gets an ensemble
 // of its own, started from N(p, C / 4) in the core and +-0.1 in the ln
 // jitters: walkers of this sampler do not cross between modes, and pairing
-// walkers of different modes would only waste moves. Modes below 0.1 % of
+// walkers of different modes would only waste moves. Modes below 1 % of
 // the weight are dropped, at most four are kept.
 std::vector<std::pair<Eigen::MatrixXd, ModeStart>> mode_starts(const FitModel& m, const std::vector<FitMinimum>& minima,
                                                                int walkers, Rng& rng) {
@@ -666,31 +677,44 @@ std::vector<std::pair<Eigen::MatrixXd, ModeStart>> mode_starts(const FitModel& m
     const FitMinimum* mn;
     Eigen::MatrixXd chol;  // of C in the core
     double log_z;
+    bool mirrored;
   };
   std::vector<Mode> ms;
+  const bool symmetric = m.n_instruments() == 0;
   for (const auto& mn : minima) {
     if (!mn.covariance_ok) continue;
     const Eigen::LLT<Eigen::MatrixXd> llt(mn.cov);
     if (llt.info() != Eigen::Success) continue;
+    const Eigen::MatrixXd L = llt.matrixL();
+    const double log_z = -0.5 * mn.m2lnpost + L.diagonal().array().log().sum();
     bool same = false;
-    for (const auto& x : ms) {
-      Eigen::VectorXd d = (mn.p - x.mn->p).head(nc);
-      d[kNode] = wrap_pi(d[kNode]);
-      d[kLambda] = wrap_pi(d[kLambda]);
-      if (x.chol.triangularView<Eigen::Lower>().solve(d).squaredNorm() < 9.0) same = true;
+    for (auto& x : ms) {
+      auto near = [&](const Eigen::VectorXd& q) {
+        Eigen::VectorXd d = (q - x.mn->p).head(nc);
+        d[kNode] = wrap_pi(d[kNode]);
+        d[kLambda] = wrap_pi(d[kLambda]);
+        return x.chol.triangularView<Eigen::Lower>().solve(d).squaredNorm() < 9.0;
+      };
+      if (near(mn.p)) {
+        same = true;
+      } else if (symmetric && !x.mirrored && near(mirror(mn.p))) {
+        // The mirror of a mode: sampled once, half its samples mirrored.
+        x.log_z += std::log1p(std::exp(log_z - x.log_z));
+        x.mirrored = same = true;
+      }
+      if (same) break;
     }
     if (same) continue;
-    const Eigen::MatrixXd L = llt.matrixL();
-    ms.push_back({&mn, L, -0.5 * mn.m2lnpost + L.diagonal().array().log().sum()});
+    ms.push_back({&mn, L, log_z, false});
   }
-  if (ms.empty()) ms.push_back({&minima.front(), Eigen::MatrixXd::Identity(nc, nc) * 1e-6, 0.0});
+  if (ms.empty()) ms.push_back({&minima.front(), Eigen::MatrixXd::Identity(nc, nc) * 1e-6, 0.0, false});
   double mx = -kInf;
   for (const auto& x : ms) mx = std::max(mx, x.log_z);
   std::stable_sort(ms.begin(), ms.end(), [](const Mode& x, const Mode& y) { return x.log_z > y.log_z; });
   double sz = 0.0;
   std::vector<Mode> kept;
   for (const auto& x : ms)
-    if (kept.size() < 4 && x.log_z - mx > std::log(1e-3)) {
+    if (kept.size() < 4 && x.log_z - mx > std::log(1e-2)) {
       kept.push_back(x);
       sz += std::exp(x.log_z - mx);
     }
@@ -711,7 +735,7 @@ std::vector<std::pair<Eigen::MatrixXd, ModeStart>> mode_starts(const FitModel& m
       }
       w.col(col) = x;
     }
-    out.push_back({w, {md.mn->m2lnpost, std::exp(md.log_z - mx) / sz, walkers}});
+    out.push_back({w, {md.mn->m2lnpost, std::exp(md.log_z - mx) / sz, walkers, md.mirrored}});
   }
   return out;
 }
@@ -762,6 +786,11 @@ FitResult run_fit(const FitModel& m, const FitOptions& opt, const std::string& r
     eo.seed = srng.next();
     eo.rescue = m.has_relative();  // heft curve's draws already follow the posterior
     EnsembleChain c = run_ensemble(log_prob, start, eo);
+    if (mode.mirrored)
+      for (Eigen::Index k = 1; k < c.samples.rows(); k += 2) {
+        const Eigen::VectorXd q = mirror(c.samples.row(k).transpose());
+        c.samples.row(k) = q.transpose();
+      }
     const Eigen::Index rows0 = res.chain.samples.rows();
     if (rows0 == 0) {
       res.chain = c;

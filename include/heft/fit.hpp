@@ -163,6 +163,9 @@ struct ModeStart {
   double m2lnpost;  ///< at its minimum
   double weight;    ///< posterior weight (Laplace evidence share)
   int walkers;
+  /// Holds its mirror orbit too (omega + pi, Omega + pi: the same likelihood
+  /// without RVs): every second sample is mirrored.
+  bool mirrored = false;
 };
 
 struct FitResult {

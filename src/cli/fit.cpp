@@ -135,7 +135,8 @@ int run_fit_command(FitCliOptions o) {
     post["acceptance"] = c.acceptance;
     ojson modes = ojson::array();
     for (const auto& md : r.modes)
-      modes.push_back({{"m2lnpost", md.m2lnpost}, {"weight", md.weight}, {"walkers", md.walkers}});
+      modes.push_back({{"m2lnpost", md.m2lnpost}, {"weight", md.weight}, {"walkers", md.walkers},
+                       {"with_mirror", md.mirrored}});
     if (f.relative.empty())
       post["start"] = {{"method", "heft curve draws, importance-weighted"}, {"ess", r.init_ess}};
     else
