@@ -18,6 +18,7 @@
 
 #include "heft/fit.hpp"
 #include "heft/simulate.hpp"
+#include "heft/stats.hpp"
 
 using namespace heft;
 
@@ -29,10 +30,7 @@ double seconds_since(std::chrono::steady_clock::time_point t0) {
 
 double quantile(std::vector<std::pair<double, double>> v, double p) {
   std::sort(v.begin(), v.end());
-  double acc = 0.0;
-  for (const auto& [x, w] : v)
-    if ((acc += w) >= p) return x;
-  return v.back().first;
+  return weighted_quantile(v, 1.0, p);
 }
 
 }  // namespace

@@ -8,6 +8,7 @@
 #include "heft/io.hpp"
 #include "heft/rng.hpp"
 #include "heft/screen.hpp"
+#include "heft/stats.hpp"
 #include "heft/window.hpp"
 
 namespace heft {
@@ -140,16 +141,6 @@ struct MassPrior {
 struct Sample {
   double log_w, m2_mjup, node;
 };
-
-double weighted_quantile(const std::vector<std::pair<double, double>>& sorted, double total,
-                         double p) {
-  double acc = 0.0;
-  for (const auto& [v, w] : sorted) {
-    acc += w;
-    if (acc >= p * total) return v;
-  }
-  return sorted.empty() ? kAbsent : sorted.back().first;
-}
 
 struct PointResult {
   CurvePoint point;

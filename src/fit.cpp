@@ -426,6 +426,20 @@ class Objective final : public ceres::FirstOrderFunction {
   std::vector<double> scale_;
 };
 
+// The whitened residuals of `m` at p as a Ceres problem: block 1 the core
+// and RV offsets, block 2 the ln jitters, held constant.
+void add_residuals(ceres::Problem& problem, const FitModel& m, const Pinned& pinned, Eigen::VectorXd& p) {
+  const int nc = kFitCore + m.n_instruments(), nj = m.n_instruments();
+  auto* cost = new ceres::DynamicAutoDiffCostFunction<LsqFunctor, 4>(new LsqFunctor{&m, &pinned});
+  cost->AddParameterBlock(nc);
+  if (nj > 0) cost->AddParameterBlock(nj);
+  cost->SetNumResiduals(m.n_residuals());
+  std::vector<double*> blocks = {p.data()};
+  if (nj > 0) blocks.push_back(p.data() + nc);
+  problem.AddResidualBlock(cost, nullptr, blocks);
+  if (nj > 0) problem.SetParameterBlockConstant(p.data() + nc);
+}
+
 struct Local {
   Eigen::VectorXd p;
   double f = kInf;
@@ -435,21 +449,13 @@ struct Local {
 // One start: Levenberg-Marquardt on the residuals with the jitters held
 // fixed, then L-BFGS on the whole negative log posterior.
 Local minimise(const FitModel& m, Eigen::VectorXd p, const Pinned& pinned) {
-  const int nc = kFitCore + m.n_instruments(), nj = m.n_instruments();
   pinned.apply(p.data());
   Local out;
   if (!std::isfinite(m.neg_log_post(p.data()))) return out;
   {
     ceres::Problem::Options popt;
     ceres::Problem problem(popt);
-    auto* cost = new ceres::DynamicAutoDiffCostFunction<LsqFunctor, 4>(new LsqFunctor{&m, &pinned});
-    cost->AddParameterBlock(nc);
-    if (nj > 0) cost->AddParameterBlock(nj);
-    cost->SetNumResiduals(m.n_residuals());
-    std::vector<double*> blocks = {p.data()};
-    if (nj > 0) blocks.push_back(p.data() + nc);
-    problem.AddResidualBlock(cost, nullptr, blocks);
-    if (nj > 0) problem.SetParameterBlockConstant(p.data() + nc);
+    add_residuals(problem, m, pinned, p);
     problem.SetParameterLowerBound(p.data(), kCosInc, -1.0 + 1e-9);
     problem.SetParameterUpperBound(p.data(), kCosInc, 1.0 - 1e-9);
     ceres::Solver::Options so;
@@ -502,18 +508,11 @@ Local minimise(const FitModel& m, Eigen::VectorXd p, const Pinned& pinned) {
 // Ceres covariance of the core parameters and offsets at a minimum (jitters
 // held at their values); flags instead of failing.
 void covariance_at(const FitModel& m, FitMinimum& mn) {
-  const int nc = kFitCore + m.n_instruments(), nj = m.n_instruments();
+  const int nc = kFitCore + m.n_instruments();
   Eigen::VectorXd p = mn.p;
   const Pinned none;
   ceres::Problem problem;
-  auto* cost = new ceres::DynamicAutoDiffCostFunction<LsqFunctor, 4>(new LsqFunctor{&m, &none});
-  cost->AddParameterBlock(nc);
-  if (nj > 0) cost->AddParameterBlock(nj);
-  cost->SetNumResiduals(m.n_residuals());
-  std::vector<double*> blocks = {p.data()};
-  if (nj > 0) blocks.push_back(p.data() + nc);
-  problem.AddResidualBlock(cost, nullptr, blocks);
-  if (nj > 0) problem.SetParameterBlockConstant(p.data() + nc);
+  add_residuals(problem, m, none, p);
   ceres::Covariance::Options co;
   co.algorithm_type = ceres::DENSE_SVD;
   co.null_space_rank = 0;

@@ -4,6 +4,7 @@
 #include <cmath>
 
 #include "heft/kepler.hpp"
+#include "heft/stats.hpp"
 
 namespace heft {
 
@@ -60,19 +61,6 @@ void shortest_arc(std::vector<std::pair<double, double>> a, double fraction, dou
     acc -= a[i].second;
   }
 }
-
-namespace {
-
-double weighted_quantile(const std::vector<std::pair<double, double>>& sorted, double total, double p) {
-  double acc = 0.0;
-  for (const auto& [x, w] : sorted) {
-    acc += w;
-    if (acc >= p * total) return x;
-  }
-  return sorted.back().first;
-}
-
-}  // namespace
 
 SkyPrediction predict_sky(const std::vector<OrbitDraw>& draws, double date_yr, const PredictOptions& opt) {
   SkyPrediction r;

@@ -115,4 +115,13 @@ double ks_test(std::vector<double>& sample, double (*cdf)(double), double& p_val
   return d;
 }
 
+double weighted_quantile(const std::vector<std::pair<double, double>>& sorted, double total, double p) {
+  double acc = 0.0;
+  for (const auto& [v, w] : sorted) {
+    acc += w;
+    if (acc >= p * total) return v;
+  }
+  return sorted.empty() ? std::numeric_limits<double>::quiet_NaN() : sorted.back().first;
+}
+
 }  // namespace heft

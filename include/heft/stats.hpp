@@ -3,6 +3,7 @@
 /// Tail probabilities and significance conversions that stay finite far in
 /// the tails (chi2 up to 1e4 and beyond), by working with log-probabilities.
 
+#include <utility>
 #include <vector>
 
 namespace heft {
@@ -31,6 +32,11 @@ double chi2_to_sigma(double chi2, int dof);
 /// Standard normal quantile Phi^{-1}(p), 0 < p < 1 (Acklam's rational
 /// approximation refined by one Halley step; ~1e-15 relative).
 double normal_quantile(double p);
+
+/// Quantile p of weighted values: `sorted` (value, weight) pairs in
+/// increasing value, `total` their weight; the first value at which the
+/// cumulative weight reaches p total (NaN when empty).
+double weighted_quantile(const std::vector<std::pair<double, double>>& sorted, double total, double p);
 
 /// Kolmogorov-Smirnov test of a sample against a continuous CDF.
 /// Given: sample (sorted in place), cdf. Returned: the statistic D; `p_value`

@@ -8,6 +8,7 @@
 #include "heft/error.hpp"
 #include "heft/fit.hpp"
 #include "heft/io.hpp"
+#include "heft/stats.hpp"
 #include "heft/version.hpp"
 
 namespace heft::cli {
@@ -60,13 +61,10 @@ ojson minimum_json(const FitModel& m, const FitMinimum& mn, bool with_cov) {
   return j;
 }
 
-// Weighted quantile of (value, weight) pairs (weights summing to 1).
+// Quantile of (value, weight) pairs whose weights sum to 1.
 double quantile(std::vector<std::pair<double, double>> v, double p) {
   std::sort(v.begin(), v.end());
-  double acc = 0.0;
-  for (const auto& [x, w] : v)
-    if ((acc += w) >= p) return x;
-  return v.back().first;
+  return weighted_quantile(v, 1.0, p);
 }
 
 int run_fit_command(FitCliOptions o) {

@@ -8,7 +8,6 @@
 #include <fstream>
 #include <map>
 #include <memory>
-#include <set>
 
 #include "cli/commands.hpp"
 #include "heft/error.hpp"
@@ -87,7 +86,7 @@ int run_rank(RankCliOptions o) {
   StarTableReader reader(in.stream(), in.name(), o.windows);
   std::vector<RankRecord> records;
   std::vector<StarRecord> candidates;
-  std::vector<double> cand_sig;
+  std::vector<ScreenRow> cand_rows;
   {
     StarRecord star;
     std::string bad;
@@ -97,7 +96,7 @@ int run_rank(RankCliOptions o) {
       const ScreenRow sr = screen_star(star, bad, sopt);
       if (sr.ok() && sr.result.sig_joint >= c.detect_sigma) {
         candidates.push_back(star);
-        cand_sig.push_back(sr.result.sig_joint);
+        cand_rows.push_back(sr);
       } else {
         RankRecord r = screened_record(sr);
         if (sr.ok()) r.notes += std::string(r.notes.empty() ? "" : "|") + "below_detect_sigma";
@@ -111,13 +110,13 @@ int run_rank(RankCliOptions o) {
   std::vector<std::size_t> order(candidates.size());
   for (std::size_t k = 0; k < order.size(); ++k) order[k] = k;
   std::stable_sort(order.begin(), order.end(), [&](std::size_t a, std::size_t b) {
-    return cand_sig[a] != cand_sig[b] ? cand_sig[a] > cand_sig[b] : candidates[a].id < candidates[b].id;
+    const double sa = cand_rows[a].result.sig_joint, sb = cand_rows[b].result.sig_joint;
+    return sa != sb ? sa > sb : candidates[a].id < candidates[b].id;
   });
   std::vector<std::size_t> todo;
   for (std::size_t k = 0; k < order.size(); ++k) {
     if (o.max_curves > 0 && static_cast<long>(k) >= o.max_curves) {
-      const ScreenRow sr = screen_star(candidates[order[k]], "", sopt);
-      RankRecord r = screened_record(sr);
+      RankRecord r = screened_record(cand_rows[order[k]]);
       r.score = kAbsent;
       r.notes += std::string(r.notes.empty() ? "" : "|") + "curve_skipped:max_curves";
       records.push_back(r);
