@@ -168,6 +168,7 @@ StarTableReader::StarTableReader(std::istream& in, std::string name, WindowDefau
   if (!csv_.next()) throw InputError(csv_.name(), 0, 0, "empty file: no header row");
   const auto& header = csv_.fields();
   n_fields_ = header.size();
+  csv_.guard_commented_rows(n_fields_);
   const auto& cols = columns();
   field_of_column_.assign(cols.size() + 1, -1);  // slot 0 = id
   for (std::size_t f = 0; f < header.size(); ++f) {
@@ -181,7 +182,7 @@ StarTableReader::StarTableReader(std::istream& in, std::string name, WindowDefau
       continue;
     }
     if (field_of_column_[slot] != -1)
-      throw InputError(csv_.name(), csv_.line(), csv_.column(f), "duplicated column '" + h + "'");
+      throw InputError(csv_.name(), csv_.line(), csv_.column(f), "duplicated column '" + clip_for_message(h) + "'");
     field_of_column_[slot] = static_cast<int>(f);
   }
   if (field_of_column_[0] == -1)
@@ -202,6 +203,11 @@ bool StarTableReader::next(StarRecord& star, std::string& bad_reason) {
                          std::to_string(n_fields_));
   star = StarRecord{};
   star.id = f[field_of_column_[0]];
+  // Ids travel into every table and JSON heft writes, one line per star.
+  for (char c : star.id)
+    if (static_cast<unsigned char>(c) < 0x20 || c == 0x7F)
+      throw InputError(csv_.name(), csv_.line(), csv_.column(field_of_column_[0]),
+                       "column 'id': contains a control character (line break, tab, ...)");
   bad_reason.clear();
   const auto& cols = columns();
   for (std::size_t k = 0; k < cols.size(); ++k) {
@@ -214,8 +220,7 @@ bool StarTableReader::next(StarRecord& star, std::string& bad_reason) {
     }
     if (!parse_double(f[fi], slot))
       throw InputError(csv_.name(), csv_.line(), csv_.column(fi),
-                       "column '" + cols[k].name + "': not a number: '" + std::string(f[fi]) +
-                           "'");
+                       "column '" + cols[k].name + "': not a number: '" + clip_for_message(f[fi]) + "'");
   }
   if (!present(star.early.window_start_yr)) star.early.window_start_yr = windows_.early_start_yr;
   if (!present(star.early.window_end_yr)) star.early.window_end_yr = windows_.early_end_yr;

@@ -1,5 +1,7 @@
 #include "heft/draws.hpp"
 
+#include <algorithm>
+#include <cmath>
 #include <set>
 
 #include "heft/io.hpp"
@@ -59,6 +61,11 @@ std::vector<StarDraws> read_draws(std::istream& in, const std::string& name) {
     check(d.parallax_mas > 0, 9, "must be > 0");
     check(d.host_mass_msun > 0, 10, "must be > 0");
     check(d.weight >= 0, 11, "must be >= 0");
+    check(std::isfinite(d.a_au * d.parallax_mas), 0, "a_au x parallax_mas (the angular semi-major axis) is not finite");
+    // heft predicts at dates in [1900, 2200]: the mean anomaly must stay finite there.
+    const double dt_max_yr = std::max(std::abs(2200.0 - d.ref_epoch_yr), std::abs(1900.0 - d.ref_epoch_yr));
+    check(std::isfinite(std::abs(d.mean_anom_deg) + 360.0 * dt_max_yr / d.period_yr), 8,
+          "period too short for its reference epoch: the mean anomaly at dates 1900-2200 is not finite");
     out.back().draws.push_back(d);
   }
   return out;

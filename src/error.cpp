@@ -25,6 +25,9 @@ InputError InputError::at_json(std::string file, const std::string& json_path,
   return InputError(std::move(file), std::move(msg));
 }
 
+UsageError::UsageError(const std::string& option, const std::string& text, const std::string& rule)
+    : Error("option " + option + " '" + text + "': " + rule) {}
+
 NumericError::NumericError(const std::string& star_id, const std::string& stage,
                            const std::string& what)
     : Error("star " + star_id + ", " + stage + ": " + what) {}

@@ -1,8 +1,15 @@
 #include "heft/io.hpp"
 
+#include <fcntl.h>
+#include <sys/stat.h>
 #include <unistd.h>
 
+#include <algorithm>
+#include <atomic>
 #include <cerrno>
+#include <csignal>
+#include <cstdlib>
+#include <sstream>
 #include <charconv>
 #include <cmath>
 #include <cstring>
@@ -31,7 +38,14 @@ bool CsvReader::next() {
     if (!buf_.empty() && buf_.back() == '\r') buf_.pop_back();
     std::size_t k = 0;
     while (k < buf_.size() && (buf_[k] == ' ' || buf_[k] == '\t')) ++k;
-    if (k == buf_.size() || buf_[k] == '#') continue;
+    if (k == buf_.size()) continue;
+    if (buf_[k] == '#') {
+      if (guard_fields_ > 0 && static_cast<std::size_t>(std::count(buf_.begin(), buf_.end(), ',')) + 1 == guard_fields_)
+        throw InputError(name_, line_, static_cast<long>(k) + 1,
+                         "a line starting with '#' has the header's " + std::to_string(guard_fields_) +
+                             " fields: quote an id that starts with '#' (\"#...\"), or delete a commented-out row");
+      continue;
+    }
     break;
   }
   std::size_t i = 0;
@@ -85,7 +99,46 @@ bool CsvReader::next() {
     fields_.emplace_back(storage_.data() + begin, e - begin);
     begin = e;
   }
+  for (std::size_t f = 0; f < fields_.size(); ++f)
+    if (!valid_utf8(fields_[f])) throw InputError(name_, line_, columns_[f], "field is not valid UTF-8 text");
   return true;
+}
+
+bool valid_utf8(std::string_view t) {
+  const auto* p = reinterpret_cast<const unsigned char*>(t.data());
+  const std::size_t n = t.size();
+  for (std::size_t i = 0; i < n;) {
+    const unsigned c = p[i];
+    if (c < 0x80) {
+      ++i;
+      continue;
+    }
+    // Lead byte: sequence length and the allowed range of the second byte
+    // (RFC 3629, Table 3-7 of the Unicode standard).
+    std::size_t len;
+    unsigned lo = 0x80, hi = 0xBF;
+    if (c >= 0xC2 && c <= 0xDF) len = 2;
+    else if (c == 0xE0) len = 3, lo = 0xA0;
+    else if (c >= 0xE1 && c <= 0xEC) len = 3;
+    else if (c == 0xED) len = 3, hi = 0x9F;
+    else if (c >= 0xEE && c <= 0xEF) len = 3;
+    else if (c == 0xF0) len = 4, lo = 0x90;
+    else if (c >= 0xF1 && c <= 0xF3) len = 4;
+    else if (c == 0xF4) len = 4, hi = 0x8F;
+    else return false;
+    if (i + len > n || p[i + 1] < lo || p[i + 1] > hi) return false;
+    for (std::size_t k = 2; k < len; ++k)
+      if (p[i + k] < 0x80 || p[i + k] > 0xBF) return false;
+    i += len;
+  }
+  return true;
+}
+
+std::string clip_for_message(std::string_view text, std::size_t max_bytes) {
+  if (text.size() <= max_bytes) return std::string(text);
+  std::size_t cut = max_bytes;
+  while (cut > 0 && (static_cast<unsigned char>(text[cut]) & 0xC0) == 0x80) --cut;  // UTF-8 boundary
+  return std::string(text.substr(0, cut)) + "... (" + std::to_string(text.size()) + " bytes)";
 }
 
 bool parse_double(std::string_view text, double& value) {
@@ -94,11 +147,13 @@ bool parse_double(std::string_view text, double& value) {
   const char* first = text.data();
   const char* last = text.data() + text.size();
   auto [ptr, ec] = std::from_chars(first, last, value);
+  if (ptr != last) return false;  // also on a range error: the whole field must be the number
   if (ec == std::errc::result_out_of_range) {
+    // from_chars leaves the value unset; strtod gives +-inf or +-0 (or the subnormal).
     value = std::strtod(std::string(text).c_str(), nullptr);
     return true;
   }
-  return ec == std::errc() && ptr == last;
+  return ec == std::errc();
 }
 
 void append_double(std::string& out, double value) {
@@ -129,50 +184,183 @@ void append_csv_field(std::string& out, std::string_view field) {
   out += '"';
 }
 
-AtomicOutput::AtomicOutput(std::string path) : path_(std::move(path)) {
-  if (path_.empty() || path_ == "-") {
-    to_stdout_ = true;
-    file_ = stdout;
-    return;
+namespace {
+
+std::string system_reason() { return std::strerror(errno); }
+
+std::string dir_of(const std::string& p) {
+  const auto slash = p.find_last_of('/');
+  if (slash == std::string::npos) return ".";
+  return slash == 0 ? "/" : p.substr(0, slash);
+}
+
+std::string base_of(const std::string& p) {
+  const auto slash = p.find_last_of('/');
+  return slash == std::string::npos ? p : p.substr(slash + 1);
+}
+
+// Temporary files of live outputs, for the signal handler: a fixed table of
+// heap strings that the handler only reads (unlink is async-signal-safe).
+constexpr int kTempSlots = 64;
+std::atomic<char*> g_temp_paths[kTempSlots];
+
+int register_temp(const std::string& path) {
+  char* copy = ::strdup(path.c_str());
+  if (!copy) return -1;
+  for (int k = 0; k < kTempSlots; ++k) {
+    char* expected = nullptr;
+    if (g_temp_paths[k].compare_exchange_strong(expected, copy)) return k;
   }
-  const auto slash = path_.find_last_of('/');
-  const std::string dir = slash == std::string::npos ? std::string() : path_.substr(0, slash + 1);
-  const std::string base = slash == std::string::npos ? path_ : path_.substr(slash + 1);
-  tmp_path_ = dir + "." + base + ".tmp." + std::to_string(::getpid());
-  file_ = std::fopen(tmp_path_.c_str(), "wb");
-  if (!file_)
-    throw InputError(path_, 0, 0, std::string("cannot create output: ") + std::strerror(errno));
+  std::free(copy);
+  return -1;  // table full: the destructor still removes the file
+}
+
+void unregister_temp(int slot) {
+  if (slot >= 0) std::free(g_temp_paths[slot].exchange(nullptr));
+}
+
+extern "C" void remove_temps_and_reraise(int sig) {
+  for (auto& slot : g_temp_paths)
+    if (const char* p = slot.load()) ::unlink(p);
+  std::signal(sig, SIG_DFL);
+  std::raise(sig);
+}
+
+}  // namespace
+
+OutputTarget resolve_output(const std::string& path) {
+  OutputTarget t;
+  if (path.empty() || path == "-") {
+    t.identity = "<stdout>";
+    return t;
+  }
+  std::string p = path;
+  struct stat st {};
+  for (int hop = 0;; ++hop) {
+    if (::lstat(p.c_str(), &st) != 0) {
+      if (errno != ENOENT) throw InputError(path, 0, 0, "cannot use as output: " + system_reason());
+      t.kind = OutputTarget::Kind::kFile;  // a new file (or a dangling link's target)
+      break;
+    }
+    if (!S_ISLNK(st.st_mode)) {
+      if (S_ISDIR(st.st_mode)) throw InputError(path, 0, 0, "cannot write output: is a directory");
+      t.kind = S_ISREG(st.st_mode) ? OutputTarget::Kind::kFile : OutputTarget::Kind::kDirect;
+      break;
+    }
+    if (hop == 40) throw InputError(path, 0, 0, "cannot write output: too many levels of symbolic links");
+    std::string link(4096, '\0');
+    const ssize_t n = ::readlink(p.c_str(), link.data(), link.size());
+    if (n < 0) throw InputError(path, 0, 0, "cannot read symbolic link: " + system_reason());
+    link.resize(static_cast<std::size_t>(n));
+    p = link.front() == '/' ? link : dir_of(p) + "/" + link;
+  }
+  t.path = p;
+  if (t.kind == OutputTarget::Kind::kDirect) {
+    if (S_ISCHR(st.st_mode)) return t;  // /dev/null twice is fine
+    t.identity = "inode:" + std::to_string(st.st_dev) + ":" + std::to_string(st.st_ino);
+    return t;
+  }
+  char* dir = ::realpath(dir_of(p).c_str(), nullptr);
+  if (!dir) throw InputError(path, 0, 0, "cannot write output: folder " + dir_of(p) + ": " + system_reason());
+  t.identity = std::string(dir) + "/" + base_of(p);
+  std::free(dir);
+  return t;
+}
+
+void remove_outputs_on_signals() {
+  for (int sig : {SIGINT, SIGTERM, SIGHUP, SIGPIPE}) std::signal(sig, remove_temps_and_reraise);
+}
+
+AtomicOutput::AtomicOutput(std::string path) : path_(std::move(path)), target_(resolve_output(path_)) {
+  switch (target_.kind) {
+    case OutputTarget::Kind::kStdout:
+      file_ = stdout;
+      return;
+    case OutputTarget::Kind::kDirect: {
+      // No O_CREAT, no O_TRUNC: a device or FIFO is written as it is.
+      const int fd = ::open(target_.path.c_str(), O_WRONLY | O_CLOEXEC);
+      if (fd < 0 || !(file_ = ::fdopen(fd, "wb"))) {
+        if (fd >= 0) ::close(fd);
+        throw InputError(path_, 0, 0, "cannot open output: " + system_reason());
+      }
+      return;
+    }
+    case OutputTarget::Kind::kFile: {
+      std::string tmpl = dir_of(target_.path) + "/." + base_of(target_.path) + ".heft-XXXXXX";
+      const int fd = ::mkstemp(tmpl.data());
+      if (fd < 0) throw InputError(path_, 0, 0, "cannot create output: " + system_reason());
+      tmp_path_ = tmpl;
+      temp_slot_ = register_temp(tmp_path_);
+      // mkstemp makes the file 0600: give it the mode a plain create (or the
+      // file it replaces) would have.
+      struct stat st {};
+      mode_t mode;
+      if (::stat(target_.path.c_str(), &st) == 0) {
+        mode = st.st_mode & 07777;
+      } else {
+        const mode_t mask = ::umask(0);
+        ::umask(mask);
+        mode = 0666 & ~mask;
+      }
+      if (::fchmod(fd, mode) != 0 || !(file_ = ::fdopen(fd, "wb"))) {
+        const std::string why = system_reason();
+        ::close(fd);
+        ::unlink(tmp_path_.c_str());
+        unregister_temp(temp_slot_);
+        throw InputError(path_, 0, 0, "cannot create output: " + why);
+      }
+      return;
+    }
+  }
 }
 
 AtomicOutput::~AtomicOutput() {
-  if (to_stdout_ || committed_) return;
+  if (committed_ || is_stdout()) return;
   if (file_) std::fclose(file_);
-  std::remove(tmp_path_.c_str());
+  if (!tmp_path_.empty()) ::unlink(tmp_path_.c_str());
+  unregister_temp(temp_slot_);
+}
+
+void AtomicOutput::fail(const std::string& what) {
+  const std::string why = system_reason();
+  throw InputError(is_stdout() ? "<stdout>" : path_, 0, 0, what + ": " + why);
 }
 
 void AtomicOutput::write(std::string_view data) {
   if (data.empty()) return;
-  if (std::fwrite(data.data(), 1, data.size(), file_) != data.size())
-    throw InputError(path_, 0, 0, std::string("write failed: ") + std::strerror(errno));
+  if (committed_) throw InputError(path_, 0, 0, "write after commit");
+  if (std::fwrite(data.data(), 1, data.size(), file_) != data.size()) fail("write failed");
 }
 
 void AtomicOutput::commit() {
   if (committed_) return;
-  if (to_stdout_) {
-    std::fflush(stdout);
-    committed_ = true;
+  committed_ = true;
+  if (is_stdout()) {
+    if (std::fflush(stdout) != 0 || std::ferror(stdout)) fail("write failed");
     return;
   }
-  const bool ok = std::fflush(file_) == 0 && ::fsync(::fileno(file_)) == 0;
-  std::fclose(file_);
+  std::FILE* f = file_;
   file_ = nullptr;
-  if (!ok || std::rename(tmp_path_.c_str(), path_.c_str()) != 0) {
-    const std::string why = std::strerror(errno);
-    std::remove(tmp_path_.c_str());
-    committed_ = true;
-    throw InputError(path_, 0, 0, "cannot write output: " + why);
+  const bool flushed = std::fflush(f) == 0 && !std::ferror(f);
+  int saved = errno;
+  const bool synced = target_.kind != OutputTarget::Kind::kFile || ::fsync(::fileno(f)) == 0;
+  if (flushed && !synced) saved = errno;
+  const bool closed = std::fclose(f) == 0;
+  if (flushed && synced && !closed) saved = errno;
+  bool ok = flushed && synced && closed;
+  if (ok && target_.kind == OutputTarget::Kind::kFile) {
+    ok = std::rename(tmp_path_.c_str(), target_.path.c_str()) == 0;
+    if (!ok) saved = errno;
   }
-  committed_ = true;
+  if (target_.kind == OutputTarget::Kind::kFile) {
+    if (!ok) ::unlink(tmp_path_.c_str());
+    unregister_temp(temp_slot_);
+    temp_slot_ = -1;
+  }
+  if (!ok) {
+    errno = saved;
+    fail("cannot write output");
+  }
 }
 
 InputFile::InputFile(const std::string& path) : name_(path) {
@@ -181,9 +369,52 @@ InputFile::InputFile(const std::string& path) : name_(path) {
     name_ = "<stdin>";
     return;
   }
+  struct stat st {};
+  if (::stat(path.c_str(), &st) == 0 && S_ISDIR(st.st_mode)) throw InputError(path, 0, 0, "cannot read: is a directory");
   file_ = std::make_unique<std::ifstream>(path, std::ios::binary);
   if (!*file_) throw InputError(path, 0, 0, std::string("cannot open: ") + std::strerror(errno));
   in_ = file_.get();
+}
+
+nlohmann::json read_json(std::istream& in, const std::string& name) {
+  std::ostringstream buf;
+  buf << in.rdbuf();
+  const std::string text = buf.str();
+  // Line and column (1-based, in bytes) of byte offset `pos` (0-based).
+  auto fail_at = [&](std::size_t pos, const std::string& rule) -> nlohmann::json {
+    pos = std::min(pos, text.size());
+    long line = 1, col = 1;
+    for (std::size_t k = 0; k < pos; ++k) {
+      if (text[k] == '\n') ++line, col = 1;
+      else ++col;
+    }
+    throw InputError(name, line, col, rule);
+  };
+  // nlohmann's DOM parser drops the position of a number overflow (error
+  // 406); the SAX form of the same parser keeps it.
+  struct Sax : nlohmann::detail::json_sax_dom_parser<nlohmann::json> {
+    using json_sax_dom_parser::json_sax_dom_parser;
+    std::size_t pos = 0;
+    std::string what;
+    bool parse_error(std::size_t position, const std::string&, const nlohmann::detail::exception& ex) {
+      pos = position;
+      what = ex.what();
+      return false;
+    }
+  };
+  nlohmann::json j;
+  Sax sax(j, false);
+  if (text.empty()) throw InputError(name, 0, 0, "malformed JSON: empty file");
+  if (!nlohmann::json::sax_parse(text, &sax) || sax.is_errored()) {
+    std::string what = sax.what;
+    // Keep the library's reason, without its "[json.exception...]" tag.
+    if (const auto close = what.find("] "); what.rfind("[json.exception", 0) == 0 && close != std::string::npos)
+      what = what.substr(close + 2);
+    if (const auto colon = what.find(": "); what.rfind("parse error at line", 0) == 0 && colon != std::string::npos)
+      what = what.substr(colon + 2);  // we name the line and column ourselves
+    return fail_at(sax.pos > 0 ? sax.pos - 1 : 0, "malformed JSON: " + what);
+  }
+  return j;
 }
 
 void write_file_atomic(const std::string& path, std::string_view data) {
@@ -203,9 +434,10 @@ ColumnTable::ColumnTable(std::istream& in, std::string name, const std::vector<s
   for (std::size_t f = 0; f < csv_.fields().size(); ++f) {
     std::string h(csv_.fields()[f]);
     if (index(h) >= 0)
-      throw InputError(csv_.name(), csv_.line(), csv_.column(f), "duplicated column '" + h + "'");
+      throw InputError(csv_.name(), csv_.line(), csv_.column(f), "duplicated column '" + clip_for_message(h) + "'");
     header_.push_back(std::move(h));
   }
+  if (header_.front() == "id") csv_.guard_commented_rows(header_.size());
   for (const auto& r : required)
     if (index(r) < 0) throw InputError(csv_.name(), csv_.line(), 0, "missing required column '" + r + "'");
 }
@@ -228,7 +460,7 @@ int ColumnTable::index(std::string_view name) const {
 double ColumnTable::number(int col) const {
   double v = 0.0;
   if (!parse_double(text(col), v) || !std::isfinite(v))
-    fail(col, "not a finite number: '" + std::string(text(col)) + "'");
+    fail(col, "not a finite number: '" + clip_for_message(text(col)) + "'");
   return v;
 }
 

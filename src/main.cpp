@@ -3,11 +3,15 @@
 
 #include <CLI/CLI.hpp>
 #include <glog/logging.h>
+#include <cerrno>
+#include <cstdio>
+#include <cstring>
 #include <iostream>
 
 #include "cli/commands.hpp"
 #include "cli/common.hpp"
 #include "heft/error.hpp"
+#include "heft/io.hpp"
 #include "heft/version.hpp"
 
 int main(int argc, char** argv) {
@@ -35,19 +39,18 @@ int main(int argc, char** argv) {
     const int code = app.exit(e);
     return code == 0 ? kOk : kUsage;
   }
+  heft::remove_outputs_on_signals();
   try {
-    return run();
-  } catch (const heft::InputError& e) {
-    std::cerr << "heft: error: " << e.what() << '\n';
-    return kInput;
-  } catch (const heft::NumericError& e) {
-    std::cerr << "heft: numerical failure: " << e.what() << '\n';
-    return kNumeric;
-  } catch (const CLI::Error& e) {
-    std::cerr << "heft: " << e.what() << '\n';
-    return kUsage;
+    const int code = run();
+    // Data on stdout that could not be written is an error, not a success.
+    if (std::fflush(stdout) != 0 || std::ferror(stdout)) {
+      std::cerr << "heft: error: <stdout>: write failed: " << std::strerror(errno) << '\n';
+      return kInput;
+    }
+    return code;
   } catch (const std::exception& e) {
-    std::cerr << "heft: failure: " << e.what() << '\n';
-    return kNumeric;
+    const ErrorReport r = report_of(e);
+    std::cerr << "heft: " << r.prefix << e.what() << '\n';
+    return r.code;
   }
 }

@@ -3,6 +3,8 @@
 #include <algorithm>
 #include <cmath>
 
+#include "heft/error.hpp"
+#include "heft/io.hpp"
 #include "heft/kepler.hpp"
 #include "heft/stats.hpp"
 
@@ -66,6 +68,10 @@ SkyPrediction predict_sky(const std::vector<OrbitDraw>& draws, double date_yr, c
   SkyPrediction r;
   r.date_yr = date_yr;
   const std::vector<SkyOffset> off = sky_offsets(draws, date_yr);
+  for (std::size_t k = 0; k < off.size(); ++k)
+    if (!std::isfinite(off[k].sep_mas) || !std::isfinite(off[k].pa_deg))
+      throw NumericError("draw " + std::to_string(k + 1), "predict at " + format_double(date_yr),
+                         "the orbit gives a non-finite sky offset");
   double sw = 0.0, sw2 = 0.0, c = 0.0, s = 0.0, in = 0.0;
   std::vector<std::pair<double, double>> sep, pa;
   for (const auto& o : off) {
@@ -89,7 +95,8 @@ SkyPrediction predict_sky(const std::vector<OrbitDraw>& draws, double date_yr, c
   shortest_arc(pa, 0.68, r.pa_arc68_start_deg, r.pa_arc68_width_deg);
   // Modes: 1-deg histogram smoothed with a circular 5-deg Gaussian kernel.
   std::vector<double> hist(360, 0.0), smooth(360, 0.0);
-  for (const auto& [x, w] : pa) hist[std::min(359, static_cast<int>(x))] += w;
+  for (const auto& [x, w] : pa)
+    if (const int k = bin_index(x, 0.0, 1.0, 360); k >= 0) hist[k] += w;
   for (int i = 0; i < 360; ++i)
     for (int d = -15; d <= 15; ++d) smooth[i] += hist[(i + d + 360) % 360] * std::exp(-0.5 * d * d / 25.0);
   const double peak = *std::max_element(smooth.begin(), smooth.end());
@@ -109,9 +116,8 @@ SkyPrediction predict_sky(const std::vector<OrbitDraw>& draws, double date_yr, c
   const double h = r.grid_half_mas, cell = 2.0 * h / n;
   r.density.assign(static_cast<std::size_t>(n) * n, 0.0);
   for (const auto& o : off) {
-    const int i = static_cast<int>(std::floor((o.east_mas + h) / cell));
-    const int j = static_cast<int>(std::floor((o.north_mas + h) / cell));
-    if (i >= 0 && i < n && j >= 0 && j < n) r.density[static_cast<std::size_t>(j) * n + i] += o.weight;
+    const int i = bin_index(o.east_mas, -h, cell, n), j = bin_index(o.north_mas, -h, cell, n);
+    if (i >= 0 && j >= 0) r.density[static_cast<std::size_t>(j) * n + i] += o.weight;
   }
   for (double& v : r.density) v /= sw * cell * cell;
   return r;

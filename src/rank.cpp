@@ -4,10 +4,12 @@
 #include <chrono>
 #include <cmath>
 #include <nlohmann/json.hpp>
+#include <cstdio>
 #include <sstream>
 
 #include "heft/error.hpp"
 #include "heft/predict.hpp"
+#include "heft/rng.hpp"
 
 namespace heft {
 namespace {
@@ -216,6 +218,7 @@ std::string RankRunInfo::line() const {
 }
 
 RankRunInfo RankRunInfo::parse(const std::string& line, const std::string& file) {
+  if (!valid_utf8(line)) throw InputError(file, 1, 0, "run metadata line is not valid UTF-8 text");
   RankRunInfo info;
   std::istringstream in(line);
   std::string word;
@@ -266,11 +269,80 @@ std::string ranked_json(const RankRunInfo& info, const std::vector<RankRecord>& 
   return out + "\n],\n\"run\":" + run.dump() + "}\n";
 }
 
+namespace {
+
+// The first line without its line end and a UTF-8 byte-order mark.
+std::string metadata_line(std::string line) {
+  if (line.compare(0, 3, "\xEF\xBB\xBF") == 0) line.erase(0, 3);
+  if (!line.empty() && line.back() == '\r') line.pop_back();
+  return line;
+}
+
+std::string check_of(std::string_view bytes) {
+  char b[17];
+  std::snprintf(b, sizeof b, "%016llx", static_cast<unsigned long long>(fnv1a64(bytes)));
+  return b;
+}
+
+}  // namespace
+
+std::string checkpoint_head(const RankRunInfo& info) {
+  std::string h = rank_header();
+  h.pop_back();
+  return info.line() + h + ",check\n";
+}
+
+std::string checkpoint_line(const RankRecord& r) {
+  std::string line;
+  append_rank_row(line, r);
+  line.pop_back();
+  return line + "," + check_of(line) + "\n";
+}
+
+Checkpoint read_checkpoint(std::istream& in, const std::string& name) {
+  std::ostringstream buf;
+  buf << in.rdbuf();
+  const std::string text = buf.str();
+  Checkpoint cp;
+  std::size_t pos = 0;
+  long line_no = 0;
+  // Complete (newline-terminated) lines only: a torn tail is not a line.
+  auto next_line = [&](std::string_view& line) {
+    const std::size_t nl = text.find('\n', pos);
+    if (nl == std::string::npos) {
+      if (pos < text.size()) ++cp.dropped;
+      return false;
+    }
+    line = std::string_view(text).substr(pos, nl - pos);
+    if (!line.empty() && line.back() == '\r') line.remove_suffix(1);
+    pos = nl + 1;
+    ++line_no;
+    return true;
+  };
+  std::string_view line;
+  if (!next_line(line)) throw InputError(name, 1, 0, "no run metadata line");
+  cp.info = RankRunInfo::parse(metadata_line(std::string(line)), name);
+  std::string header = rank_header();
+  header.pop_back();
+  if (!next_line(line) || line != header + ",check")
+    throw InputError(name, 2, 1, "not a heft rank checkpoint header");
+  while (next_line(line)) {
+    const auto comma = line.rfind(',');
+    if (comma == std::string_view::npos || line.substr(comma + 1) != check_of(line.substr(0, comma))) {
+      ++cp.dropped;
+      continue;
+    }
+    std::istringstream row(header + "\n" + std::string(line.substr(0, comma)) + "\n");
+    ColumnTable t(row, name, rank_columns(), line_no - 1);
+    if (t.next()) cp.records.push_back(parse_rank_row(t));
+  }
+  return cp;
+}
+
 std::vector<RankRecord> read_ranked(std::istream& in, const std::string& name, RankRunInfo& info) {
   std::string first;
   if (!std::getline(in, first)) throw InputError(name, 0, 0, "empty file: no run metadata line");
-  if (!first.empty() && first.back() == '\r') first.pop_back();
-  info = RankRunInfo::parse(first, name);
+  info = RankRunInfo::parse(metadata_line(first), name);
   ColumnTable t(in, name, rank_columns(), 2);
   std::vector<RankRecord> out;
   while (t.next()) out.push_back(parse_rank_row(t));

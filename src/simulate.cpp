@@ -106,7 +106,7 @@ std::string Distribution::str() const {
 
 Distribution Distribution::parse(const std::string& text, const std::string& option) {
   auto fail = [&](const std::string& why) -> Distribution {
-    throw InputError("", 0, 0, "option " + option + " '" + text + "': " + why);
+    throw UsageError(option, text, why);
   };
   Distribution d;
   const auto colon = text.find(':');

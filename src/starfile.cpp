@@ -167,12 +167,7 @@ RvPoint read_rv(const Reader& r, const json& j, const std::string& path, std::ve
 
 StarFile read_star_file(std::istream& in, const std::string& name, const WindowDefaults& windows) {
   const Reader r(name);
-  json j;
-  try {
-    j = json::parse(in);
-  } catch (const json::parse_error& e) {
-    throw InputError(name, 0, 0, std::string("malformed JSON: ") + e.what());
-  }
+  const json j = read_json(in, name);
   r.check_keys(j, "", {"id", "star", "host_mass", "relative_astrometry", "radial_velocities"});
   StarFile f;
   const auto id = j.find("id");

@@ -124,4 +124,10 @@ double weighted_quantile(const std::vector<std::pair<double, double>>& sorted, d
   return sorted.empty() ? std::numeric_limits<double>::quiet_NaN() : sorted.back().first;
 }
 
+int bin_index(double x, double lo, double width, int n) {
+  const double k = std::floor((x - lo) / width);
+  if (!(k >= 0.0 && k < static_cast<double>(n))) return -1;  // also false for NaN
+  return static_cast<int>(k);
+}
+
 }  // namespace heft

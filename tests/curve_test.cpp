@@ -158,7 +158,7 @@ TEST_CASE("heft curve CLI: deterministic, modes in JSON, bad input", "[curve][cl
   std::string err;
   CHECK(test::run_heft("curve -q " + stars + " --id NOPE", &err) == 2);
   CHECK(err.find("NOPE") != std::string::npos);
-  CHECK(test::run_heft("curve -q " + stars + " --ecc beta:1", &err) == 2);
+  CHECK(test::run_heft("curve -q " + stars + " --ecc beta:1", &err) == 1);  // a bad option value is a usage error
 }
 
 TEST_CASE("heft plot curve writes an SVG that renders", "[curve][cli][plot]") {

@@ -96,8 +96,15 @@ TEST_CASE("ingest by key, pairs and position; round trip into screen", "[cli][in
   CHECK(um.str(0, "key") == "G99");
   CHECK(um.str(0, "catalogue") == "late");
   REQUIRE(run_heft("ingest -q --early " + e + " --late " + l + " --map " + map +
-                       " --match-radius 1.0 -o " + by_pos) == 0);
+                       " --match-radius 1.0 --key-late src -o " + by_pos) == 0);
   CHECK(test::read_text(by_pos) == test::read_text(by_pairs) /* same ids: late keys */);
+  // By position without a mapped id or --key-late every star would lack an
+  // id: refused, naming where the map should say it, and nothing written.
+  const std::string no_id = tmp_path("ing_no_id.csv");
+  CHECK(run_heft("ingest -q --early " + e + " --late " + l + " --map " + map + " --match-radius 1.0 -o " + no_id,
+                 &err) == 2);
+  CHECK_THAT(err, Catch::Contains(map + ": at /late/star/id: matching by position needs the stars' ids"));
+  CHECK_FALSE(test::file_exists(no_id));
 
   const auto t = test::read_table(by_pairs);
   REQUIRE(t.rows.size() == 6);
@@ -129,7 +136,7 @@ TEST_CASE("ingest: bad maps and raw files name the JSON path or file:line:column
                     map = tmp_path("map2.json"), out = tmp_path("ing_bad.csv");
   write_raw(e, l);
   const std::string args = "ingest --early " + e + " --late " + l + " --map " + map +
-                           " --match-radius 1 -o " + out;
+                           " --match-radius 1 --key-late src -o " + out;
   struct Case {
     std::string from, to, expect;
   };

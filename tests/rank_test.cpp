@@ -14,6 +14,7 @@
 
 #include "heft/kepler.hpp"
 #include "heft/simulate.hpp"
+#include "heft/rank.hpp"
 #include "test_util.hpp"
 
 using namespace heft;
@@ -144,7 +145,9 @@ TEST_CASE("rank: a killed run leaves no output and --resume completes it", "[ran
   REQUIRE(test::run_heft("rank " + stars + kRankArgs + " --draws 512 -j 2 -o " + fresh) == 0);
   CHECK(test::read_text(out) == test::read_text(fresh));
   // A checkpoint of other options is refused.
-  test::write_text(cp, "# heft-rank draws=1 rows=1 shard=1/1\n" + test::read_text(full).substr(test::read_text(full).find('\n') + 1));
+  heft::RankRunInfo other;
+  other.fields = {{"draws", "1"}, {"rows", "1"}, {"shard", "1/1"}};
+  test::write_text(cp, heft::checkpoint_head(other));
   CHECK(test::run_heft("rank " + stars + kRankArgs + kFast + " --resume -o " + out, &err) == 2);
   CHECK_THAT(err, Catch::Contains("checkpoint of a run with other options"));
   std::remove(cp.c_str());

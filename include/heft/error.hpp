@@ -1,8 +1,8 @@
 #pragma once
 /// \file error.hpp
 /// The one exception tree of heft. Library code throws these; only the CLI
-/// catches them and maps them to exit codes (InputError -> 2,
-/// NumericError -> 3).
+/// catches them and maps them to exit codes (UsageError -> 1,
+/// InputError -> 2, NumericError -> 3; see exit_code_of in the CLI).
 
 #include <stdexcept>
 #include <string>
@@ -32,6 +32,13 @@ class InputError : public Error {
   std::string file_;
   long line_ = 0;
   long column_ = 0;
+};
+
+/// A value given on the command line (an option's text, e.g. a prior
+/// "uniform:0,0.95") that breaks its rule; names the option.
+class UsageError : public Error {
+ public:
+  UsageError(const std::string& option, const std::string& text, const std::string& rule);
 };
 
 /// A numerical failure that cannot be turned into a per-star flag.

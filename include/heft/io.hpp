@@ -8,6 +8,7 @@
 #include <fstream>
 #include <iosfwd>
 #include <memory>
+#include <nlohmann/json.hpp>
 #include <string>
 #include <string_view>
 #include <vector>
@@ -19,7 +20,12 @@ namespace heft {
 /// Notes:
 /// 1. A UTF-8 byte-order mark at the start is skipped; CRLF and LF line ends
 ///    are both accepted.
-/// 2. Lines whose first character is '#' and blank lines are skipped.
+/// 2. Lines whose first character is '#' and blank lines are skipped. After
+///    guard_commented_rows(n), a '#' line that splits into exactly n fields
+///    is an InputError instead: it is a data row whose first field (an id)
+///    starts with '#', which must be quoted ("#...") to be read, or a
+///    commented-out row to delete; nothing is dropped silently.
+/// 4. Every field must be valid UTF-8 (InputError at its line and column).
 /// 3. Fields may be quoted with '"' ("" inside is a literal quote, and a
 ///    quoted field may contain commas and line breaks); surrounding
 ///    whitespace of unquoted fields is trimmed.
@@ -30,8 +36,10 @@ class CsvReader {
   CsvReader(std::istream& in, std::string name, long first_line = 1);
 
   /// Reads the next record into fields(); false at end of input.
-  /// Throws InputError on an unterminated quote.
+  /// Throws InputError on an unterminated quote or invalid UTF-8.
   bool next();
+  /// See Note 2; for tables whose first column is an id, after the header.
+  void guard_commented_rows(std::size_t n_fields) { guard_fields_ = n_fields; }
 
   /// Fields of the current record; valid until the next call to next().
   const std::vector<std::string_view>& fields() const { return fields_; }
@@ -51,6 +59,7 @@ class CsvReader {
   std::vector<long> columns_;
   long line_ = 0;
   long next_line_ = 1;
+  std::size_t guard_fields_ = 0;
   bool first_ = true;
 };
 
@@ -83,9 +92,24 @@ class ColumnTable {
 };
 
 /// Parses a whole field as a double (std::from_chars: exact, locale-free).
-/// Returns false when the text is not a number (leading '+' is accepted;
-/// "nan"/"inf" parse and are reported as non-finite by the caller).
+/// Returns false when the text is not entirely a number (leading '+' is
+/// accepted; "nan"/"inf" parse and are reported as non-finite by the
+/// caller). A number beyond the double range reads as +-inf (so callers that
+/// require finite values refuse it), one below the smallest subnormal as +-0.
 bool parse_double(std::string_view text, double& value);
+
+/// True when `text` is valid UTF-8 (RFC 3629: no overlong forms, no
+/// surrogates, nothing above U+10FFFF).
+bool valid_utf8(std::string_view text);
+
+/// `text` shortened for an error message: at most `max_bytes` bytes (cut on
+/// a UTF-8 boundary) followed by "..." and the full length.
+std::string clip_for_message(std::string_view text, std::size_t max_bytes = 80);
+
+/// Parses a JSON document (nlohmann::json) from `in`. Syntax errors and
+/// numbers beyond the double range become an InputError naming `name`,
+/// the line and the column.
+nlohmann::json read_json(std::istream& in, const std::string& name);
 
 /// Shortest decimal text that reads back to exactly `value`
 /// (std::to_chars). NaN and infinities give an empty string.
@@ -96,11 +120,34 @@ void append_double(std::string& out, double value);
 /// Appends `field` to `out`, quoted as CSV requires.
 void append_csv_field(std::string& out, std::string_view field);
 
-/// An output destination that appears atomically: data go to a temporary
-/// file beside the target, and commit() renames it into place. If the object
-/// is destroyed without commit() the temporary file is removed, so an
-/// interrupted or failed run never leaves a partial file. Path "-" (or empty)
-/// means standard output, written directly.
+/// Where an output path leads, after following symlinks.
+struct OutputTarget {
+  enum class Kind {
+    kStdout,  ///< "-" or empty: standard output
+    kDirect,  ///< an existing character or block device, FIFO or socket: written in place
+    kFile,    ///< a regular file (existing or not): temporary file + rename
+  };
+  Kind kind = Kind::kStdout;
+  /// The path written (kDirect) or renamed onto (kFile): symlinks resolved,
+  /// so that a link to a file is kept and its target replaced.
+  std::string path;
+  /// A key that is equal for two outputs writing the same place (a device's
+  /// key is empty: several outputs may go to /dev/null).
+  std::string identity;
+};
+
+/// Resolves output path `path` (symlinks followed, at most 40). Throws
+/// InputError when it is a directory, a link loop, or its folder is missing.
+OutputTarget resolve_output(const std::string& path);
+
+/// An output destination that appears atomically: data go to a unique
+/// temporary file beside the target (mkstemp), and commit() renames it into
+/// place. If the object is destroyed without commit(), or the process gets
+/// SIGINT, SIGTERM, SIGHUP or SIGPIPE after remove_outputs_on_signals(), the
+/// temporary file is removed, so an interrupted or failed run never leaves a
+/// partial file or a stray temporary. Devices, FIFOs and "-" (standard
+/// output) are written directly, never replaced. Every write, flush and
+/// close is checked (InputError naming the path and the system's reason).
 class AtomicOutput {
  public:
   explicit AtomicOutput(std::string path);
@@ -109,21 +156,29 @@ class AtomicOutput {
   AtomicOutput& operator=(const AtomicOutput&) = delete;
 
   void write(std::string_view data);
-  /// Flushes, and renames the temporary file onto the target.
+  /// Flushes (and for regular files syncs, closes and renames into place).
   void commit();
-  bool is_stdout() const { return to_stdout_; }
+  bool is_stdout() const { return target_.kind == OutputTarget::Kind::kStdout; }
   const std::string& path() const { return path_; }
 
  private:
+  [[noreturn]] void fail(const std::string& what);
   std::string path_;
+  OutputTarget target_;
   std::string tmp_path_;
+  int temp_slot_ = -1;  // slot in the signal-cleanup registry
   std::FILE* file_ = nullptr;
-  bool to_stdout_ = false;
   bool committed_ = false;
 };
 
+/// Installs handlers for SIGINT, SIGTERM, SIGHUP and SIGPIPE that remove the
+/// temporary files of live AtomicOutputs and then end the process with the
+/// signal's default action. For the program's main (the library installs
+/// nothing itself).
+void remove_outputs_on_signals();
+
 /// Opens `path` for reading ("-" = standard input). Throws InputError if the
-/// file cannot be opened.
+/// file cannot be opened or is a directory.
 class InputFile {
  public:
   explicit InputFile(const std::string& path);

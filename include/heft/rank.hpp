@@ -109,8 +109,27 @@ std::string ranked_table(const RankRunInfo& info, const std::vector<RankRecord>&
 /// The same as JSON: {"stars": [...], "run": {metadata, rows per status}}.
 std::string ranked_json(const RankRunInfo& info, const std::vector<RankRecord>& ranked);
 
-/// Reads a ranked table (or a checkpoint: the same without ranks) back:
-/// its metadata line and records. Errors name file, line and column.
+/// Reads a ranked table back: its metadata line and records. Errors name
+/// file, line and column.
 std::vector<RankRecord> read_ranked(std::istream& in, const std::string& name, RankRunInfo& info);
+
+/// The checkpoint of a running `heft rank` (docs/formats.md): the run
+/// metadata line, the header of the ranked table with a last column
+/// `check`, and one line per finished star in completion order. `check` is
+/// the FNV-1a 64-bit hash (16 hex digits) of the line's bytes before its
+/// last comma, so a damaged line is detected.
+std::string checkpoint_head(const RankRunInfo& info);
+/// One finished star's checkpoint line (with newline).
+std::string checkpoint_line(const RankRecord& r);
+
+struct Checkpoint {
+  RankRunInfo info;
+  std::vector<RankRecord> records;  ///< the stars whose lines are intact
+  long dropped = 0;  ///< damaged lines and a torn last line (no newline): their stars are computed again
+};
+/// Reads a checkpoint. Only newline-terminated lines with a matching check
+/// count; the others are dropped (Checkpoint::dropped). A missing or foreign
+/// metadata line or header is an InputError naming file and line.
+Checkpoint read_checkpoint(std::istream& in, const std::string& name);
 
 }  // namespace heft

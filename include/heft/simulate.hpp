@@ -56,7 +56,7 @@ struct Distribution {
   /// Log density at x (-inf outside the support; 0 for kFixed).
   double log_pdf(double x) const;
   std::string str() const;
-  /// Parses the text form; throws InputError naming `option`.
+  /// Parses the text form; throws UsageError naming `option`.
   static Distribution parse(const std::string& text, const std::string& option);
 };
 

@@ -38,6 +38,12 @@ double normal_quantile(double p);
 /// cumulative weight reaches p total (NaN when empty).
 double weighted_quantile(const std::vector<std::pair<double, double>>& sorted, double total, double p);
 
+/// Index of the bin holding x among n bins of `width` starting at `lo`
+/// (bin k covers [lo + k width, lo + (k + 1) width)), or -1 when x is outside
+/// them or not finite. The range is checked in floating point before any
+/// conversion to an integer, so an outlier or a NaN cannot overflow it.
+int bin_index(double x, double lo, double width, int n);
+
 /// Kolmogorov-Smirnov test of a sample against a continuous CDF.
 /// Given: sample (sorted in place), cdf. Returned: the statistic D; `p_value`
 /// from the asymptotic Kolmogorov distribution with the small-sample

@@ -9,11 +9,33 @@
 #include <iostream>
 
 #include "heft/calibrate.hpp"
+#include "heft/error.hpp"
 #include "heft/io.hpp"
 #include "heft/rng.hpp"
 #include "heft/version.hpp"
 
 namespace heft::cli {
+
+ErrorReport report_of(const std::exception& e) {
+  if (dynamic_cast<const UsageError*>(&e) || dynamic_cast<const CLI::Error*>(&e)) return {kUsage, "usage error: "};
+  if (dynamic_cast<const InputError*>(&e)) return {kInput, "error: "};
+  if (dynamic_cast<const NumericError*>(&e)) return {kNumeric, "numerical failure: "};
+  return {kNumeric, "failure: "};
+}
+
+void require_distinct_outputs(const std::vector<std::pair<std::string, std::string>>& outputs) {
+  std::map<std::string, std::string> seen;  // identity -> option
+  for (const auto& [option, path] : outputs) {
+    if (path.empty()) continue;
+    const std::string id = resolve_output(path).identity;
+    if (id.empty()) continue;
+    const auto [it, fresh] = seen.emplace(id, option);
+    if (!fresh)
+      throw CLI::ValidationError(it->second + " and " + option + " would both write " +
+                                 (id == "<stdout>" ? std::string("standard output") : "'" + path + "'") +
+                                 "; give each output its own path");
+  }
+}
 
 void message(const std::string& command, const std::string& text) {
   std::cerr << "heft " << command << ": " << text << '\n';

@@ -23,6 +23,21 @@ enum ExitCode : int {
   kPartial = 4,  ///< some rows bad_input or failed
 };
 
+/// How main reports an exception escaping a command: its exit code and
+/// the words before the message. The one mapping from error kind to exit
+/// code: UsageError and CLI errors -> 1, InputError -> 2 (also failed
+/// reads and writes of files), NumericError and anything else -> 3.
+struct ErrorReport {
+  int code;
+  const char* prefix;
+};
+ErrorReport report_of(const std::exception& e);
+
+/// Refuses (CLI::ValidationError) two outputs of one command that would
+/// write the same place: pairs of (option name, path); unset paths ("")
+/// are skipped, stdout counts as one place, devices never clash.
+void require_distinct_outputs(const std::vector<std::pair<std::string, std::string>>& outputs);
+
 /// What a subcommand's setup registers: the function main runs after parsing.
 using Runner = std::function<int()>;
 

@@ -36,6 +36,7 @@ nlohmann::ordered_json point_json(const CurvePoint& p) {
 }
 
 int run_curve(CurveCliOptions o) {
+  require_distinct_outputs({{"-o", o.output}, {"--json", o.json}, {"--keep-draws", o.keep_draws}});
   const ScreenOptions sopt = resolve_screen_options(o.screen, o.late_spin_table);
   CurveOptions copt = o.curve;
   copt.ecc = Distribution::parse(o.ecc, "--ecc");

@@ -68,6 +68,7 @@ double quantile(std::vector<std::pair<double, double>> v, double p) {
 }
 
 int run_fit_command(FitCliOptions o) {
+  require_distinct_outputs({{"-o", o.output}, {"--samples", o.samples}, {"--profile", o.profile}});
   const ScreenOptions sopt = resolve_screen_options(o.screen, o.late_spin_table);
   FitOptions fopt = o.fit;
   fopt.ecc = Distribution::parse(o.ecc, "--ecc");

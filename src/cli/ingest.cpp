@@ -19,23 +19,27 @@ struct IngestCliOptions {
 
 nlohmann::json read_json_file(const std::string& path) {
   InputFile f(path);
-  try {
-    return nlohmann::json::parse(f.stream());
-  } catch (const nlohmann::json::parse_error& e) {
-    throw InputError(f.name(), 0, 0, std::string("invalid JSON: ") + e.what());
-  }
+  return read_json(f.stream(), f.name());
 }
 
 int run_ingest(const IngestCliOptions& o) {
-  const bool by_key = !o.key_early.empty() || !o.key_late.empty();
-  const int modes = (by_key && o.xmatch.empty()) + !o.xmatch.empty() + (o.match_radius_arcsec > 0);
+  require_distinct_outputs({{"-o", o.output}, {"--unmatched", o.unmatched}});
+  const bool by_position = o.match_radius_arcsec > 0;
+  const bool by_key = !by_position && o.xmatch.empty() && (!o.key_early.empty() || !o.key_late.empty());
+  const int modes = by_key + !o.xmatch.empty() + by_position;
   if (modes != 1 || (by_key && (o.key_early.empty() || o.key_late.empty())))
     throw CLI::ValidationError(
         "choose one matching: --key-early and --key-late, --xmatch (with both keys), or "
-        "--match-radius");
+        "--match-radius (with --key-late for the ids)");
   if (!o.xmatch.empty() && (o.key_early.empty() || o.key_late.empty()))
     throw CLI::ValidationError("--xmatch needs --key-early and --key-late to identify rows");
   const IngestMap map = parse_ingest_map(read_json_file(o.map), o.map);
+  // Matched by position, a star's id comes from a mapped 'id' column or the
+  // late (else early) key column: without any, every row would lack an id.
+  if (by_position && o.key_late.empty() && o.key_early.empty() && !map.late.star_fields.count("id") &&
+      !map.early.star_fields.count("id"))
+    throw InputError::at_json(o.map, "/late/star/id",
+                              "matching by position needs the stars' ids: map an 'id' column or give --key-late COLUMN");
   InputFile fe(o.early), fl(o.late);
   const auto early = read_raw_catalogue(fe.stream(), fe.name(), map.early, o.key_early);
   const auto late = read_raw_catalogue(fl.stream(), fl.name(), map.late, o.key_late);
@@ -95,7 +99,7 @@ void setup_ingest(CLI::App& app, Runner& run) {
       ->check(CLI::ExistingFile);
   sub->add_option("-o,--output", o->output, "canonical star table (CSV); default stdout");
   sub->add_option("--key-early", o->key_early, "key column of the early extract");
-  sub->add_option("--key-late", o->key_late, "key column of the late extract");
+  sub->add_option("--key-late", o->key_late, "key column of the late extract (with --match-radius: the id of each matched star when the map has no id)");
   sub->add_option("--xmatch", o->xmatch,
                   "cross-match table (CSV: early key, late key) instead of equal keys")
       ->check(CLI::ExistingFile);

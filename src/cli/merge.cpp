@@ -20,6 +20,7 @@ struct MergeCliOptions {
 };
 
 int run_merge(const MergeCliOptions& o) {
+  require_distinct_outputs({{"-o", o.output}, {"--json", o.json}});
   std::vector<RankRecord> all;
   RankRunInfo merged;
   std::set<long> shards_seen;

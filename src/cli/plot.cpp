@@ -9,6 +9,7 @@
 #include "cli/commands.hpp"
 #include "heft/error.hpp"
 #include "heft/io.hpp"
+#include "heft/stats.hpp"
 #include "heft/svg.hpp"
 
 namespace heft::cli {
@@ -57,8 +58,8 @@ int run_plot_sky(const PlotSkyOptions& o) {
   const double cell = n > 1 ? (hi - lo) / (n - 1) : 1.0, half = (hi - lo + cell) / 2;
   std::vector<double> density(cells.size(), 0.0);
   for (const auto& c : cells) {
-    const int i = static_cast<int>(std::floor((c[0] + half) / cell)), j = static_cast<int>(std::floor((c[1] + half) / cell));
-    if (i >= 0 && i < n && j >= 0 && j < n) density[static_cast<std::size_t>(j) * n + i] = c[2];
+    const int i = bin_index(c[0], -half, cell, n), j = bin_index(c[1], -half, cell, n);
+    if (i >= 0 && j >= 0) density[static_cast<std::size_t>(j) * n + i] = c[2];
   }
   SkyMap map(half, "heft predict: " + id + " at " + format_double(date));
   map.image(density, n);

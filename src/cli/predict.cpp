@@ -28,6 +28,7 @@ std::string modes_text(const std::vector<double>& modes) {
 }
 
 int run_predict(const PredictCliOptions& o) {
+  require_distinct_outputs({{"-o", o.output}, {"--json", o.json}, {"--grid", o.grid}});
   if (!(o.predict.iwa_mas < o.predict.owa_mas)) throw CLI::ValidationError("--iwa must be below --owa");
   InputFile in(o.input);
   const std::vector<StarDraws> stars = read_draws(in.stream(), in.name());
@@ -114,7 +115,10 @@ void setup_predict(CLI::App& app, Runner& run) {
       "curve --keep-draws): separation (mas), position angle (deg) and the chance of lying between "
       "two working angles.");
   sub->add_option("draws", o->input, "orbit-draw table (CSV; '-' = stdin)")->required();
-  sub->add_option("--date", o->dates, "dates D1,D2,... (decimal Julian years)")->delimiter(',')->required();
+  sub->add_option("--date", o->dates, "dates D1,D2,... (decimal Julian years, 1900-2200; not MJD)")
+      ->delimiter(',')
+      ->check(CLI::Range(1900.0, 2200.0))
+      ->required();
   sub->add_option("--id", o->id, "only this star");
   sub->add_option("--iwa", o->predict.iwa_mas, "inner working angle (mas)")->check(CLI::NonNegativeNumber)->capture_default_str();
   sub->add_option("--owa", o->predict.owa_mas, "outer working angle (mas; default none)")->check(CLI::PositiveNumber);

@@ -3,7 +3,9 @@
 
 #include <omp.h>
 
+#include <cerrno>
 #include <chrono>
+#include <cstring>
 #include <cstdio>
 #include <fstream>
 #include <map>
@@ -63,7 +65,9 @@ int run_rank(RankCliOptions o) {
   if (!(ropt.target_min_mjup < ropt.target_max_mjup)) throw CLI::ValidationError("--target-mass: MIN must be below MAX");
   if (o.contrast.empty() != o.mass_mag.empty())
     throw CLI::ValidationError("--contrast and --mass-mag go together (a detection probability needs both)");
-  if (o.resume && o.output == "-") throw CLI::ValidationError("--resume needs -o FILE (the checkpoint lives beside it)");
+  if (o.resume && resolve_output(o.output).kind != OutputTarget::Kind::kFile)
+    throw CLI::ValidationError("--resume needs -o FILE, a regular file (the checkpoint lives beside it)");
+  require_distinct_outputs({{"-o", o.output}, {"--json", o.json}});
   c.a_au = log_grid(o.a_min_au, o.a_max_au, o.n_a);
   long shard_k = 1, shard_n = 1;
   parse_shard(o.shard, shard_k, shard_n);
@@ -149,28 +153,35 @@ int run_rank(RankCliOptions o) {
   f["screen_options"] = screen_fingerprint(sopt, o.windows);
   f["shard"] = std::to_string(shard_k) + "/" + std::to_string(shard_n);
 
-  // Resume: completed stars from the checkpoint of a run with the same metadata.
-  const std::string checkpoint = o.output == "-" ? "" : o.output + ".checkpoint";
+  // Resume: completed stars from the checkpoint of a run with the same
+  // metadata. Only a regular-file output has one, beside its (resolved) path.
+  const OutputTarget target = resolve_output(o.output);
+  const std::string checkpoint = target.kind == OutputTarget::Kind::kFile ? target.path + ".checkpoint" : "";
   std::map<std::string, RankRecord> done;
   if (o.resume) {
-    std::ifstream cp(checkpoint);
+    std::ifstream cp(checkpoint, std::ios::binary);
     if (cp) {
-      RankRunInfo old;
-      for (auto& r : read_ranked(cp, checkpoint, old)) done.emplace(r.id, r);
-      if (old.fields != info.fields)
+      Checkpoint old = read_checkpoint(cp, checkpoint);
+      if (old.info.fields != info.fields)
         throw InputError(checkpoint, 1, 0, "checkpoint of a run with other options or input; delete it or drop --resume");
+      for (auto& r : old.records) done.emplace(r.id, std::move(r));
+      if (old.dropped > 0 && !o.quiet)
+        message("rank", checkpoint + ": " + std::to_string(old.dropped) +
+                            " damaged or torn line(s) dropped; those stars are computed again");
     } else if (!o.quiet) {
       message("rank", "no checkpoint " + checkpoint + ": starting afresh");
     }
   }
-  std::unique_ptr<std::ofstream> cp_out;
+  std::FILE* cp_out = nullptr;
   if (!checkpoint.empty()) {
-    std::string text = info.line() + rank_header();
-    for (const auto& [id, r] : done) append_rank_row(text, r);
-    write_file_atomic(checkpoint, text);  // rewritten whole, so a torn last line is dropped
-    cp_out = std::make_unique<std::ofstream>(checkpoint, std::ios::app);
-    if (!*cp_out) throw Error("heft rank: cannot append to checkpoint " + checkpoint);
+    std::string text = checkpoint_head(info);
+    for (const auto& [id, r] : done) text += checkpoint_line(r);
+    write_file_atomic(checkpoint, text);  // rewritten whole: dropped lines are gone
+    cp_out = std::fopen(checkpoint.c_str(), "ab");
+    if (!cp_out) throw InputError(checkpoint, 0, 0, std::string("cannot append to checkpoint: ") + std::strerror(errno));
   }
+  bool cp_failed = false;
+  int cp_errno = 0;
 
   // Pass 2: curves, sky positions and scores, in parallel.
   std::vector<RankRecord> computed(todo.size());
@@ -187,14 +198,21 @@ int run_rank(RankCliOptions o) {
 #pragma omp parallel for schedule(dynamic, 1)
   for (std::size_t k = 0; k < todo.size(); ++k) {
     if (have[k]) continue;
+    bool stop = false;
+#pragma omp atomic read
+    stop = cp_failed;
+    if (stop) continue;  // the run will fail: compute nothing more
     computed[k] = rank_star(candidates[todo[k]], "", sopt, ropt);
     long now = 0;
 #pragma omp critical(heft_checkpoint)
     {
-      if (cp_out) {
-        std::string line;
-        append_rank_row(line, computed[k]);
-        *cp_out << line << std::flush;
+      if (cp_out && !cp_failed) {
+        const std::string line = checkpoint_line(computed[k]);
+        if (std::fwrite(line.data(), 1, line.size(), cp_out) != line.size() || std::fflush(cp_out) != 0) {
+          cp_errno = errno;
+#pragma omp atomic write
+          cp_failed = true;
+        }
       }
       now = ++finished;
     }
@@ -209,16 +227,17 @@ int run_rank(RankCliOptions o) {
     }
   const double stage2_s =
       std::chrono::duration<double>(std::chrono::steady_clock::now() - t_start).count() - screen_s;
-  if (cp_out && !*cp_out) throw Error("heft rank: writing the checkpoint " + checkpoint + " failed");
+  if (cp_out && std::fclose(cp_out) != 0 && !cp_failed) {
+    cp_errno = errno;
+    cp_failed = true;
+  }
+  if (cp_failed) throw InputError(checkpoint, 0, 0, std::string("writing the checkpoint failed: ") + std::strerror(cp_errno));
   for (auto& r : computed) records.push_back(std::move(r));
   assign_ranks(records);
 
   if (!o.json.empty()) write_file_atomic(o.json, ranked_json(info, records));
   write_file_atomic(o.output, ranked_table(info, records));
-  if (cp_out) {
-    cp_out.reset();
-    std::remove(checkpoint.c_str());
-  }
+  if (!checkpoint.empty()) std::remove(checkpoint.c_str());
   StatusCounter counter;
   for (const auto& r : records) counter.add(r.status);
   counter.print_summary("rank");
@@ -247,7 +266,9 @@ void setup_rank(CLI::App& app, Runner& run) {
       "companion's sky position at --date and score the chance that it lies between the working "
       "angles with a mass in the target window.");
   sub->add_option("stars", o->input, "canonical star table (CSV; '-' = stdin)")->required();
-  sub->add_option("--date", r.date_yr, "planned imaging date (decimal Julian year)")->required();
+  sub->add_option("--date", r.date_yr, "planned imaging date (decimal Julian year, 1900-2200; not MJD)")
+      ->check(CLI::Range(1900.0, 2200.0))
+      ->required();
   sub->add_option("-o,--output", o->output, "ranked table (CSV); default stdout");
   sub->add_option("--json", o->json, "also write the ranked table as JSON");
   sub->add_option("--iwa", r.iwa_mas, "inner working angle (mas)")->check(CLI::NonNegativeNumber)->capture_default_str();

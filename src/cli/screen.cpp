@@ -38,12 +38,13 @@ nlohmann::ordered_json calibration_json(const EpochCalibration& c) {
 }
 
 int run_screen(const ScreenCliOptions& o) {
+  require_distinct_outputs({{"-o", o.output}, {"--json", o.json}});
   const ScreenOptions opt = resolve_screen_options(o.screen, o.late_spin_table);
   if (o.threads > 0) omp_set_num_threads(o.threads);
   InputFile in(o.input);
   StarTableReader reader(in.stream(), in.name(), o.windows);
   for (const auto& c : reader.unknown_columns())
-    message("screen", "warning: " + in.name() + ": column '" + c + "' is not canonical, ignored");
+    message("screen", "warning: " + in.name() + ": column '" + clip_for_message(c) + "' is not canonical, ignored");
   AtomicOutput out(o.output);
   std::unique_ptr<AtomicOutput> json;
   if (!o.json.empty()) {

@@ -64,6 +64,7 @@ void write_star_file(const SimulateCliOptions& o) {
 }
 
 int run_simulate(SimulateCliOptions o) {
+  require_distinct_outputs({{"-o", o.output}, {"--truth", o.truth}, {"--star-file", o.star_file}});
   SurveyModel& m = o.model;
   m.host_mass_msun = Distribution::parse(o.host_mass, "--host-mass");
   m.distance_pc = Distribution::parse(o.distance, "--distance");
