@@ -1,8 +1,26 @@
 #include "heft/screen.hpp"
 
+#include <cmath>
+
 #include "heft/io.hpp"
+#include "heft/units.hpp"
 
 namespace heft {
+
+void add_plausibility_notes(const StarRecord& star, std::vector<std::string>& notes) {
+  bool pm = false, plx = false, vtan = false;
+  for (const Astrometry* a : {&star.early, &star.late}) {
+    const double pm_mas_yr = std::hypot(a->pmra_mas_yr, a->pmdec_mas_yr);
+    pm = pm || pm_mas_yr > units::kImplausiblePmMasYr;
+    plx = plx || a->parallax_mas > units::kImplausibleParallaxMas;
+    // Only a well-measured parallax (S/N > 5) turns a PM into a speed.
+    if (a->parallax_mas > 5.0 * a->parallax_error_mas)
+      vtan = vtan || units::kKmsPerAuYr * pm_mas_yr / a->parallax_mas > units::kImplausibleVtanKmS;
+  }
+  if (pm) notes.push_back("implausible_pm");
+  if (plx) notes.push_back("implausible_parallax");
+  if (vtan) notes.push_back("implausible_vtan");
+}
 
 ScreenRow screen_star(const StarRecord& star, const std::string& bad_reason,
                       const ScreenOptions& opt) {
@@ -27,6 +45,7 @@ ScreenRow screen_star(const StarRecord& star, const std::string& bad_reason,
     rv_error = 0.0;
     row.notes.push_back("rv_error_missing");
   }
+  add_plausibility_notes(star, row.notes);
   bool ok = false;
   std::string why;
   row.result = compute_anomaly(early, late, rv, rv_error, ok, why);

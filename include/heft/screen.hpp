@@ -31,6 +31,14 @@ struct ScreenRow {
   bool ok() const { return status == "ok"; }
 };
 
+/// Appends the plausibility notes of a valid star: `implausible_pm` (total
+/// PM of either catalogue above units::kImplausiblePmMasYr),
+/// `implausible_parallax` (above units::kImplausibleParallaxMas),
+/// `implausible_vtan` (tangential speed above units::kImplausibleVtanKmS
+/// where the parallax has S/N > 5). Notes, not errors: such a row is
+/// screened as usual, most likely a cross-match or unit mistake to check.
+void add_plausibility_notes(const StarRecord& star, std::vector<std::string>& notes);
+
 /// Screens one star. `bad_reason` non-empty marks the row bad_input.
 ScreenRow screen_star(const StarRecord& star, const std::string& bad_reason,
                       const ScreenOptions& opt);

@@ -34,6 +34,15 @@ inline constexpr double kMjupPerMsun = kGMSunM3S2 / kGMJupM3S2;
 inline constexpr double kGMSunAu3Yr2 =
     kGMSunM3S2 * kJulianYearSeconds * kJulianYearSeconds / (kAuM * kAuM * kAuM);
 
+/// Plausibility limits of a star's astrometry (screen notes implausible_*),
+/// facts of the trade quoted from memory: the largest known proper motion,
+/// Barnard's star, is 10.39 arcsec/yr; the largest parallax, Proxima
+/// Centauri, 768 mas; the Galaxy's local escape speed is about 550 km/s
+/// (Piffl et al. 2014, A&A 562, A91). The limits leave room above each.
+inline constexpr double kImplausiblePmMasYr = 11000.0;
+inline constexpr double kImplausibleParallaxMas = 800.0;
+inline constexpr double kImplausibleVtanKmS = 1000.0;
+
 inline constexpr double kPi = std::numbers::pi;
 inline constexpr double kTwoPi = 2.0 * std::numbers::pi;
 /// Degrees per radian; milliarcseconds per radian.

@@ -76,8 +76,7 @@ void add_screen_options(CLI::App* app, ScreenOptions& screen, WindowDefaults& wi
   add_vec3_option(app, "--late-spin", screen.late.spin_uas_yr,
                   "spin of the late frame (uas/yr), subtracted from its PMs");
   app->add_option("--late-spin-table", late_spin_table,
-                  "CSV mag_min,mag_max,wx,wy,wz (uas/yr): late-frame spin by the star's 'mag'")
-      ->check(CLI::ExistingFile);
+                  "CSV mag_min,mag_max,wx,wy,wz (uas/yr): late-frame spin by the star's 'mag'");
   app->add_option("--early-inflate", screen.early.inflate,
                   "early errors x F (covariance x F^2)")
       ->check(CLI::PositiveNumber)

@@ -95,14 +95,12 @@ void setup_ingest(CLI::App& app, Runner& run) {
   sub->add_option("--early", o->early, "raw extract of the early catalogue (CSV)")->required();
   sub->add_option("--late", o->late, "raw extract of the late catalogue (CSV)")->required();
   sub->add_option("--map", o->map, "column map (JSON, see docs/formats.md)")
-      ->required()
-      ->check(CLI::ExistingFile);
+      ->required();
   sub->add_option("-o,--output", o->output, "canonical star table (CSV); default stdout");
   sub->add_option("--key-early", o->key_early, "key column of the early extract");
   sub->add_option("--key-late", o->key_late, "key column of the late extract (with --match-radius: the id of each matched star when the map has no id)");
   sub->add_option("--xmatch", o->xmatch,
-                  "cross-match table (CSV: early key, late key) instead of equal keys")
-      ->check(CLI::ExistingFile);
+                  "cross-match table (CSV: early key, late key) instead of equal keys");
   sub->add_option("--match-radius", o->match_radius_arcsec,
                   "match by position within this radius (arcsec), late positions carried back "
                   "to the early epoch with their PMs")

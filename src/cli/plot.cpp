@@ -17,6 +17,7 @@ namespace {
 
 struct PlotCurveOptions {
   std::string input, output = "-", id;
+  bool quiet = false;
 };
 
 struct Row {
@@ -25,6 +26,7 @@ struct Row {
 
 struct PlotSkyOptions {
   std::string input, output = "-", id;
+  bool quiet = false;
   double date_yr = kAbsent, iwa_mas = 0.0, owa_mas = 0.0;
 };
 
@@ -160,6 +162,7 @@ void setup_plot(CLI::App& app, Runner& run) {
   sub->add_option("curve", o->input, "curve table from heft curve (CSV; '-' = stdin)")->required();
   sub->add_option("--id", o->id, "star to plot (default: the first in the table)");
   sub->add_option("-o,--output", o->output, "SVG file; default stdout");
+  sub->add_flag("-q,--quiet", o->quiet, "no messages (plot prints none but errors)");
   sub->callback([o, &run] { run = [o] { return run_plot_curve(*o); }; });
 
   auto k = std::make_shared<PlotSkyOptions>();
@@ -172,6 +175,7 @@ void setup_plot(CLI::App& app, Runner& run) {
   sky->add_option("--iwa", k->iwa_mas, "inner working angle circle (mas)")->check(CLI::NonNegativeNumber);
   sky->add_option("--owa", k->owa_mas, "outer working angle circle (mas)")->check(CLI::NonNegativeNumber);
   sky->add_option("-o,--output", k->output, "SVG file; default stdout");
+  sky->add_flag("-q,--quiet", k->quiet, "no messages (plot prints none but errors)");
   sky->callback([k, &run] { run = [k] { return run_plot_sky(*k); }; });
 }
 

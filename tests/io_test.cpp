@@ -1,0 +1,218 @@
+// Output and parsing primitives of io: where an output goes (regular file,
+// symlink, FIFO, device node), what is left behind on failure, number and
+// UTF-8 parsing, JSON errors with positions. Device nodes and FIFOs are made
+// inside the test's temporary folder, never on the machine's /dev.
+#include <catch2/catch.hpp>
+#include <fcntl.h>
+#include <sys/stat.h>
+#include <sys/sysmacros.h>
+#include <sys/wait.h>
+#include <unistd.h>
+
+#include <cmath>
+#include <cstdio>
+#include <dirent.h>
+#include <sstream>
+#include <thread>
+
+#include "heft/error.hpp"
+#include "heft/io.hpp"
+#include "heft/stats.hpp"
+#include "test_util.hpp"
+
+using namespace heft;
+
+namespace {
+
+// A fresh empty folder under the test tmp directory.
+std::string fresh_dir(const std::string& name) {
+  const std::string d = test::tmp_path(name);
+  std::system(("rm -rf '" + d + "' && mkdir -p '" + d + "'").c_str());
+  return d;
+}
+
+// Names in folder `d` (without . and ..).
+std::vector<std::string> listing(const std::string& d) {
+  std::vector<std::string> names;
+  if (DIR* dir = ::opendir(d.c_str())) {
+    while (const dirent* e = ::readdir(dir))
+      if (std::string(e->d_name) != "." && std::string(e->d_name) != "..") names.push_back(e->d_name);
+    ::closedir(dir);
+  }
+  std::sort(names.begin(), names.end());
+  return names;
+}
+
+bool is_char_device(const std::string& p) {
+  struct stat st {};
+  return ::lstat(p.c_str(), &st) == 0 && S_ISCHR(st.st_mode);
+}
+
+}  // namespace
+
+TEST_CASE("io: a regular output appears whole, keeps its mode, and leaves no temporary", "[io]") {
+  const std::string d = fresh_dir("io_regular"), p = d + "/out.csv";
+  {
+    AtomicOutput out(p);
+    out.write("a,b\n");
+    CHECK(listing(d).size() == 1);  // only the temporary, not the target
+    CHECK_FALSE(test::file_exists(p));
+    out.commit();
+  }
+  CHECK(listing(d) == std::vector<std::string>{"out.csv"});
+  CHECK(test::read_text(p) == "a,b\n");
+  // Replacing an existing file keeps its permissions (mkstemp makes 0600).
+  ::chmod(p.c_str(), 0640);
+  write_file_atomic(p, "c\n");
+  struct stat st {};
+  REQUIRE(::stat(p.c_str(), &st) == 0);
+  CHECK((st.st_mode & 07777) == 0640);
+  // Destroyed without commit: the old content stays and nothing else remains.
+  {
+    AtomicOutput out(p);
+    out.write("partial");
+  }
+  CHECK(test::read_text(p) == "c\n");
+  CHECK(listing(d) == std::vector<std::string>{"out.csv"});
+}
+
+TEST_CASE("io: a symlink output keeps the link and replaces its target", "[io]") {
+  const std::string d = fresh_dir("io_link");
+  test::write_text(d + "/real.csv", "old\n");
+  REQUIRE(::symlink("real.csv", (d + "/link.csv").c_str()) == 0);
+  write_file_atomic(d + "/link.csv", "new\n");
+  struct stat st {};
+  REQUIRE(::lstat((d + "/link.csv").c_str(), &st) == 0);
+  CHECK(S_ISLNK(st.st_mode));
+  CHECK(test::read_text(d + "/real.csv") == "new\n");
+  CHECK(resolve_output(d + "/link.csv").identity == resolve_output(d + "/real.csv").identity);
+  // A dangling link creates its target.
+  REQUIRE(::symlink("made.csv", (d + "/dangling.csv").c_str()) == 0);
+  write_file_atomic(d + "/dangling.csv", "x\n");
+  CHECK(test::read_text(d + "/made.csv") == "x\n");
+  // A loop is refused with a reason.
+  REQUIRE(::symlink("loop_b", (d + "/loop_a").c_str()) == 0);
+  REQUIRE(::symlink("loop_a", (d + "/loop_b").c_str()) == 0);
+  CHECK_THROWS_WITH(AtomicOutput(d + "/loop_a"), Catch::Contains("too many levels of symbolic links"));
+  CHECK_THROWS_WITH(AtomicOutput(d), Catch::Contains("is a directory"));
+  CHECK_THROWS_WITH(AtomicOutput(d + "/no/such/dir/x.csv"), Catch::Contains("cannot"));
+}
+
+TEST_CASE("io: a FIFO output is written in place, not replaced", "[io]") {
+  const std::string d = fresh_dir("io_fifo"), fifo = d + "/pipe";
+  REQUIRE(::mkfifo(fifo.c_str(), 0600) == 0);
+  CHECK(resolve_output(fifo).kind == OutputTarget::Kind::kDirect);
+  std::string got;
+  std::thread reader([&] { got = test::read_text(fifo); });
+  write_file_atomic(fifo, "through the pipe\n");
+  reader.join();
+  CHECK(got == "through the pipe\n");
+  struct stat st {};
+  REQUIRE(::lstat(fifo.c_str(), &st) == 0);
+  CHECK(S_ISFIFO(st.st_mode));
+  CHECK(listing(d) == std::vector<std::string>{"pipe"});
+}
+
+TEST_CASE("io: device nodes (made in a temporary folder) stay devices; write errors are reported", "[io]") {
+  if (::geteuid() != 0) {
+    WARN("not root: device-node checks skipped (mknod needs root)");
+    return;
+  }
+  const std::string d = fresh_dir("io_dev"), null_node = d + "/null", full_node = d + "/full";
+  // Linux device numbers: 1,3 is the null device, 1,7 the always-full device.
+  REQUIRE(::mknod(null_node.c_str(), S_IFCHR | 0666, makedev(1, 3)) == 0);
+  REQUIRE(::mknod(full_node.c_str(), S_IFCHR | 0666, makedev(1, 7)) == 0);
+  write_file_atomic(null_node, "discarded\n");
+  CHECK(is_char_device(null_node));
+  CHECK(resolve_output(null_node).identity.empty());  // two outputs may share a device
+  CHECK_THROWS_WITH(write_file_atomic(full_node, std::string(1 << 16, 'x')),
+                    Catch::Contains(full_node) && Catch::Contains("No space left on device"));
+  CHECK(is_char_device(full_node));
+  CHECK(listing(d) == (std::vector<std::string>{"full", "null"}));
+}
+
+TEST_CASE("io: a temporary output is removed when the process is terminated by a signal", "[io]") {
+  const std::string d = fresh_dir("io_signal");
+  const pid_t pid = ::fork();
+  REQUIRE(pid >= 0);
+  if (pid == 0) {
+    remove_outputs_on_signals();
+    AtomicOutput out(d + "/never.csv");
+    out.write("half");
+    ::raise(SIGTERM);
+    std::_Exit(0);  // not reached
+  }
+  int status = 0;
+  REQUIRE(::waitpid(pid, &status, 0) == pid);
+  CHECK(WIFSIGNALED(status));
+  CHECK(WTERMSIG(status) == SIGTERM);
+  CHECK(listing(d).empty());
+}
+
+TEST_CASE("io: parse_double takes whole fields only, also out of range", "[io]") {
+  double v = 1.0;
+  CHECK_FALSE(parse_double("1e-400junk", v));  // range error does not skip the end check
+  CHECK_FALSE(parse_double("1e400x", v));
+  REQUIRE(parse_double("1e-400", v));
+  CHECK(v == 0.0);
+  REQUIRE(parse_double("-1e400", v));
+  CHECK(std::isinf(v));
+  CHECK(v < 0);
+  REQUIRE(parse_double("+2.5", v));
+  CHECK(v == 2.5);
+  CHECK_FALSE(parse_double("", v));
+  CHECK_FALSE(parse_double("2.5 ", v));
+}
+
+TEST_CASE("io: UTF-8 validation and clipped echoes", "[io]") {
+  // Byte sequences from RFC 3629 Sect. 3 and the Unicode standard, Table 3-7.
+  CHECK(valid_utf8("KMG-00754"));
+  CHECK(valid_utf8("\xCE\xB7 CrB"));           // U+03B7
+  CHECK(valid_utf8("\xF0\x9F\x94\xAD"));       // U+1F52D
+  CHECK_FALSE(valid_utf8("\xC0\xAF"));         // overlong '/'
+  CHECK_FALSE(valid_utf8("\xED\xA0\x80"));     // surrogate U+D800
+  CHECK_FALSE(valid_utf8("\xF4\x90\x80\x80")); // above U+10FFFF
+  CHECK_FALSE(valid_utf8("\xE2\x82"));         // truncated
+  CHECK_FALSE(valid_utf8("\xFF"));
+  const std::string big(10'000'000, 'h');
+  const std::string clipped = clip_for_message(big);
+  CHECK(clipped.size() < 120);
+  CHECK_THAT(clipped, Catch::EndsWith("... (10000000 bytes)"));
+  // Cut on a character boundary: 79 ASCII bytes then a 2-byte character.
+  CHECK(valid_utf8(clip_for_message(std::string(79, 'a') + "\xCE\xB7" + std::string(10, 'b'))));
+}
+
+TEST_CASE("io: CSV rows whose id starts with '#' are not dropped silently", "[io]") {
+  std::istringstream in("id,x,y\n# a comment\n#S1,1,2\n");
+  ColumnTable t(in, "t.csv", {"id", "x"});
+  CHECK_THROWS_WITH(t.next(), Catch::Contains("t.csv:3:1") && Catch::Contains("quote an id that starts with '#'"));
+  std::istringstream quoted("id,x,y\n\"#S1\",1,2\n");
+  ColumnTable q(quoted, "q.csv", {"id"});
+  REQUIRE(q.next());
+  CHECK(q.text(0) == "#S1");
+  std::istringstream bad_utf8("id,x\nS\xFF,1\n");
+  ColumnTable b(bad_utf8, "b.csv", {"id"});
+  CHECK_THROWS_WITH(b.next(), Catch::Contains("b.csv:2:1") && Catch::Contains("not valid UTF-8"));
+}
+
+TEST_CASE("io: JSON errors name line and column, numbers beyond double range too", "[io]") {
+  std::istringstream overflow("{\n  \"a\": 1,\n  \"b\": 1e309\n}\n");
+  CHECK_THROWS_WITH(read_json(overflow, "s.json"), Catch::Contains("s.json:3:") && Catch::Contains("number overflow"));
+  std::istringstream syntax("{\"a\": [1, 2,, 3]}");
+  CHECK_THROWS_WITH(read_json(syntax, "x.json"), Catch::StartsWith("x.json:1:") && Catch::Contains("malformed JSON"));
+  std::istringstream empty("");
+  CHECK_THROWS_AS(read_json(empty, "e.json"), InputError);
+  std::istringstream good("{\"a\": [1.5, \"t\"]}");
+  const nlohmann::json j = read_json(good, "g.json");
+  CHECK(j["a"][0].get<double>() == 1.5);
+}
+
+TEST_CASE("stats: bin_index refuses NaN and outliers before converting", "[io][stats]") {
+  CHECK(bin_index(0.5, 0.0, 1.0, 360) == 0);
+  CHECK(bin_index(359.999, 0.0, 1.0, 360) == 359);
+  CHECK(bin_index(360.0, 0.0, 1.0, 360) == -1);
+  CHECK(bin_index(-1e-12, 0.0, 1.0, 360) == -1);
+  CHECK(bin_index(std::nan(""), 0.0, 1.0, 360) == -1);
+  CHECK(bin_index(1e300, -5.0, 0.1, 100) == -1);
+  CHECK(bin_index(0.0, -5.0, 0.0, 100) == -1);  // zero width: NaN or inf ratio
+}
