@@ -1,0 +1,20 @@
+// libFuzzer target: a ranked table (as heft merge reads it) and the same
+// bytes as a rank checkpoint (as --resume reads it), written back.
+#include "fuzz.hpp"
+#include "heft/rank.hpp"
+
+extern "C" int LLVMFuzzerTestOneInput(const std::uint8_t* data, std::size_t size) {
+  const std::string text = heft::fuzz::bytes(data, size);
+  heft::fuzz::guarded(text, [](std::istream& in) {
+    heft::RankRunInfo info;
+    auto records = heft::read_ranked(in, "ranked.csv", info);
+    heft::assign_ranks(records);
+    (void)heft::ranked_json(info, records);
+    (void)heft::ranked_table(info, records);
+  });
+  heft::fuzz::guarded(text, [](std::istream& in) {
+    const heft::Checkpoint cp = heft::read_checkpoint(in, "ranked.csv.checkpoint");
+    (void)heft::ranked_json(cp.info, cp.records);
+  });
+  return 0;
+}
