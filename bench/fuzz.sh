@@ -22,7 +22,7 @@ run_one() {
     -artifact_prefix="$build/findings/$t/" "$build/corpus-work/$t" "$root/tests/fuzz/corpus/$t" \
     >"$build/findings/$t.log" 2>&1 || true
   local runs findings
-  runs=$(awk -F: '/stat::number_of_executed_units/ { gsub(/ /, "", $2); print $2 }' "$build/findings/$t.log")
+  runs=$(awk '/stat::number_of_executed_units/ { print $NF }' "$build/findings/$t.log")
   findings=$(find "$build/findings/$t" -type f | wc -l)
   printf '%-12s %12s executions  %d finding(s)\n' "$t" "${runs:-?}" "$findings"
 }

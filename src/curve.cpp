@@ -530,6 +530,19 @@ double projection_factor_quantile(double p) {
   return sorted[i];
 }
 
+double analytic_anomaly_mas_yr(const AnomalyData& d, double a_au, double q, double f) {
+  const double w_late = d.late.end_yr - d.late.start_yr;
+  const double baseline = d.late.ref_epoch_yr - d.early.ref_epoch_yr;
+  const double period = period_from_a(a_au, d.host_mass_msun / (1.0 - q));
+  const double g = circular_window_efficiency(w_late / period);
+  const double xb = units::kPi * baseline / period;
+  const double s = std::sin(xb) / xb;
+  // Late-epoch anomaly of a circular face-on orbit: window-smeared velocity
+  // minus the mean velocity over the baseline (lagging by xb).
+  const double eta = std::sqrt(std::max(g * g + s * s - 2.0 * g * s * std::cos(xb), 0.0));
+  return f * eta * units::kTwoPi * a_au * d.parallax_mas * q / period;
+}
+
 Curve analytic_curve(const AnomalyData& d, const CurveOptions& opt) {
   Curve c;
   c.upper_limit = !(d.sig_joint >= opt.detect_sigma);
@@ -537,42 +550,58 @@ Curve analytic_curve(const AnomalyData& d, const CurveOptions& opt) {
   const double amp = dl.norm();
   const Eigen::Vector2d u = amp > 0 ? Eigen::Vector2d(dl / amp) : Eigen::Vector2d(1.0, 0.0);
   const double sigma = std::sqrt(u.dot(d.cov.block<2, 2>(0, 0) * u));
-  const double w_late = d.late.end_yr - d.late.start_yr;
-  const double baseline = d.late.ref_epoch_yr - d.early.ref_epoch_yr;
-  // Companion mass (MJup) whose circular orbit at a_au gives an anomaly of
-  // `speed` mas/yr with projection factor f.
-  auto mass_for = [&](double a_au, double speed, double f) {
-    double q = 0.0;
-    for (int it = 0; it < 50; ++it) {
-      const double period = period_from_a(a_au, d.host_mass_msun / (1.0 - q));
-      const double g = circular_window_efficiency(w_late / period);
-      const double xb = units::kPi * baseline / period;
-      const double s = std::sin(xb) / xb;
-      // Late-epoch anomaly of a circular face-on orbit: window-smeared
-      // velocity minus the mean velocity over the baseline (lagging by xb).
-      const double eta = std::sqrt(std::max(g * g + s * s - 2.0 * g * s * std::cos(xb), 1e-300));
-      const double q_new = speed / (f * eta) * period / (units::kTwoPi * a_au * d.parallax_mas);
-      if (!(q_new < 0.999)) return kAbsent;
-      if (std::abs(q_new - q) < 1e-12 * std::max(q_new, 1e-300)) break;
-      q = q_new;
-    }
-    return d.host_mass_msun * q / (1.0 - q) * units::kMjupPerMsun;
-  };
+  // The host is the heavier body (q <= 1/2): beyond, the dark-companion
+  // model (photocentre = host) does not apply.
+  const double q_lo = 1e-12, q_hi = 0.5;
+  std::vector<double> qs(kAnalyticGridPoints), base(kAnalyticGridPoints);
+  for (int k = 0; k < kAnalyticGridPoints; ++k)
+    qs[k] = q_lo * std::pow(q_hi / q_lo, static_cast<double>(k) / (kAnalyticGridPoints - 1));
+  auto to_mjup = [&](double q) { return d.host_mass_msun * q / (1.0 - q) * units::kMjupPerMsun; };
   for (double a : opt.a_au) {
-    CurvePoint p{a, a * d.parallax_mas, period_from_a(a, d.host_mass_msun), 0.0,
-                 kAbsent, kAbsent, kAbsent, kAbsent, kAbsent, kAbsent};
+    CurvePoint p{a, a * d.parallax_mas, period_from_a(a, d.host_mass_msun), 1.0 / opt.a_au.size(),
+                 kAbsent, kAbsent, kAbsent, kAbsent, kAbsent, kAbsent, {}, {}};
+    // The relation is linear in f: bracket f = 1 once per separation.
+    for (int k = 0; k < kAnalyticGridPoints; ++k) base[k] = analytic_anomaly_mas_yr(d, a, qs[k], 1.0);
+    // Every q in (q_lo, q_hi) with f base(q) = speed, ascending.
+    auto roots = [&](double speed, double f) {
+      std::vector<double> out;
+      for (int k = 0; k + 1 < kAnalyticGridPoints; ++k) {
+        const double r0 = f * base[k] - speed, r1 = f * base[k + 1] - speed;
+        if (r0 == 0.0) out.push_back(qs[k]);
+        if (!(r0 < 0.0 && r1 > 0.0) && !(r0 > 0.0 && r1 < 0.0)) continue;
+        double lo = qs[k], hi = qs[k + 1];
+        for (int it = 0; it < 200 && hi - lo > 1e-15 * hi; ++it) {
+          const double mid = 0.5 * (lo + hi);
+          ((analytic_anomaly_mas_yr(d, a, mid, f) - speed > 0.0) == (r0 > 0.0) ? lo : hi) = mid;
+        }
+        out.push_back(0.5 * (lo + hi));
+      }
+      return out;
+    };
+    double* cols[5] = {&p.mass_lo95, &p.mass_lo68, &p.mass_med, &p.mass_hi68, &p.mass_hi95};
+    // Per column: the speed to match and the projection factor. Detections
+    // spread over orientation only (a small projection factor means a large
+    // mass); upper limits at the median projection.
+    std::array<std::pair<double, double>, 5> targets;
+    bool used[5] = {true, true, true, true, true};
     if (c.upper_limit) {
-      p.mass_hi68 = mass_for(a, amp + sigma, projection_factor_quantile(0.5));
-      p.mass_hi95 = mass_for(a, amp + 2.0 * sigma, projection_factor_quantile(0.5));
+      used[0] = used[1] = used[2] = false;
+      targets[3] = {amp + sigma, projection_factor_quantile(0.5)};
+      targets[4] = {amp + 2.0 * sigma, projection_factor_quantile(0.5)};
     } else {
-      // Orientation spread only: a small projection factor means a large mass.
-      p.mass_lo95 = mass_for(a, amp, projection_factor_quantile(0.975));
-      p.mass_lo68 = mass_for(a, amp, projection_factor_quantile(0.84));
-      p.mass_med = mass_for(a, amp, projection_factor_quantile(0.5));
-      p.mass_hi68 = mass_for(a, amp, projection_factor_quantile(0.16));
-      p.mass_hi95 = mass_for(a, amp, projection_factor_quantile(0.025));
+      const double fq[5] = {0.975, 0.84, 0.5, 0.16, 0.025};
+      for (int k = 0; k < 5; ++k) targets[k] = {amp, projection_factor_quantile(fq[k])};
     }
-    p.weight = 1.0 / opt.a_au.size();
+    bool multiple = false, none = false;
+    for (int k = 0; k < 5; ++k) {
+      if (!used[k]) continue;
+      for (double q : roots(targets[k].first, targets[k].second)) p.roots_mjup[k].push_back(to_mjup(q));
+      if (p.roots_mjup[k].empty()) none = true;
+      else *cols[k] = p.roots_mjup[k].front();
+      multiple = multiple || p.roots_mjup[k].size() > 1;
+    }
+    if (multiple) p.notes.push_back("multiple_solutions");
+    if (none) p.notes.push_back("not_converged");
     p.ess = kAbsent;
     c.points.push_back(p);
   }
@@ -622,7 +651,7 @@ SurveyModel coverage_survey(const CurveOptions& opt, double a_lo_au, double a_hi
 }
 
 std::string curve_header() {
-  return "id,a_au,sep_mas,period_yr,weight,mass_lo95,mass_lo68,mass_med,mass_hi68,mass_hi95\n";
+  return "id,a_au,sep_mas,period_yr,weight,mass_lo95,mass_lo68,mass_med,mass_hi68,mass_hi95,notes\n";
 }
 
 void append_curve_rows(std::string& out, const std::string& id, const Curve& c) {
@@ -633,6 +662,8 @@ void append_curve_rows(std::string& out, const std::string& id, const Curve& c) 
       out += ',';
       append_double(out, v);
     }
+    out += ',';
+    append_csv_field(out, join_notes(p.notes));
     out += '\n';
   }
 }

@@ -198,7 +198,9 @@ RankRecord parse_rank_row(const ColumnTable& t) {
   const auto& cols = rank_columns();
   r.id = std::string(t.text(t.index(cols[0])));
   const int ir = t.index("rank");
-  r.rank = static_cast<long>(t.number(ir));
+  const double rank = t.number(ir);
+  if (!(rank >= 0 && rank <= 1e15 && rank == std::floor(rank))) t.fail(ir, "must be a whole number from 0 to 1e15");
+  r.rank = static_cast<long>(rank);
   double* slots[] = {&r.score,    &r.p_detect, &r.sig_joint, &r.a_best_au, &r.mass_lo68,
                      &r.mass_med, &r.mass_hi68, &r.sep_lo68, &r.sep_med,   &r.sep_hi68,
                      &r.pa_mode_deg, &r.pa_arc68_start_deg, &r.pa_arc68_width_deg};

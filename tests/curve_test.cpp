@@ -133,7 +133,7 @@ TEST_CASE("heft curve CLI: deterministic, modes in JSON, bad input", "[curve][cl
   CHECK(test::read_text(o1) == test::read_text(o2));
   const auto t = test::read_table(o1);
   CHECK(t.header == std::vector<std::string>{"id", "a_au", "sep_mas", "period_yr", "weight", "mass_lo95",
-                                             "mass_lo68", "mass_med", "mass_hi68", "mass_hi95"});
+                                             "mass_lo68", "mass_med", "mass_hi68", "mass_hi95", "notes"});
   const auto j = nlohmann::json::parse(test::read_text(js));
   REQUIRE(j["stars"].size() == 6);
   for (const auto& s : j["stars"]) {
@@ -222,4 +222,79 @@ TEST_CASE("calibration: bands cover injected masses at their nominal rates", "[c
   CHECK(c.max_sig > 300);
   CHECK(c.in68 == Approx(0.68).margin(0.06));
   CHECK(c.in95 == Approx(0.95).margin(0.03));
+}
+
+namespace {
+// Brute-force reference for the analytic relation: every root in q of
+// f 2 pi q a parallax eta(P) / P = speed, by a dense scan (linear and log
+// grids, 4e5 points) and bisection. eta is computed here from the closed-form
+// smearing factor g(x) = 3 (sin x - x cos x) / x^3, x = pi W / P
+// (docs/method.md, Sect. 6), not through the library's code.
+std::vector<double> brute_force_roots(const AnomalyData& d, double a_au, double speed, double f) {
+  const double W = d.late.end_yr - d.late.start_yr, B = d.late.ref_epoch_yr - d.early.ref_epoch_yr;
+  auto model = [&](double q) {
+    // Kepler's third law in AU, yr, Msun (the library's GM_sun constant).
+    const double P = units::kTwoPi * std::sqrt(a_au * a_au * a_au / (units::kGMSunAu3Yr2 * d.host_mass_msun / (1 - q)));
+    const double x = units::kPi * W / P;
+    const double g = 3.0 * (std::sin(x) - x * std::cos(x)) / (x * x * x);
+    const double xb = units::kPi * B / P, s = std::sin(xb) / xb;
+    const double eta = std::sqrt(std::max(g * g + s * s - 2 * g * s * std::cos(xb), 0.0));
+    return f * units::kTwoPi * q * a_au * d.parallax_mas * eta / P - speed;
+  };
+  std::vector<double> grid;
+  for (int k = 0; k < 200000; ++k) grid.push_back(1e-12 * std::pow(1e9, k / 199999.0));  // 1e-12 to 1e-3
+  for (int k = 1; k <= 200000; ++k) grid.push_back(1e-3 + (0.5 - 1e-3) * k / 200000.0);
+  std::vector<double> roots;
+  for (std::size_t k = 0; k + 1 < grid.size(); ++k) {
+    double lo = grid[k], hi = grid[k + 1];
+    const double flo = model(lo);
+    if ((flo > 0) == (model(hi) > 0)) continue;
+    for (int it = 0; it < 200; ++it) {
+      const double mid = 0.5 * (lo + hi);
+      ((model(mid) > 0) == (flo > 0) ? lo : hi) = mid;
+    }
+    roots.push_back(d.host_mass_msun * lo / (1 - lo) * units::kMjupPerMsun);
+  }
+  return roots;
+}
+}  // namespace
+
+TEST_CASE("analytic curve: every root of the relation when the period is shorter than the window", "[curve]") {
+  // A strong late anomaly at periods below the late window (2.84 yr): the
+  // smearing factor oscillates and the relation has several roots in q.
+  const Orbit<double> o{0.6, 0.0, 0.5, 0.3, 0.2, 1.0, 2016.0};
+  AnomalyData d = data_for(o, 1.0, 50.0, 1.0, 30.0, 0.02, 0.5, kEarly, kLate);
+  d.dpm << 3.0, 1.0, 0.0, 0.0;  // mas/yr
+  d.sig_joint = 100.0;
+  CurveOptions opt;
+  opt.a_au = {0.5, 0.8, 1.0, 1.5};
+  const Curve c = analytic_curve(d, opt);
+  const double amp = d.dpm.head<2>().norm();
+  const double fq[5] = {0.975, 0.84, 0.5, 0.16, 0.025};
+  int multiple = 0;
+  for (const auto& p : c.points) {
+    const double cols[5] = {p.mass_lo95, p.mass_lo68, p.mass_med, p.mass_hi68, p.mass_hi95};
+    for (int k = 0; k < 5; ++k) {
+      const std::vector<double> ref = brute_force_roots(d, p.a_au, amp, projection_factor_quantile(fq[k]));
+      INFO("a = " << p.a_au << " AU, column " << k << ": " << ref.size() << " roots");
+      REQUIRE(p.roots_mjup[k].size() == ref.size());
+      for (std::size_t r = 0; r < ref.size(); ++r) CHECK(p.roots_mjup[k][r] == Approx(ref[r]).epsilon(1e-7));
+      if (ref.empty()) {
+        CHECK(std::isnan(cols[k]));
+      } else {
+        CHECK(cols[k] == p.roots_mjup[k].front());  // the smallest root, never an iterate
+      }
+      multiple += ref.size() > 1;
+    }
+    const bool has_multi = std::any_of(p.roots_mjup.begin(), p.roots_mjup.end(), [](auto& r) { return r.size() > 1; });
+    CHECK((std::find(p.notes.begin(), p.notes.end(), "multiple_solutions") != p.notes.end()) == has_multi);
+  }
+  CHECK(multiple > 0);  // the case exercises several roots
+  // An anomaly no companion lighter than its host can produce: no root, flagged.
+  d.dpm << 1e6, 0.0, 0.0, 0.0;
+  const Curve none = analytic_curve(d, opt);
+  for (const auto& p : none.points) {
+    CHECK(std::isnan(p.mass_med));
+    CHECK(std::find(p.notes.begin(), p.notes.end(), "not_converged") != p.notes.end());
+  }
 }

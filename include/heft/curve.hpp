@@ -10,6 +10,7 @@
 /// the z-plane marginalisation is described in docs/method.md, Sect. 8.
 
 #include <Eigen/Core>
+#include <array>
 #include <string>
 #include <vector>
 
@@ -55,6 +56,13 @@ struct CurvePoint {
   double a_au, sep_mas, period_yr, weight;
   double mass_lo95, mass_lo68, mass_med, mass_hi68, mass_hi95;
   double ess;   ///< effective sample size of the weighted z samples
+  /// Analytic curves: "multiple_solutions" when the circular-orbit relation
+  /// has several roots in the mass ratio for some column (the smallest is
+  /// given), "not_converged" when a column has no root with q <= 1/2.
+  std::vector<std::string> notes;
+  /// Analytic curves: every root (MJup, ascending) of the columns lo95, lo68,
+  /// med, hi68, hi95 (empty for Monte Carlo curves).
+  std::array<std::vector<double>, 5> roots_mjup;
 };
 
 struct Curve {
@@ -76,7 +84,27 @@ Curve montecarlo_curve(const AnomalyData& d, const CurveOptions& opt, const std:
 /// (exact in q) times the window and long-baseline smearing of a circular
 /// orbit and the statistical projection factor for isotropic orientations
 /// (computed here), equated to the late anomaly.
+///
+/// Notes:
+/// 1. The period depends on q through m1 + m2 = m1 / (1 - q), and the
+///    smearing factor oscillates once the period is shorter than the window,
+///    so the relation can have several roots in q. All are bracketed on a
+///    dense log grid in q (analytic_relation_grid_points) and refined by
+///    bisection; the smallest is the column's mass, the others are in
+///    CurvePoint::roots_mjup with the note "multiple_solutions". Roots are
+///    sought for q <= 1/2 (the host is the heavier body; beyond, the dark-
+///    companion model does not apply); a column without one is NaN with
+///    "not_converged".
 Curve analytic_curve(const AnomalyData& d, const CurveOptions& opt);
+
+/// The late-epoch anomaly (mas/yr) that the analytic relation predicts for
+/// mass ratio q at a_au with projection factor f: f 2 pi q a parallax eta / P,
+/// with P from m1 / (1 - q) and eta the window and baseline smearing.
+double analytic_anomaly_mas_yr(const AnomalyData& d, double a_au, double q, double f);
+
+/// Grid points in q (log-spaced from 1e-12 to 1/2) on which the analytic
+/// relation is bracketed.
+inline constexpr int kAnalyticGridPoints = 4000;
 
 /// Quantiles of the projection factor |v_sky| / |v| of a circular orbit for
 /// isotropic orientation and uniform phase (deterministic Monte Carlo with

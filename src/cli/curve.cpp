@@ -29,10 +29,19 @@ struct CurveCliOptions {
 
 nlohmann::ordered_json point_json(const CurvePoint& p) {
   auto num = [](double v) { return std::isfinite(v) ? nlohmann::ordered_json(v) : nlohmann::ordered_json(nullptr); };
-  return {{"a_au", p.a_au},           {"sep_mas", p.sep_mas},     {"period_yr", p.period_yr},
-          {"weight", p.weight},       {"mass_lo95", num(p.mass_lo95)}, {"mass_lo68", num(p.mass_lo68)},
-          {"mass_med", num(p.mass_med)}, {"mass_hi68", num(p.mass_hi68)}, {"mass_hi95", num(p.mass_hi95)},
-          {"ess", num(p.ess)}};
+  nlohmann::ordered_json j = {
+      {"a_au", p.a_au},           {"sep_mas", p.sep_mas},     {"period_yr", p.period_yr},
+      {"weight", p.weight},       {"mass_lo95", num(p.mass_lo95)}, {"mass_lo68", num(p.mass_lo68)},
+      {"mass_med", num(p.mass_med)}, {"mass_hi68", num(p.mass_hi68)}, {"mass_hi95", num(p.mass_hi95)},
+      {"ess", num(p.ess)},        {"notes", p.notes}};
+  // Analytic curves with several roots: every root of each column.
+  if (std::find(p.notes.begin(), p.notes.end(), "multiple_solutions") != p.notes.end()) {
+    const char* names[5] = {"lo95", "lo68", "med", "hi68", "hi95"};
+    nlohmann::ordered_json roots;
+    for (int k = 0; k < 5; ++k) roots[names[k]] = p.roots_mjup[k];
+    j["roots_mjup"] = roots;
+  }
+  return j;
 }
 
 int run_curve(CurveCliOptions o) {

@@ -2,6 +2,7 @@
 // run would have written, checking that the shards belong together and
 // that no star is missing or duplicated.
 
+#include <cmath>
 #include <memory>
 #include <set>
 
@@ -35,7 +36,8 @@ int run_merge(const MergeCliOptions& o) {
     const auto slash = sh->second.find('/');
     double k = 0, n = 0;
     if (slash == std::string::npos || !parse_double(sh->second.substr(0, slash), k) ||
-        !parse_double(sh->second.substr(slash + 1), n) || !(k >= 1 && k <= n))
+        !parse_double(sh->second.substr(slash + 1), n) || !(k >= 1 && k <= n && n <= 1e6) || k != std::floor(k) ||
+        n != std::floor(n))
       throw InputError(in.name(), 1, 0, "bad shard '" + sh->second + "' in the run metadata");
     RankRunInfo common = info;
     common.fields.erase("shard");

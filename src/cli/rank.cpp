@@ -40,11 +40,13 @@ void parse_shard(const std::string& text, long& k, long& n) {
     double kd = 0, nd = 0;
     ok = parse_double(std::string_view(text).substr(0, slash), kd) &&
          parse_double(std::string_view(text).substr(slash + 1), nd) && kd == std::floor(kd) && nd == std::floor(nd) &&
-         nd >= 1 && kd >= 1 && kd <= nd;
-    k = static_cast<long>(kd);
-    n = static_cast<long>(nd);
+         nd >= 1 && nd <= 1e6 && kd >= 1 && kd <= nd;
+    if (ok) {
+      k = static_cast<long>(kd);
+      n = static_cast<long>(nd);
+    }
   }
-  if (!ok) throw CLI::ValidationError("--shard: expected K/N with 1 <= K <= N, got '" + text + "'");
+  if (!ok) throw CLI::ValidationError("--shard: expected K/N with 1 <= K <= N <= 1000000, got '" + text + "'");
 }
 
 // Metadata values are single words: spaces and '%' percent-encoded.
