@@ -82,10 +82,11 @@ AnomalyResult compute_anomaly(const Astrometry& early, const Astrometry& late, d
   const Eigen::Matrix<double, kAnomalyOutputs, 5> je = jac.leftCols<5>();
   const Eigen::Matrix<double, kAnomalyOutputs, 5> jl = jac.middleCols<5>(5);
   const Eigen::Matrix<double, kAnomalyOutputs, 1> jr = jac.col(10);
+  const Eigen::Matrix<double, kAnomalyOutputs, kAnomalyOutputs> c_rv =
+      (rv_error_km_s * rv_error_km_s) * jr * jr.transpose();
   const Eigen::Matrix<double, kAnomalyOutputs, kAnomalyOutputs> cout =
       je.lazyProduct(early.covariance()).lazyProduct(je.transpose()) +
-      jl.lazyProduct(late.covariance()).lazyProduct(jl.transpose()) +
-      (rv_error_km_s * rv_error_km_s) * jr * jr.transpose();
+      jl.lazyProduct(late.covariance()).lazyProduct(jl.transpose()) + c_rv;
 
   AnomalyResult r;
   r.dt_yr = model.dt_yr;
@@ -95,6 +96,7 @@ AnomalyResult compute_anomaly(const Astrometry& early, const Astrometry& late, d
   r.dpm_early_mas_yr = y.segment<2>(4);
   r.dpm_cov = cout.block<4, 4>(2, 2);
   r.pml_dpm_cov = cout.block<2, 4>(0, 2);
+  r.rv_cov_share = c_rv.block<4, 4>(2, 2).trace() / r.dpm_cov.trace();
   r.chi2_late = chi2_of<2>(r.dpm_late_mas_yr, r.dpm_cov.block<2, 2>(0, 0));
   r.chi2_early = chi2_of<2>(r.dpm_early_mas_yr, r.dpm_cov.block<2, 2>(2, 2));
   r.chi2_joint = chi2_of<4>(y.segment<4>(2), r.dpm_cov);

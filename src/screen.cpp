@@ -1,5 +1,6 @@
 #include "heft/screen.hpp"
 
+#include <algorithm>
 #include <cmath>
 
 #include "heft/io.hpp"
@@ -22,6 +23,12 @@ void add_plausibility_notes(const StarRecord& star, std::vector<std::string>& no
   if (vtan) notes.push_back("implausible_vtan");
 }
 
+double rv_prior_sigma_km_s(const Astrometry& late) {
+  const double plx_mas = std::max(late.parallax_mas, 3.0 * late.parallax_error_mas);
+  const double vt_km_s = units::kKmsPerAuYr * std::hypot(late.pmra_mas_yr, late.pmdec_mas_yr) / plx_mas;
+  return std::sqrt(units::kRvPriorFloorKmS * units::kRvPriorFloorKmS + 0.5 * vt_km_s * vt_km_s);
+}
+
 ScreenRow screen_star(const StarRecord& star, const std::string& bad_reason,
                       const ScreenOptions& opt) {
   ScreenRow row;
@@ -37,9 +44,10 @@ ScreenRow screen_star(const StarRecord& star, const std::string& bad_reason,
   if (!in_early || !in_late) row.notes.push_back("no_spin_bin");
 
   double rv = star.rv_km_s, rv_error = star.rv_error_km_s;
-  if (!present(rv)) {
+  const bool assumed_rv = !present(rv);
+  if (assumed_rv) {
     rv = opt.assume_rv_km_s;
-    rv_error = opt.rv_sigma_km_s;
+    rv_error = present(opt.rv_sigma_km_s) ? opt.rv_sigma_km_s : rv_prior_sigma_km_s(late);
     row.notes.push_back("no_rv");
   } else if (!present(rv_error)) {
     rv_error = 0.0;
@@ -50,6 +58,7 @@ ScreenRow screen_star(const StarRecord& star, const std::string& bad_reason,
   std::string why;
   row.result = compute_anomaly(early, late, rv, rv_error, ok, why);
   row.status = ok ? "ok" : "failed:" + why;
+  if (ok && assumed_rv && row.result.rv_cov_share > units::kRvDominatesShare) row.notes.push_back("rv_prior_dominates");
   return row;
 }
 

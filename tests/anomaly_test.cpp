@@ -3,6 +3,7 @@
 
 #include "heft/anomaly.hpp"
 #include "heft/rng.hpp"
+#include "heft/screen.hpp"
 #include "heft/simulate.hpp"
 #include "test_util.hpp"
 
@@ -151,4 +152,55 @@ TEST_CASE("tangential velocity anomaly", "[anomaly]") {
   CHECK(r.dpm_late_mas_yr.norm() == Approx(1.0).epsilon(1e-6));
   CHECK(r.dvt_late_m_s == Approx(units::kKmsPerAuYr * 10.0).epsilon(1e-6));
   CHECK(r.dvt_late_error_m_s > 0.0);
+}
+
+TEST_CASE("stars without RV: the prior width follows the tangential speed", "[anomaly][screen]") {
+  // The issue's star: parallax 500 mas, 4.9"/yr, true rv -110 km/s, screened
+  // without its RV. Catalogues made with ERFA eraStarpm (reference library).
+  const double pm = 4900.0, pa = units::deg_to_rad(30.0);
+  const SkyState<double> star{units::deg_to_rad(120.0), units::deg_to_rad(-20.0), 500.0, pm * std::sin(pa),
+                              pm * std::cos(pa), -110.0};
+  StarRecord s;
+  s.id = "near";
+  erfa_catalogues(star, s.early, s.late);
+  ScreenOptions fixed30;
+  fixed30.rv_sigma_km_s = 30.0;
+  const ScreenRow old_prior = screen_star(s, "", fixed30), kin = screen_star(s, "", ScreenOptions{});
+  REQUIRE(old_prior.ok());
+  REQUIRE(kin.ok());
+  // The fixed 30 km/s prior turns the unknown RV into a false 2.6 sigma
+  // anomaly (chi2 ~ (110/30)^2); the kinematic width does not.
+  CHECK(old_prior.result.sig_joint > 2.4);
+  CHECK(kin.result.sig_joint < 2.0);
+  const double vt = units::kKmsPerAuYr * pm / 500.0;
+  CHECK(rv_prior_sigma_km_s(s.late) == Approx(std::sqrt(900.0 + vt * vt / 2)).epsilon(1e-12));
+  CHECK(std::find(kin.notes.begin(), kin.notes.end(), "rv_prior_dominates") != kin.notes.end());
+
+  // High-velocity stars (v_t 100-400 km/s) whose |rv| is up to twice v_t, in
+  // several directions and at 10-100 pc: all below 2 sigma without their RV,
+  // and far above it with the old fixed prior for the fastest.
+  int n = 0, old_above = 0;
+  for (double vt_km_s : {100.0, 200.0, 400.0})
+    for (double ratio : {-2.0, -1.0, 0.5, 1.0, 2.0})
+      for (double d_pc : {10.0, 30.0, 100.0}) {
+        const double plx = 1000.0 / d_pc, mu = vt_km_s * plx / units::kKmsPerAuYr;
+        const SkyState<double> fast{units::deg_to_rad(40.0 + 37 * n % 300), units::deg_to_rad(-60.0 + 11 * (n % 11)),
+                                    plx, mu * std::cos(0.7 * n), mu * std::sin(0.7 * n), ratio * vt_km_s};
+        StarRecord f;
+        f.id = "fast" + std::to_string(n++);
+        erfa_catalogues(fast, f.early, f.late);
+        const ScreenRow r = screen_star(f, "", ScreenOptions{});
+        REQUIRE(r.ok());
+        INFO("v_t " << vt_km_s << " rv/v_t " << ratio << " d " << d_pc << " pc");
+        CHECK(r.result.sig_joint < 2.0);
+        old_above += screen_star(f, "", fixed30).result.sig_joint > 3.0;
+      }
+  CHECK(old_above >= 10);
+  // Stars with an RV do not use the prior: the same result to the bit.
+  s.rv_km_s = -110.0;
+  s.rv_error_km_s = 0.5;
+  const ScreenRow a = screen_star(s, "", fixed30), b = screen_star(s, "", ScreenOptions{});
+  CHECK(a.result.chi2_joint == b.result.chi2_joint);
+  CHECK(a.result.dpm_cov == b.result.dpm_cov);
+  CHECK(std::find(b.notes.begin(), b.notes.end(), "rv_prior_dominates") == b.notes.end());
 }

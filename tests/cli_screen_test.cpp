@@ -88,7 +88,8 @@ TEST_CASE("screen writes the documented columns and the library's numbers", "[cl
   REQUIRE(j["stars"].size() == 2);
   CHECK(j["stars"][1]["chi2_joint"].get<double>() == lib.result.chi2_joint);
   CHECK(j["run"]["rows"] == 2);
-  CHECK(j["run"]["options"]["rv_sigma_km_s"] == 30.0);
+  CHECK(j["run"]["options"]["rv_sigma_km_s"].is_null());  // default: the kinematic width
+  CHECK_THAT(j["run"]["options"]["rv_prior"].get<std::string>(), Catch::StartsWith("kinematic"));
   // stdin in, stdout out.
   REQUIRE(run_heft("screen - -q < " + in + " > " + out) == 0);
   CHECK(test::read_table(out).rows.size() == 2);

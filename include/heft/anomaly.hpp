@@ -80,6 +80,9 @@ struct AnomalyResult {
   double chi2_late = kAbsent, chi2_early = kAbsent, chi2_joint = kAbsent;
   double sig_late = kAbsent, sig_joint = kAbsent;
   double dvt_late_m_s = kAbsent, dvt_late_error_m_s = kAbsent;
+  /// Share of the trace of the 4x4 anomaly covariance that comes from the
+  /// RV's uncertainty (0 with an exact RV).
+  double rv_cov_share = kAbsent;
 };
 
 /// Computes the anomaly of a calibrated star.

@@ -17,8 +17,25 @@ namespace heft {
 struct ScreenOptions {
   EpochCalibration early, late;
   double assume_rv_km_s = 0.0;   ///< rv of a star without one
-  double rv_sigma_km_s = 30.0;   ///< prior width of that assumed rv
+  /// Prior width of that assumed rv; absent (NaN, the default) = the
+  /// kinematic width of rv_prior_sigma_km_s.
+  double rv_sigma_km_s = kAbsent;
 };
+
+/// Default prior width (km/s) of the radial velocity of a star without one,
+/// from its late-catalogue kinematics: sqrt(s0^2 + v_t^2 / 2), with
+/// s0 = units::kRvPriorFloorKmS and v_t the tangential speed (km/s) from the
+/// late PM and parallax (parallax floored at 3 sigma, so a poor parallax
+/// cannot make v_t infinite).
+///
+/// Notes:
+/// 1. The model: the star's heliocentric velocity is isotropic about the
+///    Sun's with per-axis dispersion s^2, estimated from the two observed
+///    tangential components (v_t^2 / 2, the maximum-likelihood per-axis
+///    variance of two Gaussian components), plus the disc floor s0. A star
+///    crossing the sky at 300 km/s is then not assumed to have |rv| < 30.
+/// 2. docs/method.md, Sect. 2 states it; --rv-sigma overrides it.
+double rv_prior_sigma_km_s(const Astrometry& late);
 
 /// One screened star.
 struct ScreenRow {
@@ -40,6 +57,10 @@ struct ScreenRow {
 void add_plausibility_notes(const StarRecord& star, std::vector<std::string>& notes);
 
 /// Screens one star. `bad_reason` non-empty marks the row bad_input.
+/// Notes: `no_rv` (assumed RV with its prior), `rv_prior_dominates` (that
+/// prior carries more than units::kRvDominatesShare of the anomaly
+/// covariance: the star's significance mostly reflects the unknown RV),
+/// `rv_error_missing`, `no_spin_bin`, and add_plausibility_notes.
 ScreenRow screen_star(const StarRecord& star, const std::string& bad_reason,
                       const ScreenOptions& opt);
 

@@ -43,6 +43,14 @@ inline constexpr double kImplausiblePmMasYr = 11000.0;
 inline constexpr double kImplausibleParallaxMas = 800.0;
 inline constexpr double kImplausibleVtanKmS = 1000.0;
 
+/// Floor of the default RV prior width of a star without an RV (km/s): the
+/// order of the local disc's velocity dispersion per axis (about 20-40 km/s,
+/// e.g. Dehnen & Binney 1998, MNRAS 298, 387; from memory).
+inline constexpr double kRvPriorFloorKmS = 30.0;
+/// Share of the anomaly covariance (trace) above which the assumed RV's
+/// term is said to dominate it (screen note rv_prior_dominates).
+inline constexpr double kRvDominatesShare = 0.5;
+
 inline constexpr double kPi = std::numbers::pi;
 inline constexpr double kTwoPi = 2.0 * std::numbers::pi;
 /// Degrees per radian; milliarcseconds per radian.

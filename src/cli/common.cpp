@@ -96,9 +96,9 @@ void add_screen_options(CLI::App* app, ScreenOptions& screen, WindowDefaults& wi
                   "radial velocity of stars without 'rv' (km/s)")
       ->default_val(0.0);
   app->add_option("--rv-sigma", screen.rv_sigma_km_s,
-                  "prior width of that assumed radial velocity (km/s)")
-      ->check(CLI::NonNegativeNumber)
-      ->default_val(30.0);
+                  "prior width of that assumed radial velocity (km/s); default per star "
+                  "sqrt(30^2 + v_t^2/2) from its tangential speed v_t (docs/method.md, Sect. 2)")
+      ->check(CLI::NonNegativeNumber);
   add_pair_option(app, "--early-window", windows.early_start_yr, windows.early_end_yr,
                   "default early observing window START,END (yr) for rows without one")
       ->default_str("1989.85,1993.21");

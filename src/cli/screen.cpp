@@ -96,7 +96,9 @@ int run_screen(const ScreenCliOptions& o) {
     options["late"] = calibration_json(opt.late);
     options["late_spin_table"] = o.late_spin_table;
     options["assume_rv_km_s"] = opt.assume_rv_km_s;
-    options["rv_sigma_km_s"] = opt.rv_sigma_km_s;
+    options["rv_sigma_km_s"] = present(opt.rv_sigma_km_s) ? nlohmann::ordered_json(opt.rv_sigma_km_s) : nullptr;
+    options["rv_prior"] = present(opt.rv_sigma_km_s) ? "fixed width rv_sigma_km_s"
+                                                     : "kinematic: sqrt(30^2 + v_t^2/2) km/s (docs/method.md, Sect. 2)";
     options["default_windows_yr"] = {{o.windows.early_start_yr, o.windows.early_end_yr},
                                      {o.windows.late_start_yr, o.windows.late_end_yr}};
     options["strict"] = o.strict;
