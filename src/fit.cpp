@@ -667,8 +667,9 @@ Eigen::VectorXd mirror(Eigen::VectorXd p) {
 // Learning Algorithms, ch. 27) as its posterior weight and gets an ensemble
 // of its own, started from N(p, C / 4) in the core and +-0.1 in the ln
 // jitters: walkers of this sampler do not cross between modes, and pairing
-// walkers of different modes would only waste moves. Modes below 1 % of
-// the weight are dropped, at most four are kept.
+// walkers of different modes would only waste moves. Modes whose evidence
+// is below kMinModeEvidenceRatio of the strongest's are dropped, at most
+// kMaxModes are kept (docs/method.md, Sect. 9).
 std::vector<std::pair<Eigen::MatrixXd, ModeStart>> mode_starts(const FitModel& m, const std::vector<FitMinimum>& minima,
                                                                int walkers, Rng& rng) {
   const int n = m.n_params(), nc = kFitCore + m.n_instruments();
@@ -713,7 +714,7 @@ std::vector<std::pair<Eigen::MatrixXd, ModeStart>> mode_starts(const FitModel& m
   double sz = 0.0;
   std::vector<Mode> kept;
   for (const auto& x : ms)
-    if (kept.size() < 4 && x.log_z - mx > std::log(1e-2)) {
+    if (kept.size() < kMaxModes && x.log_z - mx > std::log(kMinModeEvidenceRatio)) {
       kept.push_back(x);
       sz += std::exp(x.log_z - mx);
     }

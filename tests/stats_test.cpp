@@ -1,5 +1,9 @@
 #include <catch2/catch.hpp>
 #include <cmath>
+#include <cstdio>
+#include <cstdlib>
+#include <string>
+#include <vector>
 
 #include "heft/stats.hpp"
 
@@ -52,4 +56,50 @@ TEST_CASE("normal quantile", "[stats]") {
   CHECK(normal_quantile(0.975) == Approx(1.959963984540054).epsilon(1e-13));
   CHECK(normal_quantile(0.5) == Approx(0.0).margin(1e-15));
   CHECK(normal_quantile(1e-10) == Approx(-6.361340902404056).epsilon(1e-10));
+}
+
+TEST_CASE("chi2 to sigma against mpmath at 50 digits, up to 270 sigma", "[stats][reference]") {
+  // Source: mpmath (Debian python3-mpmath, arbitrary precision) through
+  // Debian's /usr/bin/python3: ln Q(k/2, x/2) by the regularised upper
+  // incomplete gamma function and the z with erfc(z / sqrt 2) = p by root
+  // finding on ln erfc, both at 50 significant digits.
+  std::vector<std::pair<double, int>> cases;
+  for (int dof : {2, 4})
+    for (double chi2 : {0.1, 1.0, 4.0, 11.8, 30.0, 100.0, 1e3, 1e4, 3e4, 7.5e4})
+      cases.emplace_back(chi2, dof);
+  std::string args;
+  for (auto [x, k] : cases) args += " " + std::to_string(x) + ":" + std::to_string(k);
+  const std::string script =
+      "import sys, mpmath as m\n"
+      "m.mp.dps = 50\n"
+      "for a in sys.argv[1:]:\n"
+      "    x, k = a.split(':'); x = m.mpf(x); k = int(k)\n"
+      "    lp = m.log(m.gammainc(m.mpf(k) / 2, x / 2, m.inf, regularized=True))\n"
+      "    z = m.findroot(lambda z: m.log(m.erfc(z / m.sqrt(2))) - lp, m.sqrt(max(-2 * lp, m.mpf('1e-6'))))\n"
+      "    print(m.nstr(lp, 20), m.nstr(z, 20))\n";
+  const std::string py = std::string(HEFT_TEST_TMP) + "/mpmath_chi2.py", out = py + ".out";
+  {
+    std::FILE* f = std::fopen(py.c_str(), "w");
+    REQUIRE(f);
+    std::fputs(script.c_str(), f);
+    std::fclose(f);
+  }
+  if (std::system("/usr/bin/python3 -c 'import mpmath' 2>/dev/null") != 0) {
+    WARN("Debian's python3-mpmath is missing: reference check skipped (tests/run.sh installs it)");
+    return;
+  }
+  REQUIRE(std::system(("/usr/bin/python3 " + py + args + " > " + out).c_str()) == 0);
+  std::FILE* f = std::fopen(out.c_str(), "r");
+  REQUIRE(f);
+  double max_sigma = 0.0;
+  for (auto [x, k] : cases) {
+    double lp_ref = 0, z_ref = 0;
+    REQUIRE(std::fscanf(f, "%lf %lf", &lp_ref, &z_ref) == 2);
+    INFO("chi2 " << x << ", dof " << k);
+    CHECK(chi2_log_survival(x, k) == Approx(lp_ref).epsilon(1e-13));
+    CHECK(chi2_to_sigma(x, k) == Approx(z_ref).epsilon(1e-12));
+    max_sigma = std::max(max_sigma, z_ref);
+  }
+  std::fclose(f);
+  CHECK(max_sigma > 270.0);
 }

@@ -41,6 +41,10 @@ enum FitParam : int {
 
 /// At most this many RV instruments (each adds an offset and a jitter).
 inline constexpr int kMaxInstruments = 6;
+/// Posterior modes sampled with imaging: at most kMaxModes, each with a
+/// Laplace evidence at least kMinModeEvidenceRatio times the strongest's.
+inline constexpr std::size_t kMaxModes = 4;
+inline constexpr double kMinModeEvidenceRatio = 1e-2;
 inline constexpr int kMaxFitParams = kFitCore + 2 * kMaxInstruments;
 
 struct FitOptions {
