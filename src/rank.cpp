@@ -72,7 +72,7 @@ RankRecord screened_record(const ScreenRow& row) {
   RankRecord r;
   r.id = row.id;
   r.status = row.status;
-  r.notes = join_notes(row.notes);
+  r.notes = row.notes;
   if (row.ok()) {
     r.sig_joint = row.result.sig_joint;
     r.score = 0.0;
@@ -88,7 +88,7 @@ RankRecord rank_star(const StarRecord& star, const std::string& bad_reason, cons
   bool have_mass = false;
   const AnomalyData d = anomaly_data(star, row.result, opt.host_mass_msun, opt.host_mass_error_msun, have_mass);
   if (!have_mass) {
-    r.status = "bad_input:no_host_mass";
+    r.status = RowStatus::bad_input("no_host_mass");
     r.score = kAbsent;
     return r;
   }
@@ -99,12 +99,12 @@ RankRecord rank_star(const StarRecord& star, const std::string& bad_reason, cons
   try {
     c = montecarlo_curve(d, co, star.id);
   } catch (const Error& e) {
-    r.status = "failed:curve";
+    r.status = RowStatus::failed("curve");
     r.score = kAbsent;
     return r;
   }
   if (c.draws.empty() || c.points.empty()) {
-    r.status = "failed:no_posterior_draws";
+    r.status = RowStatus::failed("no_posterior_draws");
     r.score = kAbsent;
     return r;
   }
@@ -136,8 +136,8 @@ RankRecord rank_star(const StarRecord& star, const std::string& bad_reason, cons
   }
   r.score = sw > 0 ? in_window / sw : 0.0;
   if (detect) r.p_detect = sw > 0 ? detected / sw : 0.0;
-  if (opt.contrast && opt.mass_mag && !present(star.mag)) r.notes += std::string(r.notes.empty() ? "" : "|") + "no_mag";
-  if (c.upper_limit) r.notes += std::string(r.notes.empty() ? "" : "|") + "upper_limit";
+  if (opt.contrast && opt.mass_mag && !present(star.mag)) add_note(r.notes, "no_mag");
+  if (c.upper_limit) add_note(r.notes, "upper_limit");
   PredictOptions po;
   po.iwa_mas = opt.iwa_mas;
   po.owa_mas = opt.owa_mas;
@@ -187,9 +187,9 @@ void append_rank_row(std::string& out, const RankRecord& r) {
     append_double(out, v);
   }
   out += ',';
-  append_csv_field(out, r.status);
+  append_csv_field(out, r.status.text());
   out += ',';
-  append_csv_field(out, r.notes);
+  append_csv_field(out, join_notes(r.notes));
   out += '\n';
 }
 
@@ -208,8 +208,9 @@ RankRecord parse_rank_row(const ColumnTable& t) {
     const int c = t.index(cols[k + 2]);
     *slots[k] = t.text(c).empty() ? kAbsent : t.number(c);
   }
-  r.status = std::string(t.text(t.index("status")));
-  r.notes = std::string(t.text(t.index("notes")));
+  const int is = t.index("status");
+  if (!RowStatus::parse(t.text(is), r.status)) t.fail(is, "not a row status (ok, bad_input:REASON, failed:REASON)");
+  r.notes = split_notes(t.text(t.index("notes")));
   return r;
 }
 
@@ -249,7 +250,7 @@ std::string ranked_json(const RankRunInfo& info, const std::vector<RankRecord>& 
   std::map<std::string, long> counts;
   for (std::size_t k = 0; k < ranked.size(); ++k) {
     const RankRecord& r = ranked[k];
-    ++counts[r.status];
+    ++counts[r.status.text()];
     const oj j = {{"id", r.id},
                   {"rank", r.rank},
                   {"score", num(r.score)},
@@ -260,7 +261,7 @@ std::string ranked_json(const RankRunInfo& info, const std::vector<RankRecord>& 
                   {"sep_mas", {{"lo68", num(r.sep_lo68)}, {"med", num(r.sep_med)}, {"hi68", num(r.sep_hi68)}}},
                   {"pa_deg", {{"mode", num(r.pa_mode_deg)}, {"arc68_start", num(r.pa_arc68_start_deg)},
                               {"arc68_width", num(r.pa_arc68_width_deg)}}},
-                  {"status", r.status},
+                  {"status", r.status.text()},
                   {"notes", r.notes}};
     out += (k ? ",\n" : "") + j.dump();
   }

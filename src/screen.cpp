@@ -34,7 +34,7 @@ ScreenRow screen_star(const StarRecord& star, const std::string& bad_reason,
   ScreenRow row;
   row.id = star.id;
   if (!bad_reason.empty()) {
-    row.status = "bad_input:" + bad_reason;
+    row.status = RowStatus::bad_input(bad_reason);
     return row;
   }
   Astrometry early = star.early, late = star.late;
@@ -57,7 +57,7 @@ ScreenRow screen_star(const StarRecord& star, const std::string& bad_reason,
   bool ok = false;
   std::string why;
   row.result = compute_anomaly(early, late, rv, rv_error, ok, why);
-  row.status = ok ? "ok" : "failed:" + why;
+  row.status = ok ? RowStatus{} : RowStatus::failed(why);
   if (ok && assumed_rv && row.result.rv_cov_share > units::kRvDominatesShare) row.notes.push_back("rv_prior_dominates");
   return row;
 }
@@ -82,12 +82,6 @@ std::string screen_header() {
   return h + '\n';
 }
 
-std::string join_notes(const std::vector<std::string>& notes) {
-  std::string s;
-  for (const auto& n : notes) s += (s.empty() ? "" : "|") + n;
-  return s;
-}
-
 namespace {
 // The numeric columns between status and notes, in order.
 std::vector<double> screen_numbers(const AnomalyResult& r) {
@@ -108,7 +102,7 @@ std::vector<double> screen_numbers(const AnomalyResult& r) {
 void append_screen_row(std::string& out, const ScreenRow& row) {
   append_csv_field(out, row.id);
   out += ',';
-  append_csv_field(out, row.status);
+  append_csv_field(out, row.status.text());
   const std::size_t n_num = screen_columns().size() - 3;
   if (row.ok()) {
     for (double v : screen_numbers(row.result)) {
@@ -127,7 +121,7 @@ nlohmann::ordered_json screen_row_json(const ScreenRow& row) {
   nlohmann::ordered_json j;
   const auto& cols = screen_columns();
   j["id"] = row.id;
-  j["status"] = row.status;
+  j["status"] = row.status.text();
   const std::vector<double> nums = row.ok() ? screen_numbers(row.result) : std::vector<double>();
   for (std::size_t k = 2; k + 1 < cols.size(); ++k) {
     const double v = row.ok() ? nums[k - 2] : kAbsent;

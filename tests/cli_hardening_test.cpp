@@ -241,7 +241,7 @@ TEST_CASE("rank --resume: a torn or damaged checkpoint line is dropped and its s
   std::vector<RankRecord> recs = read_ranked(in, fresh, info);
   std::vector<RankRecord> curved;
   for (auto& r : recs)
-    if (r.notes.find("below_detect_sigma") == std::string::npos && r.status == "ok") curved.push_back(r);
+    if (!has_note(r.notes, "below_detect_sigma") && r.status.ok()) curved.push_back(r);
   REQUIRE(curved.size() >= 3);
   std::string text = checkpoint_head(info);
   std::string damaged = checkpoint_line(curved[1]);

@@ -18,6 +18,7 @@
 #include "heft/catalog.hpp"
 #include "heft/draws.hpp"
 #include "heft/simulate.hpp"
+#include "heft/status.hpp"
 #include "heft/window.hpp"
 
 namespace heft {
@@ -59,7 +60,7 @@ struct CurvePoint {
   /// Analytic curves: "multiple_solutions" when the circular-orbit relation
   /// has several roots in the mass ratio for some column (the smallest is
   /// given), "not_converged" when a column has no root with q <= 1/2.
-  std::vector<std::string> notes;
+  Notes notes;
   /// Analytic curves: every root (MJup, ascending) of the columns lo95, lo68,
   /// med, hi68, hi95 (empty for Monte Carlo curves).
   std::array<std::vector<double>, 5> roots_mjup;

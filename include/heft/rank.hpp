@@ -67,7 +67,8 @@ struct RankRecord {
   double a_best_au = kAbsent, mass_lo68 = kAbsent, mass_med = kAbsent, mass_hi68 = kAbsent;
   double sep_lo68 = kAbsent, sep_med = kAbsent, sep_hi68 = kAbsent;
   double pa_mode_deg = kAbsent, pa_arc68_start_deg = kAbsent, pa_arc68_width_deg = kAbsent;
-  std::string status, notes;
+  RowStatus status;
+  Notes notes;
   long rank = 0;  ///< 1-based; 0 before ranking
   /// Wall time of this star's curve and of its sky prediction and score (s);
   /// for the run's stage summary, never written to the outputs.
@@ -76,7 +77,7 @@ struct RankRecord {
 
 /// Screens one star and, when its anomaly is significant, scores it.
 /// `bad_reason` as from StarTableReader. Per-star numerical failures become
-/// a "failed:..." status, never an exception.
+/// a RowState::kFailed status, never an exception.
 RankRecord rank_star(const StarRecord& star, const std::string& bad_reason, const ScreenOptions& screen,
                      const RankOptions& opt);
 

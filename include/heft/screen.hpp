@@ -10,6 +10,7 @@
 #include "heft/anomaly.hpp"
 #include "heft/calibrate.hpp"
 #include "heft/catalog.hpp"
+#include "heft/status.hpp"
 
 namespace heft {
 
@@ -40,12 +41,11 @@ double rv_prior_sigma_km_s(const Astrometry& late);
 /// One screened star.
 struct ScreenRow {
   std::string id;
-  /// "ok", "bad_input:<reason>" or "failed:<reason>".
-  std::string status;
+  RowStatus status;
   /// Informational flags (never change the exit code), e.g. "no_rv".
-  std::vector<std::string> notes;
+  Notes notes;
   AnomalyResult result;
-  bool ok() const { return status == "ok"; }
+  bool ok() const { return status.ok(); }
 };
 
 /// Appends the plausibility notes of a valid star: `implausible_pm` (total
@@ -72,7 +72,5 @@ std::string screen_header();
 void append_screen_row(std::string& out, const ScreenRow& row);
 /// The same row as a JSON object (null numbers unless ok).
 nlohmann::ordered_json screen_row_json(const ScreenRow& row);
-/// Joins notes with '|'.
-std::string join_notes(const std::vector<std::string>& notes);
 
 }  // namespace heft

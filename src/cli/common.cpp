@@ -113,10 +113,10 @@ ScreenOptions resolve_screen_options(const ScreenOptions& screen, const std::str
   return opt;
 }
 
-void StatusCounter::add(const std::string& status) {
+void StatusCounter::add(const RowStatus& status) {
   ++total_;
-  if (status == "ok") ++ok_;
-  else ++counts_[status];
+  if (status.ok()) ++ok_;
+  else ++counts_[status.text()];
 }
 
 nlohmann::ordered_json StatusCounter::run_json(const std::string& command,

@@ -61,7 +61,7 @@ ScreenOptions resolve_screen_options(const ScreenOptions& screen, const std::str
 /// Counts rows by status; prints one summary line per non-ok status.
 class StatusCounter {
  public:
-  void add(const std::string& status);
+  void add(const RowStatus& status);
   long total() const { return total_; }
   long not_ok() const { return total_ - ok_; }
   const std::map<std::string, long>& counts() const { return counts_; }

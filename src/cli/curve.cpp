@@ -35,7 +35,7 @@ nlohmann::ordered_json point_json(const CurvePoint& p) {
       {"mass_med", num(p.mass_med)}, {"mass_hi68", num(p.mass_hi68)}, {"mass_hi95", num(p.mass_hi95)},
       {"ess", num(p.ess)},        {"notes", p.notes}};
   // Analytic curves with several roots: every root of each column.
-  if (std::find(p.notes.begin(), p.notes.end(), "multiple_solutions") != p.notes.end()) {
+  if (has_note(p.notes, "multiple_solutions")) {
     const char* names[5] = {"lo95", "lo68", "med", "hi68", "hi95"};
     nlohmann::ordered_json roots;
     for (int k = 0; k < 5; ++k) roots[names[k]] = p.roots_mjup[k];
@@ -84,18 +84,18 @@ int run_curve(CurveCliOptions o) {
     if (!o.id.empty() && star.id != o.id) continue;
     found = true;
     const ScreenRow row = screen_star(star, bad, sopt);
-    std::string status = row.status;
+    RowStatus status = row.status;
     AnomalyData d;
     if (row.ok()) {
       bool have_mass = false;
       d = anomaly_data(star, row.result, o.host_mass_msun, o.host_mass_error_msun, have_mass);
-      if (!have_mass) status = "bad_input:no_host_mass";
+      if (!have_mass) status = RowStatus::bad_input("no_host_mass");
     }
     counter.add(status);
     nlohmann::ordered_json j;
     j["id"] = star.id;
-    j["status"] = status;
-    if (status == "ok") {
+    j["status"] = status.text();
+    if (status.ok()) {
       Curve c;
       if (o.method == "analytic") {
         c = analytic_curve(d, copt);

@@ -88,7 +88,7 @@ int run_fit_command(FitCliOptions o) {
     throw InputError::at_json(in.name(), "/radial_velocities",
                               "at most " + std::to_string(kMaxInstruments) + " instrument labels");
   const ScreenRow row = screen_star(f.star, "", sopt);
-  if (!row.ok()) throw NumericError(f.star.id, "screen", row.status);
+  if (!row.ok()) throw NumericError(f.star.id, "screen", row.status.text());
   const FitModel model(f, row.result, fopt);
   if (fopt.sample && fopt.walkers < 2 * model.n_params())
     throw CLI::ValidationError("--walkers must be at least twice the number of parameters (" +

@@ -105,7 +105,7 @@ int run_rank(RankCliOptions o) {
         cand_rows.push_back(sr);
       } else {
         RankRecord r = screened_record(sr);
-        if (sr.ok()) r.notes += std::string(r.notes.empty() ? "" : "|") + "below_detect_sigma";
+        if (sr.ok()) add_note(r.notes, "below_detect_sigma");
         records.push_back(r);
       }
     }
@@ -124,7 +124,7 @@ int run_rank(RankCliOptions o) {
     if (o.max_curves > 0 && static_cast<long>(k) >= o.max_curves) {
       RankRecord r = screened_record(cand_rows[order[k]]);
       r.score = kAbsent;
-      r.notes += std::string(r.notes.empty() ? "" : "|") + "curve_skipped:max_curves";
+      add_note(r.notes, "curve_skipped:max_curves");
       records.push_back(r);
     } else {
       todo.push_back(order[k]);

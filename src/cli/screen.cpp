@@ -73,7 +73,7 @@ int run_screen(const ScreenCliOptions& o) {
     for (std::size_t i = 0; i < n; ++i) {
       const ScreenRow& row = rows[i];
       if (o.strict && !row.ok())
-        throw InputError(in.name(), lines[i], 0, "star '" + row.id + "': " + row.status);
+        throw InputError(in.name(), lines[i], 0, "star '" + row.id + "': " + row.status.text());
       counter.add(row.status);
       append_screen_row(buf, row);
       if (json) {
