@@ -108,8 +108,8 @@ AnomalyResult compute_anomaly(const Astrometry& early, const Astrometry& late, d
   }
   r.sig_late = chi2_to_sigma(r.chi2_late, 2);
   r.sig_joint = chi2_to_sigma(r.chi2_joint, 4);
-  r.dvt_late_m_s = y(6);
-  r.dvt_late_error_m_s = std::sqrt(cout(6, 6));
+  r.reflex_vel_late_m_s = y(6);
+  r.reflex_vel_late_error_m_s = std::sqrt(cout(6, 6));
   return r;
 }
 

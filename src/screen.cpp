@@ -62,18 +62,27 @@ ScreenRow screen_star(const StarRecord& star, const std::string& bad_reason,
   return row;
 }
 
-const std::vector<std::string>& screen_columns() {
-  static const std::vector<std::string> cols = {
-      "id",           "status",          "dt_yr",
-      "pml_ra",       "pml_dec",         "pml_ra_error",
-      "pml_dec_error", "dpm_late_ra",    "dpm_late_dec",
-      "dpm_late_ra_error", "dpm_late_dec_error", "dpm_late_corr",
-      "chi2_late",    "sig_late",        "dpm_early_ra",
-      "dpm_early_dec", "dpm_early_ra_error", "dpm_early_dec_error",
-      "dpm_early_corr", "chi2_early",    "chi2_joint",
-      "sig_joint",    "dvt_late",        "dvt_late_error",
-      "notes"};
+const std::vector<ColumnUnit>& screen_column_units() {
+  static const std::vector<ColumnUnit> cols = {
+      {"id", ""},                    {"status", ""},             {"dt_yr", "yr"},
+      {"pml_ra", "mas/yr"},          {"pml_dec", "mas/yr"},      {"pml_ra_error", "mas/yr"},
+      {"pml_dec_error", "mas/yr"},   {"dpm_late_ra", "mas/yr"},  {"dpm_late_dec", "mas/yr"},
+      {"dpm_late_ra_error", "mas/yr"}, {"dpm_late_dec_error", "mas/yr"}, {"dpm_late_corr", ""},
+      {"chi2_late", ""},             {"sig_late", "sigma"},      {"dpm_early_ra", "mas/yr"},
+      {"dpm_early_dec", "mas/yr"},   {"dpm_early_ra_error", "mas/yr"}, {"dpm_early_dec_error", "mas/yr"},
+      {"dpm_early_corr", ""},        {"chi2_early", ""},         {"chi2_joint", ""},
+      {"sig_joint", "sigma"},        {"reflex_vel_late_m_s", "m/s"}, {"reflex_vel_late_error_m_s", "m/s"},
+      {"notes", ""}};
   return cols;
+}
+
+const std::vector<std::string>& screen_columns() {
+  static const std::vector<std::string> names = [] {
+    std::vector<std::string> n;
+    for (const auto& c : screen_column_units()) n.push_back(c.name);
+    return n;
+  }();
+  return names;
 }
 
 std::string screen_header() {
@@ -95,7 +104,7 @@ std::vector<double> screen_numbers(const AnomalyResult& r) {
           r.chi2_late, r.sig_late,
           r.dpm_early_mas_yr.x(), r.dpm_early_mas_yr.y(), ee, de, c(2, 3) / (ee * de),
           r.chi2_early, r.chi2_joint, r.sig_joint,
-          r.dvt_late_m_s, r.dvt_late_error_m_s};
+          r.reflex_vel_late_m_s, r.reflex_vel_late_error_m_s};
 }
 }  // namespace
 

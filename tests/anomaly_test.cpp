@@ -142,7 +142,7 @@ TEST_CASE("an unknown RV widens the anomaly errors by the perspective term", "[a
 }
 
 TEST_CASE("tangential velocity anomaly", "[anomaly]") {
-  // dvt = |dpm| A / parallax (definition): 1 mas/yr at 100 mas is 47.4 m/s.
+  // reflex_vel = |dpm| A / parallax (definition): 1 mas/yr at 100 mas is 47.4 m/s.
   const SkyState<double> late{2.0, 0.3, 100.0, 50.0, 10.0, 0.0};
   const SkyState<double> early_s = propagate(late, kT1 - kT2);
   const Astrometry e = test::entry(early_s, kT1, 0.7, 0.7, 1989.85, 1993.21);
@@ -150,8 +150,8 @@ TEST_CASE("tangential velocity anomaly", "[anomaly]") {
   l.pmdec_mas_yr += 1.0;
   const AnomalyResult r = anomaly_of(e, l, 0.0, 1.0);
   CHECK(r.dpm_late_mas_yr.norm() == Approx(1.0).epsilon(1e-6));
-  CHECK(r.dvt_late_m_s == Approx(units::kKmsPerAuYr * 10.0).epsilon(1e-6));
-  CHECK(r.dvt_late_error_m_s > 0.0);
+  CHECK(r.reflex_vel_late_m_s == Approx(units::kKmsPerAuYr * 10.0).epsilon(1e-6));
+  CHECK(r.reflex_vel_late_error_m_s > 0.0);
 }
 
 TEST_CASE("stars without RV: the prior width follows the tangential speed", "[anomaly][screen]") {

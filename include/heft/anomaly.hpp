@@ -50,13 +50,13 @@ void long_baseline_pm(const T& ra1_rad, const T& dec1_rad, const T& ra2_rad, con
 
 /// Number of input parameters of the anomaly model: early 5, late 5, rv.
 inline constexpr int kAnomalyInputs = 11;
-/// Outputs: pml_late (2), dpm_late (2), dpm_early (2), dvt_late (1).
+/// Outputs: pml_late (2), dpm_late (2), dpm_early (2), reflex_vel_late (1).
 inline constexpr int kAnomalyOutputs = 7;
 
 /// The anomaly model as a function of offsets from the catalogue values:
 /// x = (d_alpha*1, d_delta1 [mas], d_parallax1 [mas], d_pmra1, d_pmdec1
 /// [mas/yr], the same five for the late catalogue, d_rv [km/s]).
-/// Output y as listed at kAnomalyOutputs; dvt_late in m/s.
+/// Output y as listed at kAnomalyOutputs; reflex_vel_late in m/s.
 struct AnomalyModel {
   AnomalyModel(const Astrometry& early, const Astrometry& late, double rv_km_s);
 
@@ -79,7 +79,7 @@ struct AnomalyResult {
   Eigen::Matrix<double, 2, 4> pml_dpm_cov;
   double chi2_late = kAbsent, chi2_early = kAbsent, chi2_joint = kAbsent;
   double sig_late = kAbsent, sig_joint = kAbsent;
-  double dvt_late_m_s = kAbsent, dvt_late_error_m_s = kAbsent;
+  double reflex_vel_late_m_s = kAbsent, reflex_vel_late_error_m_s = kAbsent;
   /// Share of the trace of the 4x4 anomaly covariance that comes from the
   /// RV's uncertainty (0 with an exact RV).
   double rv_cov_share = kAbsent;

@@ -129,9 +129,13 @@ void setup_screen(CLI::App& app, Runner& run) {
   sub->add_option("-j,--threads", o->threads, "threads (default: all cores); output is identical")
       ->check(CLI::NonNegativeNumber);
   sub->add_flag("-q,--quiet", o->quiet, "no informational messages");
-  sub->footer(
-      "Units: PMs and anomalies mas/yr, errors 1 sigma, dvt m/s, dt yr. Exit codes: 0 ok, 1 "
-      "usage, 2 input error, 3 numerical failure, 4 some rows bad_input or failed.");
+  std::string columns;
+  for (const auto& c : screen_column_units())
+    columns += (columns.empty() ? "" : ", ") + c.name + (c.unit.empty() ? "" : " [" + c.unit + "]");
+  sub->footer("Columns: " + columns +
+              ". Errors are 1 sigma; reflex_vel_late_m_s is the late anomaly as a speed (|dpm_late| A / "
+              "parallax). Exit codes: 0 ok, 1 usage, 2 input error, 3 numerical failure, 4 some rows "
+              "bad_input or failed.");
   sub->callback([o, &run] { run = [o] { return run_screen(*o); }; });
 }
 
