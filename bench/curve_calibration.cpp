@@ -10,6 +10,7 @@
 
 #include <Eigen/LU>
 
+#include "heft/calibration.hpp"
 #include "heft/curve.hpp"
 #include "heft/screen.hpp"
 

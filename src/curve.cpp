@@ -7,7 +7,6 @@
 
 #include "heft/io.hpp"
 #include "heft/rng.hpp"
-#include "heft/screen.hpp"
 #include "heft/stats.hpp"
 #include "heft/window.hpp"
 
@@ -20,14 +19,13 @@ AnomalyData anomaly_data(const StarRecord& star, const AnomalyResult& r, double 
   d.cov = r.dpm_cov;
   d.parallax_mas = star.late.parallax_mas;
   d.parallax_error_mas = star.late.parallax_error_mas;
-  d.host_mass_msun = present(star.mass_msun) ? star.mass_msun : host_mass_msun;
-  d.host_mass_error_msun = present(star.mass_msun)
-                               ? (present(star.mass_error_msun) ? star.mass_error_msun : 0.0)
-                               : (present(host_mass_error_msun) ? host_mass_error_msun : 0.0);
+  HostMass host{};
+  ok = host_mass_prior(star.mass_msun, star.mass_error_msun, host_mass_msun, host_mass_error_msun, host);
+  d.host_mass_msun = host.mass_msun;
+  d.host_mass_error_msun = host.error_msun;
   d.sig_joint = r.sig_joint;
   d.early = {star.early.window_start_yr, star.early.window_end_yr, star.early.epoch_yr, {}, {}};
   d.late = {star.late.window_start_yr, star.late.window_end_yr, star.late.epoch_yr, {}, {}};
-  ok = present(d.host_mass_msun) && d.host_mass_msun > 0;
   return d;
 }
 
@@ -607,47 +605,6 @@ Curve analytic_curve(const AnomalyData& d, const CurveOptions& opt) {
   }
   c.min_ess = kAbsent;
   return c;
-}
-
-Coverage curve_coverage(const SurveyModel& survey, const CurveOptions& opt, int n_systems,
-                        double min_sig) {
-  Coverage cov;
-  int in68 = 0, in95 = 0;
-  for (long i = 0; cov.systems < n_systems; ++i) {
-    StarRecord s;
-    SimTruth t;
-    simulate_star(survey, i, s, t);
-    const ScreenRow row = screen_star(s, validate_star(s), ScreenOptions{});
-    if (!row.ok() || !t.companion || !(row.result.sig_joint >= min_sig)) continue;
-    const AnomalyResult& r = row.result;
-    bool ok = false;
-    const AnomalyData d = anomaly_data(s, r, kAbsent, kAbsent, ok);
-    CurveOptions o = opt;
-    o.a_au = {t.a_au};
-    o.refine_rounds = 0;
-    const CurvePoint p = montecarlo_curve(d, o, s.id).points.at(0);
-    in68 += t.mass_mjup >= p.mass_lo68 && t.mass_mjup <= p.mass_hi68;
-    in95 += t.mass_mjup >= p.mass_lo95 && t.mass_mjup <= p.mass_hi95;
-    cov.max_sig = std::max(cov.max_sig, r.sig_joint);
-    ++cov.systems;
-  }
-  cov.in68 = static_cast<double>(in68) / cov.systems;
-  cov.in95 = static_cast<double>(in95) / cov.systems;
-  return cov;
-}
-
-SurveyModel coverage_survey(const CurveOptions& opt, double a_lo_au, double a_hi_au,
-                            std::uint64_t seed) {
-  SurveyModel m;
-  m.seed = seed;
-  m.companion_fraction = 1.0;
-  m.companion_mass_mjup = {Distribution::Kind::kLogUniform, opt.m_min_mjup, opt.m_max_mjup};
-  m.a_au = {Distribution::Kind::kLogUniform, a_lo_au, a_hi_au};
-  m.ecc = opt.ecc;
-  m.distance_pc = {Distribution::Kind::kUniform, 10, 60};
-  m.host_mass_rel_error = 0.05;
-  m.rv_fraction = 1.0;
-  return m;
 }
 
 std::string curve_header() {

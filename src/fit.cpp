@@ -42,12 +42,9 @@ T ecc_log_prior(const Distribution& d, const T& e) {
 StarFile star_file_of(const StarRecord& star, double host_mass_msun, double host_mass_error_msun, bool& ok) {
   StarFile f;
   f.star = star;
-  const double m = present(star.mass_msun) ? star.mass_msun : host_mass_msun;
-  double s = present(star.mass_msun) ? star.mass_error_msun : host_mass_error_msun;
-  ok = present(m) && m > 0;
-  // A mass without an error still needs a proper prior: 1 % of the mass.
-  if (!(present(s) && s > 0)) s = 0.01 * m;
-  f.host_mass = {HostMassPrior::Kind::kNormal, m, s};
+  HostMass host{};
+  ok = host_mass_prior(star.mass_msun, star.mass_error_msun, host_mass_msun, host_mass_error_msun, host);
+  f.host_mass = {HostMassPrior::Kind::kNormal, host.mass_msun, host.error_msun};
   return f;
 }
 

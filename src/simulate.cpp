@@ -70,65 +70,6 @@ Astrometry make_astrometry(const SkyState<double>& truth, const CatalogueModel& 
 
 namespace heft {
 
-double Distribution::draw(Rng& rng) const {
-  switch (kind) {
-    case Kind::kFixed: return p1;
-    case Kind::kUniform: return rng.uniform(p1, p2);
-    case Kind::kLogUniform: return rng.log_uniform(p1, p2);
-    case Kind::kBeta: return rng.beta(p1, p2);
-  }
-  return p1;
-}
-
-double Distribution::log_pdf(double x) const {
-  const double ninf = -std::numeric_limits<double>::infinity();
-  switch (kind) {
-    case Kind::kFixed: return 0.0;
-    case Kind::kUniform: return x >= p1 && x <= p2 ? -std::log(p2 - p1) : ninf;
-    case Kind::kLogUniform: return x >= p1 && x <= p2 ? -std::log(x * std::log(p2 / p1)) : ninf;
-    case Kind::kBeta:
-      if (!(x > 0 && x < 1)) return ninf;
-      return (p1 - 1) * std::log(x) + (p2 - 1) * std::log1p(-x) + std::lgamma(p1 + p2) -
-             std::lgamma(p1) - std::lgamma(p2);
-  }
-  return ninf;
-}
-
-std::string Distribution::str() const {
-  switch (kind) {
-    case Kind::kFixed: return format_double(p1);
-    case Kind::kUniform: return "uniform:" + format_double(p1) + "," + format_double(p2);
-    case Kind::kLogUniform: return "loguniform:" + format_double(p1) + "," + format_double(p2);
-    case Kind::kBeta: return "beta:" + format_double(p1) + "," + format_double(p2);
-  }
-  return "";
-}
-
-Distribution Distribution::parse(const std::string& text, const std::string& option) {
-  auto fail = [&](const std::string& why) -> Distribution {
-    throw UsageError(option, text, why);
-  };
-  Distribution d;
-  const auto colon = text.find(':');
-  const std::string kind = colon == std::string::npos ? "fixed" : text.substr(0, colon);
-  const std::string args = colon == std::string::npos ? text : text.substr(colon + 1);
-  if (kind == "fixed") {
-    if (!parse_double(args, d.p1) || !std::isfinite(d.p1)) return fail("not a number");
-    return d;
-  }
-  const auto comma = args.find(',');
-  if (comma == std::string::npos || !parse_double(args.substr(0, comma), d.p1) ||
-      !parse_double(args.substr(comma + 1), d.p2) || !std::isfinite(d.p1) || !std::isfinite(d.p2))
-    return fail("expected KIND:A,B with two numbers");
-  if (kind == "uniform") d.kind = Kind::kUniform;
-  else if (kind == "loguniform") d.kind = Kind::kLogUniform;
-  else if (kind == "beta") d.kind = Kind::kBeta;
-  else return fail("unknown distribution (fixed, uniform, loguniform, beta)");
-  if (d.kind != Kind::kBeta && !(d.p1 < d.p2)) return fail("need A < B");
-  if (d.kind == Kind::kLogUniform && !(d.p1 > 0)) return fail("loguniform needs A > 0");
-  if (d.kind == Kind::kBeta && !(d.p1 > 0 && d.p2 > 0)) return fail("beta needs A, B > 0");
-  return d;
-}
 
 std::string simulated_id(const SurveyModel& m, long index) {
   char buf[32];

@@ -1,6 +1,7 @@
 #include <catch2/catch.hpp>
 #include <nlohmann/json.hpp>
 
+#include "heft/calibration.hpp"
 #include "heft/curve.hpp"
 #include "heft/screen.hpp"
 #include "test_util.hpp"

@@ -17,7 +17,8 @@
 #include "heft/anomaly.hpp"
 #include "heft/catalog.hpp"
 #include "heft/draws.hpp"
-#include "heft/simulate.hpp"
+#include "heft/kepler.hpp"
+#include "heft/prior.hpp"
 #include "heft/status.hpp"
 #include "heft/window.hpp"
 
@@ -34,8 +35,8 @@ struct AnomalyData {
 };
 
 /// Builds AnomalyData from a screened star (`row.ok()` required); the host
-/// mass comes from the star or from `host_mass_msun` when the star has none
-/// (`ok` false when neither).
+/// mass follows host_mass_prior (the star's, else `host_mass_msun`; `ok`
+/// false when neither).
 AnomalyData anomaly_data(const StarRecord& star, const AnomalyResult& r, double host_mass_msun,
                          double host_mass_error_msun, bool& ok);
 
@@ -116,24 +117,6 @@ double projection_factor_quantile(double p);
 /// companion through the window model, for tests and the simulator check.
 Eigen::Vector4d model_anomaly(const Orbit<double>& o, double a_au, double q, double parallax_mas,
                               const Window& early, const Window& late);
-
-/// Coverage of the Monte Carlo bands on injected systems (a sensitivity and
-/// calibration study): companions drawn by `survey`, kept when their observed
-/// sig_joint >= min_sig, each curve evaluated at its true a only.
-struct Coverage {
-  int systems = 0;
-  double in68 = 0.0, in95 = 0.0;  ///< fractions with the true mass inside the band
-  double max_sig = 0.0;
-};
-Coverage curve_coverage(const SurveyModel& survey, const CurveOptions& opt, int n_systems,
-                        double min_sig);
-
-/// A survey of companions drawn from the prior of `opt` (log-uniform mass in
-/// [m_min, m_max], e from opt.ecc, isotropic) with a log-uniform in [a_lo, a_hi],
-/// hosts at 10-60 pc with 5 % mass errors and RVs: the population for which
-/// curve_coverage must give nominal coverage.
-SurveyModel coverage_survey(const CurveOptions& opt, double a_lo_au, double a_hi_au,
-                            std::uint64_t seed);
 
 /// Log grid of n points from a_min to a_max (AU).
 std::vector<double> log_grid(double a_min, double a_max, int n);

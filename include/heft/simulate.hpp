@@ -10,6 +10,7 @@
 #include "heft/catalog.hpp"
 #include "heft/propagate.hpp"
 #include "heft/kepler.hpp"
+#include "heft/prior.hpp"
 #include "heft/rng.hpp"
 #include "heft/starfile.hpp"
 
@@ -46,19 +47,6 @@ void add_noise(Astrometry& a, Rng& rng);
 }  // namespace heft
 
 namespace heft {
-
-/// A one-parameter-family distribution given on the command line:
-/// "V" or "fixed:V", "uniform:A,B", "loguniform:A,B", "beta:A,B".
-struct Distribution {
-  enum class Kind { kFixed, kUniform, kLogUniform, kBeta } kind = Kind::kFixed;
-  double p1 = 0.0, p2 = 0.0;
-  double draw(Rng& rng) const;
-  /// Log density at x (-inf outside the support; 0 for kFixed).
-  double log_pdf(double x) const;
-  std::string str() const;
-  /// Parses the text form; throws UsageError naming `option`.
-  static Distribution parse(const std::string& text, const std::string& option);
-};
 
 /// Everything that defines a synthetic two-epoch survey.
 struct SurveyModel {

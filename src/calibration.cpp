@@ -1,0 +1,50 @@
+#include "heft/calibration.hpp"
+
+#include <algorithm>
+
+#include "heft/screen.hpp"
+
+namespace heft {
+
+Coverage curve_coverage(const SurveyModel& survey, const CurveOptions& opt, int n_systems,
+                        double min_sig) {
+  Coverage cov;
+  int in68 = 0, in95 = 0;
+  for (long i = 0; cov.systems < n_systems; ++i) {
+    StarRecord s;
+    SimTruth t;
+    simulate_star(survey, i, s, t);
+    const ScreenRow row = screen_star(s, validate_star(s), ScreenOptions{});
+    if (!row.ok() || !t.companion || !(row.result.sig_joint >= min_sig)) continue;
+    const AnomalyResult& r = row.result;
+    bool ok = false;
+    const AnomalyData d = anomaly_data(s, r, kAbsent, kAbsent, ok);
+    CurveOptions o = opt;
+    o.a_au = {t.a_au};
+    o.refine_rounds = 0;
+    const CurvePoint p = montecarlo_curve(d, o, s.id).points.at(0);
+    in68 += t.mass_mjup >= p.mass_lo68 && t.mass_mjup <= p.mass_hi68;
+    in95 += t.mass_mjup >= p.mass_lo95 && t.mass_mjup <= p.mass_hi95;
+    cov.max_sig = std::max(cov.max_sig, r.sig_joint);
+    ++cov.systems;
+  }
+  cov.in68 = static_cast<double>(in68) / cov.systems;
+  cov.in95 = static_cast<double>(in95) / cov.systems;
+  return cov;
+}
+
+SurveyModel coverage_survey(const CurveOptions& opt, double a_lo_au, double a_hi_au,
+                            std::uint64_t seed) {
+  SurveyModel m;
+  m.seed = seed;
+  m.companion_fraction = 1.0;
+  m.companion_mass_mjup = {Distribution::Kind::kLogUniform, opt.m_min_mjup, opt.m_max_mjup};
+  m.a_au = {Distribution::Kind::kLogUniform, a_lo_au, a_hi_au};
+  m.ecc = opt.ecc;
+  m.distance_pc = {Distribution::Kind::kUniform, 10, 60};
+  m.host_mass_rel_error = 0.05;
+  m.rv_fraction = 1.0;
+  return m;
+}
+
+}  // namespace heft
