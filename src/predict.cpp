@@ -65,9 +65,12 @@ void shortest_arc(std::vector<std::pair<double, double>> a, double fraction, dou
 }
 
 SkyPrediction predict_sky(const std::vector<OrbitDraw>& draws, double date_yr, const PredictOptions& opt) {
+  return summarize_sky(sky_offsets(draws, date_yr), date_yr, opt);
+}
+
+SkyPrediction summarize_sky(const std::vector<SkyOffset>& off, double date_yr, const PredictOptions& opt) {
   SkyPrediction r;
   r.date_yr = date_yr;
-  const std::vector<SkyOffset> off = sky_offsets(draws, date_yr);
   for (std::size_t k = 0; k < off.size(); ++k)
     if (!std::isfinite(off[k].sep_mas) || !std::isfinite(off[k].pa_deg))
       throw NumericError("draw " + std::to_string(k + 1), "predict at " + format_double(date_yr),

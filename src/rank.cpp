@@ -80,9 +80,7 @@ RankRecord screened_record(const ScreenRow& row) {
   return r;
 }
 
-RankRecord rank_star(const StarRecord& star, const std::string& bad_reason, const ScreenOptions& screen,
-                     const RankOptions& opt) {
-  const ScreenRow row = screen_star(star, bad_reason, screen);
+RankRecord rank_star(const StarRecord& star, const ScreenRow& row, const RankOptions& opt) {
   RankRecord r = screened_record(row);
   if (!row.ok() || !(row.result.sig_joint >= opt.curve.detect_sigma)) return r;
   bool have_mass = false;
@@ -142,7 +140,7 @@ RankRecord rank_star(const StarRecord& star, const std::string& bad_reason, cons
   po.iwa_mas = opt.iwa_mas;
   po.owa_mas = opt.owa_mas;
   po.grid_n = 4;
-  const SkyPrediction p = predict_sky(c.draws, opt.date_yr, po);
+  const SkyPrediction p = summarize_sky(off, opt.date_yr, po);
   r.sep_lo68 = p.sep_q[1];
   r.sep_med = p.sep_q[2];
   r.sep_hi68 = p.sep_q[3];

@@ -50,6 +50,8 @@ struct SkyPrediction {
 
 /// Summary of the draws at one date. Weights need not be normalised.
 SkyPrediction predict_sky(const std::vector<OrbitDraw>& draws, double date_yr, const PredictOptions& opt);
+/// The same from offsets already computed by sky_offsets at date_yr.
+SkyPrediction summarize_sky(const std::vector<SkyOffset>& offsets, double date_yr, const PredictOptions& opt);
 
 /// Shortest arc (deg) holding `fraction` of the weight of angles `deg`
 /// (any values; taken mod 360): start and width through increasing angle.

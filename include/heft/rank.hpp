@@ -75,11 +75,10 @@ struct RankRecord {
   double curve_s = 0.0, predict_s = 0.0;
 };
 
-/// Screens one star and, when its anomaly is significant, scores it.
-/// `bad_reason` as from StarTableReader. Per-star numerical failures become
-/// a RowState::kFailed status, never an exception.
-RankRecord rank_star(const StarRecord& star, const std::string& bad_reason, const ScreenOptions& screen,
-                     const RankOptions& opt);
+/// Scores one screened star (`row` from screen_star) when its anomaly is
+/// significant: its curve, sky prediction at the date and score. Per-star
+/// numerical failures become a RowState::kFailed status, never an exception.
+RankRecord rank_star(const StarRecord& star, const ScreenRow& row, const RankOptions& opt);
 
 /// The screen-only part of rank_star: the record of a star whose curve is
 /// not computed (below the detection threshold, or bad input).

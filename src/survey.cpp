@@ -1,0 +1,205 @@
+#include "heft/survey.hpp"
+
+#include <algorithm>
+#include <cerrno>
+#include <chrono>
+#include <cstdio>
+#include <cstring>
+#include <fstream>
+#include <map>
+
+#include "heft/error.hpp"
+#include "heft/io.hpp"
+#include "heft/version.hpp"
+
+namespace heft {
+namespace {
+
+double seconds_since(std::chrono::steady_clock::time_point t0) {
+  return std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
+}
+
+RankRunInfo metadata(const SurveyOptions& o, const std::string& input_name, long rows) {
+  const RankOptions& r = o.rank;
+  const CurveOptions& c = r.curve;
+  RankRunInfo info;
+  auto& f = info.fields;
+  f["heft_version"] = kVersion;
+  f["input"] = metadata_word(input_name);
+  f["rows"] = std::to_string(rows);
+  f["date_yr"] = format_double(r.date_yr);
+  f["iwa_mas"] = format_double(r.iwa_mas);
+  f["owa_mas"] = std::isfinite(r.owa_mas) ? format_double(r.owa_mas) : "none";
+  f["target_mass_mjup"] = format_double(r.target_min_mjup) + "," + format_double(r.target_max_mjup);
+  f["detect_sigma"] = format_double(c.detect_sigma);
+  f["draws"] = std::to_string(c.draws);
+  f["a_grid_au"] = format_double(o.a_min_au) + "," + format_double(o.a_max_au) + "," + std::to_string(o.n_a);
+  f["mass_prior_mjup"] = format_double(c.m_min_mjup) + "," + format_double(c.m_max_mjup);
+  f["ecc_prior"] = metadata_word(c.ecc.str());
+  f["seed"] = std::to_string(c.seed);
+  f["max_curves"] = std::to_string(o.max_curves);
+  f["host_mass_default_msun"] = (present(r.host_mass_msun) ? format_double(r.host_mass_msun) : "none") + "," +
+                                (present(r.host_mass_error_msun) ? format_double(r.host_mass_error_msun) : "none");
+  f["contrast"] = metadata_word(o.contrast_name);
+  f["mass_mag"] = metadata_word(o.mass_mag_name);
+  f["screen_options"] = o.screen_fingerprint;
+  f["shard"] = std::to_string(o.shard_k) + "/" + std::to_string(o.shard_n);
+  return info;
+}
+
+// Appends finished stars to the checkpoint from any thread; the first
+// failure stops further writes and is reported once the loop is over.
+class CheckpointWriter {
+ public:
+  CheckpointWriter(const std::string& path, const std::string& head) : path_(path) {
+    if (path_.empty()) return;
+    write_file_atomic(path_, head);  // rewritten whole: torn and damaged lines are gone
+    file_ = std::fopen(path_.c_str(), "ab");
+    if (!file_) throw InputError(path_, 0, 0, std::string("cannot append to checkpoint: ") + std::strerror(errno));
+  }
+  ~CheckpointWriter() {
+    if (file_) std::fclose(file_);
+  }
+  bool failed() const {
+    bool f;
+#pragma omp atomic read
+    f = failed_;
+    return f;
+  }
+  void append(const RankRecord& r) {  // called inside a critical section
+    if (!file_ || failed_) return;
+    const std::string line = checkpoint_line(r);
+    if (std::fwrite(line.data(), 1, line.size(), file_) != line.size() || std::fflush(file_) != 0) {
+      errno_ = errno;
+#pragma omp atomic write
+      failed_ = true;
+    }
+  }
+  void close() {
+    if (file_ && std::fclose(file_) != 0 && !failed_) {
+      errno_ = errno;
+      failed_ = true;
+    }
+    file_ = nullptr;
+    if (failed_) throw InputError(path_, 0, 0, std::string("writing the checkpoint failed: ") + std::strerror(errno_));
+  }
+
+ private:
+  std::string path_;
+  std::FILE* file_ = nullptr;
+  bool failed_ = false;
+  int errno_ = 0;
+};
+
+}  // namespace
+
+std::string metadata_word(const std::string& s) {
+  std::string o;
+  for (char c : s) o += c == ' ' ? "%20" : (c == '%' ? "%25" : std::string(1, c));
+  return o.empty() ? "-" : o;
+}
+
+SurveyRun run_survey(std::istream& in, const std::string& input_name, const SurveyOptions& opt,
+                     const std::function<void(long, long)>& progress) {
+  RankOptions ropt = opt.rank;
+  ropt.curve.a_au = log_grid(opt.a_min_au, opt.a_max_au, opt.n_a);
+  SurveyRun run;
+  const auto t_start = std::chrono::steady_clock::now();
+
+  // Pass 1: read every row, keep this shard's, screen them.
+  StarTableReader reader(in, input_name, opt.windows);
+  std::vector<StarRecord> candidates;
+  std::vector<ScreenRow> cand_rows;
+  {
+    StarRecord star;
+    std::string bad;
+    long row = 0;
+    while (reader.next(star, bad)) {
+      if (row++ % opt.shard_n != opt.shard_k - 1) continue;
+      ScreenRow sr = screen_star(star, bad, opt.screen);
+      if (sr.ok() && sr.result.sig_joint >= ropt.curve.detect_sigma) {
+        candidates.push_back(star);
+        cand_rows.push_back(std::move(sr));
+      } else {
+        RankRecord r = screened_record(sr);
+        if (sr.ok()) add_note(r.notes, "below_detect_sigma");
+        run.records.push_back(std::move(r));
+      }
+    }
+  }
+  run.rows = reader.rows();
+  run.screen_s = seconds_since(t_start);
+
+  // The most significant first, so that max_curves keeps the best.
+  std::vector<std::size_t> order(candidates.size());
+  for (std::size_t k = 0; k < order.size(); ++k) order[k] = k;
+  std::stable_sort(order.begin(), order.end(), [&](std::size_t a, std::size_t b) {
+    const double sa = cand_rows[a].result.sig_joint, sb = cand_rows[b].result.sig_joint;
+    return sa != sb ? sa > sb : candidates[a].id < candidates[b].id;
+  });
+  std::vector<std::size_t> todo;
+  for (std::size_t k = 0; k < order.size(); ++k) {
+    if (opt.max_curves > 0 && static_cast<long>(k) >= opt.max_curves) {
+      RankRecord r = screened_record(cand_rows[order[k]]);
+      r.score = kAbsent;
+      add_note(r.notes, "curve_skipped:max_curves");
+      run.records.push_back(std::move(r));
+    } else {
+      todo.push_back(order[k]);
+    }
+  }
+  run.curves = static_cast<long>(todo.size());
+  run.info = metadata(opt, input_name, run.rows);
+
+  // Resume: finished stars from the checkpoint of a run with the same metadata.
+  std::map<std::string, RankRecord> done;
+  if (opt.resume && !opt.checkpoint.empty()) {
+    std::ifstream cp(opt.checkpoint, std::ios::binary);
+    if (cp) {
+      run.checkpoint_found = true;
+      Checkpoint old = read_checkpoint(cp, opt.checkpoint);
+      if (old.info.fields != run.info.fields)
+        throw InputError(opt.checkpoint, 1, 0, "checkpoint of a run with other options or input; delete it or drop --resume");
+      for (auto& r : old.records) done.emplace(r.id, std::move(r));
+      run.checkpoint_dropped = old.dropped;
+    }
+  }
+  std::string head = checkpoint_head(run.info);
+  for (const auto& [id, r] : done) head += checkpoint_line(r);
+  CheckpointWriter writer(opt.checkpoint, head);
+
+  // Pass 2: curves, sky positions and scores, in parallel.
+  std::vector<RankRecord> computed(todo.size());
+  std::vector<char> have(todo.size(), 0);
+  for (std::size_t k = 0; k < todo.size(); ++k)
+    if (const auto it = done.find(candidates[todo[k]].id); it != done.end()) {
+      computed[k] = it->second;
+      have[k] = 1;
+    }
+  long finished = static_cast<long>(done.size());
+  const long total = static_cast<long>(todo.size());
+#pragma omp parallel for schedule(dynamic, 1)
+  for (std::size_t k = 0; k < todo.size(); ++k) {
+    if (have[k] || writer.failed()) continue;  // after a checkpoint failure the run fails: compute nothing more
+    computed[k] = rank_star(candidates[todo[k]], cand_rows[todo[k]], ropt);
+    long now = 0;
+#pragma omp critical(heft_checkpoint)
+    {
+      writer.append(computed[k]);
+      now = ++finished;
+    }
+    if (progress) progress(now, total);
+  }
+  writer.close();
+  for (std::size_t k = 0; k < todo.size(); ++k)
+    if (!have[k]) {
+      run.curve_s += computed[k].curve_s;
+      run.predict_s += computed[k].predict_s;
+    }
+  run.stage2_s = seconds_since(t_start) - run.screen_s;
+  for (auto& r : computed) run.records.push_back(std::move(r));
+  assign_ranks(run.records);
+  return run;
+}
+
+}  // namespace heft
