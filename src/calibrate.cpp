@@ -2,6 +2,7 @@
 
 #include <cmath>
 
+#include "heft/angles.hpp"
 #include "heft/error.hpp"
 #include "heft/io.hpp"
 #include "heft/units.hpp"
@@ -33,7 +34,7 @@ void apply_calibration(const EpochCalibration& cal, double mag, Astrometry& a, b
     const Eigen::Vector2d d = rotation_pattern(cal.orient_mas, ra, dec);
     a.dec_deg -= units::rad_to_deg(units::mas_to_rad(d.y()));
     a.ra_deg -= units::rad_to_deg(units::mas_to_rad(d.x()) / std::cos(dec));
-    a.ra_deg = std::fmod(a.ra_deg + 360.0, 360.0);
+    a.ra_deg = wrap_360(a.ra_deg);
   }
   if (!spin.isZero(0)) {
     const Eigen::Vector2d d = rotation_pattern(spin / units::kUasPerMas, ra, dec);

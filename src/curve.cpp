@@ -5,6 +5,7 @@
 #include <algorithm>
 #include <numeric>
 
+#include "heft/angles.hpp"
 #include "heft/io.hpp"
 #include "heft/rng.hpp"
 #include "heft/stats.hpp"
@@ -27,13 +28,6 @@ AnomalyData anomaly_data(const StarRecord& star, const AnomalyResult& r, double 
   d.early = {star.early.window_start_yr, star.early.window_end_yr, star.early.epoch_yr, {}, {}};
   d.late = {star.late.window_start_yr, star.late.window_end_yr, star.late.epoch_yr, {}, {}};
   return d;
-}
-
-std::vector<double> log_grid(double a_min, double a_max, int n) {
-  std::vector<double> g(n);
-  for (int k = 0; k < n; ++k)
-    g[k] = n == 1 ? a_min : a_min * std::pow(a_max / a_min, static_cast<double>(k) / (n - 1));
-  return g;
 }
 
 namespace {
@@ -235,7 +229,6 @@ void weigh_draw(const Problem& pb, const Draw& dr, double log_extra, Sample* out
 using Coords = Eigen::Vector4d;
 Coords coords_of(const Draw& d) { return {std::cos(d.inc), d.omega, d.m0, d.ecc}; }
 
-double wrap_diff(double x) { return std::remainder(x, units::kTwoPi); }
 
 // Log density of the prior of the orbit-angle part.
 double log_prior_coords(const Coords& c, const Distribution& ecc) {
@@ -277,7 +270,7 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const Draw
       sw += w;
       sw2 += w * w;
     }
-    return sw * sw / sw2;
+    return effective_sample_size(sw, sw2);
   };
   const std::vector<Draw>* used = &draws;
   // Second stage when the prior draws degenerate (high S/N): a defensive
@@ -315,8 +308,8 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const Draw
     mean /= n_anc;
     for (const auto& c : anc) {
       Coords dc = c - mean;
-      dc(1) = wrap_diff(c(1) - anc[0](1));  // spread of angles about one ancestor
-      dc(2) = wrap_diff(c(2) - anc[0](2));
+      dc(1) = wrap_pi(c(1) - anc[0](1));  // spread of angles about one ancestor
+      dc(2) = wrap_pi(c(2) - anc[0](2));
       var += dc.cwiseProduct(dc);
     }
     Coords width = (var / n_anc).cwiseSqrt() * 0.7;
@@ -350,8 +343,8 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const Draw
       if (pick_dev[j] >= 0.5) {  // kernel component
         const Coords& a = anc[static_cast<std::size_t>(pick_dev[j + n] * n_anc) % n_anc];
         Coords c = a + width.cwiseProduct(kernel_dev[j]);
-        c(1) = std::fmod(c(1) + 4 * units::kTwoPi, units::kTwoPi);
-        c(2) = std::fmod(c(2) + 4 * units::kTwoPi, units::kTwoPi);
+        c(1) = wrap_2pi(c(1));
+        c(2) = wrap_2pi(c(2));
         if (opt.ecc.kind == Distribution::Kind::kFixed) c(3) = dr.ecc;
         dr.inc = std::acos(std::clamp(c(0), -1.0, 1.0));
         dr.omega = c(1);
@@ -395,7 +388,7 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const Draw
   p.a_au = a_au;
   p.sep_mas = a_au * d.parallax_mas;
   p.period_yr = period_from_a(a_au, d.host_mass_msun);
-  p.ess = sw2 > 0 ? sw * sw / sw2 : 0.0;
+  p.ess = effective_sample_size(sw, sw2);
   r.log_evidence = std::isfinite(max_lw) && sw > 0
                        ? max_lw + std::log(sw) - std::log(static_cast<double>(samples.size()))
                        : -std::numeric_limits<double>::infinity();
@@ -425,7 +418,7 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const Draw
         const double m2_msun = samples[i].m2_mjup / units::kMjupPerMsun;
         r.draws.push_back({a_au, samples[i].m2_mjup, dr.ecc, units::rad_to_deg(dr.inc),
                            units::rad_to_deg(dr.omega),
-                           units::rad_to_deg(std::fmod(samples[i].node + units::kTwoPi, units::kTwoPi)),
+                           units::rad_to_deg(wrap_2pi(samples[i].node)),
                            units::rad_to_deg(dr.m0), d.late.ref_epoch_yr,
                            period_from_a(a_au, dr.m1 + m2_msun), dr.plx, dr.m1, 1.0});
         next += sw / keep;

@@ -9,6 +9,7 @@
 #include <limits>
 #include <numeric>
 
+#include "heft/angles.hpp"
 #include "heft/error.hpp"
 #include "heft/kepler.hpp"
 #include "heft/rng.hpp"
@@ -19,12 +20,6 @@ namespace {
 
 constexpr double kInf = std::numeric_limits<double>::infinity();
 using Jet = ceres::Jet<double, kMaxFitParams>;
-
-double wrap_pi(double x) { return x - units::kTwoPi * std::round(x / units::kTwoPi); }
-double wrap_2pi(double x) {
-  const double y = std::fmod(x, units::kTwoPi);
-  return y < 0 ? y + units::kTwoPi : y;
-}
 
 // ln prior density of e, up to a constant, for any scalar.
 template <typename T>
@@ -637,7 +632,7 @@ Eigen::MatrixXd walkers_from_curve(const FitModel& m, int walkers, Rng& rng, con
     sw2 += w * w;
     keys.emplace_back(w > 0 ? std::log(rng.uniform_open()) / w : -kInf, k);
   }
-  ess = sw * sw / sw2;
+  ess = effective_sample_size(sw, sw2);
   std::partial_sort(keys.begin(), keys.begin() + walkers, keys.end(),
                     [](const auto& x, const auto& y) { return x.first > y.first; });
   Eigen::MatrixXd w(m.n_params(), walkers);

@@ -3,6 +3,7 @@
 #include <algorithm>
 #include <cmath>
 
+#include "heft/angles.hpp"
 #include "heft/error.hpp"
 #include "heft/io.hpp"
 #include "heft/kepler.hpp"
@@ -36,7 +37,7 @@ void shortest_arc(std::vector<std::pair<double, double>> a, double fraction, dou
   if (a.empty()) return;
   double total = 0.0;
   for (auto& [x, w] : a) {
-    x = std::fmod(std::fmod(x, 360.0) + 360.0, 360.0);
+    x = wrap_360(x);
     total += w;
   }
   std::sort(a.begin(), a.end());
@@ -87,13 +88,13 @@ SkyPrediction summarize_sky(const std::vector<SkyOffset>& off, double date_yr, c
     if (o.sep_mas >= opt.iwa_mas && o.sep_mas <= opt.owa_mas) in += o.weight;
   }
   if (!(sw > 0)) return r;
-  r.ess = sw * sw / sw2;
+  r.ess = effective_sample_size(sw, sw2);
   std::sort(sep.begin(), sep.end());
   const double qs[5] = {0.025, 0.16, 0.5, 0.84, 0.975};
   for (int k = 0; k < 5; ++k) r.sep_q[k] = weighted_quantile(sep, sw, qs[k]);
   r.p_in_wa = in / sw;
   // Circular statistics (e.g. Mardia & Jupp 2000, Directional Statistics, ch. 2).
-  r.pa_mean_deg = std::fmod(units::rad_to_deg(std::atan2(s, c)) + 360.0, 360.0);
+  r.pa_mean_deg = wrap_360(units::rad_to_deg(std::atan2(s, c)));
   r.pa_resultant = std::hypot(c, s) / sw;
   shortest_arc(pa, 0.68, r.pa_arc68_start_deg, r.pa_arc68_width_deg);
   // Modes: 1-deg histogram smoothed with a circular 5-deg Gaussian kernel.

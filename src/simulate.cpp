@@ -2,6 +2,7 @@
 
 #include <Eigen/Cholesky>
 
+#include "heft/angles.hpp"
 #include "heft/units.hpp"
 
 namespace heft {
@@ -35,7 +36,7 @@ void add_noise(Astrometry& a, Rng& rng) {
   const Eigen::Matrix<double, 5, 1> d = llt.matrixL() * z;
   const double cosd = std::cos(units::deg_to_rad(a.dec_deg));
   a.ra_deg += units::rad_to_deg(units::mas_to_rad(d(0)) / cosd);
-  a.ra_deg = std::fmod(a.ra_deg + 360.0, 360.0);
+  a.ra_deg = wrap_360(a.ra_deg);
   a.dec_deg += units::rad_to_deg(units::mas_to_rad(d(1)));
   a.parallax_mas += d(2);
   a.pmra_mas_yr += d(3);
@@ -198,7 +199,7 @@ RelativeEpoch observe_companion(const SimTruth& t, double late_epoch_yr, double 
   double sep, pa;
   separation_pa(s * p.x, s * p.y, sep, pa);
   const double pa_deg = units::rad_to_deg(pa) + pa_error_deg * rng.normal();
-  return {epoch_yr, true, sep + sep_error_mas * rng.normal(), std::fmod(pa_deg + 360.0, 360.0),
+  return {epoch_yr, true, sep + sep_error_mas * rng.normal(), wrap_360(pa_deg),
           sep_error_mas, pa_error_deg, 0.0};
 }
 

@@ -124,6 +124,13 @@ double weighted_quantile(const std::vector<std::pair<double, double>>& sorted, d
   return sorted.empty() ? std::numeric_limits<double>::quiet_NaN() : sorted.back().first;
 }
 
+std::vector<double> log_grid(double lo, double hi, int n) {
+  std::vector<double> g(n);
+  for (int k = 0; k < n; ++k)
+    g[k] = n == 1 ? lo : lo * std::pow(hi / lo, static_cast<double>(k) / (n - 1));
+  return g;
+}
+
 int bin_index(double x, double lo, double width, int n) {
   const double k = std::floor((x - lo) / width);
   if (!(k >= 0.0 && k < static_cast<double>(n))) return -1;  // also false for NaN

@@ -19,6 +19,7 @@
 #include "heft/draws.hpp"
 #include "heft/kepler.hpp"
 #include "heft/prior.hpp"
+#include "heft/stats.hpp"  // log_grid for CurveOptions::a_au
 #include "heft/status.hpp"
 #include "heft/window.hpp"
 
@@ -118,8 +119,6 @@ double projection_factor_quantile(double p);
 Eigen::Vector4d model_anomaly(const Orbit<double>& o, double a_au, double q, double parallax_mas,
                               const Window& early, const Window& late);
 
-/// Log grid of n points from a_min to a_max (AU).
-std::vector<double> log_grid(double a_min, double a_max, int n);
 
 /// Column names of the curve table.
 std::string curve_header();

@@ -38,6 +38,16 @@ double normal_quantile(double p);
 /// cumulative weight reaches p total (NaN when empty).
 double weighted_quantile(const std::vector<std::pair<double, double>>& sorted, double total, double p);
 
+/// Effective number of samples of weights with sum `sum_w` and sum of
+/// squares `sum_w2`: (sum w)^2 / sum w^2 (Kish 1965, Survey Sampling,
+/// Sect. 11.7); 0 when there is no weight.
+inline double effective_sample_size(double sum_w, double sum_w2) {
+  return sum_w2 > 0 ? sum_w * sum_w / sum_w2 : 0.0;
+}
+
+/// n points from lo to hi spaced evenly in log (lo, hi > 0; n = 1: lo).
+std::vector<double> log_grid(double lo, double hi, int n);
+
 /// Index of the bin holding x among n bins of `width` starting at `lo`
 /// (bin k covers [lo + k width, lo + (k + 1) width)), or -1 when x is outside
 /// them or not finite. The range is checked in floating point before any
