@@ -25,23 +25,6 @@ using heft::test::tmp_path;
 
 namespace {
 
-std::string fresh_dir(const std::string& name) {
-  const std::string d = tmp_path(name);
-  std::system(("rm -rf '" + d + "' && mkdir -p '" + d + "'").c_str());
-  return d;
-}
-
-std::vector<std::string> listing(const std::string& d) {
-  std::vector<std::string> names;
-  if (DIR* dir = ::opendir(d.c_str())) {
-    while (const dirent* e = ::readdir(dir))
-      if (std::string(e->d_name) != "." && std::string(e->d_name) != "..") names.push_back(e->d_name);
-    ::closedir(dir);
-  }
-  std::sort(names.begin(), names.end());
-  return names;
-}
-
 // A small simulated survey (a few companions) shared by the tests here.
 const std::string& stars() {
   static const std::string path = [] {
@@ -68,7 +51,7 @@ const char* kDrawHeader =
 }  // namespace
 
 TEST_CASE("outputs: FIFO and symlink targets stay what they are; two outputs on one path are refused", "[cli][hardening]") {
-  const std::string d = fresh_dir("hard_out"), fifo = d + "/pipe", real = d + "/real.csv", link = d + "/link.csv";
+  const std::string d = test::fresh_dir("hard_out"), fifo = d + "/pipe", real = d + "/real.csv", link = d + "/link.csv";
   REQUIRE(::mkfifo(fifo.c_str(), 0600) == 0);
   std::string got;
   std::thread reader([&] { got = test::read_text(fifo); });
@@ -93,7 +76,7 @@ TEST_CASE("outputs: FIFO and symlink targets stay what they are; two outputs on 
   CHECK(test::read_text(real) == got);
   CHECK(run_heft("predict -q x.csv --date 2027 -o - --json -", &err) == 1);
   CHECK_THAT(err, Catch::Contains("standard output"));
-  CHECK(listing(d) == (std::vector<std::string>{"link.csv", "pipe", "real.csv"}));
+  CHECK(test::listing(d) == (std::vector<std::string>{"link.csv", "pipe", "real.csv"}));
 }
 
 TEST_CASE("outputs: device nodes are written in place and write errors on stdout fail the run", "[cli][hardening]") {
@@ -101,7 +84,7 @@ TEST_CASE("outputs: device nodes are written in place and write errors on stdout
     WARN("not root: device-node checks skipped (mknod needs root)");
     return;
   }
-  const std::string d = fresh_dir("hard_dev"), null_node = d + "/null", full_node = d + "/full";
+  const std::string d = test::fresh_dir("hard_dev"), null_node = d + "/null", full_node = d + "/full";
   // Linux device numbers: 1,3 is the null device, 1,7 the always-full device.
   REQUIRE(::mknod(null_node.c_str(), S_IFCHR | 0666, makedev(1, 3)) == 0);
   REQUIRE(::mknod(full_node.c_str(), S_IFCHR | 0666, makedev(1, 7)) == 0);
@@ -120,11 +103,11 @@ TEST_CASE("outputs: device nodes are written in place and write errors on stdout
     CHECK(S_ISCHR(st.st_mode));
   }
   // No checkpoint or temporary was made beside the device.
-  CHECK(listing(d) == (std::vector<std::string>{"full", "null"}));
+  CHECK(test::listing(d) == (std::vector<std::string>{"full", "null"}));
 }
 
 TEST_CASE("outputs: SIGTERM during a run leaves no temporary file", "[cli][hardening]") {
-  const std::string d = fresh_dir("hard_sig"), pid_file = tmp_path("hard_sig_pid");
+  const std::string d = test::fresh_dir("hard_sig"), pid_file = tmp_path("hard_sig_pid");
   REQUIRE(std::system((std::string(HEFT_BINARY) + " rank -q " + stars() + " --date 2027.5 --draws 4096 -j 1 -o " + d +
                        "/ranked.csv --json " + d + "/ranked.json & echo $! > " + pid_file)
                           .c_str()) == 0);
@@ -136,7 +119,7 @@ TEST_CASE("outputs: SIGTERM during a run leaves no temporary file", "[cli][harde
   for (int k = 0; k < 100 && ::kill(static_cast<pid_t>(pid), 0) == 0; ++k)
     std::this_thread::sleep_for(std::chrono::milliseconds(20));
   // Only the checkpoint (kept on purpose, for --resume) may remain.
-  for (const auto& name : listing(d)) CHECK(name == "ranked.csv.checkpoint");
+  for (const auto& name : test::listing(d)) CHECK(name == "ranked.csv.checkpoint");
 }
 
 TEST_CASE("predict: draws that once crashed it are refused with file:line:column", "[cli][hardening]") {
@@ -207,7 +190,7 @@ TEST_CASE("inputs: numbers beyond double range, invalid UTF-8, '#' ids, director
   CHECK_THAT(err, Catch::Contains("not a number: '1e-400junk'"));
 
   // A directory as input.
-  const std::string dir = fresh_dir("hard_dir");
+  const std::string dir = test::fresh_dir("hard_dir");
   CHECK(run_heft("screen -q " + dir, &err) == 2);
   CHECK_THAT(err, Catch::Contains(dir + ": cannot read: is a directory"));
   CHECK(run_heft("fit -q " + dir, &err) == 2);
@@ -314,7 +297,7 @@ TEST_CASE("exit codes: usage 1, input 2, the same mapping in every command", "[c
   }
   // A checkpoint that cannot be written is an input (file) error, not a numerical failure.
   if (::geteuid() != 0) return;  // root ignores permissions: use a full device node
-  const std::string d = fresh_dir("hard_cpfail");
+  const std::string d = test::fresh_dir("hard_cpfail");
   REQUIRE(::mknod((d + "/full").c_str(), S_IFCHR | 0666, makedev(1, 7)) == 0);
   REQUIRE(::symlink("full", (d + "/ranked.csv.checkpoint").c_str()) == 0);
   CHECK(run_heft("rank -q " + stars() + " --date 2027.5 --draws 64 --n-a 6 -o " + d + "/ranked.csv", &err) == 2);

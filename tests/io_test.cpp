@@ -24,25 +24,6 @@ using namespace heft;
 
 namespace {
 
-// A fresh empty folder under the test tmp directory.
-std::string fresh_dir(const std::string& name) {
-  const std::string d = test::tmp_path(name);
-  std::system(("rm -rf '" + d + "' && mkdir -p '" + d + "'").c_str());
-  return d;
-}
-
-// Names in folder `d` (without . and ..).
-std::vector<std::string> listing(const std::string& d) {
-  std::vector<std::string> names;
-  if (DIR* dir = ::opendir(d.c_str())) {
-    while (const dirent* e = ::readdir(dir))
-      if (std::string(e->d_name) != "." && std::string(e->d_name) != "..") names.push_back(e->d_name);
-    ::closedir(dir);
-  }
-  std::sort(names.begin(), names.end());
-  return names;
-}
-
 bool is_char_device(const std::string& p) {
   struct stat st {};
   return ::lstat(p.c_str(), &st) == 0 && S_ISCHR(st.st_mode);
@@ -51,15 +32,15 @@ bool is_char_device(const std::string& p) {
 }  // namespace
 
 TEST_CASE("io: a regular output appears whole, keeps its mode, and leaves no temporary", "[io]") {
-  const std::string d = fresh_dir("io_regular"), p = d + "/out.csv";
+  const std::string d = test::fresh_dir("io_regular"), p = d + "/out.csv";
   {
     AtomicOutput out(p);
     out.write("a,b\n");
-    CHECK(listing(d).size() == 1);  // only the temporary, not the target
+    CHECK(test::listing(d).size() == 1);  // only the temporary, not the target
     CHECK_FALSE(test::file_exists(p));
     out.commit();
   }
-  CHECK(listing(d) == std::vector<std::string>{"out.csv"});
+  CHECK(test::listing(d) == std::vector<std::string>{"out.csv"});
   CHECK(test::read_text(p) == "a,b\n");
   // Replacing an existing file keeps its permissions (mkstemp makes 0600).
   ::chmod(p.c_str(), 0640);
@@ -73,11 +54,11 @@ TEST_CASE("io: a regular output appears whole, keeps its mode, and leaves no tem
     out.write("partial");
   }
   CHECK(test::read_text(p) == "c\n");
-  CHECK(listing(d) == std::vector<std::string>{"out.csv"});
+  CHECK(test::listing(d) == std::vector<std::string>{"out.csv"});
 }
 
 TEST_CASE("io: a symlink output keeps the link and replaces its target", "[io]") {
-  const std::string d = fresh_dir("io_link");
+  const std::string d = test::fresh_dir("io_link");
   test::write_text(d + "/real.csv", "old\n");
   REQUIRE(::symlink("real.csv", (d + "/link.csv").c_str()) == 0);
   write_file_atomic(d + "/link.csv", "new\n");
@@ -99,7 +80,7 @@ TEST_CASE("io: a symlink output keeps the link and replaces its target", "[io]")
 }
 
 TEST_CASE("io: a FIFO output is written in place, not replaced", "[io]") {
-  const std::string d = fresh_dir("io_fifo"), fifo = d + "/pipe";
+  const std::string d = test::fresh_dir("io_fifo"), fifo = d + "/pipe";
   REQUIRE(::mkfifo(fifo.c_str(), 0600) == 0);
   CHECK(resolve_output(fifo).kind == OutputTarget::Kind::kDirect);
   std::string got;
@@ -110,7 +91,7 @@ TEST_CASE("io: a FIFO output is written in place, not replaced", "[io]") {
   struct stat st {};
   REQUIRE(::lstat(fifo.c_str(), &st) == 0);
   CHECK(S_ISFIFO(st.st_mode));
-  CHECK(listing(d) == std::vector<std::string>{"pipe"});
+  CHECK(test::listing(d) == std::vector<std::string>{"pipe"});
 }
 
 TEST_CASE("io: device nodes (made in a temporary folder) stay devices; write errors are reported", "[io]") {
@@ -118,7 +99,7 @@ TEST_CASE("io: device nodes (made in a temporary folder) stay devices; write err
     WARN("not root: device-node checks skipped (mknod needs root)");
     return;
   }
-  const std::string d = fresh_dir("io_dev"), null_node = d + "/null", full_node = d + "/full";
+  const std::string d = test::fresh_dir("io_dev"), null_node = d + "/null", full_node = d + "/full";
   // Linux device numbers: 1,3 is the null device, 1,7 the always-full device.
   REQUIRE(::mknod(null_node.c_str(), S_IFCHR | 0666, makedev(1, 3)) == 0);
   REQUIRE(::mknod(full_node.c_str(), S_IFCHR | 0666, makedev(1, 7)) == 0);
@@ -128,11 +109,11 @@ TEST_CASE("io: device nodes (made in a temporary folder) stay devices; write err
   CHECK_THROWS_WITH(write_file_atomic(full_node, std::string(1 << 16, 'x')),
                     Catch::Contains(full_node) && Catch::Contains("No space left on device"));
   CHECK(is_char_device(full_node));
-  CHECK(listing(d) == (std::vector<std::string>{"full", "null"}));
+  CHECK(test::listing(d) == (std::vector<std::string>{"full", "null"}));
 }
 
 TEST_CASE("io: a temporary output is removed when the process is terminated by a signal", "[io]") {
-  const std::string d = fresh_dir("io_signal");
+  const std::string d = test::fresh_dir("io_signal");
   const pid_t pid = ::fork();
   REQUIRE(pid >= 0);
   if (pid == 0) {
@@ -146,7 +127,7 @@ TEST_CASE("io: a temporary output is removed when the process is terminated by a
   REQUIRE(::waitpid(pid, &status, 0) == pid);
   CHECK(WIFSIGNALED(status));
   CHECK(WTERMSIG(status) == SIGTERM);
-  CHECK(listing(d).empty());
+  CHECK(test::listing(d).empty());
 }
 
 TEST_CASE("io: parse_double takes whole fields only, also out of range", "[io]") {

@@ -2,7 +2,10 @@
 
 #include <erfa.h>
 #include <erfam.h>
+#include <dirent.h>
 #include <sys/wait.h>
+
+#include <algorithm>
 
 #include <cstdlib>
 #include <fstream>
@@ -27,6 +30,23 @@ std::string read_text(const std::string& path) {
 }
 
 bool file_exists(const std::string& path) { return std::ifstream(path).good(); }
+
+std::string fresh_dir(const std::string& name) {
+  const std::string d = tmp_path(name);
+  std::system(("rm -rf '" + d + "' && mkdir -p '" + d + "'").c_str());
+  return d;
+}
+
+std::vector<std::string> listing(const std::string& dir) {
+  std::vector<std::string> names;
+  if (DIR* d = ::opendir(dir.c_str())) {
+    while (const dirent* e = ::readdir(d))
+      if (std::string(e->d_name) != "." && std::string(e->d_name) != "..") names.push_back(e->d_name);
+    ::closedir(d);
+  }
+  std::sort(names.begin(), names.end());
+  return names;
+}
 
 int run_heft(const std::string& args, std::string* err) {
   const std::string err_path = tmp_path("last_stderr.txt." + std::to_string(std::rand()));

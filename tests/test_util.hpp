@@ -17,6 +17,10 @@ std::string tmp_path(const std::string& name);
 void write_text(const std::string& path, const std::string& text);
 std::string read_text(const std::string& path);
 bool file_exists(const std::string& path);
+/// A fresh empty folder under the test build directory (removed and made again).
+std::string fresh_dir(const std::string& name);
+/// The names in folder `dir` (without . and ..), sorted.
+std::vector<std::string> listing(const std::string& dir);
 
 /// Runs `heft ARGS` through the shell; returns its exit code; stderr of the
 /// run is stored in `err` when given.
