@@ -1,6 +1,7 @@
 #include "heft/predict.hpp"
 
 #include <algorithm>
+#include <array>
 #include <cmath>
 
 #include "heft/angles.hpp"
@@ -29,6 +30,83 @@ std::vector<SkyOffset> sky_offsets(const std::vector<OrbitDraw>& draws, double d
     out.push_back({s * p.y, s * p.x, sep, units::rad_to_deg(pa), d.weight});
   }
   return out;
+}
+
+std::string prediction_header() {
+  return "id,date_yr,n_draws,ess,sep_lo95,sep_lo68,sep_med,sep_hi68,sep_hi95,pa_mean_deg,pa_resultant,"
+         "pa_modes_deg,pa_arc68_start_deg,pa_arc68_width_deg,p_in_wa\n";
+}
+
+void append_prediction_row(std::string& out, const std::string& id, std::size_t n_draws, const SkyPrediction& p) {
+  append_csv_field(out, id);
+  for (double v : {p.date_yr, static_cast<double>(n_draws), p.ess, p.sep_q[0], p.sep_q[1], p.sep_q[2], p.sep_q[3],
+                   p.sep_q[4], p.pa_mean_deg, p.pa_resultant}) {
+    out += ',';
+    append_double(out, v);
+  }
+  out += ',';
+  for (std::size_t k = 0; k < p.pa_modes_deg.size(); ++k) {
+    if (k) out += '|';
+    append_double(out, p.pa_modes_deg[k]);
+  }
+  for (double v : {p.pa_arc68_start_deg, p.pa_arc68_width_deg, p.p_in_wa}) {
+    out += ',';
+    append_double(out, v);
+  }
+  out += '\n';
+}
+
+std::string grid_header() { return "id,date_yr,dra_mas,ddec_mas,density_per_mas2\n"; }
+
+void append_grid_rows(std::string& out, const std::string& id, const SkyPrediction& p) {
+  const int n = p.grid_n;
+  const double cell = 2.0 * p.grid_half_mas / n;
+  for (int j = 0; j < n; ++j)
+    for (int i = 0; i < n; ++i) {
+      append_csv_field(out, id);
+      for (double v : {p.date_yr, -p.grid_half_mas + (i + 0.5) * cell, -p.grid_half_mas + (j + 0.5) * cell,
+                       p.density[static_cast<std::size_t>(j) * n + i]}) {
+        out += ',';
+        append_double(out, v);
+      }
+      out += '\n';
+    }
+}
+
+SkyGrid read_sky_grid(std::istream& in, const std::string& name, const std::string& id, double date_yr) {
+  ColumnTable t(in, name, {"id", "date_yr", "dra_mas", "ddec_mas", "density_per_mas2"});
+  const int c_id = t.index("id"), c_date = t.index("date_yr"), c_e = t.index("dra_mas"), c_n = t.index("ddec_mas"),
+            c_d = t.index("density_per_mas2");
+  SkyGrid g;
+  g.id = id;
+  g.date_yr = date_yr;
+  std::vector<std::array<double, 3>> cells;
+  while (t.next()) {
+    if (g.id.empty()) g.id = std::string(t.text(c_id));
+    if (t.text(c_id) != g.id) continue;
+    const double d = t.number(c_date);
+    if (std::isnan(g.date_yr)) g.date_yr = d;
+    if (std::abs(d - g.date_yr) > 1e-9) continue;
+    const double v = t.number(c_d);
+    if (v < 0) t.fail(c_d, "density must be >= 0");
+    cells.push_back({t.number(c_e), t.number(c_n), v});
+  }
+  g.n = static_cast<int>(std::lround(std::sqrt(static_cast<double>(cells.size()))));
+  if (cells.empty() || static_cast<std::size_t>(g.n) * g.n != cells.size())
+    throw InputError(name, 0, 0, "no square density map for star '" + g.id + "' at the date");
+  double lo = 1e300, hi = -1e300;
+  for (const auto& c : cells) {
+    lo = std::min(lo, c[0]);
+    hi = std::max(hi, c[0]);
+  }
+  const double cell = g.n > 1 ? (hi - lo) / (g.n - 1) : 1.0;
+  g.half_mas = (hi - lo + cell) / 2;
+  g.density.assign(cells.size(), 0.0);
+  for (const auto& c : cells) {
+    const int i = bin_index(c[0], -g.half_mas, cell, g.n), j = bin_index(c[1], -g.half_mas, cell, g.n);
+    if (i >= 0 && j >= 0) g.density[static_cast<std::size_t>(j) * g.n + i] = c[2];
+  }
+  return g;
 }
 
 void shortest_arc(std::vector<std::pair<double, double>> a, double fraction, double& start_deg, double& width_deg) {

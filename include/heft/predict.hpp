@@ -5,7 +5,9 @@
 /// position angle with circular statistics (modes, shortest 68 % arc), the
 /// probability of lying between two working angles, and a density map.
 
+#include <iosfwd>
 #include <limits>
+#include <string>
 #include <vector>
 
 #include "heft/draws.hpp"
@@ -52,6 +54,29 @@ struct SkyPrediction {
 SkyPrediction predict_sky(const std::vector<OrbitDraw>& draws, double date_yr, const PredictOptions& opt);
 /// The same from offsets already computed by sky_offsets at date_yr.
 SkyPrediction summarize_sky(const std::vector<SkyOffset>& offsets, double date_yr, const PredictOptions& opt);
+
+/// The prediction table of `heft predict` (docs/formats.md): header and one
+/// row per star and date; `n_draws` is the star's number of draws.
+std::string prediction_header();
+void append_prediction_row(std::string& out, const std::string& id, std::size_t n_draws, const SkyPrediction& p);
+
+/// The density-map table (`heft predict --grid`): header and the n x n
+/// cells of one star and date (cell centres in mas, density per mas^2).
+std::string grid_header();
+void append_grid_rows(std::string& out, const std::string& id, const SkyPrediction& p);
+
+/// One density map read back from a grid table.
+struct SkyGrid {
+  std::string id;
+  double date_yr = 0.0;
+  double half_mas = 0.0;        ///< half width of the map
+  int n = 0;                    ///< cells per side
+  std::vector<double> density;  ///< index j * n + i, as in SkyPrediction
+};
+/// Reads the map of star `id` at `date_yr` (empty id / NaN date: the first
+/// in the table). InputError naming file, line and column for a bad value,
+/// or the file when there is no square map for that star and date.
+SkyGrid read_sky_grid(std::istream& in, const std::string& name, const std::string& id, double date_yr);
 
 /// Shortest arc (deg) holding `fraction` of the weight of angles `deg`
 /// (any values; taken mod 360): start and width through increasing angle.

@@ -9,6 +9,7 @@
 #include "cli/commands.hpp"
 #include "heft/error.hpp"
 #include "heft/io.hpp"
+#include "heft/predict.hpp"
 #include "heft/stats.hpp"
 #include "heft/svg.hpp"
 
@@ -33,38 +34,9 @@ struct PlotSkyOptions {
 // The density map of one star and date from heft predict --grid.
 int run_plot_sky(const PlotSkyOptions& o) {
   InputFile in(o.input);
-  ColumnTable t(in.stream(), in.name(), {"id", "date_yr", "dra_mas", "ddec_mas", "density_per_mas2"});
-  const int c_id = t.index("id"), c_date = t.index("date_yr"), c_e = t.index("dra_mas"), c_n = t.index("ddec_mas"),
-            c_d = t.index("density_per_mas2");
-  std::string id = o.id;
-  double date = o.date_yr;
-  std::vector<std::array<double, 3>> cells;
-  while (t.next()) {
-    if (id.empty()) id = std::string(t.text(c_id));
-    if (t.text(c_id) != id) continue;
-    const double d = t.number(c_date);
-    if (!present(date)) date = d;
-    if (std::abs(d - date) > 1e-9) continue;
-    const double v = t.number(c_d);
-    if (v < 0) t.fail(c_d, "density must be >= 0");
-    cells.push_back({t.number(c_e), t.number(c_n), v});
-  }
-  const int n = static_cast<int>(std::lround(std::sqrt(static_cast<double>(cells.size()))));
-  if (cells.empty() || static_cast<std::size_t>(n) * n != cells.size())
-    throw InputError(in.name(), 0, 0, "no square density map for star '" + id + "' at the date");
-  double lo = 1e300, hi = -1e300;
-  for (const auto& c : cells) {
-    lo = std::min(lo, c[0]);
-    hi = std::max(hi, c[0]);
-  }
-  const double cell = n > 1 ? (hi - lo) / (n - 1) : 1.0, half = (hi - lo + cell) / 2;
-  std::vector<double> density(cells.size(), 0.0);
-  for (const auto& c : cells) {
-    const int i = bin_index(c[0], -half, cell, n), j = bin_index(c[1], -half, cell, n);
-    if (i >= 0 && j >= 0) density[static_cast<std::size_t>(j) * n + i] = c[2];
-  }
-  SkyMap map(half, "heft predict: " + id + " at " + format_double(date));
-  map.image(density, n);
+  const SkyGrid g = read_sky_grid(in.stream(), in.name(), o.id, o.date_yr);
+  SkyMap map(g.half_mas, "heft predict: " + g.id + " at " + format_double(g.date_yr));
+  map.image(g.density, g.n);
   if (o.iwa_mas > 0) map.circle(o.iwa_mas, "inner working angle", "#a63603", true);
   if (o.owa_mas > 0) map.circle(o.owa_mas, "outer working angle", "#54278f", true);
   write_file_atomic(o.output, map.str());

@@ -18,15 +18,6 @@ struct PredictCliOptions {
   bool quiet = false;
 };
 
-std::string modes_text(const std::vector<double>& modes) {
-  std::string s;
-  for (double m : modes) {
-    if (!s.empty()) s += '|';
-    append_double(s, m);
-  }
-  return s;
-}
-
 int run_predict(const PredictCliOptions& o) {
   require_distinct_outputs({{"-o", o.output}, {"--json", o.json}, {"--grid", o.grid}});
   if (!(o.predict.iwa_mas < o.predict.owa_mas)) throw CLI::ValidationError("--iwa must be below --owa");
@@ -36,10 +27,8 @@ int run_predict(const PredictCliOptions& o) {
   std::unique_ptr<AtomicOutput> json, grid;
   if (!o.json.empty()) json = std::make_unique<AtomicOutput>(o.json);
   if (!o.grid.empty()) grid = std::make_unique<AtomicOutput>(o.grid);
-  out.write(
-      "id,date_yr,n_draws,ess,sep_lo95,sep_lo68,sep_med,sep_hi68,sep_hi95,pa_mean_deg,pa_resultant,"
-      "pa_modes_deg,pa_arc68_start_deg,pa_arc68_width_deg,p_in_wa\n");
-  if (grid) grid->write("id,date_yr,dra_mas,ddec_mas,density_per_mas2\n");
+  out.write(prediction_header());
+  if (grid) grid->write(grid_header());
   nlohmann::ordered_json jstars = nlohmann::ordered_json::array();
   bool found = false;
   for (const auto& st : stars) {
@@ -48,32 +37,11 @@ int run_predict(const PredictCliOptions& o) {
     for (double date : o.dates) {
       const SkyPrediction p = predict_sky(st.draws, date, o.predict);
       std::string row;
-      append_csv_field(row, st.id);
-      for (double v : {date, static_cast<double>(st.draws.size()), p.ess, p.sep_q[0], p.sep_q[1], p.sep_q[2],
-                       p.sep_q[3], p.sep_q[4], p.pa_mean_deg, p.pa_resultant}) {
-        row += ',';
-        append_double(row, v);
-      }
-      row += ',' + modes_text(p.pa_modes_deg);
-      for (double v : {p.pa_arc68_start_deg, p.pa_arc68_width_deg, p.p_in_wa}) {
-        row += ',';
-        append_double(row, v);
-      }
-      out.write(row + '\n');
+      append_prediction_row(row, st.id, st.draws.size(), p);
+      out.write(row);
       if (grid) {
         std::string g;
-        const int n = p.grid_n;
-        const double cell = 2.0 * p.grid_half_mas / n;
-        for (int j = 0; j < n; ++j)
-          for (int i = 0; i < n; ++i) {
-            append_csv_field(g, st.id);
-            for (double v : {date, -p.grid_half_mas + (i + 0.5) * cell, -p.grid_half_mas + (j + 0.5) * cell,
-                             p.density[static_cast<std::size_t>(j) * n + i]}) {
-              g += ',';
-              append_double(g, v);
-            }
-            g += '\n';
-          }
+        append_grid_rows(g, st.id, p);
         grid->write(g);
       }
       if (json)
