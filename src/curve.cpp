@@ -6,6 +6,7 @@
 #include <numeric>
 
 #include "heft/angles.hpp"
+#include "heft/error.hpp"
 #include "heft/io.hpp"
 #include "heft/rng.hpp"
 #include "heft/stats.hpp"
@@ -598,6 +599,35 @@ Curve analytic_curve(const AnomalyData& d, const CurveOptions& opt) {
   }
   c.min_ess = kAbsent;
   return c;
+}
+
+std::vector<CurvePoint> read_curve_table(std::istream& in, const std::string& name, std::string& id) {
+  static const std::vector<std::string> cols = {"id", "a_au", "sep_mas", "mass_lo95", "mass_lo68", "mass_med",
+                                                "mass_hi68", "mass_hi95"};
+  ColumnTable t(in, name, cols);
+  std::vector<int> idx;
+  for (const auto& c : cols) idx.push_back(t.index(c));
+  std::vector<CurvePoint> rows;
+  while (t.next()) {
+    if (id.empty()) id = std::string(t.text(idx[0]));
+    if (t.text(idx[0]) != id) continue;
+    double v[7];
+    for (int k = 1; k < 8; ++k) v[k - 1] = t.text(idx[k]).empty() ? kAbsent : t.number(idx[k]);
+    if (!(v[0] > 0 && v[1] > 0)) t.fail(idx[1], "a_au and sep_mas must be positive");
+    CurvePoint p{};
+    p.a_au = v[0];
+    p.sep_mas = v[1];
+    p.period_yr = p.weight = p.ess = kAbsent;
+    p.mass_lo95 = v[2];
+    p.mass_lo68 = v[3];
+    p.mass_med = v[4];
+    p.mass_hi68 = v[5];
+    p.mass_hi95 = v[6];
+    rows.push_back(std::move(p));
+  }
+  if (rows.empty()) throw InputError(name, 0, 0, id.empty() ? "no curve rows" : "no rows for star '" + id + "'");
+  std::sort(rows.begin(), rows.end(), [](const CurvePoint& a, const CurvePoint& b) { return a.a_au < b.a_au; });
+  return rows;
 }
 
 std::string curve_header() {

@@ -120,6 +120,12 @@ Eigen::Vector4d model_anomaly(const Orbit<double>& o, double a_au, double q, dou
                               const Window& early, const Window& late);
 
 
+/// Reads the rows of one star from a curve table (the first star when `id`
+/// is empty; `id` is set to it), sorted by a. Needs the columns id, a_au,
+/// sep_mas and the five mass quantiles; empty masses read as NaN. Errors
+/// name file, line and column.
+std::vector<CurvePoint> read_curve_table(std::istream& in, const std::string& name, std::string& id);
+
 /// Column names of the curve table.
 std::string curve_header();
 void append_curve_rows(std::string& out, const std::string& id, const Curve& c);

@@ -7,6 +7,7 @@
 #include <memory>
 
 #include "cli/commands.hpp"
+#include "heft/curve.hpp"
 #include "heft/error.hpp"
 #include "heft/io.hpp"
 #include "heft/predict.hpp"
@@ -21,9 +22,6 @@ struct PlotCurveOptions {
   bool quiet = false;
 };
 
-struct Row {
-  double a, sep, lo95, lo68, med, hi68, hi95;
-};
 
 struct PlotSkyOptions {
   std::string input, output = "-", id;
@@ -45,39 +43,12 @@ int run_plot_sky(const PlotSkyOptions& o) {
 
 int run_plot_curve(const PlotCurveOptions& o) {
   InputFile in(o.input);
-  CsvReader csv(in.stream(), in.name());
-  if (!csv.next()) throw InputError(in.name(), 0, 0, "empty file: no header row");
-  const char* names[] = {"id", "a_au", "sep_mas", "mass_lo95", "mass_lo68", "mass_med", "mass_hi68", "mass_hi95"};
-  int idx[8];
-  for (int k = 0; k < 8; ++k) {
-    const auto& h = csv.fields();
-    const auto it = std::find(h.begin(), h.end(), names[k]);
-    if (it == h.end()) throw InputError(in.name(), csv.line(), 0, std::string("missing required column '") + names[k] + "'");
-    idx[k] = static_cast<int>(it - h.begin());
-  }
   std::string id = o.id;
-  std::vector<Row> rows;
-  while (csv.next()) {
-    const auto& f = csv.fields();
-    if (id.empty()) id = std::string(f[idx[0]]);
-    if (f[idx[0]] != id) continue;
-    double v[7];
-    for (int k = 1; k < 8; ++k) {
-      v[k - 1] = kAbsent;
-      if (f[idx[k]].empty()) continue;
-      if (!parse_double(f[idx[k]], v[k - 1]) || !std::isfinite(v[k - 1]))
-        throw InputError(in.name(), csv.line(), csv.column(idx[k]),
-                         std::string("column '") + names[k] + "': not a finite number");
-    }
-    if (!(v[0] > 0 && v[1] > 0)) throw InputError(in.name(), csv.line(), csv.column(idx[1]), "a_au and sep_mas must be positive");
-    rows.push_back({v[0], v[1], v[2], v[3], v[4], v[5], v[6]});
-  }
-  if (rows.empty()) throw InputError(in.name(), 0, 0, id.empty() ? "no curve rows" : "no rows for star '" + id + "'");
-  std::sort(rows.begin(), rows.end(), [](const Row& a, const Row& b) { return a.a < b.a; });
-  const bool upper = std::none_of(rows.begin(), rows.end(), [](const Row& r) { return present(r.med); });
+  const std::vector<CurvePoint> rows = read_curve_table(in.stream(), in.name(), id);
+  const bool upper = std::none_of(rows.begin(), rows.end(), [](const CurvePoint& r) { return present(r.mass_med); });
   double y_lo = 1e300, y_hi = 0;
   for (const auto& r : rows)
-    for (double y : {r.lo95, r.med, r.hi95})
+    for (double y : {r.mass_lo95, r.mass_med, r.mass_hi95})
       if (present(y) && y > 0) {
         y_lo = std::min(y_lo, y);
         y_hi = std::max(y_hi, y);
@@ -87,30 +58,30 @@ int run_plot_curve(const PlotCurveOptions& o) {
   y_hi = std::max(y_hi, 150.0);
   y_lo = std::pow(10.0, std::floor(std::log10(y_lo)));
   y_hi = std::pow(10.0, std::ceil(std::log10(y_hi)));
-  const double x_lo = std::pow(10.0, std::floor(std::log10(rows.front().a)));
-  const double x_hi = std::pow(10.0, std::ceil(std::log10(rows.back().a)));
+  const double x_lo = std::pow(10.0, std::floor(std::log10(rows.front().a_au)));
+  const double x_hi = std::pow(10.0, std::ceil(std::log10(rows.back().a_au)));
   LogLogPlot plot(x_lo, x_hi, y_lo, y_hi, "semi-major axis a (AU)", "companion mass (Jupiter masses)",
                   "heft curve: " + id + (upper ? " (upper limits)" : "") + ", dark companion assumed");
-  plot.top_axis(rows.front().sep / rows.front().a, "projected separation a x parallax (mas)");
-  auto band = [&](double Row::*lo, double Row::*hi, const std::string& colour, double op) {
+  plot.top_axis(rows.front().sep_mas / rows.front().a_au, "projected separation a x parallax (mas)");
+  auto band = [&](double CurvePoint::*lo, double CurvePoint::*hi, const std::string& colour, double op) {
     std::vector<std::pair<double, double>> pts;
     for (const auto& r : rows)
-      if (present(r.*hi)) pts.emplace_back(r.a, r.*hi);
+      if (present(r.*hi)) pts.emplace_back(r.a_au, r.*hi);
     for (auto it = rows.rbegin(); it != rows.rend(); ++it)
-      if (present((*it).*hi)) pts.emplace_back(it->a, lo && (*it).*lo > 0 ? (*it).*lo : y_lo);
+      if (present((*it).*hi)) pts.emplace_back(it->a_au, lo && (*it).*lo > 0 ? (*it).*lo : y_lo);
     plot.band(pts, colour, op);
   };
   if (upper) {
-    band(nullptr, &Row::hi95, "#9ecae1", 0.6);
-    band(nullptr, &Row::hi68, "#3182bd", 0.6);
+    band(nullptr, &CurvePoint::mass_hi95, "#9ecae1", 0.6);
+    band(nullptr, &CurvePoint::mass_hi68, "#3182bd", 0.6);
     plot.legend("#9ecae1", "allowed at 95 % (below the edge)");
     plot.legend("#3182bd", "allowed at 68 %");
   } else {
-    band(&Row::lo95, &Row::hi95, "#9ecae1", 0.6);
-    band(&Row::lo68, &Row::hi68, "#3182bd", 0.6);
+    band(&CurvePoint::mass_lo95, &CurvePoint::mass_hi95, "#9ecae1", 0.6);
+    band(&CurvePoint::mass_lo68, &CurvePoint::mass_hi68, "#3182bd", 0.6);
     std::vector<std::pair<double, double>> med;
     for (const auto& r : rows)
-      if (present(r.med)) med.emplace_back(r.a, r.med);
+      if (present(r.mass_med)) med.emplace_back(r.a_au, r.mass_med);
     plot.line(med, "#08306b", 2.0);
     plot.legend("#9ecae1", "95 % band");
     plot.legend("#3182bd", "68 % band");
