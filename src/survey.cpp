@@ -3,6 +3,7 @@
 #include <algorithm>
 #include <cerrno>
 #include <chrono>
+#include <cmath>
 #include <cstdio>
 #include <cstring>
 #include <fstream>
@@ -92,6 +93,19 @@ class CheckpointWriter {
 };
 
 }  // namespace
+
+bool parse_shard(std::string_view text, long& k, long& n) {
+  const auto slash = text.find('/');
+  double kd = 0, nd = 0;
+  if (slash == std::string_view::npos || !parse_double(text.substr(0, slash), kd) ||
+      !parse_double(text.substr(slash + 1), nd))
+    return false;
+  // Range-checked as doubles before any conversion to an integer.
+  if (!(kd == std::floor(kd) && nd == std::floor(nd) && nd >= 1 && nd <= 1e6 && kd >= 1 && kd <= nd)) return false;
+  k = static_cast<long>(kd);
+  n = static_cast<long>(nd);
+  return true;
+}
 
 std::string metadata_word(const std::string& s) {
   std::string o;

@@ -10,6 +10,7 @@
 #include <functional>
 #include <iosfwd>
 #include <string>
+#include <string_view>
 #include <vector>
 
 #include "heft/rank.hpp"
@@ -42,6 +43,10 @@ struct SurveyRun {
   double screen_s = 0.0, stage2_s = 0.0;  ///< wall time of pass 1 and of the curves
   double curve_s = 0.0, predict_s = 0.0;  ///< thread sums
 };
+
+/// Parses a shard "K/N" (whole numbers, 1 <= K <= N <= 10^6); false when
+/// `text` is not one. Shared by --shard and the metadata `heft merge` reads.
+bool parse_shard(std::string_view text, long& k, long& n);
 
 /// Metadata value as one word: spaces and '%' percent-encoded, "-" if empty.
 std::string metadata_word(const std::string& text);

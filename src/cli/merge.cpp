@@ -2,7 +2,6 @@
 // run would have written, checking that the shards belong together and
 // that no star is missing or duplicated.
 
-#include <cmath>
 #include <memory>
 #include <set>
 
@@ -10,6 +9,7 @@
 #include "heft/error.hpp"
 #include "heft/io.hpp"
 #include "heft/rank.hpp"
+#include "heft/survey.hpp"
 
 namespace heft::cli {
 namespace {
@@ -33,21 +33,18 @@ int run_merge(const MergeCliOptions& o) {
     std::vector<RankRecord> recs = read_ranked(in.stream(), in.name(), info);
     const auto sh = info.fields.find("shard");
     if (sh == info.fields.end()) throw InputError(in.name(), 1, 0, "run metadata lacks 'shard'");
-    const auto slash = sh->second.find('/');
-    double k = 0, n = 0;
-    if (slash == std::string::npos || !parse_double(sh->second.substr(0, slash), k) ||
-        !parse_double(sh->second.substr(slash + 1), n) || !(k >= 1 && k <= n && n <= 1e6) || k != std::floor(k) ||
-        n != std::floor(n))
+    long k = 0, n = 0;
+    if (!parse_shard(sh->second, k, n))
       throw InputError(in.name(), 1, 0, "bad shard '" + sh->second + "' in the run metadata");
     RankRunInfo common = info;
     common.fields.erase("shard");
     if (all.empty() && shards_seen.empty()) {
       merged = common;
-      n_shards = static_cast<long>(n);
-    } else if (common.fields != merged.fields || static_cast<long>(n) != n_shards) {
+      n_shards = n;
+    } else if (common.fields != merged.fields || n != n_shards) {
       throw InputError(in.name(), 1, 0, "run metadata differs from the first part's (other input, options or N)");
     }
-    if (!shards_seen.insert(static_cast<long>(k)).second)
+    if (!shards_seen.insert(k).second)
       throw InputError(in.name(), 1, 0, "shard " + sh->second + " given twice");
     for (auto& r : recs) {
       if (!ids.insert(r.id).second) throw InputError(in.name(), 0, 0, "star '" + r.id + "' appears in more than one part");

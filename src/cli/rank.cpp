@@ -24,22 +24,6 @@ struct RankCliOptions {
   bool resume = false, quiet = false;
 };
 
-void parse_shard(const std::string& text, long& k, long& n) {
-  const auto slash = text.find('/');
-  bool ok = slash != std::string::npos;
-  if (ok) {
-    double kd = 0, nd = 0;
-    ok = parse_double(std::string_view(text).substr(0, slash), kd) &&
-         parse_double(std::string_view(text).substr(slash + 1), nd) && kd == std::floor(kd) && nd == std::floor(nd) &&
-         nd >= 1 && nd <= 1e6 && kd >= 1 && kd <= nd;
-    if (ok) {
-      k = static_cast<long>(kd);
-      n = static_cast<long>(nd);
-    }
-  }
-  if (!ok) throw CLI::ValidationError("--shard: expected K/N with 1 <= K <= N <= 1000000, got '" + text + "'");
-}
-
 int run_rank(RankCliOptions o) {
   SurveyOptions& so = o.survey;
   CurveOptions& c = so.rank.curve;
@@ -55,7 +39,8 @@ int run_rank(RankCliOptions o) {
   if (o.resume && target.kind != OutputTarget::Kind::kFile)
     throw CLI::ValidationError("--resume needs -o FILE, a regular file (the checkpoint lives beside it)");
   require_distinct_outputs({{"-o", o.output}, {"--json", o.json}});
-  parse_shard(o.shard, so.shard_k, so.shard_n);
+  if (!parse_shard(o.shard, so.shard_k, so.shard_n))
+    throw CLI::ValidationError("--shard: expected K/N with 1 <= K <= N <= 1000000, got '" + o.shard + "'");
   if (o.threads > 0) omp_set_num_threads(o.threads);
   so.screen = resolve_screen_options(so.screen, o.late_spin_table);
   so.screen_fingerprint = screen_fingerprint(so.screen, so.windows);
