@@ -21,8 +21,8 @@ int main(int argc, char** argv) {
   const int draws = argc > 2 ? std::atoi(argv[2]) : 2048;
   CurveOptions o;
   o.draws = draws;
-  o.m_min_mjup = 1;
-  o.m_max_mjup = 200;
+  o.prior.m_min_mjup = 1;
+  o.prior.m_max_mjup = 200;
   SurveyModel m = coverage_survey(o, 1.0, 50.0, 99);
   const Coverage cov = curve_coverage(m, o, n_sys, 6.0);
   std::printf("%d systems (S/N 6 to %.0f), %d draws: 68 %% band covers %.1f %%, 95 %% band %.1f %%\n",
@@ -59,9 +59,9 @@ int main(int argc, char** argv) {
   t1 = std::chrono::steady_clock::now();
   for (double a : o.a_au)
     for (int k = 0; k < o.draws * o.z_samples; ++k) {
-      const double m2 = rng.log_uniform(o.m_min_mjup, o.m_max_mjup) / units::kMjupPerMsun;
+      const double m2 = rng.log_uniform(o.prior.m_min_mjup, o.prior.m_max_mjup) / units::kMjupPerMsun;
       const double q = m2 / (d.host_mass_msun + m2);
-      const Orbit<double> orb{period_from_a(a, d.host_mass_msun + m2), o.ecc.draw(rng),
+      const Orbit<double> orb{period_from_a(a, d.host_mass_msun + m2), o.prior.ecc.draw(rng),
                               std::acos(rng.uniform(-1, 1)), units::kTwoPi * rng.uniform(),
                               units::kTwoPi * rng.uniform(), units::kTwoPi * rng.uniform(),
                               d.late.ref_epoch_yr};

@@ -73,8 +73,8 @@ int main(int argc, char** argv) {
   sm.distance_pc = {Distribution::Kind::kUniform, 20.0, 60.0};
   sm.host_mass_rel_error = 0.05;
   FitOptions o;
-  o.m_min_mjup = 5.0;
-  o.m_max_mjup = 100.0;
+  o.prior.m_min_mjup = 5.0;
+  o.prior.m_max_mjup = 100.0;
   o.a_min_au = 3.0;
   o.a_max_au = 30.0;
   o.sampler.steps = steps;

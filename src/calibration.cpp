@@ -38,9 +38,9 @@ SurveyModel coverage_survey(const CurveOptions& opt, double a_lo_au, double a_hi
   SurveyModel m;
   m.seed = seed;
   m.companion_fraction = 1.0;
-  m.companion_mass_mjup = {Distribution::Kind::kLogUniform, opt.m_min_mjup, opt.m_max_mjup};
+  m.companion_mass_mjup = {Distribution::Kind::kLogUniform, opt.prior.m_min_mjup, opt.prior.m_max_mjup};
   m.a_au = {Distribution::Kind::kLogUniform, a_lo_au, a_hi_au};
-  m.ecc = opt.ecc;
+  m.ecc = opt.prior.ecc;
   m.distance_pc = {Distribution::Kind::kUniform, 10, 60};
   m.host_mass_rel_error = 0.05;
   m.rv_fraction = 1.0;

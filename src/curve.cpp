@@ -79,7 +79,7 @@ Draw prior_draw(const AnomalyData& d, const CurveOptions& opt, Rng& rng) {
   Draw dr;
   dr.inc = std::acos(rng.uniform(-1.0, 1.0));
   dr.omega = units::kTwoPi * rng.uniform();
-  dr.ecc = std::clamp(opt.ecc.draw(rng), 0.0, 0.99);
+  dr.ecc = std::clamp(opt.prior.ecc.draw(rng), 0.0, 0.99);
   dr.m0 = units::kTwoPi * rng.uniform();
   do dr.m1 = d.host_mass_msun + d.host_mass_error_msun * rng.normal(); while (!(dr.m1 > 0.01));
   do dr.plx = d.parallax_mas + d.parallax_error_mas * rng.normal(); while (!(dr.plx > 0));
@@ -103,8 +103,12 @@ DrawSet make_draws(const AnomalyData& d, const CurveOptions& opt, const std::str
   return ds;
 }
 
-// Prior of companion mass, as a density in the z plane (normalised).
-struct MassPrior {
+// heft's mass prior (prior.hpp) as a density in the z plane (normalised).
+struct ZPlanePrior {
+  explicit ZPlanePrior(const MassPrior& p)
+      : log_uniform(!p.upper_limit()),
+        m_lo_msun(p.m_min_mjup * (1.0 / units::kMjupPerMsun)),
+        m_hi_msun(p.m_max_mjup * (1.0 / units::kMjupPerMsun)) {}
   bool log_uniform;
   double m_lo_msun, m_hi_msun;
   double q_lo(double m1) const { return m_lo_msun / (m1 + m_lo_msun); }
@@ -145,7 +149,7 @@ struct PointResult {
 struct Problem {
   const AnomalyData& d;
   const CurveOptions& opt;
-  const MassPrior& prior;
+  const ZPlanePrior& prior;
   Eigen::Matrix4d cinv;
   double chi2_data;
   double a_au;
@@ -167,7 +171,7 @@ double period_drift(const Problem& pb, double p, double p_new) {
 // added to every weight (prior / proposal of the draw itself).
 void weigh_draw(const Problem& pb, const Draw& dr, double log_extra, Sample* out) {
   const AnomalyData& d = pb.d;
-  const MassPrior& prior = pb.prior;
+  const ZPlanePrior& prior = pb.prior;
   const double a_au = pb.a_au;
   double q_hat = 0.0, period = 0.0;
   Eigen::Matrix2d fisher;
@@ -247,7 +251,7 @@ double log_sum_exp(const std::vector<double>& v) {
 }
 
 PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const DrawSet& ds,
-                       const MassPrior& prior, bool upper, double a_au) {
+                       const ZPlanePrior& prior, bool upper, double a_au) {
   const std::vector<Draw>& draws = ds.first;
   const std::vector<Draw>& draws2 = ds.second;
   const std::vector<Coords>& kernel_dev = ds.kernel;
@@ -316,7 +320,7 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const Draw
     Coords width = (var / n_anc).cwiseSqrt() * 0.7;
     const Coords floor_w(0.01, 0.02, 0.02, 0.005), cap_w(1.0, 2.0, 2.0, 0.5);
     width = width.cwiseMax(floor_w).cwiseMin(cap_w);
-    if (opt.ecc.kind == Distribution::Kind::kFixed) width(3) = 0.0;
+    if (opt.prior.ecc.kind == Distribution::Kind::kFixed) width(3) = 0.0;
     double log_norm = std::log(static_cast<double>(anc.size()));
     Coords inv_w2 = Coords::Zero();
     for (int i = 0; i < 4; ++i)
@@ -346,14 +350,14 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const Draw
         Coords c = a + width.cwiseProduct(kernel_dev[j]);
         c(1) = wrap_2pi(c(1));
         c(2) = wrap_2pi(c(2));
-        if (opt.ecc.kind == Distribution::Kind::kFixed) c(3) = dr.ecc;
+        if (opt.prior.ecc.kind == Distribution::Kind::kFixed) c(3) = dr.ecc;
         dr.inc = std::acos(std::clamp(c(0), -1.0, 1.0));
         dr.omega = c(1);
         dr.m0 = c(2);
         dr.ecc = c(3);
       }
       const Coords c = coords_of(next[j]);
-      const double lp = log_prior_coords(c, opt.ecc);
+      const double lp = log_prior_coords(c, opt.prior.ecc);
       // Mixture density 0.5 prior + 0.5 kernels.
       const double lk = log_kernel_mix(c);
       const double mix = std::isfinite(lp) ? log_sum_exp({lp, lk}) - std::log(2.0) : lk;
@@ -465,10 +469,8 @@ Eigen::Vector4d model_anomaly(const Orbit<double>& o, double a_au, double q, dou
 
 Curve montecarlo_curve(const AnomalyData& d, const CurveOptions& opt, const std::string& rng_id) {
   Curve c;
-  c.upper_limit = !(d.sig_joint >= opt.detect_sigma);
-  const double msun = 1.0 / units::kMjupPerMsun;
-  const MassPrior prior{!c.upper_limit, c.upper_limit ? 0.0 : opt.m_min_mjup * msun,
-                        opt.m_max_mjup * msun};
+  c.upper_limit = opt.prior.upper_limit(d.sig_joint);
+  const ZPlanePrior prior(opt.prior.mass_prior(c.upper_limit));
   const DrawSet draws = make_draws(d, opt, rng_id);
   std::vector<PointResult> pts;
   for (double a : opt.a_au) pts.push_back(evaluate_a(d, opt, draws, prior, c.upper_limit, a));
@@ -537,7 +539,7 @@ double analytic_anomaly_mas_yr(const AnomalyData& d, double a_au, double q, doub
 
 Curve analytic_curve(const AnomalyData& d, const CurveOptions& opt) {
   Curve c;
-  c.upper_limit = !(d.sig_joint >= opt.detect_sigma);
+  c.upper_limit = opt.prior.upper_limit(d.sig_joint);
   const Eigen::Vector2d dl = d.dpm.head<2>();
   const double amp = dl.norm();
   const Eigen::Vector2d u = amp > 0 ? Eigen::Vector2d(dl / amp) : Eigen::Vector2d(1.0, 0.0);

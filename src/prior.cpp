@@ -68,6 +68,33 @@ Distribution Distribution::parse(const std::string& text, const std::string& opt
   return d;
 }
 
+std::string MassPrior::describe() const {
+  if (upper_limit())
+    return "uniform in companion mass on [0, m_max] (upper limit); " + format_double(m_max_mjup) + " MJup";
+  return "log-uniform in companion mass on [m_min, m_max]; " + format_double(m_min_mjup) + " to " +
+         format_double(m_max_mjup) + " MJup";
+}
+
+MassPrior PriorOptions::mass_prior(bool upper_limit) const {
+  if (upper_limit) return {MassPrior::Kind::kUniform, 0.0, m_max_mjup};
+  return {MassPrior::Kind::kLogUniform, m_min_mjup, m_max_mjup};
+}
+
+void PriorOptions::validate() const {
+  if (!(m_min_mjup > 0 && m_min_mjup < m_max_mjup))
+    throw UsageError("--m-min", format_double(m_min_mjup), "must be positive and below --m-max");
+  const bool in_unit = ecc.kind == Distribution::Kind::kBeta ||
+                       (ecc.kind == Distribution::Kind::kFixed ? ecc.p1 >= 0 && ecc.p1 < 1
+                                                               : ecc.p1 >= 0 && ecc.p2 < 1);
+  if (!in_unit) throw UsageError("--ecc", ecc.str(), "eccentricities must lie in [0, 1)");
+}
+
+std::string mass_prior_help() {
+  return "log-uniform in companion mass on [m_min, m_max] for a detection; uniform in mass on [0, m_max] "
+         "for an upper limit (sig_joint below --detect-sigma and no relative astrometry), so that the limit "
+         "does not depend on m_min";
+}
+
 bool host_mass_prior(double star_mass_msun, double star_mass_error_msun, double default_msun,
                      double default_error_msun, HostMass& out) {
   const bool own = !std::isnan(star_mass_msun);

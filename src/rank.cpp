@@ -82,7 +82,7 @@ RankRecord screened_record(const ScreenRow& row) {
 
 RankRecord rank_star(const StarRecord& star, const ScreenRow& row, const RankOptions& opt) {
   RankRecord r = screened_record(row);
-  if (!row.ok() || !(row.result.sig_joint >= opt.curve.detect_sigma)) return r;
+  if (!row.ok() || !(row.result.sig_joint >= opt.curve.prior.detect_sigma)) return r;
   bool have_mass = false;
   const AnomalyData d = anomaly_data(star, row.result, opt.host_mass_msun, opt.host_mass_error_msun, have_mass);
   if (!have_mass) {

@@ -32,11 +32,11 @@ RankRunInfo metadata(const SurveyOptions& o, const std::string& input_name, long
   f["iwa_mas"] = format_double(r.iwa_mas);
   f["owa_mas"] = std::isfinite(r.owa_mas) ? format_double(r.owa_mas) : "none";
   f["target_mass_mjup"] = format_double(r.target_min_mjup) + "," + format_double(r.target_max_mjup);
-  f["detect_sigma"] = format_double(c.detect_sigma);
+  f["detect_sigma"] = format_double(c.prior.detect_sigma);
   f["draws"] = std::to_string(c.draws);
   f["a_grid_au"] = format_double(o.a_min_au) + "," + format_double(o.a_max_au) + "," + std::to_string(o.n_a);
-  f["mass_prior_mjup"] = format_double(c.m_min_mjup) + "," + format_double(c.m_max_mjup);
-  f["ecc_prior"] = metadata_word(c.ecc.str());
+  f["mass_prior_mjup"] = format_double(c.prior.m_min_mjup) + "," + format_double(c.prior.m_max_mjup);
+  f["ecc_prior"] = metadata_word(c.prior.ecc.str());
   f["seed"] = std::to_string(c.seed);
   f["max_curves"] = std::to_string(o.max_curves);
   f["host_mass_default_msun"] = (present(r.host_mass_msun) ? format_double(r.host_mass_msun) : "none") + "," +
@@ -131,7 +131,7 @@ SurveyRun run_survey(std::istream& in, const std::string& input_name, const Surv
     while (reader.next(star, bad)) {
       if (row++ % opt.shard_n != opt.shard_k - 1) continue;
       ScreenRow sr = screen_star(star, bad, opt.screen);
-      if (sr.ok() && sr.result.sig_joint >= ropt.curve.detect_sigma) {
+      if (sr.ok() && sr.result.sig_joint >= ropt.curve.prior.detect_sigma) {
         candidates.push_back(star);
         cand_rows.push_back(std::move(sr));
       } else {

@@ -37,7 +37,7 @@ TEST_CASE("Jupiter-Sun analogue: the curve at 5.2 AU brackets 1 MJup", "[curve]"
   CurveOptions opt;
   opt.a_au = {5.2};
   opt.draws = 2048;
-  opt.m_min_mjup = 0.01;
+  opt.prior.m_min_mjup = 0.01;
   opt.refine_rounds = 0;
   const Curve c = montecarlo_curve(d, opt, "jupiter");
   REQUIRE_FALSE(c.upper_limit);
@@ -61,7 +61,7 @@ TEST_CASE("analytic and Monte Carlo medians agree for circular orbits", "[curve]
     CurveOptions opt;
     opt.a_au = {a};
     opt.draws = 4096;
-    opt.ecc = {Distribution::Kind::kFixed, 0.0, 0.0};
+    opt.prior.ecc = {Distribution::Kind::kFixed, 0.0, 0.0};
     opt.refine_rounds = 0;
     const double mc = montecarlo_curve(d, opt, "circ").points.at(0).mass_med;
     const double an = analytic_curve(d, opt).points.at(0).mass_med;
@@ -81,8 +81,8 @@ TEST_CASE("curve limits: sqrt(a) law and the turn-up at both ends", "[curve]") {
   CurveOptions opt;
   opt.a_au = log_grid(1.0, 30.0, 6);
   opt.draws = 1024;
-  opt.m_min_mjup = 1e-3;
-  opt.ecc = {Distribution::Kind::kFixed, 0.0, 0.0};
+  opt.prior.m_min_mjup = 1e-3;
+  opt.prior.ecc = {Distribution::Kind::kFixed, 0.0, 0.0};
   opt.refine_rounds = 0;
   const Curve c = montecarlo_curve(d, opt, "slope");
   const double slope = std::log(c.points.back().mass_med / c.points.front().mass_med) / std::log(30.0);
@@ -107,7 +107,7 @@ TEST_CASE("upper limits are finite and do not depend on the lower mass bound", "
   opt.a_au = {1.0, 10.0, 100.0};
   opt.draws = 1024;
   const Curve a = montecarlo_curve(d, opt, "single");
-  opt.m_min_mjup = 5.0;
+  opt.prior.m_min_mjup = 5.0;
   const Curve b = montecarlo_curve(d, opt, "single");
   REQUIRE(a.upper_limit);
   for (std::size_t k = 0; k < a.points.size(); ++k) {
@@ -205,7 +205,7 @@ TEST_CASE("single stars: false-detection rate matches the chosen sigma", "[curve
     REQUIRE(r.ok());
     bool ok;
     const AnomalyData d = anomaly_data(s, r.result, kAbsent, kAbsent, ok);
-    detections += d.sig_joint >= CurveOptions{}.detect_sigma;
+    detections += d.sig_joint >= CurveOptions{}.prior.detect_sigma;
   }
   CHECK(double(detections) / m.n_stars == Approx(0.0027).margin(0.0011));
 }
@@ -216,8 +216,8 @@ TEST_CASE("calibration: bands cover injected masses at their nominal rates", "[c
   // S/N > 6; the true mass must lie in the 68 % band in 68 +- 6 % and in the 95 %
   // band in 95 +- 3 % of cases (Bayesian coverage; statistics, common practice).
   CurveOptions opt;  // default draws (4096)
-  opt.m_min_mjup = 1;
-  opt.m_max_mjup = 200;
+  opt.prior.m_min_mjup = 1;
+  opt.prior.m_max_mjup = 200;
   const Coverage c = curve_coverage(coverage_survey(opt, 1.0, 50.0, 99), opt, 400, 6.0);
   INFO("68 % band: " << c.in68 << ", 95 % band: " << c.in95 << ", S/N up to " << c.max_sig);
   CHECK(c.max_sig > 300);

@@ -142,7 +142,7 @@ TEST_CASE("fit: no signal, no imaging gives an upper limit that matches heft cur
   opt.starts = 8;
   auto upper95 = [&](double m_min) {
     FitOptions o = opt;
-    o.m_min_mjup = m_min;
+    o.prior.m_min_mjup = m_min;
     const FitModel m(f, row.result, o);
     REQUIRE(m.upper_limit());
     const FitResult r = run_fit(m, o, star.id);

@@ -46,9 +46,7 @@ struct CurveOptions {
   std::vector<double> a_au;     ///< trial semi-major axes (sorted ascending)
   int draws = 4096;             ///< orbit draws per separation (common random numbers)
   int z_samples = 8;            ///< samples of z per draw
-  Distribution ecc{Distribution::Kind::kUniform, 0.0, 0.95};
-  double m_min_mjup = 0.1, m_max_mjup = 200.0;   ///< log-uniform prior bounds (detections)
-  double detect_sigma = 3.0;    ///< below: upper-limit mode, prior uniform in mass on [0, m_max]
+  PriorOptions prior;           ///< mass and eccentricity priors, detect_sigma
   int refine_rounds = 2;        ///< adaptive refinement of the a grid
   std::uint64_t seed = 1;
   bool keep_draws = false;

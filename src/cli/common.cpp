@@ -67,6 +67,22 @@ CLI::Option* add_pair_option(CLI::App* app, const std::string& name, double& a, 
       ->type_name("A,B");
 }
 
+void add_prior_options(CLI::App* app, PriorOptions& prior, std::string& ecc_text, const std::string& detect_help) {
+  ecc_text = prior.ecc.str();
+  app->add_option("--m-min", prior.m_min_mjup, "lower bound of the log-uniform mass prior of detections (MJup)")
+      ->check(CLI::PositiveNumber)->capture_default_str();
+  app->add_option("--m-max", prior.m_max_mjup, "upper bound of the mass prior (MJup)")
+      ->check(CLI::PositiveNumber)->capture_default_str();
+  app->add_option("--ecc", ecc_text, "eccentricity prior: V (fixed) | uniform:A,B | loguniform:A,B | beta:A,B")
+      ->capture_default_str();
+  app->add_option("--detect-sigma", prior.detect_sigma, detect_help)->capture_default_str();
+}
+
+void resolve_prior_options(PriorOptions& prior, const std::string& ecc_text) {
+  prior.ecc = Distribution::parse(ecc_text, "--ecc");
+  prior.validate();
+}
+
 void add_screen_options(CLI::App* app, ScreenOptions& screen, WindowDefaults& windows,
                         std::string& late_spin_table) {
   add_vec3_option(app, "--early-orient", screen.early.orient_mas,

@@ -10,6 +10,7 @@
 #include <string>
 
 #include "heft/catalog.hpp"
+#include "heft/prior.hpp"
 #include "heft/screen.hpp"
 
 namespace heft::cli {
@@ -57,6 +58,13 @@ void add_screen_options(CLI::App* app, ScreenOptions& screen, WindowDefaults& wi
                         std::string& late_spin_table);
 /// The screen options with the spin table file read in.
 ScreenOptions resolve_screen_options(const ScreenOptions& screen, const std::string& late_spin_table);
+
+/// Binds the prior options shared by curve, fit and rank: --m-min, --m-max,
+/// --ecc (as text into `ecc_text`) and --detect-sigma (`detect_help` says
+/// what it does in that command).
+void add_prior_options(CLI::App* app, PriorOptions& prior, std::string& ecc_text, const std::string& detect_help);
+/// Parses --ecc into `prior` and validates the priors (UsageError, exit 1).
+void resolve_prior_options(PriorOptions& prior, const std::string& ecc_text);
 
 /// Counts rows by status; prints one summary line per non-ok status.
 class StatusCounter {

@@ -14,7 +14,7 @@ namespace heft::cli {
 namespace {
 
 struct CurveCliOptions {
-  std::string input, output = "-", json, keep_draws, id, method = "montecarlo", ecc = "uniform:0,0.95";
+  std::string input, output = "-", json, keep_draws, id, method = "montecarlo", ecc;
   std::string late_spin_table;
   ScreenOptions screen;
   WindowDefaults windows;
@@ -48,8 +48,7 @@ int run_curve(CurveCliOptions o) {
   require_distinct_outputs({{"-o", o.output}, {"--json", o.json}, {"--keep-draws", o.keep_draws}});
   const ScreenOptions sopt = resolve_screen_options(o.screen, o.late_spin_table);
   CurveOptions copt = o.curve;
-  copt.ecc = Distribution::parse(o.ecc, "--ecc");
-  if (!(copt.m_min_mjup < copt.m_max_mjup)) throw CLI::ValidationError("--m-min must be below --m-max");
+  resolve_prior_options(copt.prior, o.ecc);
   if (!o.a_list.empty()) {
     copt.a_au = o.a_list;
     std::sort(copt.a_au.begin(), copt.a_au.end());
@@ -103,12 +102,9 @@ int run_curve(CurveCliOptions o) {
         bool have = false;
         const StarFile f = star_file_of(star, o.host_mass_msun, o.host_mass_error_msun, have);
         FitOptions fo;
-        fo.m_min_mjup = copt.m_min_mjup;
-        fo.m_max_mjup = copt.m_max_mjup;
+        fo.prior = copt.prior;
         fo.a_min_au = copt.a_au.front();
         fo.a_max_au = copt.a_au.back();
-        fo.ecc = copt.ecc;
-        fo.detect_sigma = copt.detect_sigma;
         fo.seed = copt.seed;
         fo.starts = o.starts;
         c = profile_curve(FitModel(f, row.result, fo), copt.a_au, fo, star.id);
@@ -148,12 +144,12 @@ int run_curve(CurveCliOptions o) {
     nlohmann::ordered_json run = counter.run_json("curve", in.name());
     run["method"] = o.method;
     run["draws"] = copt.draws;
-    run["ecc_prior"] = copt.ecc.str();
-    run["mass_prior"] = {{"detection", "log-uniform in companion mass"},
-                         {"upper_limit", "uniform in companion mass on [0, m_max]"},
-                         {"m_min_mjup", copt.m_min_mjup}, {"m_max_mjup", copt.m_max_mjup}};
+    run["ecc_prior"] = copt.prior.ecc.str();
+    run["mass_prior"] = {{"detection", copt.prior.mass_prior(false).describe()},
+                         {"upper_limit", copt.prior.mass_prior(true).describe()},
+                         {"m_min_mjup", copt.prior.m_min_mjup}, {"m_max_mjup", copt.prior.m_max_mjup}};
     run["a_prior"] = "log-uniform";
-    run["detect_sigma"] = copt.detect_sigma;
+    run["detect_sigma"] = copt.prior.detect_sigma;
     run["seed"] = copt.seed;
     run["dark_companion_assumed"] = true;
     json->write("\n],\n\"run\":" + run.dump() + "}\n");
@@ -201,14 +197,7 @@ void setup_curve(CLI::App& app, Runner& run) {
       ->check(CLI::PositiveNumber);
   sub->add_option("--draws", c.draws, "orbit draws per separation")
       ->check(CLI::Range(16, 10000000))->capture_default_str();
-  sub->add_option("--ecc", o->ecc, "eccentricity prior: V | uniform:A,B | beta:A,B")->capture_default_str();
-  sub->add_option("--m-min", c.m_min_mjup, "lower bound of the log-uniform mass prior (MJup)")
-      ->check(CLI::PositiveNumber)->capture_default_str();
-  sub->add_option("--m-max", c.m_max_mjup, "upper bound of the mass prior (MJup)")
-      ->check(CLI::PositiveNumber)->capture_default_str();
-  sub->add_option("--detect-sigma", c.detect_sigma,
-                  "below this sig_joint the curve is an upper limit (prior uniform in mass)")
-      ->capture_default_str();
+  add_prior_options(sub, c.prior, o->ecc, "below this sig_joint the curve is an upper limit (prior uniform in mass)");
   sub->add_option("--starts", o->starts, "optimiser starts per separation (profile method)")
       ->check(CLI::Range(1, 10000))->capture_default_str();
   sub->add_option("--seed", c.seed, "random seed (one stream per star id)")->capture_default_str();

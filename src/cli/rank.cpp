@@ -17,7 +17,7 @@ namespace heft::cli {
 namespace {
 
 struct RankCliOptions {
-  std::string input, output = "-", json, shard = "1/1", contrast, mass_mag, ecc = "uniform:0,0.95";
+  std::string input, output = "-", json, shard = "1/1", contrast, mass_mag, ecc;
   std::string late_spin_table;
   SurveyOptions survey;
   int threads = 0;
@@ -27,8 +27,7 @@ struct RankCliOptions {
 int run_rank(RankCliOptions o) {
   SurveyOptions& so = o.survey;
   CurveOptions& c = so.rank.curve;
-  c.ecc = Distribution::parse(o.ecc, "--ecc");
-  if (!(c.m_min_mjup < c.m_max_mjup)) throw CLI::ValidationError("--m-min must be below --m-max");
+  resolve_prior_options(c.prior, o.ecc);
   if (!(so.a_min_au < so.a_max_au)) throw CLI::ValidationError("--a-min must be below --a-max");
   if (!(so.rank.iwa_mas < so.rank.owa_mas)) throw CLI::ValidationError("--iwa must be below --owa");
   if (!(so.rank.target_min_mjup < so.rank.target_max_mjup))
@@ -118,8 +117,6 @@ void setup_rank(CLI::App& app, Runner& run) {
                   "instrument contrast limit (CSV: sep_mas, delta_mag) for a detection probability");
   sub->add_option("--mass-mag", o->mass_mag,
                   "companion mass-magnitude relation in the same band (CSV: mass_mjup, abs_mag)");
-  sub->add_option("--detect-sigma", c.detect_sigma, "curves for stars with sig_joint at or above this")
-      ->capture_default_str();
   sub->add_option("--max-curves", o->survey.max_curves, "curves for at most the N most significant stars (0 = all)")
       ->check(CLI::NonNegativeNumber)->capture_default_str();
   sub->add_option("--host-mass", r.host_mass_msun, "host mass for stars without 'mass' (Msun)")->check(CLI::PositiveNumber);
@@ -129,10 +126,7 @@ void setup_rank(CLI::App& app, Runner& run) {
   sub->add_option("--n-a", o->survey.n_a, "points of the log grid in a (refined where needed)")
       ->check(CLI::Range(2, 100000))->capture_default_str();
   sub->add_option("--draws", c.draws, "orbit draws per separation")->check(CLI::Range(16, 10000000))->capture_default_str();
-  sub->add_option("--ecc", o->ecc, "eccentricity prior: V | uniform:A,B | beta:A,B")->capture_default_str();
-  sub->add_option("--m-min", c.m_min_mjup, "lower bound of the log-uniform mass prior (MJup)")
-      ->check(CLI::PositiveNumber)->capture_default_str();
-  sub->add_option("--m-max", c.m_max_mjup, "upper bound of the mass prior (MJup)")->check(CLI::PositiveNumber)->capture_default_str();
+  add_prior_options(sub, c.prior, o->ecc, "curves for stars with sig_joint at or above this (below: not scored)");
   sub->add_option("--seed", c.seed, "random seed (one stream per star id)")->capture_default_str();
   sub->add_option("--shard", o->shard, "process slice K of N (rows K, K+N, K+2N, ...; 1-based); join with heft merge")
       ->capture_default_str();

@@ -1,0 +1,53 @@
+#pragma once
+/// \file fit_optimize.hpp
+/// The deep fit's optimiser: local minima of the negative log posterior
+/// from many starts (Levenberg-Marquardt on the residual blocks of
+/// fit_residuals.hpp, then Ceres' gradient-problem solver on the whole
+/// negative log posterior), merged when they coincide, with Ceres
+/// covariances and linearised errors of the derived orbit values.
+
+#include <Eigen/Core>
+#include <string>
+#include <vector>
+
+#include "heft/fit_model.hpp"
+#include "heft/fit_residuals.hpp"
+
+namespace heft {
+
+/// One distinct local minimum of the negative log posterior.
+struct FitMinimum {
+  Eigen::VectorXd p;
+  double m2lnl = 0.0;       ///< -2 ln L of the data
+  double m2lnpost = 0.0;    ///< -2 ln posterior (up to a constant)
+  int hits = 1;             ///< starts that converged here
+  bool covariance_ok = false;
+  /// Ceres covariance of the core parameters and RV offsets (jitters held
+  /// at their best values); empty when not ok.
+  Eigen::MatrixXd cov;
+  std::string flag;         ///< why the covariance is missing
+  /// Derived values and their linearised errors: mass_mjup, a_au, ecc,
+  /// period_yr, inc_deg.
+  Eigen::Matrix<double, 5, 1> derived, derived_sigma;
+};
+
+/// Names of FitMinimum::derived.
+const std::vector<std::string>& derived_names();
+
+/// `n` optimiser starts drawn from the prior (FitModel::prior_draw).
+std::vector<Eigen::VectorXd> draw_starts(const FitModel& m, int n, Rng& rng);
+
+/// Minimises from every start (in parallel; the result does not depend on
+/// the thread count) with `pinned` held, and returns the distinct minima,
+/// best first. Two minima are the same when their -2 ln posterior agree to
+/// 0.02 and their parameters to 0.01 (0.02 rad in the angles); `hits`
+/// counts the starts that reached each.
+std::vector<FitMinimum> find_minima(const FitModel& m, const Pinned& pinned,
+                                    const std::vector<Eigen::VectorXd>& starts);
+
+/// Ceres covariance of the core parameters and offsets at a minimum
+/// (jitters held at their values) and the derived values with their
+/// linearised errors; a degenerate covariance sets `flag` instead of failing.
+void finish_minimum(const FitModel& m, FitMinimum& mn);
+
+}  // namespace heft

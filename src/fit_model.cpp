@@ -1,0 +1,401 @@
+#include "heft/fit_model.hpp"
+
+#include <Eigen/Cholesky>
+#include <algorithm>
+#include <cmath>
+#include <limits>
+
+#include "heft/angles.hpp"
+#include "heft/error.hpp"
+#include "heft/kepler.hpp"
+#include "heft/rng.hpp"
+#include "heft/window.hpp"
+
+namespace heft {
+namespace {
+
+constexpr double kInf = std::numeric_limits<double>::infinity();
+
+// ln prior density of e, up to a constant, for any scalar.
+template <typename T>
+T ecc_log_prior(const Distribution& d, const T& e) {
+  using std::log;
+  switch (d.kind) {
+    case Distribution::Kind::kLogUniform: return -log(e);
+    case Distribution::Kind::kBeta: return T(d.p1 - 1) * log(e) + T(d.p2 - 1) * log(T(1.0) - e);
+    default: return T(0.0);
+  }
+}
+
+}  // namespace
+
+StarFile star_file_of(const StarRecord& star, double host_mass_msun, double host_mass_error_msun, bool& ok) {
+  StarFile f;
+  f.star = star;
+  HostMass host{};
+  ok = host_mass_prior(star.mass_msun, star.mass_error_msun, host_mass_msun, host_mass_error_msun, host);
+  f.host_mass = {HostMassPrior::Kind::kNormal, host.mass_msun, host.error_msun};
+  return f;
+}
+
+FitModel::FitModel(const StarFile& f, const AnomalyResult& r, const FitOptions& opt)
+    : host_(f.host_mass), rel_(f.relative), rv_(f.rv), instruments_(f.instruments), opt_(opt) {
+  const StarRecord& s = f.star;
+  early_ = {s.early.window_start_yr, s.early.window_end_yr, s.early.epoch_yr, {}, {}};
+  late_ = {s.late.window_start_yr, s.late.window_end_yr, s.late.epoch_yr, {}, {}};
+  dt_yr_ = s.late.epoch_yr - s.early.epoch_yr;
+  // The phase is counted from the middle of the imaging epochs: there the
+  // data pin it, and it is least correlated with the period.
+  phase_epoch_yr_ = s.late.epoch_yr;
+  if (!f.relative.empty()) {
+    double sum = 0.0;
+    for (const auto& e : f.relative) sum += e.epoch_yr;
+    phase_epoch_yr_ = sum / f.relative.size();
+  }
+  n_inst_ = static_cast<int>(instruments_.size());
+  if (n_inst_ > kMaxInstruments)
+    throw InputError::at_json("star file", "/radial_velocities",
+                              "at most " + std::to_string(kMaxInstruments) + " instruments");
+  n_res_ = 6 + 2 * static_cast<int>(rel_.size()) + static_cast<int>(rv_.size()) + 2;
+  pm_obs_ << r.pml_late_mas_yr, r.dpm_late_mas_yr, r.dpm_early_mas_yr;
+  Eigen::Matrix<double, 6, 6> cov;
+  cov.block<2, 2>(0, 0) = r.pml_cov;
+  cov.block<2, 4>(0, 2) = r.pml_dpm_cov;
+  cov.block<4, 2>(2, 0) = r.pml_dpm_cov.transpose();
+  cov.block<4, 4>(2, 2) = r.dpm_cov;
+  const Eigen::LLT<Eigen::Matrix<double, 6, 6>> llt(cov);
+  if (llt.info() != Eigen::Success) throw NumericError(s.id, "fit", "proper-motion covariance not positive definite");
+  pm_whiten_ = llt.matrixL().solve(Eigen::Matrix<double, 6, 6>::Identity());
+  pml_obs_ = r.pml_late_mas_yr;
+  pml_cov_ = r.pml_cov;
+  bool have_mass = false;
+  const double center = host_.center_msun;
+  const double width = host_.kind == HostMassPrior::Kind::kNormal ? host_.width : center * std::log(10.0) * host_.width;
+  anomaly_ = anomaly_data(s, r, center, width, have_mass);
+  anomaly_.host_mass_msun = center;  // the star file's prior rules over the star's mass columns
+  anomaly_.host_mass_error_msun = width;
+  plx_cat_ = s.late.parallax_mas;
+  plx_sigma_ = s.late.parallax_error_mas;
+  // Imaged companions are detections whatever the anomaly's significance.
+  mass_prior_ = opt.prior.mass_prior(rel_.empty() && opt.prior.upper_limit(r.sig_joint));
+  ln_m_lo_ = std::log(mass_prior_.floor_mjup());
+  ln_m_hi_ = std::log(mass_prior_.m_max_mjup);
+  ln_a_lo_ = std::log(opt.a_min_au);
+  ln_a_hi_ = std::log(opt.a_max_au);
+  ecc_max_ = 0.99;
+  if (opt.prior.ecc.kind == Distribution::Kind::kUniform || opt.prior.ecc.kind == Distribution::Kind::kLogUniform)
+    ecc_max_ = std::min(ecc_max_, opt.prior.ecc.p2);
+  ln_a_start_lo_ = ln_a_lo_;
+  ln_a_start_hi_ = ln_a_hi_;
+  if (!rel_.empty()) {
+    // An imaged companion: a is near (sep / parallax) / (1 -+ e).
+    const RelativeEpoch& e0 = rel_.front();
+    const double sep = e0.polar ? e0.v1 : std::hypot(e0.v1, e0.v2);
+    const double a0 = sep / plx_cat_;
+    ln_a_start_lo_ = std::clamp(std::log(0.6 * a0), ln_a_lo_, ln_a_hi_);
+    ln_a_start_hi_ = std::clamp(std::log(2.5 * a0), ln_a_lo_, ln_a_hi_);
+  }
+  rv_mean_.assign(n_inst_, 0.0);
+  rv_spread_.assign(n_inst_, 0.0);
+  std::vector<int> count(n_inst_, 0);
+  for (const auto& v : rv_) {
+    rv_mean_[v.instrument] += v.rv_m_s;
+    ++count[v.instrument];
+  }
+  for (int k = 0; k < n_inst_; ++k) rv_mean_[k] /= count[k];
+  for (const auto& v : rv_)
+    rv_spread_[v.instrument] = std::max(rv_spread_[v.instrument], std::abs(v.rv_m_s - rv_mean_[v.instrument]) + v.error_m_s);
+}
+
+template <typename T>
+Orbit<T> FitModel::orbit_at(const T* p) const {
+  using std::acos;
+  using std::atan2;
+  using std::exp;
+  const T m2 = exp(p[kLnMass]) / T(units::kMjupPerMsun);
+  const T e = p[kSqrtECos] * p[kSqrtECos] + p[kSqrtESin] * p[kSqrtESin];
+  // omega is undefined at e = 0: any value, with no derivative.
+  const double h = scalar_of(p[kSqrtECos]), k = scalar_of(p[kSqrtESin]);
+  const T omega = h * h + k * k > 0.0 ? atan2(p[kSqrtESin], p[kSqrtECos]) : T(0.0);
+  return {period_from_a(exp(p[kLnA]), p[kHostMass] + m2), e, acos(p[kCosInc]), omega, p[kNode],
+          p[kLambda] - omega - p[kNode], phase_epoch_yr_};
+}
+
+// Proper motions (pml_late, dpm_late, dpm_early) of docs/method.md Sect. 9:
+// the long-baseline PM is the barycentric PM plus the reflex displacement
+// between the catalogue epochs over their separation in time.
+template <typename T>
+void FitModel::model_pm(const Orbit<T>& o, const T& a, const T& q, const T& plx, const T& pmra,
+                        const T& pmdec, T y[6]) const {
+  const WindowFit<T> wl = fit_reflex(o, a, q, plx, late_), we = fit_reflex(o, a, q, plx, early_);
+  const T lra = (wl.dra_mas - we.dra_mas) / T(dt_yr_), ldec = (wl.ddec_mas - we.ddec_mas) / T(dt_yr_);
+  y[0] = pmra + lra;
+  y[1] = pmdec + ldec;
+  y[2] = wl.pmra_mas_yr - lra;
+  y[3] = wl.pmdec_mas_yr - ldec;
+  y[4] = we.pmra_mas_yr - lra;
+  y[5] = we.pmdec_mas_yr - ldec;
+}
+
+// Whitened residual of one host RV; adds its log-normaliser to `extra`.
+template <typename T>
+T FitModel::rv_residual_at(const Orbit<T>& o, const T& a, const T& q, const T* p, const RvPoint& v, T& extra) const {
+  using std::exp;
+  using std::log;
+  using std::sqrt;
+  const OrbitPoint<T> op = orbit_point(o, v.epoch_yr);
+  const T model = -q * a * op.vz * T(units::kKmsPerAuYr * 1e3) + p[kFitCore + v.instrument];
+  const T jit = exp(p[kFitCore + n_inst_ + v.instrument]);
+  const T var = T(v.error_m_s * v.error_m_s) + jit * jit;
+  extra += T(0.5) * log(var);
+  return (model - T(v.rv_m_s)) / sqrt(var);
+}
+
+Eigen::VectorXd FitModel::from_orbit(const OrbitDraw& d, Rng& rng) const {
+  Eigen::VectorXd p = Eigen::VectorXd::Zero(n_params());
+  const double w = units::deg_to_rad(d.arg_peri_deg), node = units::deg_to_rad(d.node_deg);
+  p[kLnMass] = std::log(std::max(d.mass_mjup, 1e-300));
+  p[kLnA] = std::log(d.a_au);
+  p[kSqrtECos] = std::sqrt(d.ecc) * std::cos(w);
+  p[kSqrtESin] = std::sqrt(d.ecc) * std::sin(w);
+  p[kCosInc] = std::cos(units::deg_to_rad(d.inc_deg));
+  p[kNode] = node;
+  const double mean_at_phase = units::deg_to_rad(d.mean_anom_deg) +
+                               units::kTwoPi * (phase_epoch_yr_ - d.ref_epoch_yr) / d.period_yr;
+  p[kLambda] = wrap_2pi(mean_at_phase + w + node);
+  p[kHostMass] = d.host_mass_msun;
+  p[kParallax] = d.parallax_mas;
+  // Barycentric PM: the long-baseline PM minus this orbit's reflex term, with
+  // the long-baseline PM's noise.
+  const double m2 = d.mass_mjup / units::kMjupPerMsun, q = m2 / (d.host_mass_msun + m2);
+  double y[6];
+  model_pm(orbit_at(p.data()), d.a_au, q, d.parallax_mas, 0.0, 0.0, y);
+  const Eigen::LLT<Eigen::Matrix2d> llt(pml_cov_);
+  const Eigen::Vector2d pm = pml_obs_ - Eigen::Vector2d(y[0], y[1]) + llt.matrixL() * Eigen::Vector2d(rng.normal(), rng.normal());
+  p[kPmra] = pm[0];
+  p[kPmdec] = pm[1];
+  // RV offsets: the error-weighted mean residual of each instrument; jitter
+  // at the instrument's median error.
+  std::vector<double> sw(n_inst_, 0.0), swr(n_inst_, 0.0);
+  std::vector<std::vector<double>> errs(n_inst_);
+  const Orbit<double> o = orbit_at(p.data());
+  for (const auto& v : rv_) {
+    double extra = 0.0;
+    p[kFitCore + n_inst_ + v.instrument] = std::log(opt_.jitter_min_m_s);
+    const double r = rv_residual_at(o, d.a_au, q, p.data(), v, extra);  // offset 0
+    const double s2 = v.error_m_s * v.error_m_s;
+    swr[v.instrument] += -r * std::sqrt(s2 + opt_.jitter_min_m_s * opt_.jitter_min_m_s) / s2;
+    sw[v.instrument] += 1.0 / s2;
+    errs[v.instrument].push_back(v.error_m_s);
+  }
+  for (int j = 0; j < n_inst_; ++j) {
+    p[kFitCore + j] = swr[j] / sw[j];
+    std::nth_element(errs[j].begin(), errs[j].begin() + errs[j].size() / 2, errs[j].end());
+    p[kFitCore + n_inst_ + j] = std::clamp(std::log(errs[j][errs[j].size() / 2]), std::log(opt_.jitter_min_m_s),
+                                           std::log(opt_.jitter_max_m_s));
+  }
+  return p;
+}
+
+double FitModel::rv_neg_log_like(const double* p) const {
+  if (rv_.empty()) return 0.0;
+  const double m2 = std::exp(p[kLnMass]) / units::kMjupPerMsun, q = m2 / (p[kHostMass] + m2);
+  const Orbit<double> o = orbit_at(p);
+  double extra = 0.0, chi2 = 0.0;
+  for (const auto& v : rv_) {
+    const double r = rv_residual_at(o, std::exp(p[kLnA]), q, p, v, extra);
+    chi2 += r * r;
+  }
+  return 0.5 * chi2 + extra;
+}
+
+bool FitModel::in_support(const double* p) const {
+  const double lnm = p[kLnMass], lna = p[kLnA], h = p[kSqrtECos], k = p[kSqrtESin], ci = p[kCosInc];
+  if (!(lnm >= ln_m_lo_ && lnm <= ln_m_hi_ && lna >= ln_a_lo_ && lna <= ln_a_hi_)) return false;
+  if (!(h * h + k * k < ecc_max_ && std::abs(ci) < 1.0)) return false;
+  if (!(p[kHostMass] > 0.0 && p[kParallax] > 0.0)) return false;
+  for (int j = 0; j < n_inst_; ++j) {
+    const double lj = p[kFitCore + n_inst_ + j];
+    if (!(lj >= std::log(opt_.jitter_min_m_s) && lj <= std::log(opt_.jitter_max_m_s))) return false;
+  }
+  return true;
+}
+
+template <typename T>
+void FitModel::anomaly_residuals(const Orbit<T>& o, const T* p, T r[6]) const {
+  using std::exp;
+  const T m1 = p[kHostMass], m2 = exp(p[kLnMass]) / T(units::kMjupPerMsun), q = m2 / (m1 + m2);
+  T y[6];
+  model_pm(o, exp(p[kLnA]), q, p[kParallax], p[kPmra], p[kPmdec], y);
+  for (int i = 0; i < 6; ++i) {
+    T s(0.0);
+    for (int j = 0; j <= i; ++j) s += T(pm_whiten_(i, j)) * (y[j] - T(pm_obs_(j)));
+    r[i] = s;
+  }
+}
+
+// The companion's offset from the host, in the form it was measured.
+template <typename T>
+void FitModel::relative_residuals(const Orbit<T>& o, const T* p, int k, T r[2]) const {
+  using std::exp;
+  const RelativeEpoch& ep = rel_[k];
+  const T a = exp(p[kLnA]), plx = p[kParallax];
+  const OrbitPoint<T> op = orbit_point(o, ep.epoch_yr);
+  const T north = a * plx * op.x, east = a * plx * op.y;
+  T d1, d2;
+  if (ep.polar) {
+    T sep, pa;
+    separation_pa(north, east, sep, pa);
+    d1 = (sep - T(ep.v1)) / T(ep.e1);
+    const T dpa = pa - T(units::deg_to_rad(ep.v2));
+    d2 = (dpa - T(units::kTwoPi * std::round(scalar_of(dpa) / units::kTwoPi))) / T(units::deg_to_rad(ep.e2));
+  } else {
+    d1 = (east - T(ep.v1)) / T(ep.e1);
+    d2 = (north - T(ep.v2)) / T(ep.e2);
+  }
+  r[0] = d1;
+  r[1] = (d2 - T(ep.corr) * d1) / T(std::sqrt(1.0 - ep.corr * ep.corr));
+}
+
+// Host RVs with per-instrument offset and jitter: -ln L has the
+// log-normaliser ln sqrt(sigma^2 + s^2), which is not a square.
+template <typename T>
+T FitModel::rv_residual(const Orbit<T>& o, const T* p, int k, T& extra) const {
+  using std::exp;
+  const T m1 = p[kHostMass], m2 = exp(p[kLnMass]) / T(units::kMjupPerMsun), q = m2 / (m1 + m2);
+  return rv_residual_at(o, exp(p[kLnA]), q, p, rv_[k], extra);
+}
+
+// Priors: host mass, catalogue parallax, eccentricity, and the mass prior
+// (prior.hpp; for upper limits its density m in ln m).
+template <typename T>
+void FitModel::prior_residuals(const T* p, T r[2], T& extra) const {
+  using std::log;
+  const T m1 = p[kHostMass], e = p[kSqrtECos] * p[kSqrtECos] + p[kSqrtESin] * p[kSqrtESin];
+  if (host_.kind == HostMassPrior::Kind::kNormal) {
+    r[0] = (m1 - T(host_.center_msun)) / T(host_.width);
+  } else {
+    r[0] = (log(m1) / T(std::log(10.0)) - T(std::log10(host_.center_msun))) / T(host_.width);
+    extra += log(m1);
+  }
+  r[1] = (p[kParallax] - T(plx_cat_)) / T(plx_sigma_);
+  extra -= ecc_log_prior(opt_.prior.ecc, e);
+  extra -= mass_prior_.log_density_ln_mass(p[kLnMass], scalar_of(p[kLnMass]));
+}
+
+template <typename T>
+bool FitModel::evaluate(const T* p, T* r, T& extra) const {
+  double v[kMaxFitParams];
+  for (int i = 0; i < n_params(); ++i) v[i] = scalar_of(p[i]);
+  if (!in_support(v)) return false;
+  const Orbit<T> o = orbit_at(p);
+  int n = 0;
+  anomaly_residuals(o, p, r);
+  n += 6;
+  for (int k = 0; k < n_relative(); ++k, n += 2) relative_residuals(o, p, k, r + n);
+  for (int k = 0; k < n_rv(); ++k) r[n++] = rv_residual(o, p, k, extra);
+  prior_residuals(p, r + n, extra);
+  n += 2;
+  for (int i = 0; i < n; ++i)
+    if (!std::isfinite(scalar_of(r[i]))) return false;
+  return std::isfinite(scalar_of(extra));
+}
+
+double FitModel::neg_log_post(const double* p, double* m2lnl) const {
+  std::vector<double> r(n_res_);
+  double extra = 0.0;
+  if (!evaluate(p, r.data(), extra)) return kInf;
+  double chi2 = 0.0;
+  for (double v : r) chi2 += v * v;
+  if (m2lnl) {
+    double data = 0.0;
+    for (double v : r) data += v * v;
+    for (const auto& v : rv_) {
+      const double jit = std::exp(p[kFitCore + n_inst_ + v.instrument]);
+      data += std::log(v.error_m_s * v.error_m_s + jit * jit);
+    }
+    *m2lnl = data;
+  }
+  return 0.5 * chi2 + extra;
+}
+
+Eigen::VectorXd FitModel::prior_draw(Rng& rng) const {
+  Eigen::VectorXd p(n_params());
+  p[kLnMass] = rng.uniform(ln_m_lo_, ln_m_hi_);
+  p[kLnA] = rng.uniform(ln_a_start_lo_, ln_a_start_hi_);
+  double e;
+  do e = opt_.prior.ecc.draw(rng); while (!(e >= 0.0 && e < ecc_max_));
+  const double w = units::kTwoPi * rng.uniform();
+  p[kSqrtECos] = std::sqrt(e) * std::cos(w);
+  p[kSqrtESin] = std::sqrt(e) * std::sin(w);
+  p[kCosInc] = rng.uniform(-1.0, 1.0);
+  p[kNode] = units::kTwoPi * rng.uniform();
+  p[kLambda] = units::kTwoPi * rng.uniform();
+  const double lnm1_lo = std::log(0.01);
+  do {
+    p[kHostMass] = host_.kind == HostMassPrior::Kind::kNormal
+                       ? host_.center_msun + host_.width * rng.normal()
+                       : host_.center_msun * std::pow(10.0, host_.width * rng.normal());
+  } while (!(std::log(p[kHostMass]) > lnm1_lo));
+  do p[kParallax] = plx_cat_ + plx_sigma_ * rng.normal(); while (!(p[kParallax] > 0));
+  const Eigen::LLT<Eigen::Matrix2d> llt(pml_cov_);
+  const Eigen::Vector2d pm = pml_obs_ + llt.matrixL() * Eigen::Vector2d(rng.normal(), rng.normal());
+  p[kPmra] = pm[0];
+  p[kPmdec] = pm[1];
+  for (int j = 0; j < n_inst_; ++j) {
+    p[kFitCore + j] = rv_mean_[j] + rv_spread_[j] * rng.normal();
+    p[kFitCore + n_inst_ + j] = rng.uniform(std::log(opt_.jitter_min_m_s), std::log(opt_.jitter_max_m_s));
+  }
+  return p;
+}
+
+OrbitDraw FitModel::orbit(const double* p) const {
+  OrbitDraw d;
+  d.mass_mjup = std::exp(p[kLnMass]);
+  d.a_au = std::exp(p[kLnA]);
+  d.ecc = p[kSqrtECos] * p[kSqrtECos] + p[kSqrtESin] * p[kSqrtESin];
+  const double omega = d.ecc > 0 ? std::atan2(p[kSqrtESin], p[kSqrtECos]) : 0.0;
+  d.inc_deg = units::rad_to_deg(std::acos(std::clamp(p[kCosInc], -1.0, 1.0)));
+  d.arg_peri_deg = units::rad_to_deg(wrap_2pi(omega));
+  d.node_deg = units::rad_to_deg(wrap_2pi(p[kNode]));
+  d.mean_anom_deg = units::rad_to_deg(wrap_2pi(p[kLambda] - omega - p[kNode]));
+  d.ref_epoch_yr = phase_epoch_yr_;
+  d.host_mass_msun = p[kHostMass];
+  d.period_yr = period_from_a(d.a_au, d.host_mass_msun + d.mass_mjup / units::kMjupPerMsun);
+  d.parallax_mas = p[kParallax];
+  d.weight = 1.0;
+  return d;
+}
+
+std::vector<std::string> FitModel::param_names() const {
+  std::vector<std::string> n = {"ln_mass_mjup", "ln_a_au", "sqrt_e_cos_omega", "sqrt_e_sin_omega", "cos_inc",
+                                "node_rad",     "mean_longitude_rad", "host_mass_msun", "parallax_mas",
+                                "pmra_mas_yr",  "pmdec_mas_yr"};
+  for (const auto& s : instruments_) n.push_back("rv_offset_m_s:" + s);
+  for (const auto& s : instruments_) n.push_back("ln_jitter_m_s:" + s);
+  return n;
+}
+
+std::string fit_prior_help() {
+  return "mass: " + mass_prior_help() +
+         "; a log-uniform on [a_min, a_max]; e from --ecc; isotropic orientation (cos i, Omega, mean longitude "
+         "uniform, omega uniform through sqrt(e) (cos, sin)); host mass from the star file (normal or "
+         "log-normal); parallax normal (late catalogue value and error); barycentric PM and RV offsets "
+         "uniform; RV jitter log-uniform on [jitter_min, jitter_max]";
+}
+
+// The Jets the fit differentiates with: the gradient objective's and the
+// residual blocks' (fit_residuals.hpp).
+#define HEFT_FIT_MODEL_INSTANTIATE(T)                                                                \
+  template bool FitModel::evaluate<T>(const T*, T*, T&) const;                                    \
+  template Orbit<T> FitModel::orbit_at<T>(const T*) const;                                        \
+  template void FitModel::anomaly_residuals<T>(const Orbit<T>&, const T*, T[6]) const;            \
+  template void FitModel::relative_residuals<T>(const Orbit<T>&, const T*, int, T[2]) const;      \
+  template T FitModel::rv_residual<T>(const Orbit<T>&, const T*, int, T&) const;                  \
+  template void FitModel::prior_residuals<T>(const T*, T[2], T&) const;
+HEFT_FIT_MODEL_INSTANTIATE(double)
+HEFT_FIT_MODEL_INSTANTIATE(FitJet)
+HEFT_FIT_MODEL_INSTANTIATE(StrideJet)
+#undef HEFT_FIT_MODEL_INSTANTIATE
+
+}  // namespace heft
