@@ -632,9 +632,15 @@ std::vector<CurvePoint> read_curve_table(std::istream& in, const std::string& na
   return rows;
 }
 
-std::string curve_header() {
-  return "id,a_au,sep_mas,period_yr,weight,mass_lo95,mass_lo68,mass_med,mass_hi68,mass_hi95,notes\n";
+const std::vector<ColumnUnit>& curve_column_units() {
+  static const std::vector<ColumnUnit> cols = {
+      {"id", ""},              {"a_au", "AU"},          {"sep_mas", "mas"},       {"period_yr", "yr"},
+      {"weight", ""},          {"mass_lo95", "Mjup"},   {"mass_lo68", "Mjup"},    {"mass_med", "Mjup"},
+      {"mass_hi68", "Mjup"},   {"mass_hi95", "Mjup"},   {"notes", ""}};
+  return cols;
 }
+
+std::string curve_header() { return header_line(curve_column_units()); }
 
 void append_curve_rows(std::string& out, const std::string& id, const Curve& c) {
   for (const auto& p : c.points) {
@@ -648,6 +654,25 @@ void append_curve_rows(std::string& out, const std::string& id, const Curve& c) 
     append_csv_field(out, join_notes(p.notes));
     out += '\n';
   }
+}
+
+nlohmann::ordered_json curve_point_json(const CurvePoint& p, bool upper_limit) {
+  // The columns lo95 ... hi95 are the 2.5 ... 97.5 % quantiles; an upper
+  // limit fills only hi68 and hi95, its 68 % and 95 % quantiles.
+  static const double kPercent[5] = {2.5, 16, 50, 84, 97.5};
+  const double v[5] = {p.mass_lo95, p.mass_lo68, p.mass_med, p.mass_hi68, p.mass_hi95};
+  nlohmann::ordered_json mass =
+      upper_limit ? quantiles_json({{68, v[3]}, {95, v[4]}})
+                  : quantiles_json({{2.5, v[0]}, {16, v[1]}, {50, v[2]}, {84, v[3]}, {97.5, v[4]}});
+  nlohmann::ordered_json j = {{"a_au", p.a_au},      {"sep_mas", p.sep_mas},        {"period_yr", p.period_yr},
+                              {"weight", p.weight},  {"mass_mjup", mass},           {"ess", json_number(p.ess)},
+                              {"notes", p.notes}};
+  if (has_note(p.notes, "multiple_solutions")) {
+    nlohmann::ordered_json roots;
+    for (int k = 0; k < 5; ++k) roots["q" + format_double(kPercent[k])] = p.roots_mjup[k];
+    j["roots_mjup"] = roots;
+  }
+  return j;
 }
 
 }  // namespace heft

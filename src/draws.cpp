@@ -7,23 +7,25 @@
 #include "heft/io.hpp"
 
 namespace heft {
+const std::vector<ColumnUnit>& draw_column_units() {
+  static const std::vector<ColumnUnit> cols = {
+      {"id", ""},           {"a_au", "AU"},         {"mass_mjup", "Mjup"},   {"ecc", ""},
+      {"inc_deg", "deg"},   {"arg_peri_deg", "deg"}, {"node_deg", "deg"},    {"mean_anom_deg", "deg"},
+      {"ref_epoch_yr", "yr"}, {"period_yr", "yr"},  {"parallax_mas", "mas"}, {"host_mass_msun", "Msun"},
+      {"weight", ""}};
+  return cols;
+}
+
 namespace {
 
 const std::vector<std::string>& draw_columns() {
-  static const std::vector<std::string> cols = {
-      "id",           "a_au",         "mass_mjup",    "ecc",         "inc_deg",
-      "arg_peri_deg", "node_deg",     "mean_anom_deg", "ref_epoch_yr", "period_yr",
-      "parallax_mas", "host_mass_msun", "weight"};
+  static const std::vector<std::string> cols = column_names(draw_column_units());
   return cols;
 }
 
 }  // namespace
 
-std::string draws_header() {
-  std::string h;
-  for (const auto& c : draw_columns()) h += (h.empty() ? "" : ",") + c;
-  return h + '\n';
-}
+std::string draws_header() { return header_line(draw_column_units()); }
 
 void append_draw_row(std::string& out, const std::string& id, const OrbitDraw& d) {
   append_csv_field(out, id);

@@ -4,6 +4,7 @@
 #include <cmath>
 
 #include "heft/error.hpp"
+#include "heft/io.hpp"
 #include "heft/stats.hpp"
 #include "heft/version.hpp"
 
@@ -55,8 +56,6 @@ std::vector<OrbitDraw> posterior_draws(const FitModel& m, const FitResult& r) {
 
 namespace {
 
-ojson num(double v) { return std::isfinite(v) ? ojson(v) : ojson(nullptr); }
-
 ojson minimum_json(const FitModel& m, const FitMinimum& mn, bool with_cov) {
   ojson j;
   j["m2lnl"] = mn.m2lnl;
@@ -71,7 +70,7 @@ ojson minimum_json(const FitModel& m, const FitMinimum& mn, bool with_cov) {
                 {"node_deg", o.node_deg},       {"mean_anom_deg", o.mean_anom_deg},
                 {"ref_epoch_yr", o.ref_epoch_yr}, {"host_mass_msun", o.host_mass_msun},
                 {"parallax_mas", o.parallax_mas}};
-  for (int k = 0; k < 5; ++k) ds[derived_names()[k]] = num(mn.derived_sigma[k]);
+  for (int k = 0; k < 5; ++k) ds[derived_names()[k]] = json_number(mn.derived_sigma[k]);
   j["sigma"] = ds;
   j["covariance"] = mn.covariance_ok ? "ok" : mn.flag;
   j["params"] = p;
@@ -98,9 +97,9 @@ ojson posterior_quantiles(const FitResult& r, const std::vector<OrbitDraw>& draw
     std::sort(v.begin(), v.end());
     auto at = [&](double p) { return weighted_quantile(v, 1.0, p); };
     if (r.upper_limit && field == &OrbitDraw::mass_mjup)
-      q[name] = {{"q68", at(0.68)}, {"q95", at(0.95)}};
+      q[name] = quantiles_json({{68, at(0.68)}, {95, at(0.95)}});
     else
-      q[name] = {{"q2.5", at(0.025)}, {"q16", at(0.16)}, {"q50", at(0.5)}, {"q84", at(0.84)}, {"q97.5", at(0.975)}};
+      q[name] = quantiles_json({{2.5, at(0.025)}, {16, at(0.16)}, {50, at(0.5)}, {84, at(0.84)}, {97.5, at(0.975)}});
   };
   add("mass_mjup", &OrbitDraw::mass_mjup);
   add("a_au", &OrbitDraw::a_au);
@@ -173,7 +172,7 @@ ojson fit_json(const FitModel& model, const StarFile& f, const ScreenRow& row, c
     else
       post["start"] = {{"method", "one ensemble per mode, modes weighted by Laplace evidence"}, {"modes", modes}};
     ojson tau;
-    for (int i = 0; i < model.n_params(); ++i) tau[names[i]] = num(c.iat_steps[i]);
+    for (int i = 0; i < model.n_params(); ++i) tau[names[i]] = json_number(c.iat_steps[i]);
     post["autocorr_steps"] = tau;
     post["quantiles"] = posterior_quantiles(r, posterior_draws(model, r));
     j["posterior"] = post;
@@ -181,7 +180,8 @@ ojson fit_json(const FitModel& model, const StarFile& f, const ScreenRow& row, c
   j["warnings"] = warnings;
   j["priors"] = fit_priors_json(model, f);
   j["run"] = {{"heft_version", kVersion}, {"command", "fit"},         {"input", input},
-              {"seed", fopt.seed},        {"starts", fopt.starts},    {"dark_companion_assumed", true}};
+              {"seed", fopt.seed},        {"starts", fopt.starts},    {"dark_companion_assumed", true},
+              {"units", units_json(draw_column_units())}};
   return j;
 }
 

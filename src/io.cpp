@@ -470,4 +470,33 @@ void ColumnTable::fail(int col, const std::string& rule) const {
   throw InputError(csv_.name(), csv_.line(), csv_.column(col), "column '" + header_[col] + "': " + rule);
 }
 
+nlohmann::ordered_json json_number(double value) {
+  return std::isfinite(value) ? nlohmann::ordered_json(value) : nlohmann::ordered_json(nullptr);
+}
+
+nlohmann::ordered_json quantiles_json(std::initializer_list<std::pair<double, double>> percent_value) {
+  nlohmann::ordered_json j = nlohmann::ordered_json::object();
+  for (const auto& [pct, v] : percent_value) j["q" + format_double(pct)] = json_number(v);
+  return j;
+}
+
+std::string header_line(const std::vector<ColumnUnit>& cols) {
+  std::string h;
+  for (const auto& c : cols) h += (h.empty() ? "" : ",") + c.name;
+  return h + '\n';
+}
+
+std::vector<std::string> column_names(const std::vector<ColumnUnit>& cols) {
+  std::vector<std::string> n;
+  for (const auto& c : cols) n.push_back(c.name);
+  return n;
+}
+
+nlohmann::ordered_json units_json(const std::vector<ColumnUnit>& cols) {
+  nlohmann::ordered_json j = nlohmann::ordered_json::object();
+  for (const auto& c : cols)
+    if (!c.unit.empty()) j[c.name] = c.unit;
+  return j;
+}
+
 }  // namespace heft

@@ -32,10 +32,16 @@ std::vector<SkyOffset> sky_offsets(const std::vector<OrbitDraw>& draws, double d
   return out;
 }
 
-std::string prediction_header() {
-  return "id,date_yr,n_draws,ess,sep_lo95,sep_lo68,sep_med,sep_hi68,sep_hi95,pa_mean_deg,pa_resultant,"
-         "pa_modes_deg,pa_arc68_start_deg,pa_arc68_width_deg,p_in_wa\n";
+const std::vector<ColumnUnit>& prediction_column_units() {
+  static const std::vector<ColumnUnit> cols = {
+      {"id", ""},           {"date_yr", "yr"},      {"n_draws", ""},          {"ess", ""},
+      {"sep_lo95", "mas"},  {"sep_lo68", "mas"},    {"sep_med", "mas"},       {"sep_hi68", "mas"},
+      {"sep_hi95", "mas"},  {"pa_mean_deg", "deg"}, {"pa_resultant", ""},     {"pa_modes_deg", "deg"},
+      {"pa_arc68_start_deg", "deg"}, {"pa_arc68_width_deg", "deg"}, {"p_in_wa", ""}};
+  return cols;
 }
+
+std::string prediction_header() { return header_line(prediction_column_units()); }
 
 void append_prediction_row(std::string& out, const std::string& id, std::size_t n_draws, const SkyPrediction& p) {
   append_csv_field(out, id);
@@ -56,7 +62,13 @@ void append_prediction_row(std::string& out, const std::string& id, std::size_t 
   out += '\n';
 }
 
-std::string grid_header() { return "id,date_yr,dra_mas,ddec_mas,density_per_mas2\n"; }
+const std::vector<ColumnUnit>& grid_column_units() {
+  static const std::vector<ColumnUnit> cols = {
+      {"id", ""}, {"date_yr", "yr"}, {"dra_mas", "mas"}, {"ddec_mas", "mas"}, {"density_per_mas2", "mas-2"}};
+  return cols;
+}
+
+std::string grid_header() { return header_line(grid_column_units()); }
 
 void append_grid_rows(std::string& out, const std::string& id, const SkyPrediction& p) {
   const int n = p.grid_n;
@@ -203,6 +215,19 @@ SkyPrediction summarize_sky(const std::vector<SkyOffset>& off, double date_yr, c
   }
   for (double& v : r.density) v /= sw * cell * cell;
   return r;
+}
+
+nlohmann::ordered_json prediction_json(const std::string& id, std::size_t n_draws, const SkyPrediction& p) {
+  return {{"id", id},
+          {"date_yr", p.date_yr},
+          {"n_draws", n_draws},
+          {"ess", p.ess},
+          {"sep_mas", quantiles_json({{2.5, p.sep_q[0]}, {16, p.sep_q[1]}, {50, p.sep_q[2]}, {84, p.sep_q[3]},
+                                      {97.5, p.sep_q[4]}})},
+          {"pa_deg", {{"circular_mean", json_number(p.pa_mean_deg)}, {"resultant", json_number(p.pa_resultant)},
+                      {"modes", p.pa_modes_deg}, {"arc68_start", json_number(p.pa_arc68_start_deg)},
+                      {"arc68_width", json_number(p.pa_arc68_width_deg)}}},
+          {"p_in_wa", p.p_in_wa}};
 }
 
 }  // namespace heft

@@ -1,13 +1,16 @@
 #include "heft/rank.hpp"
 
 #include <algorithm>
+#include <charconv>
 #include <chrono>
 #include <cmath>
 #include <nlohmann/json.hpp>
 #include <cstdio>
+#include <set>
 #include <sstream>
 
 #include "heft/error.hpp"
+#include "heft/io.hpp"
 #include "heft/predict.hpp"
 #include "heft/rng.hpp"
 
@@ -162,19 +165,22 @@ void assign_ranks(std::vector<RankRecord>& records) {
   for (std::size_t k = 0; k < records.size(); ++k) records[k].rank = static_cast<long>(k + 1);
 }
 
-const std::vector<std::string>& rank_columns() {
-  static const std::vector<std::string> c = {
-      "id",         "rank",      "score",     "p_detect",  "sig_joint", "a_best_au",          "mass_lo68",
-      "mass_med",   "mass_hi68", "sep_lo68",  "sep_med",   "sep_hi68",  "pa_mode_deg",        "pa_arc68_start_deg",
-      "pa_arc68_width_deg",      "status",    "notes"};
+const std::vector<ColumnUnit>& rank_column_units() {
+  static const std::vector<ColumnUnit> c = {
+      {"id", ""},           {"rank", ""},           {"score", ""},           {"p_detect", ""},
+      {"sig_joint", "sigma"}, {"a_best_au", "AU"},  {"mass_lo68", "Mjup"},   {"mass_med", "Mjup"},
+      {"mass_hi68", "Mjup"}, {"sep_lo68", "mas"},   {"sep_med", "mas"},      {"sep_hi68", "mas"},
+      {"pa_mode_deg", "deg"}, {"pa_arc68_start_deg", "deg"}, {"pa_arc68_width_deg", "deg"},
+      {"status", ""},       {"notes", ""}};
   return c;
 }
 
-std::string rank_header() {
-  std::string h;
-  for (const auto& c : rank_columns()) h += (h.empty() ? "" : ",") + c;
-  return h + '\n';
+const std::vector<std::string>& rank_columns() {
+  static const std::vector<std::string> c = column_names(rank_column_units());
+  return c;
 }
+
+std::string rank_header() { return header_line(rank_column_units()); }
 
 void append_rank_row(std::string& out, const RankRecord& r) {
   append_csv_field(out, r.id);
@@ -241,9 +247,41 @@ std::string ranked_table(const RankRunInfo& info, const std::vector<RankRecord>&
   return out;
 }
 
+namespace {
+
+// A metadata field as JSON: numbers as numbers, comma lists as arrays of
+// numbers, "none" as null; words (paths, versions, the prior text, the
+// shard K/N, the options fingerprint) stay strings.
+nlohmann::ordered_json metadata_json(const std::string& key, const std::string& value) {
+  static const std::set<std::string> integers = {"rows", "draws", "seed", "max_curves"};
+  static const std::set<std::string> numbers = {"date_yr", "iwa_mas", "owa_mas", "detect_sigma"};
+  static const std::set<std::string> lists = {"target_mass_mjup", "a_grid_au", "mass_prior_mjup",
+                                              "host_mass_default_msun"};
+  auto number = [](const std::string& t) {
+    double v = 0.0;
+    return t != "none" && parse_double(t, v) ? json_number(v) : nlohmann::ordered_json(nullptr);
+  };
+  if (integers.count(key)) {
+    std::uint64_t v = 0;  // the seed takes all 64 bits
+    const auto [end, ec] = std::from_chars(value.data(), value.data() + value.size(), v);
+    return ec == std::errc() && end == value.data() + value.size() ? nlohmann::ordered_json(v)
+                                                                   : nlohmann::ordered_json(value);
+  }
+  if (numbers.count(key)) return number(value);
+  if (!lists.count(key)) return value;
+  nlohmann::ordered_json a = nlohmann::ordered_json::array();
+  std::size_t start = 0;
+  for (std::size_t comma; (comma = value.find(',', start)) != std::string::npos; start = comma + 1)
+    a.push_back(number(value.substr(start, comma - start)));
+  a.push_back(number(value.substr(start)));
+  return a;
+}
+
+}  // namespace
+
 std::string ranked_json(const RankRunInfo& info, const std::vector<RankRecord>& ranked) {
   using oj = nlohmann::ordered_json;
-  auto num = [](double v) { return std::isfinite(v) ? oj(v) : oj(nullptr); };
+  const auto num = json_number;
   std::string out = "{\"stars\":[\n";
   std::map<std::string, long> counts;
   for (std::size_t k = 0; k < ranked.size(); ++k) {
@@ -255,8 +293,8 @@ std::string ranked_json(const RankRunInfo& info, const std::vector<RankRecord>& 
                   {"p_detect", num(r.p_detect)},
                   {"sig_joint", num(r.sig_joint)},
                   {"a_best_au", num(r.a_best_au)},
-                  {"mass_mjup", {{"lo68", num(r.mass_lo68)}, {"med", num(r.mass_med)}, {"hi68", num(r.mass_hi68)}}},
-                  {"sep_mas", {{"lo68", num(r.sep_lo68)}, {"med", num(r.sep_med)}, {"hi68", num(r.sep_hi68)}}},
+                  {"mass_mjup", quantiles_json({{16, r.mass_lo68}, {50, r.mass_med}, {84, r.mass_hi68}})},
+                  {"sep_mas", quantiles_json({{16, r.sep_lo68}, {50, r.sep_med}, {84, r.sep_hi68}})},
                   {"pa_deg", {{"mode", num(r.pa_mode_deg)}, {"arc68_start", num(r.pa_arc68_start_deg)},
                               {"arc68_width", num(r.pa_arc68_width_deg)}}},
                   {"status", r.status.text()},
@@ -265,8 +303,9 @@ std::string ranked_json(const RankRunInfo& info, const std::vector<RankRecord>& 
   }
   oj run;
   run["command"] = "rank";
-  for (const auto& [k, v] : info.fields) run[k] = v;
+  for (const auto& [k, v] : info.fields) run[k] = metadata_json(k, v);
   run["rows_per_status"] = counts;
+  run["units"] = units_json(rank_column_units());
   return out + "\n],\n\"run\":" + run.dump() + "}\n";
 }
 

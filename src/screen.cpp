@@ -77,19 +77,11 @@ const std::vector<ColumnUnit>& screen_column_units() {
 }
 
 const std::vector<std::string>& screen_columns() {
-  static const std::vector<std::string> names = [] {
-    std::vector<std::string> n;
-    for (const auto& c : screen_column_units()) n.push_back(c.name);
-    return n;
-  }();
+  static const std::vector<std::string> names = column_names(screen_column_units());
   return names;
 }
 
-std::string screen_header() {
-  std::string h;
-  for (const auto& c : screen_columns()) h += (h.empty() ? "" : ",") + c;
-  return h + '\n';
-}
+std::string screen_header() { return header_line(screen_column_units()); }
 
 namespace {
 // The numeric columns between status and notes, in order.

@@ -11,6 +11,7 @@
 
 #include <Eigen/Core>
 #include <array>
+#include <nlohmann/json.hpp>
 #include <string>
 #include <vector>
 
@@ -124,7 +125,15 @@ Eigen::Vector4d model_anomaly(const Orbit<double>& o, double a_au, double q, dou
 /// name file, line and column.
 std::vector<CurvePoint> read_curve_table(std::istream& in, const std::string& name, std::string& id);
 
-/// Column names of the curve table.
+/// One point of a curve as JSON (the `points` of `heft curve --json`): a_au,
+/// sep_mas, period_yr, weight, the mass quantiles as "mass_mjup" (q2.5,
+/// q16, q50, q84, q97.5; an upper limit's q68 and q95), ess, notes, and for
+/// analytic curves with several roots "roots_mjup" under the same keys.
+nlohmann::ordered_json curve_point_json(const CurvePoint& p, bool upper_limit);
+
+/// The curve table's columns with their units, in output order.
+const std::vector<ColumnUnit>& curve_column_units();
+/// Header line of the curve table (with newline).
 std::string curve_header();
 void append_curve_rows(std::string& out, const std::string& id, const Curve& c);
 

@@ -8,6 +8,8 @@
 #include <string>
 #include <vector>
 
+#include "heft/io.hpp"
+
 namespace heft {
 
 /// One posterior draw of a companion's relative orbit (conventions of
@@ -20,6 +22,8 @@ struct OrbitDraw {
 
 /// Header line (with newline) of the orbit-draw table: id, then the fields
 /// of OrbitDraw in declaration order.
+/// The orbit-draw table's columns with their units, in output order.
+const std::vector<ColumnUnit>& draw_column_units();
 std::string draws_header();
 void append_draw_row(std::string& out, const std::string& id, const OrbitDraw& d);
 

@@ -111,6 +111,29 @@ std::string clip_for_message(std::string_view text, std::size_t max_bytes = 80);
 /// the line and the column.
 nlohmann::json read_json(std::istream& in, const std::string& name);
 
+/// A table column and its unit ("" for dimensionless quantities and text).
+/// Every table heft writes has its list in the library, in output order:
+/// the CSV header is made from it, and the JSON outputs carry the units.
+struct ColumnUnit {
+  std::string name, unit;
+};
+/// The CSV header line of `cols` (with newline).
+std::string header_line(const std::vector<ColumnUnit>& cols);
+/// The column names of `cols`.
+std::vector<std::string> column_names(const std::vector<ColumnUnit>& cols);
+/// {"column": "unit", ...} for the columns of `cols` that have a unit (the
+/// "units" object of the JSON run metadata).
+nlohmann::ordered_json units_json(const std::vector<ColumnUnit>& cols);
+
+/// A JSON number, or null for NaN and infinities (JSON has neither).
+nlohmann::ordered_json json_number(double value);
+
+/// Quantiles as a JSON object in heft's one spelling of the keys: "q" and
+/// the percentage, e.g. {2.5, x} -> "q2.5", {50, y} -> "q50" (every
+/// command's JSON: q2.5, q16, q50, q84, q97.5; q68, q95 for upper limits).
+/// Non-finite values become null.
+nlohmann::ordered_json quantiles_json(std::initializer_list<std::pair<double, double>> percent_value);
+
 /// Shortest decimal text that reads back to exactly `value`
 /// (std::to_chars). NaN and infinities give an empty string.
 std::string format_double(double value);

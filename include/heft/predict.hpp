@@ -7,6 +7,7 @@
 
 #include <iosfwd>
 #include <limits>
+#include <nlohmann/json.hpp>
 #include <string>
 #include <vector>
 
@@ -57,12 +58,20 @@ SkyPrediction summarize_sky(const std::vector<SkyOffset>& offsets, double date_y
 
 /// The prediction table of `heft predict` (docs/formats.md): header and one
 /// row per star and date; `n_draws` is the star's number of draws.
+/// The prediction table's columns with their units, in output order.
+const std::vector<ColumnUnit>& prediction_column_units();
 std::string prediction_header();
 void append_prediction_row(std::string& out, const std::string& id, std::size_t n_draws, const SkyPrediction& p);
 
 /// The density-map table (`heft predict --grid`): header and the n x n
 /// cells of one star and date (cell centres in mas, density per mas^2).
+/// The density grid's columns with their units, in output order.
+const std::vector<ColumnUnit>& grid_column_units();
 std::string grid_header();
+/// One prediction as a JSON object (the per-star entries of `heft predict
+/// --json`; sep_mas quantiles q2.5 ... q97.5).
+nlohmann::ordered_json prediction_json(const std::string& id, std::size_t n_draws, const SkyPrediction& p);
+
 void append_grid_rows(std::string& out, const std::string& id, const SkyPrediction& p);
 
 /// One density map read back from a grid table.

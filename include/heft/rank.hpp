@@ -89,6 +89,8 @@ RankRecord screened_record(const ScreenRow& row);
 void assign_ranks(std::vector<RankRecord>& records);
 
 /// The ranked table's columns (docs/formats.md, "Ranked candidates").
+/// The ranked table's columns with their units, in output order.
+const std::vector<ColumnUnit>& rank_column_units();
 const std::vector<std::string>& rank_columns();
 std::string rank_header();
 void append_rank_row(std::string& out, const RankRecord& r);

@@ -64,10 +64,6 @@ void add_plausibility_notes(const StarRecord& star, std::vector<std::string>& no
 ScreenRow screen_star(const StarRecord& star, const std::string& bad_reason,
                       const ScreenOptions& opt);
 
-/// A table column and its unit ("" for dimensionless or text).
-struct ColumnUnit {
-  std::string name, unit;
-};
 /// The screen table's columns with their units, in output order.
 const std::vector<ColumnUnit>& screen_column_units();
 /// The screen table's column names, in output order.

@@ -27,23 +27,6 @@ struct CurveCliOptions {
   bool quiet = false;
 };
 
-nlohmann::ordered_json point_json(const CurvePoint& p) {
-  auto num = [](double v) { return std::isfinite(v) ? nlohmann::ordered_json(v) : nlohmann::ordered_json(nullptr); };
-  nlohmann::ordered_json j = {
-      {"a_au", p.a_au},           {"sep_mas", p.sep_mas},     {"period_yr", p.period_yr},
-      {"weight", p.weight},       {"mass_lo95", num(p.mass_lo95)}, {"mass_lo68", num(p.mass_lo68)},
-      {"mass_med", num(p.mass_med)}, {"mass_hi68", num(p.mass_hi68)}, {"mass_hi95", num(p.mass_hi95)},
-      {"ess", num(p.ess)},        {"notes", p.notes}};
-  // Analytic curves with several roots: every root of each column.
-  if (has_note(p.notes, "multiple_solutions")) {
-    const char* names[5] = {"lo95", "lo68", "med", "hi68", "hi95"};
-    nlohmann::ordered_json roots;
-    for (int k = 0; k < 5; ++k) roots[names[k]] = p.roots_mjup[k];
-    j["roots_mjup"] = roots;
-  }
-  return j;
-}
-
 int run_curve(CurveCliOptions o) {
   require_distinct_outputs({{"-o", o.output}, {"--json", o.json}, {"--keep-draws", o.keep_draws}});
   const ScreenOptions sopt = resolve_screen_options(o.screen, o.late_spin_table);
@@ -134,7 +117,7 @@ int run_curve(CurveCliOptions o) {
         j["ess_warning"] = low_ess;
       }
       nlohmann::ordered_json pts = nlohmann::ordered_json::array();
-      for (const auto& p : c.points) pts.push_back(point_json(p));
+      for (const auto& p : c.points) pts.push_back(curve_point_json(p, c.upper_limit));
       j["points"] = pts;
     }
     if (json) json->write(std::string(n_json++ ? ",\n" : "") + j.dump());
@@ -152,6 +135,7 @@ int run_curve(CurveCliOptions o) {
     run["detect_sigma"] = copt.prior.detect_sigma;
     run["seed"] = copt.seed;
     run["dark_companion_assumed"] = true;
+    run["units"] = units_json(curve_column_units());
     json->write("\n],\n\"run\":" + run.dump() + "}\n");
     json->commit();
   }

@@ -45,23 +45,14 @@ int run_predict(const PredictCliOptions& o) {
         grid->write(g);
       }
       if (json)
-        jstars.push_back({{"id", st.id},
-                          {"date_yr", date},
-                          {"n_draws", st.draws.size()},
-                          {"ess", p.ess},
-                          {"sep_mas", {{"q2.5", p.sep_q[0]}, {"q16", p.sep_q[1]}, {"q50", p.sep_q[2]},
-                                       {"q84", p.sep_q[3]}, {"q97.5", p.sep_q[4]}}},
-                          {"pa_deg", {{"circular_mean", p.pa_mean_deg}, {"resultant", p.pa_resultant},
-                                      {"modes", p.pa_modes_deg}, {"arc68_start", p.pa_arc68_start_deg},
-                                      {"arc68_width", p.pa_arc68_width_deg}}},
-                          {"p_in_wa", p.p_in_wa}});
+        jstars.push_back(prediction_json(st.id, st.draws.size(), p));
     }
   }
   if (!o.id.empty() && !found) throw InputError(in.name(), 0, 0, "no draws of star '" + o.id + "'");
   if (json) {
-    nlohmann::ordered_json j = {{"predictions", jstars},
+    nlohmann::ordered_json j = {{"stars", jstars},
                                 {"run", {{"heft_version", kVersion}, {"command", "predict"}, {"input", in.name()},
-                                         {"iwa_mas", o.predict.iwa_mas},
+                                         {"units", units_json(prediction_column_units())}, {"iwa_mas", o.predict.iwa_mas},
                                          {"owa_mas", std::isfinite(o.predict.owa_mas) ? nlohmann::ordered_json(o.predict.owa_mas)
                                                                                       : nlohmann::ordered_json(nullptr)}}}};
     json->write(j.dump() + "\n");

@@ -103,6 +103,7 @@ int run_screen(const ScreenCliOptions& o) {
                                      {o.windows.late_start_yr, o.windows.late_end_yr}};
     options["strict"] = o.strict;
     run["options"] = options;
+    run["units"] = units_json(screen_column_units());
     jbuf += "\n],\n\"run\":" + run.dump() + "}\n";
     json->write(jbuf);
     json->commit();
