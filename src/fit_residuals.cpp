@@ -1,5 +1,7 @@
 #include "heft/fit_residuals.hpp"
 
+#include <ceres/ceres.h>
+
 #include <algorithm>
 
 namespace heft {

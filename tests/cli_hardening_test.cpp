@@ -50,7 +50,7 @@ const char* kDrawHeader =
 
 }  // namespace
 
-TEST_CASE("outputs: FIFO and symlink targets stay what they are; two outputs on one path are refused", "[cli][hardening]") {
+TEST_CASE("outputs: FIFO and symlink targets stay what they are, two outputs on one path are refused", "[cli][hardening]") {
   const std::string d = test::fresh_dir("hard_out"), fifo = d + "/pipe", real = d + "/real.csv", link = d + "/link.csv";
   REQUIRE(::mkfifo(fifo.c_str(), 0600) == 0);
   std::string got;

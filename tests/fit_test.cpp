@@ -276,23 +276,3 @@ TEST_CASE("fit: profile and Monte Carlo curves agree on the lower edge and diffe
   REQUIRE(done == 2);
   CHECK(finite_hi < 0.5 * points);
 }
-
-TEST_CASE("heft fit: same output for -j 1 and -j 2; errors name the JSON path", "[fit][cli]") {
-  const std::string star = std::string(HEFT_SOURCE_DIR) + "/demo/followup/KMG-00754.json";
-  const std::string a = test::tmp_path("fit_j1.json"), b = test::tmp_path("fit_j2.json"),
-                    sa = test::tmp_path("fit_j1.csv"), sb = test::tmp_path("fit_j2.csv");
-  const std::string opts = " -q --starts 16 --steps 400 --burn 200 --thin 20";
-  REQUIRE(test::run_heft("fit " + star + opts + " -j 1 -o " + a + " --samples " + sa) == 0);
-  REQUIRE(test::run_heft("fit " + star + opts + " -j 2 -o " + b + " --samples " + sb) == 0);
-  CHECK(test::read_text(a) == test::read_text(b));
-  CHECK(test::read_text(sa) == test::read_text(sb));
-  const nlohmann::json j = nlohmann::json::parse(test::read_text(a));
-  CHECK(j["orbit_constraint"] == "relative_astrometry");
-  CHECK(j["posterior"]["quantiles"]["mass_mjup"]["q50"].get<double>() > 0.0);
-  CHECK(test::read_table(sa).rows.size() % (20u * 64u) == 0);  // 20 kept steps x 64 walkers per mode
-  std::string err;
-  const std::string bad = test::tmp_path("fit_bad.json");
-  test::write_text(bad, "{\"id\": \"X\", \"star\": {}, \"colour\": 1}");
-  CHECK(test::run_heft("fit -q " + bad, &err) == 2);
-  CHECK_THAT(err, Catch::Contains("/colour") && Catch::Contains("unknown key"));
-}

@@ -94,7 +94,7 @@ TEST_CASE("io: a FIFO output is written in place, not replaced", "[io]") {
   CHECK(test::listing(d) == std::vector<std::string>{"pipe"});
 }
 
-TEST_CASE("io: device nodes (made in a temporary folder) stay devices; write errors are reported", "[io]") {
+TEST_CASE("io: device nodes (made in a temporary folder) stay devices, write errors are reported", "[io]") {
   if (::geteuid() != 0) {
     WARN("not root: device-node checks skipped (mknod needs root)");
     return;

@@ -17,15 +17,6 @@ using namespace heft;
 
 namespace {
 
-// Face-on (i = 0) circular orbits at a x parallax = 200 mas, random phases.
-std::vector<OrbitDraw> face_on_ring(int n, std::uint64_t seed) {
-  Rng rng(seed);
-  std::vector<OrbitDraw> d;
-  for (int k = 0; k < n; ++k)
-    d.push_back({10.0, 5.0, 0.0, 0.0, 0.0, 0.0, 360.0 * rng.uniform(), 2016.0, 30.0, 20.0, 1.0, 1.0 / n});
-  return d;
-}
-
 double uniform_360(double x) { return x / 360.0; }
 
 }  // namespace
@@ -34,7 +25,7 @@ TEST_CASE("predict: a circular face-on orbit gives a ring and a uniform position
   // Geometry of a face-on circular orbit (common practice, no source):
   // separation a x parallax at every phase; for i = 0 the position angle is
   // Omega + omega + M, so uniform phases give a uniform position angle.
-  const auto draws = face_on_ring(20000, 5);
+  const auto draws = test::face_on_ring(20000, 5);
   const SkyPrediction p = predict_sky(draws, 2027.5, {150.0, 250.0, 51, 0.0});
   for (double q : p.sep_q) CHECK(q == Approx(200.0).epsilon(1e-9));
   CHECK(p.p_in_wa == Approx(1.0));
@@ -89,36 +80,4 @@ TEST_CASE("predict: shortest arc and modes of a bimodal position angle", "[predi
   REQUIRE(p.pa_modes_deg.size() == 2);
   CHECK(std::fmod(p.pa_modes_deg[0], 360.0) == Approx(350.0).margin(2.0));
   CHECK(p.pa_modes_deg[1] == Approx(170.0).margin(2.0));
-}
-
-TEST_CASE("heft predict and plot sky from fit samples; bad draw tables", "[predict][cli]") {
-  const std::string draws = test::tmp_path("pred_draws.csv"), summary = test::tmp_path("pred.csv"),
-                    grid = test::tmp_path("pred_grid.csv"), svg = test::tmp_path("sky.svg"),
-                    png = test::tmp_path("sky.png");
-  std::string text = draws_header();
-  for (const auto& d : face_on_ring(500, 9)) append_draw_row(text, "RING-1", d);
-  test::write_text(draws, text);
-  REQUIRE(test::run_heft("predict -q " + draws + " --date 2027.5,2028 --iwa 150 --owa 250 -o " + summary +
-                         " --grid " + grid + " --grid-size 40") == 0);
-  const test::Table t = test::read_table(summary);
-  REQUIRE(t.rows.size() == 2);
-  CHECK(t.num(0, "sep_med") == Approx(200.0));
-  CHECK(t.num(1, "p_in_wa") == Approx(1.0));
-  CHECK(test::read_table(grid).rows.size() == 2 * 40 * 40);
-  REQUIRE(test::run_heft("plot sky " + grid + " --iwa 150 --owa 250 --date 2028 -o " + svg) == 0);
-  CHECK(test::read_text(svg).find("outer working angle") != std::string::npos);
-  std::remove(png.c_str());
-  // Rendering check with rsvg-convert (librsvg2-bin, Debian).
-  REQUIRE(std::system(("rsvg-convert " + svg + " -o " + png).c_str()) == 0);
-  // Bad tables name file, line and column.
-  std::string err;
-  std::string bad = text;
-  const auto line2 = bad.find('\n') + 1;
-  bad.replace(bad.find(",10,", line2), 4, ",-3,");
-  test::write_text(draws, bad);
-  CHECK(test::run_heft("predict -q " + draws + " --date 2027", &err) == 2);
-  CHECK_THAT(err, Catch::Contains(":2:") && Catch::Contains("a_au"));
-  test::write_text(draws, "id,a_au\nX,1\n");
-  CHECK(test::run_heft("predict -q " + draws + " --date 2027", &err) == 2);
-  CHECK_THAT(err, Catch::Contains("missing required column"));
 }

@@ -3,7 +3,10 @@
 // everywhere.
 #include <catch2/catch.hpp>
 
+#include <cmath>
+
 #include "heft/curve.hpp"
+#include "heft/error.hpp"
 #include "heft/fit.hpp"
 #include "heft/prior.hpp"
 
@@ -36,4 +39,62 @@ TEST_CASE("prior: one host-mass rule", "[prior]") {
   CHECK(d.host_mass_msun == f.host_mass.center_msun);
   CHECK(d.host_mass_error_msun == f.host_mass.width);
   CHECK(d.host_mass_error_msun == Approx(0.008).epsilon(1e-15));
+}
+
+TEST_CASE("prior: one companion-mass prior for curve, fit and the profile curve", "[prior]") {
+  PriorOptions p;
+  p.m_min_mjup = 2.0;
+  p.m_max_mjup = 50.0;
+  const MassPrior det = p.mass_prior(false), ul = p.mass_prior(true);
+  CHECK_FALSE(det.upper_limit());
+  CHECK(ul.upper_limit());
+  CHECK(det.floor_mjup() == 2.0);
+  CHECK(ul.m_min_mjup == 0.0);  // uniform on [0, m_max]: m_min plays no part
+  CHECK(ul.floor_mjup() == kUpperLimitFloorFraction * 50.0);
+  // Densities of x = ln m: log-uniform in m is flat in x; uniform in m is
+  // proportional to e^x, ln density x (change of variables, dm = m dx).
+  const double x = std::log(10.0);
+  CHECK(det.log_density_ln_mass(x, x) == 0.0);
+  CHECK(ul.log_density_ln_mass(x, x) == x);
+  CHECK(std::isinf(det.log_density_ln_mass(0.0, 0.0)));                          // 1 MJup < m_min
+  CHECK(std::isinf(ul.log_density_ln_mass(std::log(60.0), std::log(60.0))));    // above m_max
+  CHECK(ul.describe().find("uniform in companion mass on [0, m_max]") == 0);
+  CHECK(p.upper_limit(2.99));
+  CHECK_FALSE(p.upper_limit(3.0));
+  CHECK(p.upper_limit(std::nan("")));  // no significance: no detection
+  PriorOptions bad = p;
+  bad.m_min_mjup = 60.0;
+  CHECK_THROWS_AS(bad.validate(), UsageError);
+  bad = p;
+  bad.ecc = {Distribution::Kind::kUniform, 0.0, 1.2};
+  CHECK_THROWS_AS(bad.validate(), UsageError);
+  CHECK_NOTHROW(p.validate());
+
+  // The fit takes the same prior: an upper limit without imaging, a
+  // detection as soon as the star has relative astrometry.
+  StarRecord star;
+  star.id = "P";
+  star.mass_msun = 1.0;
+  star.early = {1991.25, 0, 0, 10, 0, 0, 1, 1, 1, 1, 1, {}, 1989.85, 1993.21};
+  star.late = {2016.0, 0, 0, 10, 0, 0, 0.1, 0.1, 0.1, 0.1, 0.1, {}, 2014.57, 2017.41};
+  bool ok = false;
+  StarFile f = star_file_of(star, kAbsent, kAbsent, ok);
+  REQUIRE(ok);
+  AnomalyResult r;
+  r.sig_joint = 1.0;
+  r.pml_cov = Eigen::Matrix2d::Identity();
+  r.dpm_cov = Eigen::Matrix4d::Identity();
+  r.pml_dpm_cov.setZero();
+  r.pml_late_mas_yr.setZero();
+  r.dpm_late_mas_yr.setZero();
+  r.dpm_early_mas_yr.setZero();
+  FitOptions fo;
+  fo.prior = p;
+  const FitModel limit(f, r, fo);
+  CHECK(limit.upper_limit());
+  CHECK(limit.mass_floor_mjup() == ul.floor_mjup());
+  f.relative.push_back({2024.0, false, 100.0, 50.0, 1.0, 1.0, 0.0});
+  const FitModel imaged(f, r, fo);
+  CHECK_FALSE(imaged.upper_limit());
+  CHECK(imaged.mass_floor_mjup() == det.floor_mjup());
 }

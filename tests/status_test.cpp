@@ -10,7 +10,7 @@
 
 using namespace heft;
 
-TEST_CASE("status: text and parse are inverse; anything else is refused", "[status]") {
+TEST_CASE("status: text and parse are inverse, anything else is refused", "[status]") {
   for (const RowStatus& s : {RowStatus{}, RowStatus::bad_input("missing_value"), RowStatus::failed("curve")}) {
     RowStatus back = RowStatus::failed("x");
     REQUIRE(RowStatus::parse(s.text(), back));

@@ -4,6 +4,7 @@
 #include <erfam.h>
 #include <dirent.h>
 #include <sys/wait.h>
+#include <unistd.h>
 
 #include <algorithm>
 
@@ -12,6 +13,7 @@
 #include <sstream>
 
 #include "heft/io.hpp"
+#include "heft/rng.hpp"
 
 namespace heft::test {
 
@@ -49,7 +51,12 @@ std::vector<std::string> listing(const std::string& dir) {
 }
 
 int run_heft(const std::string& args, std::string* err) {
-  const std::string err_path = tmp_path("last_stderr.txt." + std::to_string(std::rand()));
+  // Unique across the test processes ctest runs side by side (an unseeded
+  // std::rand gave every process the same name, so parallel tests read and
+  // removed each other's stderr).
+  static int calls = 0;
+  const std::string err_path =
+      tmp_path("last_stderr.txt." + std::to_string(getpid()) + "." + std::to_string(calls++));
   const std::string cmd = std::string(HEFT_BINARY) + " " + args + " 2>" + err_path;
   const int status = std::system(cmd.c_str());
   if (err) *err = read_text(err_path);
@@ -114,6 +121,14 @@ ScreenRow simulate_and_screen(const SurveyModel& model, long index, StarRecord& 
                               SimTruth& truth) {
   simulate_star(model, index, star, truth);
   return screen_star(star, validate_star(star), ScreenOptions{});
+}
+
+std::vector<OrbitDraw> face_on_ring(int n, std::uint64_t seed) {
+  Rng rng(seed);
+  std::vector<OrbitDraw> d;
+  for (int k = 0; k < n; ++k)
+    d.push_back({10.0, 5.0, 0.0, 0.0, 0.0, 0.0, 360.0 * rng.uniform(), 2016.0, 30.0, 20.0, 1.0, 1.0 / n});
+  return d;
 }
 
 }  // namespace heft::test

@@ -6,6 +6,7 @@
 #include <vector>
 
 #include "heft/catalog.hpp"
+#include "heft/draws.hpp"
 #include "heft/propagate.hpp"
 #include "heft/screen.hpp"
 #include "heft/simulate.hpp"
@@ -44,6 +45,10 @@ Astrometry entry(const SkyState<double>& s, double epoch_yr, double pos_err, dou
 /// The state at `epoch_to` of a star whose late state is `late` (ERFA
 /// eraStarpm with its light-time term, i.e. the reference library).
 SkyState<double> erfa_propagate(const SkyState<double>& s, double epoch_from, double epoch_to);
+
+/// Face-on (i = 0) circular orbits at a x parallax = 200 mas, random phases:
+/// n equal-weight draws of one star.
+std::vector<OrbitDraw> face_on_ring(int n, std::uint64_t seed);
 
 /// Simulates star `index` of `model` and screens it with default options.
 ScreenRow simulate_and_screen(const SurveyModel& model, long index, StarRecord& star,

@@ -20,6 +20,9 @@ for f in "$root"/include/heft/*.hpp "$root"/include/heft/*.hpp.in "$root"/src/*.
   if [ -z "${layer[$m]+x}" ]; then
     echo "$f: module '$m' has no layer in docs/architecture.md"; bad=1; continue
   fi
+  if [[ $f == */include/heft/* ]] && grep -n -e '#include <ceres/ceres.h>' -e '#include <glog/' "$f"; then
+    echo "$f: a public header includes glog (through <ceres/ceres.h>), whose CHECK replaces Catch's in the tests"; bad=1
+  fi
   if grep -n '#include "cli/' "$f"; then
     echo "$f: a library file includes a CLI header"; bad=1
   fi

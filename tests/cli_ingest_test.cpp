@@ -74,7 +74,7 @@ const char* kMap = R"({
 })";
 }  // namespace
 
-TEST_CASE("ingest by key, pairs and position; round trip into screen", "[cli][ingest]") {
+TEST_CASE("ingest by key, pairs and position, round trip into screen", "[cli][ingest]") {
   const std::string e = tmp_path("raw_early.csv"), l = tmp_path("raw_late.csv"),
                     map = tmp_path("map.json");
   write_raw(e, l);

@@ -2,6 +2,7 @@
 // shards, resume after a kill, bad instrument files.
 
 #include <catch2/catch.hpp>
+#include <nlohmann/json.hpp>
 #include <chrono>
 #include <cmath>
 #include <csignal>
@@ -106,6 +107,22 @@ TEST_CASE("rank: -j 1 equals -j 2, and shards merged equal a single run", "[rank
   REQUIRE(test::run_heft("merge -q" + parts + " -o " + merged + " --json " + mj) == 0);
   CHECK(test::read_text(merged) == test::read_text(one));
   CHECK(test::read_text(mj) == test::read_text(j1));
+  // docs/formats.md, JSON outputs: q-keyed quantiles, numbers as numbers,
+  // the 64-bit seed exact, units.
+  const auto j = nlohmann::json::parse(test::read_text(j1));
+  const test::Table ranked = test::read_table(one);
+  REQUIRE(j["stars"].size() == ranked.rows.size());
+  CHECK(j["stars"][0]["mass_mjup"]["q50"].get<double>() == ranked.num(0, "mass_med"));
+  CHECK(j["stars"][0]["sep_mas"].contains("q16"));
+  CHECK(j["run"]["rows"].get<long>() == 200);
+  CHECK(j["run"]["date_yr"].get<double>() == 2027.5);
+  CHECK(j["run"]["target_mass_mjup"] == nlohmann::json::array({5.0, 80.0}));
+  CHECK(j["run"]["units"]["sep_med"] == "mas");
+  const std::string big_seed = test::tmp_path("shard_seed.json");
+  REQUIRE(test::run_heft("rank " + stars + kRankArgs + kFast +
+                         " --max-curves 1 --seed 18446744073709551615 -o /dev/null --json " + big_seed) == 0);
+  CHECK(nlohmann::json::parse(test::read_text(big_seed))["run"]["seed"].get<std::uint64_t>() ==
+        18446744073709551615ULL);
   // A missing shard and a duplicated one are errors naming the problem.
   std::string err;
   const std::string p1 = test::tmp_path("shard_part1.csv"), p2 = test::tmp_path("shard_part2.csv");

@@ -1,0 +1,98 @@
+// heft curve and heft plot curve end to end: determinism, JSON, bad input, SVG.
+#include <catch2/catch.hpp>
+#include <nlohmann/json.hpp>
+#include "heft/calibration.hpp"
+#include "heft/curve.hpp"
+#include "heft/screen.hpp"
+#include "test_util.hpp"
+using namespace heft;
+
+TEST_CASE("heft curve CLI: deterministic, modes in JSON, bad input", "[curve][cli]") {
+  const std::string stars = test::tmp_path("curve_stars.csv");
+  REQUIRE(test::run_heft("simulate -q --stars 6 --seed 31 --companion-fraction 0.5 --a loguniform:2,10 "
+                         "--companion-mass loguniform:20,80 --distance uniform:20,40 -o " + stars) == 0);
+  const std::string o1 = test::tmp_path("curve1.csv"), o2 = test::tmp_path("curve2.csv"),
+                    js = test::tmp_path("curve.json");
+  const std::string args = "curve -q " + stars + " --n-a 6 --draws 256 --a-min 1 --a-max 100 ";
+  REQUIRE(test::run_heft(args + "-j 1 -o " + o1 + " --json " + js) == 0);
+  REQUIRE(test::run_heft(args + "-j 2 -o " + o2) == 0);
+  CHECK(test::read_text(o1) == test::read_text(o2));
+  const auto t = test::read_table(o1);
+  CHECK(t.header == std::vector<std::string>{"id", "a_au", "sep_mas", "period_yr", "weight", "mass_lo95",
+                                             "mass_lo68", "mass_med", "mass_hi68", "mass_hi95", "notes"});
+  const auto j = nlohmann::json::parse(test::read_text(js));
+  REQUIRE(j["stars"].size() == 6);
+  // docs/formats.md, JSON outputs: quantiles keyed q<percent>, the CSV's
+  // numbers to the bit, units in the run object.
+  bool compared = false;
+  for (const auto& s : j["stars"]) {
+    CHECK((s["mode"] == "detection" || s["mode"] == "upper_limit"));
+    CHECK(s["dark_companion_assumed"] == true);
+    for (const auto& p : s["points"]) {
+      const auto& m = p["mass_mjup"];
+      const std::vector<std::string> keys = s["mode"] == "detection"
+                                                ? std::vector<std::string>{"q16", "q2.5", "q50", "q84", "q97.5"}
+                                                : std::vector<std::string>{"q68", "q95"};
+      std::vector<std::string> got;
+      for (const auto& [k, v] : m.items()) got.push_back(k);
+      CHECK(got == keys);
+    }
+    if (compared || s["mode"] != "detection") continue;
+    for (std::size_t r = 0; r < t.rows.size(); ++r)
+      if (t.str(r, "id") == s["id"] && t.num(r, "a_au") == s["points"][0]["a_au"].get<double>()) {
+        CHECK(s["points"][0]["mass_mjup"]["q50"].get<double>() == t.num(r, "mass_med"));
+        compared = true;
+        break;
+      }
+  }
+  CHECK(compared);
+  CHECK(j["run"]["units"]["sep_mas"] == "mas");
+  CHECK(j["run"]["units"]["mass_med"] == "Mjup");
+  CHECK(j["run"]["mass_prior"]["upper_limit"].get<std::string>().find("uniform in companion mass on [0, m_max]") == 0);
+  // Empty mass values and no --host-mass: bad_input:no_host_mass, exit 4.
+  const auto tab = test::read_table(stars);
+  std::string csv;
+  for (std::size_t i = 0; i < tab.header.size(); ++i) csv += (i ? "," : "") + tab.header[i];
+  csv += "\n";
+  for (auto row : tab.rows) {
+    row[tab.col("mass")] = "";
+    for (std::size_t i = 0; i < row.size(); ++i) csv += (i ? "," : "") + row[i];
+    csv += "\n";
+  }
+  const std::string no_mass = test::tmp_path("curve_nomass.csv"), js2 = test::tmp_path("curve_nomass.json");
+  test::write_text(no_mass, csv);
+  CHECK(test::run_heft(args.substr(0, 9) + no_mass + " --n-a 3 --draws 64 -o /dev/null --json " + js2) == 4);
+  CHECK(nlohmann::json::parse(test::read_text(js2))["stars"][0]["status"] == "bad_input:no_host_mass");
+  CHECK(test::run_heft(args.substr(0, 9) + no_mass + " --n-a 3 --draws 64 -o /dev/null --host-mass 1.1") == 0);
+  std::string err;
+  CHECK(test::run_heft("curve -q " + stars + " --id NOPE", &err) == 2);
+  CHECK(err.find("NOPE") != std::string::npos);
+  CHECK(test::run_heft("curve -q " + stars + " --ecc beta:1", &err) == 1);  // a bad option value is a usage error
+}
+
+TEST_CASE("heft plot curve writes an SVG that renders", "[curve][cli][plot]") {
+  // Rendering check with rsvg-convert (librsvg2-bin, Debian).
+  const std::string stars = test::tmp_path("plot_stars.csv"), curve = test::tmp_path("plot_curve.csv"),
+                    svg = test::tmp_path("plot.svg"), png = test::tmp_path("plot.png");
+  REQUIRE(test::run_heft("simulate -q --stars 3 --seed 8 --companion-fraction 1 --a loguniform:3,10 "
+                         "--companion-mass loguniform:30,60 --distance uniform:20,30 -o " + stars) == 0);
+  REQUIRE(test::run_heft("curve -q " + stars + " --n-a 8 --draws 256 -o " + curve) == 0);
+  REQUIRE(test::run_heft("plot curve " + curve + " -o " + svg) == 0);
+  const std::string text = test::read_text(svg);
+  CHECK(text.find("<svg") != std::string::npos);
+  CHECK(text.find("semi-major axis a (AU)") != std::string::npos);
+  CHECK(text.find("projected separation") != std::string::npos);
+  CHECK(text.find("deuterium burning") != std::string::npos);
+  std::remove(png.c_str());
+  REQUIRE(std::system(("rsvg-convert " + svg + " -o " + png).c_str()) == 0);
+  CHECK(test::read_text(png).size() > 5000);
+  // A malformed curve table names file, line and column.
+  std::string bad = test::read_text(curve);
+  const auto second = bad.find('\n') + 1;
+  const auto comma = bad.find(',', second);
+  bad.replace(comma + 1, bad.find(',', comma + 1) - comma - 1, "x1");
+  test::write_text(curve, bad);
+  std::string err;
+  CHECK(test::run_heft("plot curve " + curve + " -o " + svg, &err) == 2);
+  CHECK(err.find(curve + ":2:") != std::string::npos);
+}

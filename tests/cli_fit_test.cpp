@@ -1,0 +1,35 @@
+// heft fit end to end: thread-count determinism, JSON errors, the JSON schema.
+#include <catch2/catch.hpp>
+#include <cmath>
+#include <fstream>
+#include <nlohmann/json.hpp>
+#include <sstream>
+#include "heft/error.hpp"
+#include "heft/fit.hpp"
+#include "heft/simulate.hpp"
+#include "test_util.hpp"
+using namespace heft;
+
+TEST_CASE("heft fit: same output for -j 1 and -j 2, errors name the JSON path", "[fit][cli]") {
+  const std::string star = std::string(HEFT_SOURCE_DIR) + "/demo/followup/KMG-00754.json";
+  const std::string a = test::tmp_path("fit_j1.json"), b = test::tmp_path("fit_j2.json"),
+                    sa = test::tmp_path("fit_j1.csv"), sb = test::tmp_path("fit_j2.csv");
+  const std::string opts = " -q --starts 16 --steps 400 --burn 200 --thin 20";
+  REQUIRE(test::run_heft("fit " + star + opts + " -j 1 -o " + a + " --samples " + sa) == 0);
+  REQUIRE(test::run_heft("fit " + star + opts + " -j 2 -o " + b + " --samples " + sb) == 0);
+  CHECK(test::read_text(a) == test::read_text(b));
+  CHECK(test::read_text(sa) == test::read_text(sb));
+  const nlohmann::json j = nlohmann::json::parse(test::read_text(a));
+  CHECK(j["orbit_constraint"] == "relative_astrometry");
+  CHECK(j["posterior"]["quantiles"]["mass_mjup"]["q50"].get<double>() > 0.0);
+  // The priors' words come from the library (prior.hpp), with the values.
+  CHECK(j["priors"]["mass"] == "log-uniform in companion mass on [m_min, m_max]; 0.1 to 200 MJup");
+  CHECK(j["priors"]["mass_floor_mjup"].get<double>() == 0.1);
+  CHECK(j["run"]["units"]["a_au"] == "AU");
+  CHECK(test::read_table(sa).rows.size() % (20u * 64u) == 0);  // 20 kept steps x 64 walkers per mode
+  std::string err;
+  const std::string bad = test::tmp_path("fit_bad.json");
+  test::write_text(bad, "{\"id\": \"X\", \"star\": {}, \"colour\": 1}");
+  CHECK(test::run_heft("fit -q " + bad, &err) == 2);
+  CHECK_THAT(err, Catch::Contains("/colour") && Catch::Contains("unknown key"));
+}
