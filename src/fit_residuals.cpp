@@ -26,10 +26,10 @@ void add_residual_blocks(ceres::Problem& problem, const FitModel& m, const Pinne
   const int nc = kFitCore + m.n_instruments(), nj = m.n_instruments();
   std::vector<double*> blocks = {p.data()};
   if (nj > 0) blocks.push_back(p.data() + nc);
-  add_block(problem, m, blocks, AnomalyResidual{&m, &pinned});
-  for (int k = 0; k < m.n_relative(); ++k) add_block(problem, m, blocks, RelativeResidual{&m, &pinned, k});
-  for (int k = 0; k < m.n_rv(); ++k) add_block(problem, m, blocks, RvResidual{&m, &pinned, k});
-  add_block(problem, m, blocks, PriorResidual{&m, &pinned});
+  add_block(problem, m, blocks, AnomalyResidual{{&m, &pinned}});
+  for (int k = 0; k < m.n_relative(); ++k) add_block(problem, m, blocks, RelativeResidual{{&m, &pinned}, k});
+  for (int k = 0; k < m.n_rv(); ++k) add_block(problem, m, blocks, RvResidual{{&m, &pinned}, k});
+  add_block(problem, m, blocks, PriorResidual{{&m, &pinned}});
   if (nj > 0) problem.SetParameterBlockConstant(p.data() + nc);
 }
 

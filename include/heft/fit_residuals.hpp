@@ -39,30 +39,36 @@ void gather_params(const FitModel& m, const Pinned& pinned, T const* const* bloc
   pinned.apply(p);
 }
 
-/// The six whitened catalogue proper motions (FitModel::anomaly_residuals).
-struct AnomalyResidual {
-  static constexpr int kSize = 6;
+/// What every residual functor shares: gather the parameters from the
+/// blocks, then the observation's own residuals (Derived::residuals).
+template <typename Derived>
+struct BlockResidual {
   const FitModel* model;
   const Pinned* pinned;
   template <typename T>
   bool operator()(T const* const* blocks, T* r) const {
     T p[kMaxFitParams];
     gather_params(*model, *pinned, blocks, p);
+    return static_cast<const Derived&>(*this).residuals(p, r);
+  }
+};
+
+/// The six whitened catalogue proper motions (FitModel::anomaly_residuals).
+struct AnomalyResidual : BlockResidual<AnomalyResidual> {
+  static constexpr int kSize = 6;
+  template <typename T>
+  bool residuals(const T* p, T* r) const {
     model->anomaly_residuals(model->orbit_at(p), p, r);
     return true;
   }
 };
 
 /// One relative-astrometry epoch (FitModel::relative_residuals).
-struct RelativeResidual {
+struct RelativeResidual : BlockResidual<RelativeResidual> {
   static constexpr int kSize = 2;
-  const FitModel* model;
-  const Pinned* pinned;
   int epoch;
   template <typename T>
-  bool operator()(T const* const* blocks, T* r) const {
-    T p[kMaxFitParams];
-    gather_params(*model, *pinned, blocks, p);
+  bool residuals(const T* p, T* r) const {
     model->relative_residuals(model->orbit_at(p), p, epoch, r);
     return true;
   }
@@ -70,15 +76,11 @@ struct RelativeResidual {
 
 /// One host RV (FitModel::rv_residual); its log-normaliser is constant
 /// while the jitters are held.
-struct RvResidual {
+struct RvResidual : BlockResidual<RvResidual> {
   static constexpr int kSize = 1;
-  const FitModel* model;
-  const Pinned* pinned;
   int index;
   template <typename T>
-  bool operator()(T const* const* blocks, T* r) const {
-    T p[kMaxFitParams];
-    gather_params(*model, *pinned, blocks, p);
+  bool residuals(const T* p, T* r) const {
     T extra(0.0);
     r[0] = model->rv_residual(model->orbit_at(p), p, index, extra);
     return true;
@@ -87,14 +89,10 @@ struct RvResidual {
 
 /// The host-mass and parallax priors; also the prior's support, so that a
 /// step outside it fails the whole evaluation.
-struct PriorResidual {
+struct PriorResidual : BlockResidual<PriorResidual> {
   static constexpr int kSize = 2;
-  const FitModel* model;
-  const Pinned* pinned;
   template <typename T>
-  bool operator()(T const* const* blocks, T* r) const {
-    T p[kMaxFitParams];
-    gather_params(*model, *pinned, blocks, p);
+  bool residuals(const T* p, T* r) const {
     double v[kMaxFitParams];
     for (int i = 0; i < model->n_params(); ++i) v[i] = scalar_of(p[i]);
     if (!model->in_support(v)) return false;
