@@ -157,6 +157,30 @@ double* star_field(StarRecord& star, std::string_view name, bool* required) {
   return nullptr;
 }
 
+const std::vector<ColumnUnit>& star_column_units() {
+  static const std::vector<ColumnUnit> cols = [] {
+    std::vector<ColumnUnit> c = {{"id", ""}};
+    auto ends = [](const std::string& s, const std::string& t) {
+      return s.size() >= t.size() && s.compare(s.size() - t.size(), t.size(), t) == 0;
+    };
+    for (const auto& n : star_field_names()) {
+      const char* u = "";
+      if (ends(n, "_epoch") || ends(n, "_window_start") || ends(n, "_window_end")) u = "yr";
+      else if (ends(n, "_corr")) u = "";
+      else if (ends(n, "_pmra") || ends(n, "_pmdec") || ends(n, "_pmra_error") || ends(n, "_pmdec_error")) u = "mas/yr";
+      else if (ends(n, "_ra") || ends(n, "_dec")) u = "deg";
+      else if (ends(n, "_parallax") || ends(n, "_error")) u = n == "mass_error" ? "Msun" : n == "rv_error" ? "km/s" : "mas";
+      else if (n == "mass") u = "Msun";
+      else if (n == "rv") u = "km/s";
+      else if (n == "mag") u = "mag";
+      else if (n == "age_myr") u = "Myr";
+      c.push_back({n, u});
+    }
+    return c;
+  }();
+  return cols;
+}
+
 std::vector<std::string> star_field_names() {
   std::vector<std::string> names;
   for (const auto& c : columns()) names.push_back(c.name);

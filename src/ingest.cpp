@@ -126,6 +126,7 @@ FieldSource parse_source(const nlohmann::json& j, Kind kind, const std::string& 
                                     unit_list(kind) + ")");
     src.scale = it->scale;
     src.offset = it->offset;
+    src.unit = unit;
     if (!std::isnan(src.constant)) src.constant = src.constant * src.scale + src.offset;
   }
   return src;
@@ -438,6 +439,14 @@ StarRecord join_entries(const RawEntry& early, const RawEntry& late) {
          : !late.key.empty()      ? late.key
                                   : early.key;
   return s;
+}
+
+std::vector<ColumnUnit> map_column_units(const EpochMap& map) {
+  std::vector<ColumnUnit> out;
+  for (const auto* fields : {&map.fields, &map.star_fields})
+    for (const auto& [name, src] : *fields)
+      if (!src.column.empty() && !src.unit.empty()) out.push_back({src.column, src.unit});
+  return out;
 }
 
 }  // namespace heft

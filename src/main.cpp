@@ -33,6 +33,7 @@ int main(int argc, char** argv) {
   setup_merge(app, run);
   setup_plot(app, run);
   setup_simulate(app, run);
+  setup_convert(app, run);
   try {
     app.parse(argc, argv);
   } catch (const CLI::ParseError& e) {

@@ -168,7 +168,7 @@ void assign_ranks(std::vector<RankRecord>& records) {
 const std::vector<ColumnUnit>& rank_column_units() {
   static const std::vector<ColumnUnit> c = {
       {"id", ""},           {"rank", ""},           {"score", ""},           {"p_detect", ""},
-      {"sig_joint", "sigma"}, {"a_best_au", "AU"},  {"mass_lo68", "Mjup"},   {"mass_med", "Mjup"},
+      {"sig_joint", ""}, {"a_best_au", "AU"},  {"mass_lo68", "Mjup"},   {"mass_med", "Mjup"},
       {"mass_hi68", "Mjup"}, {"sep_lo68", "mas"},   {"sep_med", "mas"},      {"sep_hi68", "mas"},
       {"pa_mode_deg", "deg"}, {"pa_arc68_start_deg", "deg"}, {"pa_arc68_width_deg", "deg"},
       {"status", ""},       {"notes", ""}};

@@ -68,10 +68,10 @@ const std::vector<ColumnUnit>& screen_column_units() {
       {"pml_ra", "mas/yr"},          {"pml_dec", "mas/yr"},      {"pml_ra_error", "mas/yr"},
       {"pml_dec_error", "mas/yr"},   {"dpm_late_ra", "mas/yr"},  {"dpm_late_dec", "mas/yr"},
       {"dpm_late_ra_error", "mas/yr"}, {"dpm_late_dec_error", "mas/yr"}, {"dpm_late_corr", ""},
-      {"chi2_late", ""},             {"sig_late", "sigma"},      {"dpm_early_ra", "mas/yr"},
+      {"chi2_late", ""},             {"sig_late", ""},      {"dpm_early_ra", "mas/yr"},
       {"dpm_early_dec", "mas/yr"},   {"dpm_early_ra_error", "mas/yr"}, {"dpm_early_dec_error", "mas/yr"},
       {"dpm_early_corr", ""},        {"chi2_early", ""},         {"chi2_joint", ""},
-      {"sig_joint", "sigma"},        {"reflex_vel_late_m_s", "m/s"}, {"reflex_vel_late_error_m_s", "m/s"},
+      {"sig_joint", ""},        {"reflex_vel_late_m_s", "m/s"}, {"reflex_vel_late_error_m_s", "m/s"},
       {"notes", ""}};
   return cols;
 }

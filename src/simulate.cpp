@@ -203,11 +203,17 @@ RelativeEpoch observe_companion(const SimTruth& t, double late_epoch_yr, double 
           sep_error_mas, pa_error_deg, 0.0};
 }
 
-std::string truth_header() {
-  return "id,host_mass,parallax,distance_pc,rv_true,companion,mass_mjup,a_au,period_yr,ecc,"
-         "inc_deg,arg_peri_deg,node_deg,mean_anom_late_deg,dpm_late_ra,dpm_late_dec,"
-         "dpm_early_ra,dpm_early_dec\n";
+const std::vector<ColumnUnit>& truth_column_units() {
+  static const std::vector<ColumnUnit> cols = {
+      {"id", ""},           {"host_mass", "Msun"},     {"parallax", "mas"},        {"distance_pc", "pc"},
+      {"rv_true", "km/s"},  {"companion", ""},         {"mass_mjup", "Mjup"},      {"a_au", "AU"},
+      {"period_yr", "yr"},  {"ecc", ""},               {"inc_deg", "deg"},         {"arg_peri_deg", "deg"},
+      {"node_deg", "deg"},  {"mean_anom_late_deg", "deg"}, {"dpm_late_ra", "mas/yr"}, {"dpm_late_dec", "mas/yr"},
+      {"dpm_early_ra", "mas/yr"}, {"dpm_early_dec", "mas/yr"}};
+  return cols;
 }
+
+std::string truth_header() { return header_line(truth_column_units()); }
 
 void append_truth_row(std::string& out, const SimTruth& t) {
   append_csv_field(out, t.id);

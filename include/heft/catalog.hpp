@@ -106,6 +106,9 @@ class StarTableReader {
 double* star_field(StarRecord& star, std::string_view name, bool* required = nullptr);
 /// The canonical numeric column names, in table order.
 std::vector<std::string> star_field_names();
+/// The canonical star table's columns (id first) with heft's units: what a
+/// FITS or ECSV star table is converted into (tablefile.hpp).
+const std::vector<ColumnUnit>& star_column_units();
 
 /// Validates a record; returns "" when valid, else the reason.
 std::string validate_star(const StarRecord& star);

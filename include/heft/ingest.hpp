@@ -19,6 +19,7 @@ namespace heft {
 /// (to the canonical unit, plus `offset` for time units), or a constant.
 struct FieldSource {
   std::string column;     ///< empty: use `constant`
+  std::string unit;       ///< the unit the map gives the column in
   double scale = 1.0;
   double offset = 0.0;
   double constant = kAbsent;
@@ -40,6 +41,11 @@ struct IngestMap {
 /// Parses and checks a column map. Throws InputError naming the JSON path
 /// (e.g. "/late/columns/pmra/unit") and the rule broken.
 IngestMap parse_ingest_map(const nlohmann::json& j, const std::string& file);
+
+/// The map's source columns with the units it gives them: what a FITS or
+/// ECSV raw extract is converted into before the map's own conversion
+/// (tablefile.hpp).
+std::vector<ColumnUnit> map_column_units(const EpochMap& map);
 
 /// One row of a raw catalogue after mapping and unit conversion.
 struct RawEntry {

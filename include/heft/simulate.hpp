@@ -96,6 +96,8 @@ RelativeEpoch observe_companion(const SimTruth& t, double late_epoch_yr, double 
                                 double sep_error_mas, double pa_error_deg, Rng& rng);
 
 /// Truth table header and rows (CSV, with newline).
+/// The truth table's columns with their units, in output order.
+const std::vector<ColumnUnit>& truth_column_units();
 std::string truth_header();
 void append_truth_row(std::string& out, const SimTruth& t);
 

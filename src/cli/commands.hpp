@@ -6,6 +6,7 @@
 
 namespace heft::cli {
 void setup_ingest(CLI::App& app, Runner& run);
+void setup_convert(CLI::App& app, Runner& run);
 void setup_curve(CLI::App& app, Runner& run);
 void setup_fit(CLI::App& app, Runner& run);
 void setup_predict(CLI::App& app, Runner& run);

@@ -67,6 +67,17 @@ CLI::Option* add_pair_option(CLI::App* app, const std::string& name, double& a, 
       ->type_name("A,B");
 }
 
+void add_format_option(CLI::App* app, std::string& format) {
+  app->add_option("--format", format,
+                  "format of the -o table: csv, ecsv (astropy's Enhanced CSV, with units) or fits (binary table "
+                  "with TUNIT); default: from the extension (.ecsv, .fits), else csv")
+      ->check(CLI::IsMember({"csv", "ecsv", "fits"}));
+}
+
+TableFormat format_for(const std::string& path, const std::string& format) {
+  return output_table_format(path, format, "--format");
+}
+
 void add_prior_options(CLI::App* app, PriorOptions& prior, std::string& ecc_text, const std::string& detect_help) {
   ecc_text = prior.ecc.str();
   app->add_option("--m-min", prior.m_min_mjup, "lower bound of the log-uniform mass prior of detections (MJup)")

@@ -11,6 +11,7 @@
 
 #include "heft/catalog.hpp"
 #include "heft/prior.hpp"
+#include "heft/tablefile.hpp"
 #include "heft/screen.hpp"
 
 namespace heft::cli {
@@ -65,6 +66,12 @@ ScreenOptions resolve_screen_options(const ScreenOptions& screen, const std::str
 void add_prior_options(CLI::App* app, PriorOptions& prior, std::string& ecc_text, const std::string& detect_help);
 /// Parses --ecc into `prior` and validates the priors (UsageError, exit 1).
 void resolve_prior_options(PriorOptions& prior, const std::string& ecc_text);
+
+/// Adds --format (csv, ecsv, fits) for the table written by -o.
+void add_format_option(CLI::App* app, std::string& format);
+/// The format of an output table: `format` for -o (from --format), else
+/// from the path's extension.
+TableFormat format_for(const std::string& path, const std::string& format = "");
 
 /// Counts rows by status; prints one summary line per non-ok status.
 class StatusCounter {

@@ -14,7 +14,7 @@ namespace heft::cli {
 namespace {
 
 struct CurveCliOptions {
-  std::string input, output = "-", json, keep_draws, id, method = "montecarlo", ecc;
+  std::string input, output = "-", json, keep_draws, id, method = "montecarlo", ecc, format;
   std::string late_spin_table;
   ScreenOptions screen;
   WindowDefaults windows;
@@ -44,16 +44,17 @@ int run_curve(CurveCliOptions o) {
   if (o.method != "montecarlo") copt.refine_rounds = 0;
   if (o.threads > 0) omp_set_num_threads(o.threads);
 
-  InputFile in(o.input);
+  TableInput in(o.input, star_column_units());
   StarTableReader reader(in.stream(), in.name(), o.windows);
-  AtomicOutput out(o.output);
-  std::unique_ptr<AtomicOutput> json, draws;
+  TableOutput out(o.output, format_for(o.output, o.format), curve_column_units());
+  std::unique_ptr<AtomicOutput> json;
+  std::unique_ptr<TableOutput> draws;
   if (!o.json.empty()) {
     json = std::make_unique<AtomicOutput>(o.json);
     json->write("{\"stars\":[\n");
   }
   if (copt.keep_draws) {
-    draws = std::make_unique<AtomicOutput>(o.keep_draws);
+    draws = std::make_unique<TableOutput>(o.keep_draws, format_for(o.keep_draws), draw_column_units());
     draws->write(draws_header());
   }
   out.write(curve_header());
@@ -157,7 +158,8 @@ void setup_curve(CLI::App& app, Runner& run) {
       "posterior mass quantiles (MJup) per trial semi-major axis (AU).");
   sub->add_option("stars", o->input, "canonical star table (CSV; '-' = stdin)")->required();
   sub->add_option("--id", o->id, "only this star (default: every row)");
-  sub->add_option("-o,--output", o->output, "curve table (CSV); default stdout");
+  sub->add_option("-o,--output", o->output, "curve table (CSV, ECSV or FITS); default stdout");
+  add_format_option(sub, o->format);
   sub->add_option("--json", o->json, "also write the curves as JSON (mode, ESS, priors)");
   sub->add_option("--keep-draws", o->keep_draws,
                   "write weighted posterior orbit draws (CSV, docs/formats.md) for heft predict");

@@ -12,7 +12,7 @@ namespace heft::cli {
 namespace {
 
 struct IngestCliOptions {
-  std::string early, late, map, output = "-", key_early, key_late, xmatch, unmatched;
+  std::string early, late, map, output = "-", key_early, key_late, xmatch, unmatched, format;
   double match_radius_arcsec = 0.0;
   bool quiet = false;
 };
@@ -40,12 +40,12 @@ int run_ingest(const IngestCliOptions& o) {
       !map.early.star_fields.count("id"))
     throw InputError::at_json(o.map, "/late/star/id",
                               "matching by position needs the stars' ids: map an 'id' column or give --key-late COLUMN");
-  InputFile fe(o.early), fl(o.late);
+  TableInput fe(o.early, map_column_units(map.early)), fl(o.late, map_column_units(map.late));
   const auto early = read_raw_catalogue(fe.stream(), fe.name(), map.early, o.key_early);
   const auto late = read_raw_catalogue(fl.stream(), fl.name(), map.late, o.key_late);
   MatchResult m;
   if (!o.xmatch.empty()) {
-    InputFile fx(o.xmatch);
+    TableInput fx(o.xmatch);
     m = match_by_pairs(early, late, read_pairs(fx.stream(), fx.name()));
   } else if (by_key) {
     m = match_by_key(early, late);
@@ -67,7 +67,7 @@ int run_ingest(const IngestCliOptions& o) {
     um = std::make_unique<AtomicOutput>(o.unmatched);
     um->write(list);
   }
-  AtomicOutput sink(o.output);
+  TableOutput sink(o.output, format_for(o.output, o.format), star_column_units());
   sink.write(out);
   sink.commit();
   if (um) um->commit();
@@ -92,11 +92,12 @@ void setup_ingest(CLI::App& app, Runner& run) {
       "ingest",
       "Join two raw catalogue extracts (arbitrary column names and units, described by a JSON "
       "map) into the canonical star table.");
-  sub->add_option("--early", o->early, "raw extract of the early catalogue (CSV)")->required();
-  sub->add_option("--late", o->late, "raw extract of the late catalogue (CSV)")->required();
+  sub->add_option("--early", o->early, "raw extract of the early catalogue (CSV, ECSV or FITS; file.fits[N] for an extension)")->required();
+  sub->add_option("--late", o->late, "raw extract of the late catalogue (CSV, ECSV or FITS)")->required();
   sub->add_option("--map", o->map, "column map (JSON, see docs/formats.md)")
       ->required();
-  sub->add_option("-o,--output", o->output, "canonical star table (CSV); default stdout");
+  sub->add_option("-o,--output", o->output, "canonical star table (CSV, ECSV or FITS); default stdout");
+  add_format_option(sub, o->format);
   sub->add_option("--key-early", o->key_early, "key column of the early extract");
   sub->add_option("--key-late", o->key_late, "key column of the late extract (with --match-radius: the id of each matched star when the map has no id)");
   sub->add_option("--xmatch", o->xmatch,

@@ -16,7 +16,7 @@ namespace {
 
 struct MergeCliOptions {
   std::vector<std::string> parts;
-  std::string output = "-", json;
+  std::string output = "-", json, format;
   bool quiet = false;
 };
 
@@ -28,7 +28,7 @@ int run_merge(const MergeCliOptions& o) {
   long n_shards = 0;
   std::set<std::string> ids;
   for (const auto& path : o.parts) {
-    InputFile in(path);
+    TableInput in(path, rank_column_units());
     RankRunInfo info;
     std::vector<RankRecord> recs = read_ranked(in.stream(), in.name(), info);
     const auto sh = info.fields.find("shard");
@@ -64,7 +64,9 @@ int run_merge(const MergeCliOptions& o) {
   merged.fields["shard"] = "1/1";
   assign_ranks(all);
   if (!o.json.empty()) write_file_atomic(o.json, ranked_json(merged, all));
-  write_file_atomic(o.output, ranked_table(merged, all));
+  TableOutput table(o.output, format_for(o.output, o.format), rank_column_units());
+  table.write(ranked_table(merged, all));
+  table.commit();
   if (!o.quiet) message("merge", std::to_string(all.size()) + " stars from " + std::to_string(o.parts.size()) + " parts");
   return kOk;
 }
@@ -79,7 +81,8 @@ void setup_merge(CLI::App& app, Runner& run) {
       "run's; checks that every shard is there once, that the parts share input and options, and that no star "
       "is missing or duplicated.");
   sub->add_option("parts", o->parts, "ranked tables of the shards (CSV)")->required();
-  sub->add_option("-o,--output", o->output, "merged ranked table (CSV); default stdout");
+  sub->add_option("-o,--output", o->output, "merged ranked table (CSV, ECSV or FITS); default stdout");
+  add_format_option(sub, o->format);
   sub->add_option("--json", o->json, "also write it as JSON");
   sub->add_flag("-q,--quiet", o->quiet, "no informational messages");
   sub->callback([o, &run] { run = [o] { return run_merge(*o); }; });

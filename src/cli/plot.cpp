@@ -31,7 +31,7 @@ struct PlotSkyOptions {
 
 // The density map of one star and date from heft predict --grid.
 int run_plot_sky(const PlotSkyOptions& o) {
-  InputFile in(o.input);
+  TableInput in(o.input, grid_column_units());
   const SkyGrid g = read_sky_grid(in.stream(), in.name(), o.id, o.date_yr);
   SkyMap map(g.half_mas, "heft predict: " + g.id + " at " + format_double(g.date_yr));
   map.image(g.density, g.n);
@@ -42,7 +42,7 @@ int run_plot_sky(const PlotSkyOptions& o) {
 }
 
 int run_plot_curve(const PlotCurveOptions& o) {
-  InputFile in(o.input);
+  TableInput in(o.input, curve_column_units());
   std::string id = o.id;
   const std::vector<CurvePoint> rows = read_curve_table(in.stream(), in.name(), id);
   const bool upper = std::none_of(rows.begin(), rows.end(), [](const CurvePoint& r) { return present(r.mass_med); });

@@ -12,7 +12,7 @@ namespace heft::cli {
 namespace {
 
 struct PredictCliOptions {
-  std::string input, output = "-", json, grid, id;
+  std::string input, output = "-", json, grid, id, format;
   std::vector<double> dates;
   PredictOptions predict;
   bool quiet = false;
@@ -21,12 +21,13 @@ struct PredictCliOptions {
 int run_predict(const PredictCliOptions& o) {
   require_distinct_outputs({{"-o", o.output}, {"--json", o.json}, {"--grid", o.grid}});
   if (!(o.predict.iwa_mas < o.predict.owa_mas)) throw CLI::ValidationError("--iwa must be below --owa");
-  InputFile in(o.input);
+  TableInput in(o.input, draw_column_units());
   const std::vector<StarDraws> stars = read_draws(in.stream(), in.name());
-  AtomicOutput out(o.output);
-  std::unique_ptr<AtomicOutput> json, grid;
+  TableOutput out(o.output, format_for(o.output, o.format), prediction_column_units());
+  std::unique_ptr<AtomicOutput> json;
+  std::unique_ptr<TableOutput> grid;
   if (!o.json.empty()) json = std::make_unique<AtomicOutput>(o.json);
-  if (!o.grid.empty()) grid = std::make_unique<AtomicOutput>(o.grid);
+  if (!o.grid.empty()) grid = std::make_unique<TableOutput>(o.grid, format_for(o.grid), grid_column_units());
   out.write(prediction_header());
   if (grid) grid->write(grid_header());
   nlohmann::ordered_json jstars = nlohmann::ordered_json::array();
@@ -81,7 +82,8 @@ void setup_predict(CLI::App& app, Runner& run) {
   sub->add_option("--id", o->id, "only this star");
   sub->add_option("--iwa", o->predict.iwa_mas, "inner working angle (mas)")->check(CLI::NonNegativeNumber)->capture_default_str();
   sub->add_option("--owa", o->predict.owa_mas, "outer working angle (mas; default none)")->check(CLI::PositiveNumber);
-  sub->add_option("-o,--output", o->output, "summary table (CSV); default stdout");
+  sub->add_option("-o,--output", o->output, "summary table (CSV, ECSV or FITS); default stdout");
+  add_format_option(sub, o->format);
   sub->add_option("--json", o->json, "also write the summary as JSON");
   sub->add_option("--grid", o->grid, "2-D density map (CSV: id, date_yr, dra_mas, ddec_mas, density_per_mas2)");
   sub->add_option("--grid-size", o->predict.grid_n, "cells per side of the map")->check(CLI::Range(4, 2000))->capture_default_str();

@@ -17,7 +17,7 @@ namespace heft::cli {
 namespace {
 
 struct RankCliOptions {
-  std::string input, output = "-", json, shard = "1/1", contrast, mass_mag, ecc;
+  std::string input, output = "-", json, shard = "1/1", contrast, mass_mag, ecc, format;
   std::string late_spin_table;
   SurveyOptions survey;
   int threads = 0;
@@ -49,7 +49,8 @@ int run_rank(RankCliOptions o) {
   std::unique_ptr<ContrastCurve> contrast;
   std::unique_ptr<MassMagnitude> mass_mag;
   if (!o.contrast.empty()) {
-    InputFile f(o.contrast), g(o.mass_mag);
+    TableInput f(o.contrast, {{"sep_mas", "mas"}, {"delta_mag", "mag"}});
+    TableInput g(o.mass_mag, {{"mass_mjup", "Mjup"}, {"abs_mag", "mag"}});
     contrast = std::make_unique<ContrastCurve>(ContrastCurve::read(f.stream(), f.name()));
     mass_mag = std::make_unique<MassMagnitude>(MassMagnitude::read(g.stream(), g.name()));
     so.rank.contrast = contrast.get();
@@ -58,7 +59,7 @@ int run_rank(RankCliOptions o) {
     so.mass_mag_name = o.mass_mag;
   }
 
-  InputFile in(o.input);
+  TableInput in(o.input, star_column_units());
   std::unique_ptr<ProgressBar> bar;
   std::once_flag bar_made;  // the bar appears with the first finished curve, from any thread
   const SurveyRun run = run_survey(in.stream(), in.name(), so, [&](long done, long total) {
@@ -73,7 +74,9 @@ int run_rank(RankCliOptions o) {
                           " damaged or torn line(s) dropped; those stars are computed again");
   }
   if (!o.json.empty()) write_file_atomic(o.json, ranked_json(run.info, run.records));
-  write_file_atomic(o.output, ranked_table(run.info, run.records));
+  TableOutput table(o.output, format_for(o.output, o.format), rank_column_units());
+  table.write(ranked_table(run.info, run.records));
+  table.commit();
   if (!so.checkpoint.empty()) std::remove(so.checkpoint.c_str());
   StatusCounter counter;
   for (const auto& r : run.records) counter.add(r.status);
@@ -106,7 +109,8 @@ void setup_rank(CLI::App& app, Runner& run) {
   sub->add_option("--date", r.date_yr, "planned imaging date (decimal Julian year, 1900-2200; not MJD)")
       ->check(CLI::Range(1900.0, 2200.0))
       ->required();
-  sub->add_option("-o,--output", o->output, "ranked table (CSV); default stdout");
+  sub->add_option("-o,--output", o->output, "ranked table (CSV, ECSV or FITS); default stdout");
+  add_format_option(sub, o->format);
   sub->add_option("--json", o->json, "also write the ranked table as JSON");
   sub->add_option("--iwa", r.iwa_mas, "inner working angle (mas)")->check(CLI::NonNegativeNumber)->capture_default_str();
   sub->add_option("--owa", r.owa_mas, "outer working angle (mas; default none)")->check(CLI::PositiveNumber);

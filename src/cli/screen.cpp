@@ -17,6 +17,7 @@ struct ScreenCliOptions {
   std::string input;
   std::string output = "-";
   std::string json;
+  std::string format;
   std::string late_spin_table;
   bool strict = false;
   int threads = 0;
@@ -41,11 +42,11 @@ int run_screen(const ScreenCliOptions& o) {
   require_distinct_outputs({{"-o", o.output}, {"--json", o.json}});
   const ScreenOptions opt = resolve_screen_options(o.screen, o.late_spin_table);
   if (o.threads > 0) omp_set_num_threads(o.threads);
-  InputFile in(o.input);
+  TableInput in(o.input, star_column_units());
   StarTableReader reader(in.stream(), in.name(), o.windows);
   for (const auto& c : reader.unknown_columns())
     message("screen", "warning: " + in.name() + ": column '" + clip_for_message(c) + "' is not canonical, ignored");
-  AtomicOutput out(o.output);
+  TableOutput out(o.output, format_for(o.output, o.format), screen_column_units());
   std::unique_ptr<AtomicOutput> json;
   if (!o.json.empty()) {
     json = std::make_unique<AtomicOutput>(o.json);
@@ -123,7 +124,8 @@ void setup_screen(CLI::App& app, Runner& run) {
       "Proper-motion anomaly of every star: long-baseline PM from the two positions, anomalies "
       "at both epochs with full covariances, chi2 and Gaussian-equivalent significance.");
   sub->add_option("stars", o->input, "canonical star table (CSV; '-' = stdin)")->required();
-  sub->add_option("-o,--output", o->output, "anomaly table (CSV); default stdout");
+  sub->add_option("-o,--output", o->output, "anomaly table (CSV, ECSV or FITS); default stdout");
+  add_format_option(sub, o->format);
   sub->add_option("--json", o->json, "also write the results as JSON (with a 'run' object)");
   add_screen_options(sub, o->screen, o->windows, o->late_spin_table);
   sub->add_flag("--strict", o->strict, "the first bad row is fatal (exit 2)");

@@ -13,7 +13,7 @@ namespace {
 
 struct SimulateCliOptions {
   SurveyModel model;
-  std::string output = "-", truth;
+  std::string output = "-", truth, format;
   std::string host_mass = "loguniform:0.5,1.5", distance = "uniform:20,200",
               companion_mass = "loguniform:1,80", a_au = "loguniform:1,100",
               ecc = "uniform:0,0.8";
@@ -81,9 +81,9 @@ int run_simulate(SimulateCliOptions o) {
     throw CLI::ValidationError("the early epoch must precede the late one");
   if (o.threads > 0) omp_set_num_threads(o.threads);
 
-  AtomicOutput out(o.output);
-  std::unique_ptr<AtomicOutput> truth;
-  if (!o.truth.empty()) truth = std::make_unique<AtomicOutput>(o.truth);
+  TableOutput out(o.output, format_for(o.output, o.format), star_column_units());
+  std::unique_ptr<TableOutput> truth;
+  if (!o.truth.empty()) truth = std::make_unique<TableOutput>(o.truth, format_for(o.truth), truth_column_units());
   out.write(star_table_header());
   if (truth) truth->write(truth_header());
   const long chunk = 4096;
@@ -127,7 +127,8 @@ void setup_simulate(CLI::App& app, Runner& run) {
       "the truth table. Distributions: V | uniform:A,B | loguniform:A,B | beta:A,B.");
   sub->add_option("--stars", m.n_stars, "number of stars")->check(CLI::PositiveNumber)->capture_default_str();
   sub->add_option("--seed", m.seed, "random seed (one stream per (seed, star id))")->capture_default_str();
-  sub->add_option("-o,--output", o->output, "star table (CSV); default stdout");
+  sub->add_option("-o,--output", o->output, "star table (CSV, ECSV or FITS); default stdout");
+  add_format_option(sub, o->format);
   sub->add_option("--truth", o->truth, "truth table (CSV): injected elements, noiseless anomalies");
   sub->add_option("--star-file", o->star_file,
                   "also write the follow-up star file (JSON, for heft fit) of --star-file-id");

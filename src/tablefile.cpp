@@ -1,0 +1,575 @@
+#include "heft/tablefile.hpp"
+
+#include <fitsio.h>
+#include <unistd.h>
+#include <yaml-cpp/yaml.h>
+
+#include <algorithm>
+#include <cmath>
+#include <cstdio>
+#include <cstdlib>
+#include <fstream>
+#include <iostream>
+#include <iterator>
+#include <limits>
+#include <map>
+
+#include "heft/error.hpp"
+#include "heft/unitconv.hpp"
+
+namespace heft {
+namespace {
+
+bool ends_with(std::string_view s, std::string_view tail) {
+  return s.size() >= tail.size() && s.compare(s.size() - tail.size(), tail.size(), tail) == 0;
+}
+
+std::string lower(std::string_view s) {
+  std::string out(s);
+  for (char& c : out) c = static_cast<char>(std::tolower(static_cast<unsigned char>(c)));
+  return out;
+}
+
+// ---------------------------------------------------------------- reading
+
+// A table read from FITS or ECSV: column names, units, and the rows as text
+// fields ("" = absent).
+struct TextTable {
+  std::vector<std::string> names, units;
+  std::vector<std::vector<std::string>> rows;
+  std::vector<std::pair<std::string, std::string>> meta;  // heft metadata, in order
+  std::string kind;                                       // "heft-rank" etc.; "" when not heft's
+};
+
+[[noreturn]] void fits_fail(const std::string& file, int status, const std::string& what) {
+  char text[FLEN_STATUS] = {0};
+  fits_get_errstatus(status, text);
+  throw InputError(file, 0, 0, what + ": " + text + " (cfitsio status " + std::to_string(status) + ")");
+}
+
+// Reads the FITS table of `spec` (a path with an optional [extension]) or,
+// when `bytes` is given, of that memory image.
+TextTable read_fits(const std::string& spec, const std::string& name, std::string* bytes) {
+  fitsfile* f = nullptr;
+  int st = 0;
+  void* mem = nullptr;
+  std::size_t mem_size = 0;
+  if (bytes) {
+    mem = bytes->data();
+    mem_size = bytes->size();
+    fits_open_memfile(&f, "stdin.fits", READONLY, &mem, &mem_size, 0, nullptr, &st);
+    int hdutype = 0;
+    // The first table: the primary HDU of a table file holds no data.
+    if (!st) fits_movabs_hdu(f, 2, &hdutype, &st);
+    if (!st && hdutype == IMAGE_HDU) st = NOT_TABLE;
+  } else {
+    fits_open_table(&f, spec.c_str(), READONLY, &st);
+  }
+  if (st) fits_fail(name, st, "cannot open a FITS table");
+  struct Closer {
+    fitsfile* f;
+    ~Closer() {
+      int s = 0;
+      fits_close_file(f, &s);
+    }
+  } closer{f};
+  TextTable t;
+  LONGLONG nrows = 0;
+  int ncols = 0;
+  fits_get_num_rowsll(f, &nrows, &st);
+  fits_get_num_cols(f, &ncols, &st);
+  if (st) fits_fail(name, st, "cannot read the table size");
+  // heft's own metadata.
+  char value[FLEN_VALUE] = {0}, comment[FLEN_COMMENT] = {0};
+  if (fits_read_key_str(f, "HEFTTAB", value, comment, &st) == 0) t.kind = value;
+  st = 0;
+  int nkeys = 0;
+  fits_get_hdrspace(f, &nkeys, nullptr, &st);
+  for (int k = 1; k <= nkeys && !st; ++k) {
+    char key[FLEN_KEYWORD] = {0}, val[FLEN_VALUE] = {0};
+    fits_read_keyn(f, k, key, val, comment, &st);
+    const std::string kname = key;
+    if (kname.rfind("HEFT ", 0) != 0) continue;
+    char* text = nullptr;
+    int s2 = 0;
+    fits_read_key_longstr(f, key, &text, comment, &s2);
+    if (!s2 && text) t.meta.emplace_back(lower(kname.substr(5)), text);
+    if (text) fits_free_memory(text, &s2);
+  }
+  st = 0;
+  struct Col {
+    int index, type;
+    long repeat, width;
+    bool is_int;
+  };
+  std::vector<Col> cols;
+  for (int c = 1; c <= ncols; ++c) {
+    char key[FLEN_KEYWORD], ttype[FLEN_VALUE] = {0}, tunit[FLEN_VALUE] = {0};
+    int type = 0;
+    long repeat = 0, width = 0;
+    fits_get_coltype(f, c, &type, &repeat, &width, &st);
+    fits_make_keyn("TTYPE", c, key, &st);
+    fits_read_key_str(f, key, ttype, comment, &st);
+    if (st) fits_fail(name, st, "cannot read column " + std::to_string(c));
+    fits_make_keyn("TUNIT", c, key, &st);
+    if (fits_read_key_str(f, key, tunit, comment, &st) == KEY_NO_EXIST) st = 0;
+    const bool is_string = type == TSTRING;
+    const bool is_int = type == TBYTE || type == TSBYTE || type == TSHORT || type == TUSHORT || type == TINT ||
+                        type == TUINT || type == TLONG || type == TULONG || type == TLONGLONG;
+    if (type == TCOMPLEX || type == TDBLCOMPLEX || type == TBIT || (type < 0))
+      throw InputError(name, 0, 0, std::string("column '") + ttype + "': variable-length, bit and complex columns are not read");
+    const long n = is_string ? 1 : repeat;
+    if (n == 0) continue;
+    for (long k = 0; k < n; ++k) {
+      t.names.push_back(n == 1 ? std::string(ttype) : std::string(ttype) + "_" + std::to_string(k + 1));
+      t.units.push_back(tunit);
+    }
+    cols.push_back({c, type, n, width, is_int});
+  }
+  t.rows.assign(static_cast<std::size_t>(nrows), std::vector<std::string>(t.names.size()));
+  std::size_t out_col = 0;
+  for (const Col& c : cols) {
+    const LONGLONG nelem = nrows * c.repeat;
+    if (c.type == TSTRING) {
+      std::vector<std::string> storage(static_cast<std::size_t>(nrows), std::string(c.width + 1, '\0'));
+      std::vector<char*> ptrs;
+      for (auto& s : storage) ptrs.push_back(s.data());
+      int anynul = 0;
+      char nul[] = "";
+      if (nrows > 0) fits_read_col_str(f, c.index, 1, 1, nrows, nul, ptrs.data(), &anynul, &st);
+      for (LONGLONG r = 0; r < nrows; ++r) {
+        std::string v = ptrs[r];
+        v.erase(v.find_last_not_of(' ') + 1);
+        t.rows[r][out_col] = v;
+      }
+    } else if (c.type == TLOGICAL) {
+      std::vector<char> v(static_cast<std::size_t>(nelem)), nul(static_cast<std::size_t>(nelem));
+      int anynul = 0;
+      if (nelem > 0) fits_read_colnull(f, TLOGICAL, c.index, 1, 1, nelem, v.data(), nul.data(), &anynul, &st);
+      for (LONGLONG e = 0; e < nelem; ++e)
+        t.rows[e / c.repeat][out_col + e % c.repeat] = nul[e] ? "" : (v[e] ? "T" : "F");
+    } else if (c.is_int) {
+      std::vector<LONGLONG> v(static_cast<std::size_t>(nelem));
+      std::vector<char> nul(static_cast<std::size_t>(nelem));
+      int anynul = 0;
+      if (nelem > 0) fits_read_colnull(f, TLONGLONG, c.index, 1, 1, nelem, v.data(), nul.data(), &anynul, &st);
+      for (LONGLONG e = 0; e < nelem; ++e)
+        t.rows[e / c.repeat][out_col + e % c.repeat] = nul[e] ? "" : std::to_string(v[e]);
+    } else {
+      // Floating point (and scaled integers): NaN and TNULL are absent.
+      std::vector<double> v(static_cast<std::size_t>(nelem));
+      std::vector<char> nul(static_cast<std::size_t>(nelem));
+      int anynul = 0;
+      if (nelem > 0) fits_read_colnull(f, TDOUBLE, c.index, 1, 1, nelem, v.data(), nul.data(), &anynul, &st);
+      for (LONGLONG e = 0; e < nelem; ++e)
+        t.rows[e / c.repeat][out_col + e % c.repeat] = nul[e] || !std::isfinite(v[e]) ? "" : format_double(v[e]);
+    }
+    if (st) fits_fail(name, st, "cannot read column '" + t.names[out_col] + "'");
+    out_col += c.type == TSTRING ? 1 : c.repeat;
+  }
+  return t;
+}
+
+// Splits an ECSV data line with a one-character delimiter and '"' quotes
+// (Python csv rules, which ECSV uses; a space delimiter also skips runs of
+// spaces). `quoted` marks fields that were quoted.
+std::vector<std::string> split_ecsv(const std::string& line, char delim, const std::string& name, long line_no) {
+  std::vector<std::string> out;
+  std::size_t i = 0;
+  const std::size_t n = line.size();
+  auto skip_spaces = [&] {
+    if (delim == ' ')
+      while (i < n && line[i] == ' ') ++i;
+  };
+  skip_spaces();
+  while (i <= n) {
+    std::string field;
+    if (i < n && line[i] == '"') {
+      ++i;
+      for (;;) {
+        if (i >= n) throw InputError(name, line_no, static_cast<long>(i), "unterminated quote");
+        if (line[i] == '"') {
+          if (i + 1 < n && line[i + 1] == '"') {
+            field += '"';
+            i += 2;
+            continue;
+          }
+          ++i;
+          break;
+        }
+        field += line[i++];
+      }
+    } else {
+      while (i < n && line[i] != delim) field += line[i++];
+    }
+    out.push_back(field);
+    if (i >= n) break;
+    ++i;  // the delimiter
+    skip_spaces();
+    if (delim == ' ' && i >= n) break;
+  }
+  return out;
+}
+
+TextTable read_ecsv(std::istream& in, const std::string& name) {
+  std::string line, yaml;
+  long line_no = 0;
+  if (!std::getline(in, line) || line.rfind("# %ECSV", 0) != 0)
+    throw InputError(name, 1, 1, "not an ECSV file (first line '# %ECSV 1.0')");
+  ++line_no;
+  std::streampos body_start = in.tellg();
+  while (std::getline(in, line)) {
+    ++line_no;
+    if (!line.empty() && line.back() == '\r') line.pop_back();
+    if (line.rfind("#", 0) != 0) break;
+    if (line == "# ---" || line == "#---") continue;
+    yaml += (line.size() > 2 ? line.substr(2) : std::string()) + "\n";
+    body_start = in.tellg();
+  }
+  (void)body_start;
+  YAML::Node head;
+  try {
+    head = YAML::Load(yaml);
+  } catch (const YAML::Exception& e) {
+    throw InputError(name, e.mark.line + 2, e.mark.column + 1, std::string("ECSV header: ") + e.msg);
+  }
+  if (!head["datatype"] || !head["datatype"].IsSequence())
+    throw InputError(name, 2, 1, "ECSV header: no 'datatype' list");
+  TextTable t;
+  std::vector<bool> numeric;
+  for (const auto& c : head["datatype"]) {
+    if (!c["name"]) throw InputError(name, 2, 1, "ECSV header: a datatype entry without 'name'");
+    t.names.push_back(c["name"].as<std::string>());
+    t.units.push_back(c["unit"] ? c["unit"].as<std::string>() : "");
+    const std::string dt = c["datatype"] ? c["datatype"].as<std::string>() : "string";
+    numeric.push_back(dt.rfind("float", 0) == 0 || dt.rfind("int", 0) == 0 || dt.rfind("uint", 0) == 0);
+  }
+  if (head["meta"] && head["meta"].IsMap())
+    for (const auto& kv : head["meta"]) {
+      const std::string k = kv.first.as<std::string>();
+      if (!kv.second.IsScalar()) continue;
+      if (k == "heft_table")
+        t.kind = kv.second.as<std::string>();
+      else
+        t.meta.emplace_back(k, kv.second.as<std::string>());
+    }
+  const std::string delim_text = head["delimiter"] ? head["delimiter"].as<std::string>() : " ";
+  if (delim_text != " " && delim_text != ",")
+    throw InputError(name, 2, 1, "ECSV header: delimiter must be ' ' or ','");
+  const char delim = delim_text[0];
+  // `line` holds the header row of the body.
+  const auto header = split_ecsv(line, delim, name, line_no);
+  if (header != t.names)
+    throw InputError(name, line_no, 1, "ECSV: the column names of the data differ from the header's datatype list");
+  while (std::getline(in, line)) {
+    ++line_no;
+    if (!line.empty() && line.back() == '\r') line.pop_back();
+    if (line.empty()) continue;
+    auto f = split_ecsv(line, delim, name, line_no);
+    if (f.size() != t.names.size())
+      throw InputError(name, line_no, 1,
+                       "ECSV: " + std::to_string(f.size()) + " fields, the header has " + std::to_string(t.names.size()));
+    for (std::size_t k = 0; k < f.size(); ++k)
+      if (numeric[k] && (lower(f[k]) == "nan" || lower(f[k]) == "--")) f[k].clear();  // absent values
+    t.rows.push_back(std::move(f));
+  }
+  return t;
+}
+
+// The text table as heft CSV, with units converted to `expected`.
+std::string to_csv(TextTable& t, const std::vector<ColumnUnit>& expected, const std::string& name,
+                   std::vector<ColumnUnit>& units) {
+  for (std::size_t k = 0; k < t.names.size(); ++k) {
+    const auto it = std::find_if(expected.begin(), expected.end(), [&](const ColumnUnit& c) { return c.name == t.names[k]; });
+    if (it == expected.end() || t.units[k].empty()) continue;
+    double scale = 1.0, offset = 0.0;
+    UnitScale u;
+    if (!parse_unit(t.units[k], u))
+      throw InputError(name, 0, 0, "column '" + t.names[k] + "': unit '" + t.units[k] + "' is not one heft knows (docs/formats.md)");
+    if (!unit_conversion(t.units[k], it->unit, scale, offset))
+      throw InputError(name, 0, 0, "column '" + t.names[k] + "': unit '" + t.units[k] + "' cannot be converted to '" +
+                                       (it->unit.empty() ? "dimensionless" : it->unit) + "'");
+    t.units[k] = it->unit;
+    if (scale == 1.0 && offset == 0.0) continue;  // the text as written, to the bit
+    for (auto& row : t.rows) {
+      double v = 0.0;
+      if (row[k].empty() || !parse_double(row[k], v)) continue;  // the readers report non-numbers
+      row[k] = format_double(v * scale + offset);
+    }
+  }
+  units.clear();
+  for (std::size_t k = 0; k < t.names.size(); ++k) units.push_back({t.names[k], t.units[k]});
+  std::string out;
+  if (!t.kind.empty()) {
+    out += "# " + t.kind;
+    auto meta = t.meta;
+    std::sort(meta.begin(), meta.end());
+    for (const auto& [k, v] : meta) out += " " + k + "=" + v;
+    out += "\n";
+  }
+  for (std::size_t k = 0; k < t.names.size(); ++k) {
+    if (k) out += ',';
+    append_csv_field(out, t.names[k]);
+  }
+  out += '\n';
+  for (const auto& row : t.rows) {
+    for (std::size_t k = 0; k < row.size(); ++k) {
+      if (k) out += ',';
+      append_csv_field(out, row[k]);
+    }
+    out += '\n';
+  }
+  return out;
+}
+
+// ---------------------------------------------------------------- writing
+
+// heft CSV text parsed back: the metadata line, header and fields.
+TextTable parse_csv(std::string_view csv, const std::vector<ColumnUnit>& columns) {
+  TextTable t;
+  std::string text(csv);
+  std::size_t start = 0;
+  // Leading "# kind key=value ..." metadata line.
+  if (text.rfind("# ", 0) == 0) {
+    const std::size_t eol = text.find('\n');
+    std::istringstream words(text.substr(2, eol - 2));
+    std::string w;
+    words >> t.kind;
+    while (words >> w) {
+      const auto eq = w.find('=');
+      if (eq != std::string::npos) t.meta.emplace_back(w.substr(0, eq), w.substr(eq + 1));
+    }
+    start = eol + 1;
+  }
+  std::istringstream in(text.substr(start));
+  CsvReader reader(in, "<table>");
+  bool header = true;
+  while (reader.next()) {
+    std::vector<std::string> f(reader.fields().begin(), reader.fields().end());
+    if (header) {
+      t.names = f;
+      for (const auto& n : t.names) {
+        const auto it = std::find_if(columns.begin(), columns.end(), [&](const ColumnUnit& c) { return c.name == n; });
+        t.units.push_back(it == columns.end() ? "" : it->unit);
+      }
+      header = false;
+    } else {
+      t.rows.push_back(std::move(f));
+    }
+  }
+  return t;
+}
+
+enum class ColType { kFloat, kInt, kString };
+
+std::vector<ColType> column_types(const TextTable& t) {
+  std::vector<ColType> types;
+  for (std::size_t k = 0; k < t.names.size(); ++k) {
+    bool numbers = true, integers = true;
+    for (const auto& row : t.rows) {
+      const std::string& v = row[k];
+      if (v.empty()) {
+        integers = false;  // no null for the integers we write
+        continue;
+      }
+      double x = 0.0;
+      if (!parse_double(v, x) || std::isinf(x)) numbers = false;
+      if (v.find_first_not_of("-0123456789") != std::string::npos) integers = false;
+    }
+    const bool int_name = std::find(std::begin(kIntegerColumns), std::end(kIntegerColumns), t.names[k]) !=
+                          std::end(kIntegerColumns);
+    types.push_back(!numbers ? ColType::kString : int_name && integers ? ColType::kInt : ColType::kFloat);
+  }
+  return types;
+}
+
+std::string ecsv_bytes(const TextTable& t, std::string_view csv) {
+  const auto types = column_types(t);
+  YAML::Emitter y;
+  y << YAML::BeginMap;
+  y << YAML::Key << "delimiter" << YAML::Value << YAML::SingleQuoted << ",";
+  y << YAML::Key << "datatype" << YAML::Value << YAML::BeginSeq;
+  for (std::size_t k = 0; k < t.names.size(); ++k) {
+    y << YAML::Flow << YAML::BeginMap << YAML::Key << "name" << YAML::Value << t.names[k];
+    if (!t.units[k].empty()) y << YAML::Key << "unit" << YAML::Value << t.units[k];
+    y << YAML::Key << "datatype" << YAML::Value
+      << (types[k] == ColType::kFloat ? "float64" : types[k] == ColType::kInt ? "int64" : "string");
+    y << YAML::EndMap;
+  }
+  y << YAML::EndSeq;
+  if (!t.kind.empty()) {
+    y << YAML::Key << "meta" << YAML::Value << YAML::BeginMap;
+    y << YAML::Key << "heft_table" << YAML::Value << t.kind;
+    for (const auto& [k, v] : t.meta) y << YAML::Key << k << YAML::Value << YAML::DoubleQuoted << v;
+    y << YAML::EndMap;
+  }
+  y << YAML::EndMap;
+  std::string out = "# %ECSV 1.0\n# ---\n";
+  std::istringstream lines(y.c_str());
+  for (std::string l; std::getline(lines, l);) out += "# " + l + "\n";
+  // The body is heft's CSV without its metadata line.
+  std::string_view body = csv;
+  if (body.rfind("# ", 0) == 0) body.remove_prefix(body.find('\n') + 1);
+  out += body;
+  return out;
+}
+
+std::string fits_bytes(const TextTable& t) {
+  const auto types = column_types(t);
+  const char* tmpdir = std::getenv("TMPDIR");
+  std::string pattern = std::string(tmpdir && *tmpdir ? tmpdir : "/tmp") + "/heft-fits-XXXXXX";
+  std::vector<char> path(pattern.begin(), pattern.end());
+  path.push_back('\0');
+  const int fd = mkstemp(path.data());
+  if (fd < 0) throw InputError(pattern, 0, 0, "cannot make a temporary file for the FITS output");
+  ::close(fd);
+  struct Remove {
+    const char* p;
+    ~Remove() { std::remove(p); }
+  } remove{path.data()};
+  fitsfile* f = nullptr;
+  int st = 0;
+  fits_create_file(&f, ("!" + std::string(path.data())).c_str(), &st);
+  std::vector<std::string> tform, names = t.names, units = t.units;
+  // The FITS standard 4.0 (Table 3) spelling of the solar mass.
+  for (auto& u : units)
+    if (u == "Msun") u = "solMass";
+  for (std::size_t k = 0; k < t.names.size(); ++k) {
+    std::size_t w = 1;
+    if (types[k] == ColType::kString)
+      for (const auto& row : t.rows) w = std::max(w, row[k].size());
+    tform.push_back(types[k] == ColType::kFloat ? "D" : types[k] == ColType::kInt ? "K" : std::to_string(w) + "A");
+  }
+  std::vector<char*> ttype, tf, tu;
+  for (std::size_t k = 0; k < names.size(); ++k) {
+    ttype.push_back(names[k].data());
+    tf.push_back(tform[k].data());
+    tu.push_back(units[k].data());
+  }
+  std::string extname = t.kind.empty() ? "HEFT" : t.kind;
+  for (char& c : extname) c = static_cast<char>(std::toupper(static_cast<unsigned char>(c)));
+  fits_create_tbl(f, BINARY_TBL, static_cast<LONGLONG>(t.rows.size()), static_cast<int>(names.size()), ttype.data(),
+                  tf.data(), tu.data(), extname.c_str(), &st);
+  const LONGLONG n = static_cast<LONGLONG>(t.rows.size());
+  for (std::size_t k = 0; k < names.size() && !st && n > 0; ++k) {
+    const int col = static_cast<int>(k + 1);
+    if (types[k] == ColType::kFloat) {
+      std::vector<double> v(t.rows.size());
+      for (std::size_t r = 0; r < v.size(); ++r)
+        if (t.rows[r][k].empty() || !parse_double(t.rows[r][k], v[r])) v[r] = std::numeric_limits<double>::quiet_NaN();
+      fits_write_col(f, TDOUBLE, col, 1, 1, n, v.data(), &st);
+    } else if (types[k] == ColType::kInt) {
+      std::vector<LONGLONG> v(t.rows.size());
+      for (std::size_t r = 0; r < v.size(); ++r) v[r] = std::stoll(t.rows[r][k]);
+      fits_write_col(f, TLONGLONG, col, 1, 1, n, v.data(), &st);
+    } else {
+      std::vector<char*> v;
+      std::vector<std::string> copy;
+      copy.reserve(t.rows.size());
+      for (const auto& row : t.rows) copy.push_back(row[k]);
+      for (auto& s : copy) v.push_back(s.data());
+      fits_write_col_str(f, col, 1, 1, n, v.data(), &st);
+    }
+  }
+  if (!t.kind.empty()) {
+    fits_write_key_str(f, "HEFTTAB", t.kind.c_str(), "table written by heft", &st);
+    for (const auto& [k, v] : t.meta) {
+      std::string key = "HIERARCH HEFT " + k;
+      fits_write_key_longstr(f, key.c_str(), v.c_str(), "", &st);
+    }
+  }
+  fits_close_file(f, &st);
+  if (st) fits_fail(path.data(), st, "cannot write the FITS table");
+  std::ifstream in(path.data(), std::ios::binary);
+  return std::string(std::istreambuf_iterator<char>(in), std::istreambuf_iterator<char>());
+}
+
+}  // namespace
+
+TableFormat output_table_format(const std::string& path, const std::string& format, const std::string& option) {
+  if (format == "csv") return TableFormat::kCsv;
+  if (format == "ecsv") return TableFormat::kEcsv;
+  if (format == "fits") return TableFormat::kFits;
+  if (!format.empty()) throw UsageError(option, format, "expected csv, ecsv or fits");
+  const std::string p = lower(path);
+  for (const char* ext : {".fits", ".fit", ".fts", ".fits.gz", ".fit.gz", ".fts.gz"})
+    if (ends_with(p, ext)) return TableFormat::kFits;
+  if (ends_with(p, ".ecsv")) return TableFormat::kEcsv;
+  return TableFormat::kCsv;
+}
+
+TableInput::TableInput(const std::string& path, const std::vector<ColumnUnit>& expected) : name_(path == "-" ? "<stdin>" : path) {
+  // A FITS extension in cfitsio's syntax: "file.fits[1]", "file.fits[NAME]".
+  std::string head;
+  std::string bytes;
+  const bool extension = path != "-" && !path.empty() && path.back() == ']' && path.find('[') != std::string::npos &&
+                         access(path.c_str(), F_OK) != 0;
+  if (extension) {
+    format_ = TableFormat::kFits;
+  } else if (path == "-") {
+    // Sniff standard input only when it may be FITS or ECSV; CSV streams.
+    const int c = std::cin.peek();
+    if (c == 'S' || c == '#') {
+      bytes.assign(std::istreambuf_iterator<char>(std::cin), std::istreambuf_iterator<char>());
+      head = bytes.substr(0, 9);
+    }
+  } else {
+    file_ = std::make_unique<InputFile>(path);  // existence and directory checks
+    char buf[9] = {0};
+    std::ifstream probe(path, std::ios::binary);
+    probe.read(buf, sizeof buf);
+    head.assign(buf, static_cast<std::size_t>(probe.gcount()));
+    if (head.size() >= 2 && static_cast<unsigned char>(head[0]) == 0x1f && static_cast<unsigned char>(head[1]) == 0x8b)
+      head = "SIMPLE  =";  // gzip: cfitsio reads compressed FITS
+  }
+  if (head.rfind("SIMPLE  =", 0) == 0) format_ = TableFormat::kFits;
+  if (head.rfind("# %ECSV", 0) == 0) format_ = TableFormat::kEcsv;
+  TextTable t;
+  if (format_ == TableFormat::kFits) {
+    t = read_fits(path, name_, path == "-" ? &bytes : nullptr);
+  } else if (format_ == TableFormat::kEcsv) {
+    if (path == "-") {
+      std::istringstream in(bytes);
+      t = read_ecsv(in, name_);
+    } else {
+      std::ifstream in(path, std::ios::binary);
+      t = read_ecsv(in, name_);
+    }
+  } else if (path == "-") {
+    if (bytes.empty()) {
+      file_ = std::make_unique<InputFile>(path);
+      return;
+    }
+    text_.str(std::move(bytes));
+    converted_ = true;
+    return;
+  } else {
+    return;  // CSV file, streamed by file_
+  }
+  text_.str(to_csv(t, expected, name_, units_));
+  converted_ = true;
+  file_.reset();
+}
+
+std::string table_bytes(std::string_view csv, TableFormat format, const std::vector<ColumnUnit>& columns) {
+  if (format == TableFormat::kCsv) return std::string(csv);
+  const TextTable t = parse_csv(csv, columns);
+  return format == TableFormat::kEcsv ? ecsv_bytes(t, csv) : fits_bytes(t);
+}
+
+TableOutput::TableOutput(const std::string& path, TableFormat format, std::vector<ColumnUnit> columns)
+    : out_(path), format_(format), columns_(std::move(columns)) {}
+
+void TableOutput::write(std::string_view csv) {
+  if (format_ == TableFormat::kCsv)
+    out_.write(csv);
+  else
+    buffer_.append(csv);
+}
+
+void TableOutput::commit() {
+  if (format_ != TableFormat::kCsv) out_.write(table_bytes(buffer_, format_, columns_));
+  out_.commit();
+}
+
+}  // namespace heft
