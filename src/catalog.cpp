@@ -238,7 +238,7 @@ bool StarTableReader::next(StarRecord& star, std::string& bad_reason) {
     const int fi = field_of_column_[k + 1];
     double& slot = cols[k].get(star);
     if (fi < 0 || f[fi].empty()) {
-      if (cols[k].required && bad_reason.empty()) bad_reason = "missing_value";
+      if (cols[k].required && bad_reason.empty()) bad_reason = "missing_" + cols[k].name;
       if (is_corr_column(k)) slot = 0.0;
       continue;
     }

@@ -440,6 +440,12 @@ std::string fits_bytes(const TextTable& t) {
       for (const auto& row : t.rows) w = std::max(w, row[k].size());
     tform.push_back(types[k] == ColType::kFloat ? "D" : types[k] == ColType::kInt ? "K" : std::to_string(w) + "A");
   }
+  std::vector<std::size_t> offset;  // of each column in a row, bytes
+  std::size_t row_bytes = 0;
+  for (const auto& tfk : tform) {
+    offset.push_back(row_bytes);
+    row_bytes += tfk == "D" || tfk == "K" ? 8 : std::stoul(tfk);
+  }
   std::vector<char*> ttype, tf, tu;
   for (std::size_t k = 0; k < names.size(); ++k) {
     ttype.push_back(names[k].data());
@@ -463,12 +469,17 @@ std::string fits_bytes(const TextTable& t) {
       for (std::size_t r = 0; r < v.size(); ++r) v[r] = std::stoll(t.rows[r][k]);
       fits_write_col(f, TLONGLONG, col, 1, 1, n, v.data(), &st);
     } else {
-      std::vector<char*> v;
-      std::vector<std::string> copy;
-      copy.reserve(t.rows.size());
-      for (const auto& row : t.rows) copy.push_back(row[k]);
-      for (auto& s : copy) v.push_back(s.data());
-      fits_write_col_str(f, col, 1, 1, n, v.data(), &st);
+      // Written as bytes, NUL-padded: the FITS standard 4.0 (Sect. 7.3.3.1)
+      // ends a shorter string with ASCII NUL, so readers do not keep the
+      // blanks that cfitsio's string writer pads with.
+      const std::size_t w = std::stoul(tform[k]);
+      std::string cell(w, '\0');
+      for (LONGLONG r = 0; r < n && !st; ++r) {
+        std::fill(cell.begin(), cell.end(), '\0');
+        std::copy(t.rows[r][k].begin(), t.rows[r][k].end(), cell.begin());
+        fits_write_tblbytes(f, r + 1, static_cast<LONGLONG>(offset[k]) + 1, static_cast<LONGLONG>(w),
+                            reinterpret_cast<unsigned char*>(cell.data()), &st);
+      }
     }
   }
   if (!t.kind.empty()) {

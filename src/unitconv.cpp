@@ -44,8 +44,8 @@ const std::map<std::string, UnitScale>& unit_table() {
   return t;
 }
 
-// One spelling: lower case; "X Y-1", "X.Y**-1", "X Y^-1" -> "X/Y";
-// "X**-2", "X^-2" -> "X-2".
+// One spelling: lower case; "X Y-1", "X.Y**-1", "X Y^-1", "X / Y" -> "X/Y";
+// "X**-2", "X^-2", "1 / X2" -> "X-2".
 std::string normalise(std::string_view text) {
   std::string s;
   for (char c : text) s += static_cast<char>(std::tolower(static_cast<unsigned char>(c)));
@@ -53,6 +53,11 @@ std::string normalise(std::string_view text) {
   s.erase(s.find_last_not_of(' ') + 1);
   for (const char* pow : {"**", "^"})
     for (std::size_t p; (p = s.find(pow)) != std::string::npos;) s.erase(p, std::string_view(pow).size());
+  // astropy's generic form puts spaces around '/': "mas / yr".
+  for (std::size_t p; (p = s.find(" /")) != std::string::npos;) s.erase(p, 1);
+  for (std::size_t p; (p = s.find("/ ")) != std::string::npos;) s.erase(p + 1, 1);
+  // "1 / mas2" (astropy) is mas-2.
+  if (s.size() > 3 && s.compare(0, 2, "1/") == 0 && s.back() == '2') s = s.substr(2, s.size() - 3) + "-2";
   std::string out;
   for (std::size_t i = 0; i < s.size(); ++i) {
     const char c = s[i];

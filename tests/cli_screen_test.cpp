@@ -110,7 +110,7 @@ TEST_CASE("screen flags each bad-input rule and exits 4", "[cli][screen]") {
       {"early_parallax", "inf", "non_finite"},
       {"late_window_end", "2015.0", "window_excludes_epoch"},
       {"late_parallax", "-1", "nonpositive_parallax"},
-      {"late_pmra", "", "missing_value"},
+      {"late_pmra", "", "missing_late_pmra"},
   };
   for (const auto& c : cases) {
     DYNAMIC_SECTION(c.col << "=" << c.value) {

@@ -1,0 +1,211 @@
+#!/usr/bin/python3
+"""heft's FITS and ECSV tables against astropy, the reference reader.
+
+Sources: the FITS standard 4.0 (binary tables, Sect. 7.3: TTYPE, TUNIT,
+TNULL) and the ECSV specification 1.0 (astropy APE 6), with Debian's
+python3-astropy as the reference reader and writer.
+
+1. Tables heft writes (screen, rank, curve, predict, ingest) read back with
+   astropy Table.read: the column names of the CSV output, units as astropy
+   units, every value equal to the CSV output's to the last bit, the run
+   metadata present.
+2. FITS and ECSV written by astropy from the demo star table, read by heft
+   screen, give the CSV path's output byte for byte; with the errors stored
+   in arcsec they agree to 1e-12 relative (one unit conversion each way).
+3. NaN and TNULL in an astropy-written FITS star table read as absent:
+   bad_input:missing_<column>, the batch goes on (exit 4).
+4. A unit heft does not know is an error naming the column (exit 2).
+
+Usage: astropy_tables.py HEFT SOURCE_DIR WORK_DIR
+"""
+import csv
+import math
+import os
+import shutil
+import subprocess
+import sys
+import warnings
+
+import numpy as np
+from astropy import units as u
+from astropy.io import fits
+from astropy.table import MaskedColumn, Table
+
+heft, src, work = sys.argv[1:4]
+shutil.rmtree(work, ignore_errors=True)
+os.makedirs(work)
+stars = os.path.join(src, "demo", "survey", "stars.csv")
+failures = []
+
+
+def check(cond, what):
+    if not cond:
+        failures.append(what)
+        print("FAILED:", what)
+
+
+def run(*args, code=0):
+    p = subprocess.run([heft, *args], capture_output=True, text=True)
+    check(p.returncode == code, f"heft {' '.join(args)}: exit {p.returncode}, want {code}: {p.stderr.strip()[:300]}")
+    return p
+
+
+def read_csv(path):
+    with open(path, newline="") as f:
+        rows = [r for r in csv.reader(f)]
+    meta = None
+    if rows and rows[0] and rows[0][0].startswith("#"):
+        meta = rows[0]
+        rows = rows[1:]
+    return rows[0], rows[1:], meta
+
+
+def same_value(text, value):
+    """A CSV field against an astropy cell: numbers to the bit, empty = masked/NaN."""
+    if np.ma.is_masked(value):
+        return text == ""
+    if isinstance(value, (bytes, str, np.str_)):
+        return str(value) == text
+    v = float(value)
+    if text == "":
+        return math.isnan(v)
+    return float(text) == v
+
+
+def compare(csv_path, table_path, kind, units):
+    header, rows, meta = read_csv(csv_path)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")  # Mjup is not a FITS-standard unit (docs/formats.md)
+        t = Table.read(table_path)
+    check(t.colnames == header, f"{table_path}: columns {t.colnames[:5]}... differ from the CSV header")
+    check(len(t) == len(rows), f"{table_path}: {len(t)} rows, CSV {len(rows)}")
+    bad = 0
+    for j, name in enumerate(header):
+        col = t[name]
+        for i, r in enumerate(rows):
+            if not same_value(r[j], col[i]):
+                bad += 1
+                if bad < 5:
+                    print(f"  {table_path}: row {i} column {name}: CSV '{r[j]}' astropy {col[i]!r}")
+    check(bad == 0, f"{table_path}: {bad} values differ from the CSV output")
+    for name, unit in units.items():
+        check(t[name].unit == unit, f"{table_path}: unit of {name} is {t[name].unit}, want {unit}")
+    if kind:
+        key = "HEFTTAB" if table_path.endswith(".fits") else "heft_table"
+        check(t.meta.get(key) == kind, f"{table_path}: metadata {key} = {t.meta.get(key)!r}, want {kind}")
+    return t
+
+
+# 1. heft's tables read by astropy.
+screen_csv = os.path.join(work, "anomalies.csv")
+run("screen", "-q", stars, "-o", screen_csv)
+for ext in ("fits", "ecsv"):
+    out = os.path.join(work, "anomalies." + ext)
+    run("screen", "-q", stars, "-o", out)
+    compare(screen_csv, out, None, {"dpm_late_ra": u.mas / u.yr, "dt_yr": u.yr, "reflex_vel_late_m_s": u.m / u.s})
+
+rank_args = ["rank", "-q", stars, "--date", "2027.25", "--iwa", "80", "--owa", "2000", "--draws", "128", "--n-a", "8"]
+rank_csv = os.path.join(work, "ranked.csv")
+run(*rank_args, "-o", rank_csv)
+for ext in ("fits", "ecsv"):
+    out = os.path.join(work, "ranked." + ext)
+    run(*rank_args, "-o", out)
+    t = compare(rank_csv, out, "heft-rank", {"sep_med": u.mas, "a_best_au": u.AU})
+    key = "HEFT DATE_YR" if ext == "fits" else "date_yr"
+    check(str(t.meta.get(key)) == "2027.25", f"{out}: date_yr metadata {t.meta.get(key)!r}")
+    check(t["rank"].dtype.kind == "i", f"{out}: rank is not an integer column")
+    if ext == "ecsv":
+        check(t["mass_med"].unit == u.M_jup, f"{out}: mass unit {t['mass_med'].unit}")
+# Shards written as FITS merge into the CSV of a single run.
+parts = []
+for k in (1, 2):
+    p = os.path.join(work, f"part{k}.fits")
+    run(*rank_args, "--shard", f"{k}/2", "-o", p)
+    parts.append(p)
+merged = os.path.join(work, "merged.csv")
+run("merge", "-q", *parts, "-o", merged)
+check(open(merged).read() == open(rank_csv).read(), "merge of FITS shards differs from the single CSV run")
+
+curve_csv = os.path.join(work, "curve.csv")
+draws_csv = os.path.join(work, "draws.csv")
+run("curve", "-q", stars, "--id", "KMG-00754", "--draws", "256", "--n-a", "6", "-o", curve_csv, "--keep-draws", draws_csv)
+run("curve", "-q", stars, "--id", "KMG-00754", "--draws", "256", "--n-a", "6", "-o", os.path.join(work, "curve.fits"),
+    "--keep-draws", os.path.join(work, "draws.ecsv"))
+compare(curve_csv, os.path.join(work, "curve.fits"), None, {"sep_mas": u.mas, "a_au": u.AU})
+compare(draws_csv, os.path.join(work, "draws.ecsv"), None, {"inc_deg": u.deg, "host_mass_msun": u.M_sun})
+pred_csv = os.path.join(work, "pred.csv")
+run("predict", "-q", draws_csv, "--date", "2027.25", "-o", pred_csv)
+run("predict", "-q", os.path.join(work, "draws.ecsv"), "--date", "2027.25", "-o", os.path.join(work, "pred.ecsv"))
+compare(pred_csv, os.path.join(work, "pred.ecsv"), None, {"sep_med": u.mas, "date_yr": u.yr})
+
+# 2. astropy-written tables read by heft.
+demo = Table.read(stars, format="ascii.csv")
+unit_of = {}
+for name in demo.colnames:
+    base = name.split("_", 1)[1] if name.startswith(("early_", "late_")) else name
+    if base in ("epoch", "window_start", "window_end"):
+        unit_of[name] = u.yr
+    elif base in ("ra", "dec"):
+        unit_of[name] = u.deg
+    elif base in ("pmra", "pmdec", "pmra_error", "pmdec_error"):
+        unit_of[name] = u.mas / u.yr
+    elif base in ("parallax", "ra_error", "dec_error", "parallax_error"):
+        unit_of[name] = u.mas
+    elif name in ("mass", "mass_error"):
+        unit_of[name] = u.M_sun
+    elif name in ("rv", "rv_error"):
+        unit_of[name] = u.km / u.s
+for name, unit in unit_of.items():
+    demo[name].unit = unit
+as_fits = os.path.join(work, "stars_astropy.fits")
+as_ecsv = os.path.join(work, "stars_astropy.ecsv")
+demo.write(as_fits)
+demo.write(as_ecsv)  # astropy's default: space-delimited
+for path in (as_fits, as_ecsv, as_fits + "[1]"):
+    out = os.path.join(work, "screen_from_" + os.path.basename(path).replace("[1]", "_ext1") + ".csv")
+    run("screen", "-q", path, "-o", out)
+    check(open(out).read() == open(screen_csv).read(), f"screen of {path} differs from the CSV path")
+arcsec = demo.copy()
+for name in ("early_ra_error", "late_ra_error", "late_parallax_error"):
+    arcsec[name] = arcsec[name].to(u.arcsec)
+as_arcsec = os.path.join(work, "stars_arcsec.fits")
+arcsec.write(as_arcsec)
+out = os.path.join(work, "screen_from_arcsec.csv")
+run("screen", "-q", as_arcsec, "-o", out)
+h1, r1, _ = read_csv(out)
+h0, r0, _ = read_csv(screen_csv)
+worst = 0.0
+for a, b in zip(r0, r1):
+    for x, y in zip(a[2:-1], b[2:-1]):
+        if x and y:
+            worst = max(worst, abs(float(x) - float(y)) / max(abs(float(x)), 1e-300))
+check(len(r1) == len(r0) and worst < 1e-12, f"arcsec errors: worst relative difference {worst}")
+
+# 3. NaN and TNULL as absent values.
+holes = demo[:3].copy()
+holes["late_parallax"][0] = np.nan
+holes["id"] = ["H-1", "H-2", "H-3"]
+# A masked integer: astropy writes it with TNULL (its second row null).
+holes["seq"] = MaskedColumn(np.array([1, 2, 3], dtype=np.int32), mask=[False, True, False])
+holes_path = os.path.join(work, "holes.fits")
+holes.write(holes_path)
+with fits.open(holes_path) as h:
+    k = h[1].columns.names.index("seq") + 1
+    check(f"TNULL{k}" in h[1].header, "astropy wrote no TNULL for the masked integer column")
+p = run("screen", "-q", holes_path, "-o", os.path.join(work, "holes.csv"), code=4)
+hh, hr, _ = read_csv(os.path.join(work, "holes.csv"))
+check([r[1] for r in hr] == ["bad_input:missing_late_parallax", "ok", "ok"], f"NaN row: statuses {[r[1] for r in hr]}")
+p = run("convert", holes_path, "-o", os.path.join(work, "holes_conv.csv"))
+ch, cr, _ = read_csv(os.path.join(work, "holes_conv.csv"))
+check([r[ch.index("seq")] for r in cr] == ["1", "", "3"], f"TNULL: seq column {[r[ch.index('seq')] for r in cr]}")
+
+# 4. A unit heft does not know.
+odd = demo[:2].copy()
+odd["late_pmra"].unit = u.km / u.s
+odd_path = os.path.join(work, "odd.fits")
+odd.write(odd_path)
+p = run("screen", "-q", odd_path, code=2)
+check("late_pmra" in p.stderr, f"wrong-dimension unit: message does not name the column: {p.stderr.strip()}")
+
+print(f"{len(failures)} failed" if failures else "all astropy checks passed")
+sys.exit(1 if failures else 0)
