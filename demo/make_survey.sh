@@ -24,3 +24,14 @@ awk -F, -v OFS=, '{ out = ($1 == "id" ? "hid" : $1); for (k = 2; k <= 24; ++k) {
   "$here/survey/stars.csv" > "$here/raw/early.csv"
 awk -F, -v OFS=, '{ out = ($1 == "id" ? "src" : $1); for (k = 25; k <= 53; ++k) { h = $k; if (NR == 1) sub(/^late_/, "", h); out = out OFS h } print out }' \
   "$here/survey/stars.csv" > "$here/raw/late.csv"
+
+# The same extracts as FITS binary tables with units (TUNIT), made by heft
+# itself, for the archive path of demo/Makefile.
+units="--unit epoch=yr --unit ra=deg --unit dec=deg --unit parallax=mas --unit pmra=mas/yr --unit pmdec=mas/yr
+  --unit ra_error=mas --unit dec_error=mas --unit parallax_error=mas --unit pmra_error=mas/yr
+  --unit pmdec_error=mas/yr --unit window_start=yr --unit window_end=yr"
+# shellcheck disable=SC2086
+"$heft" convert "$here/raw/early.csv" -o "$here/raw/early.fits" $units
+# shellcheck disable=SC2086
+"$heft" convert "$here/raw/late.csv" -o "$here/raw/late.fits" $units --unit mass=Msun --unit mass_error=Msun \
+  --unit rv=km/s --unit rv_error=km/s --unit mag=mag --unit age_myr=Myr

@@ -157,6 +157,14 @@ double* star_field(StarRecord& star, std::string_view name, bool* required) {
   return nullptr;
 }
 
+bool is_carried_column(std::string_view name) {
+  for (std::string_view prefix : {"early_", "late_"})
+    if (name.substr(0, prefix.size()) == prefix)
+      for (std::string_view f : kCarriedFields)
+        if (name.substr(prefix.size()) == f) return true;
+  return false;
+}
+
 const std::vector<ColumnUnit>& star_column_units() {
   static const std::vector<ColumnUnit> cols = [] {
     std::vector<ColumnUnit> c = {{"id", ""}};
@@ -202,7 +210,7 @@ StarTableReader::StarTableReader(std::istream& in, std::string name, WindowDefau
     for (std::size_t k = 0; k < cols.size() && slot == -2; ++k)
       if (cols[k].name == h) slot = static_cast<int>(k) + 1;
     if (slot == -2) {
-      unknown_columns_.push_back(h);
+      if (!is_carried_column(h)) unknown_columns_.push_back(h);
       continue;
     }
     if (field_of_column_[slot] != -1)

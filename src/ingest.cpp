@@ -148,6 +148,34 @@ EpochMap parse_epoch_map(const nlohmann::json& j, const std::string& path,
           throw InputError::at_json(file, p + "/" + field, "unknown canonical field");
         target[field] = parse_source(spec, k->second, p + "/" + field, file);
       }
+    } else if (key == "carry") {
+      if (!v.is_object()) throw InputError::at_json(file, p, "must be an object");
+      for (const auto& [field, spec] : v.items()) {
+        const auto it = std::find(std::begin(kCarriedFields), std::end(kCarriedFields), field);
+        if (it == std::end(kCarriedFields))
+          throw InputError::at_json(file, p + "/" + field, "not a carried field (ruwe, excess_noise_mas)");
+        m.carry[field] = parse_source(spec, field == "ruwe" ? Kind::kCorr : Kind::kSmallAngle, p + "/" + field, file);
+        if (m.carry[field].column.empty())
+          throw InputError::at_json(file, p + "/" + field, "a carried field needs a column");
+      }
+    } else if (key == "weight_matrix") {
+      // {"columns": [15 names]} or {"column": "UW"}: UW_1 ... UW_15 (a FITS
+      // vector column), else UW1 ... UW15.
+      if (!v.is_object()) throw InputError::at_json(file, p, "must be an object with 'columns' or 'column'");
+      if (v.contains("columns")) {
+        const auto& c = v["columns"];
+        if (!c.is_array() || c.size() != 15)
+          throw InputError::at_json(file, p + "/columns", "must list the 15 columns of the upper triangle");
+        for (const auto& n : c) {
+          if (!n.is_string()) throw InputError::at_json(file, p + "/columns", "column names must be strings");
+          m.weight_matrix.push_back(n.get<std::string>());
+        }
+      } else if (v.contains("column") && v["column"].is_string()) {
+        m.weight_matrix.assign(15, "");
+        m.weight_matrix[0] = "@" + v["column"].get<std::string>();  // resolved against the header
+      } else {
+        throw InputError::at_json(file, p, "must have 'columns' (15 names) or 'column' (a vector column)");
+      }
     } else if (key == "epoch") {
       m.fields["epoch"] = parse_source(v, Kind::kTime, p, file);
     } else if (key == "window") {
@@ -156,12 +184,13 @@ EpochMap parse_epoch_map(const nlohmann::json& j, const std::string& path,
       m.fields["window_start"].constant = v[0].get<double>();
       m.fields["window_end"].constant = v[1].get<double>();
     } else {
-      throw InputError::at_json(file, p, "unknown key (allowed: epoch, window, columns, star)");
+      throw InputError::at_json(file, p, "unknown key (allowed: epoch, window, columns, star, carry, weight_matrix)");
     }
   }
+  // With a weight matrix the errors and correlations come from it.
   for (const char* req : {"epoch", "ra", "dec", "parallax", "pmra", "pmdec", "ra_error",
                           "dec_error", "parallax_error", "pmra_error", "pmdec_error"})
-    if (!m.fields.count(req))
+    if (!m.fields.count(req) && (m.weight_matrix.empty() || std::string_view(req).find("_error") == std::string_view::npos))
       throw InputError::at_json(file, path + "/columns", std::string("missing field '") + req + "'");
   return m;
 }
@@ -282,6 +311,18 @@ std::vector<RawEntry> read_raw_catalogue(std::istream& in, const std::string& na
     bound.push_back({[](RawEntry& e, const std::string& f) { return star_slot(e.star, f); }, f,
                      src, src.column.empty() ? -1 : find(src.column)});
   }
+  std::vector<std::pair<std::string, Bound>> carried;
+  for (const auto& [f, src] : map.carry) carried.push_back({f, {nullptr, f, src, find(src.column)}});
+  std::vector<int> uw_cols;
+  if (!map.weight_matrix.empty()) {
+    if (map.weight_matrix[0].rfind("@", 0) == 0) {
+      const std::string base = map.weight_matrix[0].substr(1);
+      const bool vector = std::find(header.begin(), header.end(), base + "_1") != header.end();
+      for (int k = 1; k <= 15; ++k) uw_cols.push_back(find(base + (vector ? "_" : "") + std::to_string(k)));
+    } else {
+      for (const auto& c : map.weight_matrix) uw_cols.push_back(find(c));
+    }
+  }
   std::vector<RawEntry> rows;
   while (csv.next()) {
     const auto& f = csv.fields();
@@ -307,6 +348,40 @@ std::vector<RawEntry> read_raw_catalogue(std::istream& in, const std::string& na
                          "column '" + header[b.index] + "' (" + b.field + "): not a number: '" +
                              std::string(text) + "'");
       *slot = v * b.src.scale + b.src.offset;
+    }
+    auto number = [&](int col, const std::string& what) {
+      const std::string_view text = f[col];
+      double v = kAbsent;
+      if (!text.empty() && !parse_double(text, v))
+        throw InputError(name, csv.line(), csv.column(col),
+                         "column '" + header[col] + "' (" + what + "): not a number: '" + std::string(text) + "'");
+      return v;
+    };
+    for (const auto& [field, b] : carried) {
+      const double v = number(b.index, field);
+      e.carried[field] = present(v) ? v * b.src.scale + b.src.offset : kAbsent;
+    }
+    if (!uw_cols.empty()) {
+      double u[15];
+      bool all = true;
+      for (int k = 0; k < 15; ++k) all = present(u[k] = number(uw_cols[k], "weight matrix")) && all;
+      Eigen::Matrix<double, 5, 5> cov;
+      if (all && !covariance_from_weight_matrix(u, cov))
+        throw InputError(name, csv.line(), csv.column(uw_cols[0]), "weight matrix is singular or not finite");
+      if (all) {
+        // The catalogue's own errors, where mapped, must agree (they are
+        // rounded, hence 5 %): a check of the element order.
+        Astrometry& a = e.astrometry;
+        const double given[5] = {a.ra_error_mas, a.dec_error_mas, a.parallax_error_mas, a.pmra_error_mas_yr,
+                                 a.pmdec_error_mas_yr};
+        for (int k = 0; k < 5; ++k)
+          if (present(given[k]) && std::abs(std::sqrt(cov(k, k)) / given[k] - 1.0) > 0.05)
+            throw InputError(name, csv.line(), csv.column(uw_cols[0]),
+                             "the weight matrix gives error " + format_double(std::sqrt(cov(k, k))) +
+                                 " where the catalogue gives " + format_double(given[k]) +
+                                 ": not the element order of docs/formats.md (Presets)");
+        a.set_covariance(cov);
+      }
     }
     rows.push_back(std::move(e));
   }
@@ -441,9 +516,80 @@ StarRecord join_entries(const RawEntry& early, const RawEntry& late) {
   return s;
 }
 
+bool covariance_from_weight_matrix(const double u[15], Eigen::Matrix<double, 5, 5>& cov) {
+  Eigen::Matrix<double, 5, 5> U = Eigen::Matrix<double, 5, 5>::Zero();
+  int k = 0;
+  for (int j = 0; j < 5; ++j)
+    for (int i = 0; i <= j; ++i) U(i, j) = u[k++];
+  if (!U.allFinite() || U.diagonal().cwiseAbs().minCoeff() == 0.0) return false;
+  // Sigma = U^-1 U^-T by triangular solves (no explicit normal matrix).
+  const Eigen::Matrix<double, 5, 5> Uinv =
+      U.triangularView<Eigen::Upper>().solve(Eigen::Matrix<double, 5, 5>::Identity());
+  cov = Uinv * Uinv.transpose();
+  return cov.allFinite();
+}
+
+nlohmann::json overlay_epoch_map(nlohmann::json base, const nlohmann::json& over) {
+  if (!base.is_object() || !over.is_object()) return over;
+  for (const auto& [key, v] : over.items()) {
+    if ((key == "columns" || key == "star" || key == "carry") && v.is_object() && base.contains(key) &&
+        base[key].is_object()) {
+      for (const auto& [f, spec] : v.items()) base[key][f] = spec;
+    } else {
+      base[key] = v;
+    }
+  }
+  return base;
+}
+
+nlohmann::json ingest_preset(const std::string& name, const std::string& option) {
+  // Public column names and units of the two archives' tables (docs/formats.md,
+  // "Presets"; written from memory of the archives' documentation).
+  if (name == "hip2007-main") {
+    // The re-reduction of the early mission (van Leeuwen 2007, A&A 474, 653):
+    // solutions at 1991.25 as errors plus an upper-triangular weight matrix.
+    return nlohmann::json::parse(R"({
+      "epoch": 1991.25,
+      "window": [1989.85, 1993.21],
+      "columns": {"ra": {"column": "RArad", "unit": "deg"}, "dec": {"column": "DErad", "unit": "deg"},
+                  "parallax": {"column": "Plx", "unit": "mas"},
+                  "pmra": {"column": "pmRA", "unit": "mas/yr"}, "pmdec": {"column": "pmDE", "unit": "mas/yr"},
+                  "ra_error": {"column": "e_RArad", "unit": "mas"}, "dec_error": {"column": "e_DErad", "unit": "mas"},
+                  "parallax_error": {"column": "e_Plx", "unit": "mas"},
+                  "pmra_error": {"column": "e_pmRA", "unit": "mas/yr"},
+                  "pmdec_error": {"column": "e_pmDE", "unit": "mas/yr"}},
+      "star": {"mag": {"column": "Hpmag", "unit": "mag"}},
+      "weight_matrix": {"column": "UW"}
+    })");
+  }
+  if (name == "dr3-source") {
+    // The later mission's main source table: epoch 2016.0 in ref_epoch,
+    // errors and the ten correlations, RV, G magnitude, RUWE, excess noise.
+    nlohmann::json j = nlohmann::json::parse(R"({
+      "epoch": {"column": "ref_epoch", "unit": "yr"},
+      "window": [2014.57, 2017.41],
+      "columns": {"ra": {"column": "ra", "unit": "deg"}, "dec": {"column": "dec", "unit": "deg"},
+                  "parallax": {"column": "parallax", "unit": "mas"},
+                  "pmra": {"column": "pmra", "unit": "mas/yr"}, "pmdec": {"column": "pmdec", "unit": "mas/yr"},
+                  "ra_error": {"column": "ra_error", "unit": "mas"}, "dec_error": {"column": "dec_error", "unit": "mas"},
+                  "parallax_error": {"column": "parallax_error", "unit": "mas"},
+                  "pmra_error": {"column": "pmra_error", "unit": "mas/yr"},
+                  "pmdec_error": {"column": "pmdec_error", "unit": "mas/yr"}},
+      "star": {"rv": {"column": "radial_velocity", "unit": "km/s"},
+               "rv_error": {"column": "radial_velocity_error", "unit": "km/s"},
+               "mag": {"column": "phot_g_mean_mag", "unit": "mag"}},
+      "carry": {"ruwe": {"column": "ruwe", "unit": "1"},
+                "excess_noise_mas": {"column": "astrometric_excess_noise", "unit": "mas"}}
+    })");
+    for (const char* c : kCorrNames) j["columns"][c] = {{"column", c}, {"unit", "1"}};
+    return j;
+  }
+  throw UsageError(option, name, "unknown preset (hip2007-main, dr3-source)");
+}
+
 std::vector<ColumnUnit> map_column_units(const EpochMap& map) {
   std::vector<ColumnUnit> out;
-  for (const auto* fields : {&map.fields, &map.star_fields})
+  for (const auto* fields : {&map.fields, &map.star_fields, &map.carry})
     for (const auto& [name, src] : *fields)
       if (!src.column.empty() && !src.unit.empty()) out.push_back({src.column, src.unit});
   return out;

@@ -106,6 +106,14 @@ class StarTableReader {
 double* star_field(StarRecord& star, std::string_view name, bool* required = nullptr);
 /// The canonical numeric column names, in table order.
 std::vector<std::string> star_field_names();
+/// Catalogue quality indicators that heft ingest carries through for later
+/// use: `early_` or `late_` and one of kCarriedFields. The star table reader
+/// accepts them (they are not unknown columns) and leaves them unused.
+inline constexpr std::string_view kCarriedFields[] = {"ruwe", "excess_noise_mas"};
+/// Their units, in kCarriedFields order.
+inline constexpr std::string_view kCarriedUnits[] = {"", "mas"};
+bool is_carried_column(std::string_view name);
+
 /// The canonical star table's columns (id first) with heft's units: what a
 /// FITS or ECSV star table is converted into (tablefile.hpp).
 const std::vector<ColumnUnit>& star_column_units();

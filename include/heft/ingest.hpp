@@ -31,7 +31,32 @@ struct FieldSource {
 struct EpochMap {
   std::map<std::string, FieldSource> fields;
   std::map<std::string, FieldSource> star_fields;
+  /// Quality indicators carried through (kCarriedFields -> source).
+  std::map<std::string, FieldSource> carry;
+  /// The 15 columns of an upper-triangular weight matrix U (docs/formats.md
+  /// gives the element order); empty when the catalogue gives errors and
+  /// correlations instead.
+  std::vector<std::string> weight_matrix;
 };
+
+/// The column map of a public catalogue schema (docs/formats.md, "Presets"):
+/// "hip2007-main" (the early mission's re-reduction: 5x5 solutions as a
+/// weight matrix) or "dr3-source" (the later mission's main source table:
+/// errors, correlations, RUWE and excess noise), as the JSON of one epoch
+/// of a column map. Throws UsageError naming `option` for another name.
+nlohmann::json ingest_preset(const std::string& name, const std::string& option);
+
+/// The JSON of one epoch of a column map with `override` laid over `base`:
+/// the objects `columns`, `star` and `carry` merge field by field, every
+/// other key is replaced.
+nlohmann::json overlay_epoch_map(nlohmann::json base, const nlohmann::json& override);
+
+/// Covariance (mas, mas/yr) from the 15 elements of an upper-triangular
+/// weight matrix U with N = U^T U the normal matrix of (alpha*, delta,
+/// parallax, mu_alpha*, mu_delta): Sigma = N^-1 = U^-1 U^-T. `u` holds the
+/// upper triangle column by column: U11, U12, U22, U13, U23, U33, ..., U55.
+/// False when U is singular or not finite.
+bool covariance_from_weight_matrix(const double u[15], Eigen::Matrix<double, 5, 5>& cov);
 
 /// The whole map: one EpochMap per catalogue.
 struct IngestMap {
@@ -50,6 +75,8 @@ std::vector<ColumnUnit> map_column_units(const EpochMap& map);
 /// One row of a raw catalogue after mapping and unit conversion.
 struct RawEntry {
   std::string key;  ///< value of the key column (empty when none)
+  /// Carried quality indicators (EpochMap::carry), NaN when absent.
+  std::map<std::string, double> carried;
   long line = 0;    ///< line in the raw file
   Astrometry astrometry;
   StarRecord star;  ///< only the star-level fields are used

@@ -207,5 +207,89 @@ odd.write(odd_path)
 p = run("screen", "-q", odd_path, code=2)
 check("late_pmra" in p.stderr, f"wrong-dimension unit: message does not name the column: {p.stderr.strip()}")
 
+# 5. Presets for the public schemas, on invented extracts of the demo stars:
+# the early one as an astropy FITS table with the weight matrix as a vector
+# column UW (U upper triangular with U^T U = Sigma^-1, stored column by
+# column: U11, U12, U22, U13, ...; docs/formats.md), the late one as CSV with
+# the later archive's column names, joined through a pair table.
+sub = demo[:40]
+corr_names = ["ra_dec_corr", "ra_parallax_corr", "ra_pmra_corr", "ra_pmdec_corr", "dec_parallax_corr",
+              "dec_pmra_corr", "dec_pmdec_corr", "parallax_pmra_corr", "parallax_pmdec_corr", "pmra_pmdec_corr"]
+pairs_ij = [(0, 1), (0, 2), (0, 3), (0, 4), (1, 2), (1, 3), (1, 4), (2, 3), (2, 4), (3, 4)]
+
+
+def covariance(row, prefix):
+    err = [float(row[prefix + n]) for n in ("ra_error", "dec_error", "parallax_error", "pmra_error", "pmdec_error")]
+    c = np.diag(np.square(err))
+    for name, (i, j) in zip(corr_names, pairs_ij):
+        v = row[prefix + name]
+        r = 0.0 if np.ma.is_masked(v) else float(v)
+        c[i, j] = c[j, i] = r * err[i] * err[j]
+    return c
+
+
+early = Table()
+early["HIP"] = np.arange(1, len(sub) + 1)
+early["RArad"] = np.asarray(sub["early_ra"], dtype=float) * u.deg
+early["DErad"] = np.asarray(sub["early_dec"], dtype=float) * u.deg
+early["Plx"] = np.asarray(sub["early_parallax"], dtype=float) * u.mas
+early["pmRA"] = np.asarray(sub["early_pmra"], dtype=float) * u.mas / u.yr
+early["pmDE"] = np.asarray(sub["early_pmdec"], dtype=float) * u.mas / u.yr
+for col, name, unit in (("e_RArad", "ra_error", u.mas), ("e_DErad", "dec_error", u.mas), ("e_Plx", "parallax_error", u.mas),
+                        ("e_pmRA", "pmra_error", u.mas / u.yr), ("e_pmDE", "pmdec_error", u.mas / u.yr)):
+    early[col] = np.round(np.asarray(sub["early_" + name], dtype=float), 2) * unit  # rounded, as published
+early["Hpmag"] = np.full(len(sub), 7.5) * u.mag
+uw = np.zeros((len(sub), 15))
+for k, row in enumerate(sub):
+    U = np.linalg.cholesky(np.linalg.inv(covariance(row, "early_"))).T  # upper, U^T U = Sigma^-1
+    uw[k] = [U[i, j] for j in range(5) for i in range(j + 1)]
+early["UW"] = uw
+early_path = os.path.join(work, "early_hip2007.fits")
+early.write(early_path)
+late = Table()
+late["source_id"] = np.arange(10**15, 10**15 + len(sub))
+late["ref_epoch"] = np.full(len(sub), 2016.0)
+for n in ("ra", "dec", "parallax", "pmra", "pmdec", "ra_error", "dec_error", "parallax_error", "pmra_error",
+          "pmdec_error", *corr_names):
+    late[n] = np.asarray(sub["late_" + n].filled(0.0) if hasattr(sub["late_" + n], "filled") else sub["late_" + n], dtype=float)
+late["radial_velocity"] = sub["rv"]
+late["radial_velocity_error"] = sub["rv_error"]
+late["phot_g_mean_mag"] = np.full(len(sub), 7.4)
+late["ruwe"] = np.linspace(0.9, 2.5, len(sub))
+late["astrometric_excess_noise"] = np.linspace(0.0, 0.4, len(sub))
+late_path = os.path.join(work, "late_dr3.csv")
+late.write(late_path, format="ascii.csv")
+pairs_path = os.path.join(work, "pairs.csv")
+with open(pairs_path, "w") as f:
+    f.write("HIP,source_id\n")
+    for k in range(len(sub)):
+        f.write(f"{early['HIP'][k]},{late['source_id'][k]}\n")
+joined = os.path.join(work, "joined.csv")
+run("ingest", "-q", "--early", early_path, "--late", late_path, "--early-preset", "hip2007-main", "--late-preset",
+    "dr3-source", "--xmatch", pairs_path, "--key-early", "HIP", "--key-late", "source_id", "-o", joined)
+jh, jr, _ = read_csv(joined)
+check(len(jr) == len(sub), f"presets: {len(jr)} stars joined of {len(sub)}")
+worst = 0.0
+for row, jrow in zip(sub, jr):
+    got = dict(zip(jh, jrow))
+    c0 = covariance(row, "early_")
+    c1 = covariance({k: (float(v) if v else np.ma.masked) for k, v in got.items() if k != "id"}, "early_")
+    worst = max(worst, float(np.max(np.abs(c1 - c0) / np.sqrt(np.outer(np.diag(c0), np.diag(c0))))))
+check(worst < 1e-10, f"presets: covariance from the weight matrix off by {worst} (relative to sigma_i sigma_j)")
+check("late_ruwe" in jh and "late_excess_noise_mas" in jh, f"presets: carried columns missing from {jh[-4:]}")
+check(jr[-1][jh.index("late_ruwe")] == "2.5", f"presets: RUWE carried as {jr[-1][jh.index('late_ruwe')]}")
+check(jr[0][jh.index("id")] == str(10**15), f"presets: id {jr[0][jh.index('id')]}")
+# The joined table screens without warnings about unknown columns.
+p = run("screen", joined, "-o", os.path.join(work, "joined_screen.csv"))
+check("ignored" not in p.stderr and "unknown" not in p.stderr, f"presets: screen warns: {p.stderr.strip()}")
+# A weight matrix in the wrong element order is caught by the catalogue's own errors.
+swapped = early.copy()
+swapped["UW"] = uw[:, ::-1]
+swapped_path = os.path.join(work, "early_swapped.fits")
+swapped.write(swapped_path)
+p = run("ingest", "-q", "--early", swapped_path, "--late", late_path, "--early-preset", "hip2007-main", "--late-preset",
+        "dr3-source", "--xmatch", pairs_path, "--key-early", "HIP", "--key-late", "source_id", code=2)
+check("element order" in p.stderr, f"presets: a scrambled weight matrix is not refused: {p.stderr.strip()}")
+
 print(f"{len(failures)} failed" if failures else "all astropy checks passed")
 sys.exit(1 if failures else 0)
