@@ -17,7 +17,7 @@ targets=$(cd "$root/tests/fuzz" && ls *_fuzz.cpp | sed 's/_fuzz.cpp//')
 run_one() {
   local t=$1
   mkdir -p "$build/corpus-work/$t" "$build/findings/$t"
-  ASAN_OPTIONS=detect_leaks=1 UBSAN_OPTIONS=halt_on_error=1:print_stacktrace=1 \
+  ASAN_OPTIONS=detect_leaks=1:allocator_may_return_null=1 UBSAN_OPTIONS=halt_on_error=1:print_stacktrace=1 \
     "$build/tests/fuzz/${t}_fuzz" -max_total_time="$seconds" -print_final_stats=1 -max_len=65536 \
     -artifact_prefix="$build/findings/$t/" "$build/corpus-work/$t" "$root/tests/fuzz/corpus/$t" \
     >"$build/findings/$t.log" 2>&1 || true

@@ -8,6 +8,7 @@
 #include <cmath>
 #include <cstdio>
 #include <cstdlib>
+#include <filesystem>
 #include <fstream>
 #include <iostream>
 #include <iterator>
@@ -65,7 +66,11 @@ TextTable read_fits(const std::string& spec, const std::string& name, std::strin
   } else {
     fits_open_table(&f, spec.c_str(), READONLY, &st);
   }
-  if (st) fits_fail(name, st, "cannot open a FITS table");
+  if (st) {
+    int s = 0;
+    if (f) fits_close_file(f, &s);
+    fits_fail(name, st, "cannot open a FITS table");
+  }
   struct Closer {
     fitsfile* f;
     ~Closer() {
@@ -76,9 +81,21 @@ TextTable read_fits(const std::string& spec, const std::string& name, std::strin
   TextTable t;
   LONGLONG nrows = 0;
   int ncols = 0;
+  long row_bytes = 0;
   fits_get_num_rowsll(f, &nrows, &st);
   fits_get_num_cols(f, &ncols, &st);
+  fits_read_key_lng(f, "NAXIS1", &row_bytes, nullptr, &st);
   if (st) fits_fail(name, st, "cannot read the table size");
+  // A header that promises more data than the file holds is refused before
+  // anything is allocated for it (compressed files are checked by cfitsio).
+  const std::string plain = spec.substr(0, spec.find('['));
+  std::error_code ec;
+  const auto file_bytes = bytes ? bytes->size() : std::filesystem::file_size(plain, ec);
+  const bool compressed = !bytes && (ends_with(lower(plain), ".gz") || ends_with(lower(plain), ".z"));
+  if (nrows < 0 || row_bytes < 0 ||
+      (!compressed && !ec && static_cast<long double>(nrows) * row_bytes > static_cast<long double>(file_bytes)))
+    throw InputError(name, 0, 0, "FITS table: the header promises " + std::to_string(nrows) + " rows of " +
+                                     std::to_string(row_bytes) + " bytes, more than the file holds");
   // heft's own metadata.
   char value[FLEN_VALUE] = {0}, comment[FLEN_COMMENT] = {0};
   if (fits_read_key_str(f, "HEFTTAB", value, comment, &st) == 0) t.kind = value;
@@ -120,6 +137,9 @@ TextTable read_fits(const std::string& spec, const std::string& name, std::strin
       throw InputError(name, 0, 0, std::string("column '") + ttype + "': variable-length, bit and complex columns are not read");
     const long n = is_string ? 1 : repeat;
     if (n == 0) continue;
+    if (n > 10000)
+      throw InputError(name, 0, 0, std::string("column '") + ttype + "': a vector of " + std::to_string(n) +
+                                       " elements is not a table column heft reads");
     for (long k = 0; k < n; ++k) {
       t.names.push_back(n == 1 ? std::string(ttype) : std::string(ttype) + "_" + std::to_string(k + 1));
       t.units.push_back(tunit);
@@ -211,34 +231,14 @@ std::vector<std::string> split_ecsv(const std::string& line, char delim, const s
   return out;
 }
 
-TextTable read_ecsv(std::istream& in, const std::string& name) {
-  std::string line, yaml;
-  long line_no = 0;
-  if (!std::getline(in, line) || line.rfind("# %ECSV", 0) != 0)
-    throw InputError(name, 1, 1, "not an ECSV file (first line '# %ECSV 1.0')");
-  ++line_no;
-  std::streampos body_start = in.tellg();
-  while (std::getline(in, line)) {
-    ++line_no;
-    if (!line.empty() && line.back() == '\r') line.pop_back();
-    if (line.rfind("#", 0) != 0) break;
-    if (line == "# ---" || line == "#---") continue;
-    yaml += (line.size() > 2 ? line.substr(2) : std::string()) + "\n";
-    body_start = in.tellg();
-  }
-  (void)body_start;
-  YAML::Node head;
-  try {
-    head = YAML::Load(yaml);
-  } catch (const YAML::Exception& e) {
-    throw InputError(name, e.mark.line + 2, e.mark.column + 1, std::string("ECSV header: ") + e.msg);
-  }
-  if (!head["datatype"] || !head["datatype"].IsSequence())
+// The YAML header of an ECSV file: column names, units, numeric columns,
+// heft's metadata and the delimiter.
+void read_ecsv_header(const YAML::Node& head, const std::string& name, TextTable& t, std::vector<bool>& numeric,
+                      char& delim) {
+  if (!head.IsMap() || !head["datatype"] || !head["datatype"].IsSequence())
     throw InputError(name, 2, 1, "ECSV header: no 'datatype' list");
-  TextTable t;
-  std::vector<bool> numeric;
   for (const auto& c : head["datatype"]) {
-    if (!c["name"]) throw InputError(name, 2, 1, "ECSV header: a datatype entry without 'name'");
+    if (!c.IsMap() || !c["name"]) throw InputError(name, 2, 1, "ECSV header: a datatype entry without 'name'");
     t.names.push_back(c["name"].as<std::string>());
     t.units.push_back(c["unit"] ? c["unit"].as<std::string>() : "");
     const std::string dt = c["datatype"] ? c["datatype"].as<std::string>() : "string";
@@ -256,7 +256,31 @@ TextTable read_ecsv(std::istream& in, const std::string& name) {
   const std::string delim_text = head["delimiter"] ? head["delimiter"].as<std::string>() : " ";
   if (delim_text != " " && delim_text != ",")
     throw InputError(name, 2, 1, "ECSV header: delimiter must be ' ' or ','");
-  const char delim = delim_text[0];
+  delim = delim_text[0];
+}
+
+TextTable read_ecsv(std::istream& in, const std::string& name) {
+  std::string line, yaml;
+  long line_no = 0;
+  if (!std::getline(in, line) || line.rfind("# %ECSV", 0) != 0)
+    throw InputError(name, 1, 1, "not an ECSV file (first line '# %ECSV 1.0')");
+  ++line_no;
+  while (std::getline(in, line)) {
+    ++line_no;
+    if (!line.empty() && line.back() == '\r') line.pop_back();
+    if (line.rfind("#", 0) != 0) break;
+    if (line == "# ---" || line == "#---") continue;
+    yaml += (line.size() > 2 ? line.substr(2) : std::string()) + "\n";
+  }
+  TextTable t;
+  std::vector<bool> numeric;
+  char delim = ' ';
+  try {
+    const YAML::Node head = YAML::Load(yaml);
+    read_ecsv_header(head, name, t, numeric, delim);
+  } catch (const YAML::Exception& e) {
+    throw InputError(name, e.mark.line + 3, e.mark.column + 3, std::string("ECSV header: ") + e.msg);
+  }
   // `line` holds the header row of the body.
   const auto header = split_ecsv(line, delim, name, line_no);
   if (header != t.names)
