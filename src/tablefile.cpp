@@ -5,6 +5,7 @@
 #include <yaml-cpp/yaml.h>
 
 #include <algorithm>
+#include <cctype>
 #include <cmath>
 #include <cstdio>
 #include <cstdlib>
@@ -48,6 +49,45 @@ struct TextTable {
   throw InputError(file, 0, 0, what + ": " + text + " (cfitsio status " + std::to_string(status) + ")");
 }
 
+// cfitsio 4.2 overruns a buffer (and aborts) on a table keyword whose
+// string value is not quoted. Before cfitsio sees a file, every header card
+// of the table keywords with string values (FITS standard 4.0, Sect. 4.2.1:
+// a quoted string that closes within the card) is checked.
+void check_fits_cards(std::string_view data, const std::string& name) {
+  static const char* string_keys[] = {"XTENSION", "EXTNAME", "TTYPE", "TFORM", "TUNIT", "TDISP", "TDIM"};
+  for (std::size_t at = 0; at + 80 <= data.size(); at += 80) {
+    const std::string_view card = data.substr(at, 80);
+    if (card.substr(8, 2) != "= ") continue;
+    bool string_key = false;
+    for (const char* k : string_keys) {
+      const std::string_view key(k);
+      if (card.substr(0, key.size()) != key) continue;
+      std::size_t i = key.size();
+      while (i < 8 && std::isdigit(static_cast<unsigned char>(card[i]))) ++i;
+      while (i < 8 && card[i] == ' ') ++i;
+      string_key = i == 8;
+    }
+    if (!string_key) continue;
+    std::size_t v = 10;
+    while (v < 80 && card[v] == ' ') ++v;
+    bool closed = false;
+    if (v < 80 && card[v] == '\'') {
+      for (std::size_t i = v + 1; i < 80; ++i)
+        if (card[i] == '\'') {
+          if (i + 1 < 80 && card[i + 1] == '\'') {
+            ++i;
+            continue;
+          }
+          closed = true;
+          break;
+        }
+    }
+    if (!closed)
+      throw InputError(name, 0, 0, "FITS header card " + std::to_string(at / 80 + 1) + " (" +
+                                       std::string(card.substr(0, 8)) + "): a string value must be quoted within its card");
+  }
+}
+
 // Reads the FITS table of `spec` (a path with an optional [extension]) or,
 // when `bytes` is given, of that memory image.
 TextTable read_fits(const std::string& spec, const std::string& name, std::string* bytes) {
@@ -58,12 +98,20 @@ TextTable read_fits(const std::string& spec, const std::string& name, std::strin
   if (bytes) {
     mem = bytes->data();
     mem_size = bytes->size();
+    check_fits_cards(*bytes, name);
     fits_open_memfile(&f, "stdin.fits", READONLY, &mem, &mem_size, 0, nullptr, &st);
     int hdutype = 0;
     // The first table: the primary HDU of a table file holds no data.
     if (!st) fits_movabs_hdu(f, 2, &hdutype, &st);
     if (!st && hdutype == IMAGE_HDU) st = NOT_TABLE;
   } else {
+    const std::string plain = spec.substr(0, spec.find('['));
+    if (!ends_with(lower(plain), ".gz")) {
+      std::ifstream in(plain, std::ios::binary);
+      std::string block(2880 * 64, '\0');  // whole cards, memory flat
+      while (in.read(block.data(), static_cast<std::streamsize>(block.size())) || in.gcount() > 0)
+        check_fits_cards(std::string_view(block.data(), static_cast<std::size_t>(in.gcount())), name);
+    }
     fits_open_table(&f, spec.c_str(), READONLY, &st);
   }
   if (st) {

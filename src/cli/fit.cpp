@@ -54,15 +54,18 @@ int run_fit_command(FitCliOptions o) {
                                std::to_string(2 * model.n_params()) + ")");
 
   AtomicOutput out(o.output);
-  std::unique_ptr<AtomicOutput> samples, profile;
-  if (!o.samples.empty()) samples = std::make_unique<AtomicOutput>(o.samples);
-  if (!o.profile.empty()) profile = std::make_unique<AtomicOutput>(o.profile);
+  std::unique_ptr<TableOutput> samples, profile;
+  if (!o.samples.empty())
+    samples = std::make_unique<TableOutput>(o.samples, format_for(o.samples), draw_column_units());
+  if (!o.profile.empty())
+    profile = std::make_unique<TableOutput>(o.profile, format_for(o.profile), curve_column_units());
 
   const FitResult r = run_fit(model, fopt, f.star.id);
   const nlohmann::ordered_json j = fit_json(model, f, row, r, in.name());
-  if (samples && r.sampled) {
+  if (samples) {  // the header alone with --no-sample
     std::string buf = draws_header();
-    for (const OrbitDraw& d : posterior_draws(model, r)) append_draw_row(buf, f.star.id, d);
+    if (r.sampled)
+      for (const OrbitDraw& d : posterior_draws(model, r)) append_draw_row(buf, f.star.id, d);
     samples->write(buf);
   }
   if (profile) {

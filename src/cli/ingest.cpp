@@ -92,7 +92,7 @@ int run_ingest(const IngestCliOptions& o) {
     }
     out += '\n';
   }
-  std::unique_ptr<AtomicOutput> um;
+  std::unique_ptr<TableOutput> um;
   if (!o.unmatched.empty()) {
     std::string list = "catalogue,line,key,reason\n";
     for (const auto& left : m.leftovers) {
@@ -102,7 +102,7 @@ int run_ingest(const IngestCliOptions& o) {
       append_csv_field(list, r.key);
       list += "," + left.reason + "\n";
     }
-    um = std::make_unique<AtomicOutput>(o.unmatched);
+    um = std::make_unique<TableOutput>(o.unmatched, format_for(o.unmatched), std::vector<ColumnUnit>{});
     um->write(list);
   }
   TableOutput sink(o.output, format_for(o.output, o.format), units);
