@@ -1,6 +1,7 @@
 #include "heft/tablefile.hpp"
 
 #include <fitsio.h>
+#include <sys/stat.h>
 #include <unistd.h>
 #include <yaml-cpp/yaml.h>
 
@@ -57,7 +58,7 @@ void check_fits_cards(std::string_view data, const std::string& name) {
   static const char* string_keys[] = {"XTENSION", "EXTNAME", "TTYPE", "TFORM", "TUNIT", "TDISP", "TDIM"};
   for (std::size_t at = 0; at + 80 <= data.size(); at += 80) {
     const std::string_view card = data.substr(at, 80);
-    if (card.substr(8, 2) != "= ") continue;
+    if (card[8] != '=') continue;  // cfitsio reads "KEY     =value" as a value card too
     bool string_key = false;
     for (const char* k : string_keys) {
       const std::string_view key(k);
@@ -68,7 +69,7 @@ void check_fits_cards(std::string_view data, const std::string& name) {
       string_key = i == 8;
     }
     if (!string_key) continue;
-    std::size_t v = 10;
+    std::size_t v = 9;
     while (v < 80 && card[v] == ' ') ++v;
     bool closed = false;
     if (v < 80 && card[v] == '\'') {
@@ -583,51 +584,51 @@ TableFormat output_table_format(const std::string& path, const std::string& form
 
 TableInput::TableInput(const std::string& path, const std::vector<ColumnUnit>& expected) : name_(path == "-" ? "<stdin>" : path) {
   // A FITS extension in cfitsio's syntax: "file.fits[1]", "file.fits[NAME]".
-  std::string head;
-  std::string bytes;
   const bool extension = path != "-" && !path.empty() && path.back() == ']' && path.find('[') != std::string::npos &&
                          access(path.c_str(), F_OK) != 0;
+  TextTable t;
   if (extension) {
     format_ = TableFormat::kFits;
-  } else if (path == "-") {
-    // Sniff standard input only when it may be FITS or ECSV; CSV streams.
-    const int c = std::cin.peek();
-    if (c == 'S' || c == '#') {
-      bytes.assign(std::istreambuf_iterator<char>(std::cin), std::istreambuf_iterator<char>());
-      head = bytes.substr(0, 9);
-    }
+    t = read_fits(path, name_, nullptr);
   } else {
-    file_ = std::make_unique<InputFile>(path);  // existence and directory checks
-    char buf[9] = {0};
-    std::ifstream probe(path, std::ios::binary);
-    probe.read(buf, sizeof buf);
-    head.assign(buf, static_cast<std::size_t>(probe.gcount()));
-    if (head.size() >= 2 && static_cast<unsigned char>(head[0]) == 0x1f && static_cast<unsigned char>(head[1]) == 0x8b)
-      head = "SIMPLE  =";  // gzip: cfitsio reads compressed FITS
-  }
-  if (head.rfind("SIMPLE  =", 0) == 0) format_ = TableFormat::kFits;
-  if (head.rfind("# %ECSV", 0) == 0) format_ = TableFormat::kEcsv;
-  TextTable t;
-  if (format_ == TableFormat::kFits) {
-    t = read_fits(path, name_, path == "-" ? &bytes : nullptr);
-  } else if (format_ == TableFormat::kEcsv) {
-    if (path == "-") {
-      std::istringstream in(bytes);
-      t = read_ecsv(in, name_);
+    file_ = std::make_unique<InputFile>(path);  // stdin, or a file: existence and directory checks
+    struct stat st {};
+    const bool regular = path != "-" && ::stat(path.c_str(), &st) == 0 && S_ISREG(st.st_mode);
+    std::string head, bytes;
+    if (regular) {
+      // A regular file is sniffed by a second read and handed to cfitsio by name.
+      char buf[9] = {0};
+      std::ifstream probe(path, std::ios::binary);
+      probe.read(buf, sizeof buf);
+      head.assign(buf, static_cast<std::size_t>(probe.gcount()));
+      if (head.size() >= 2 && static_cast<unsigned char>(head[0]) == 0x1f && static_cast<unsigned char>(head[1]) == 0x8b)
+        head = "SIMPLE  =";  // gzip: cfitsio reads compressed FITS
     } else {
-      std::ifstream in(path, std::ios::binary);
-      t = read_ecsv(in, name_);
+      // A pipe (stdin, <(...), a FIFO) can be read once: only an input that
+      // may be FITS or ECSV is gathered in memory; CSV streams.
+      std::istream& in = file_->stream();
+      const int c = in.peek();
+      if (c == 'S' || c == '#') {
+        bytes.assign(std::istreambuf_iterator<char>(in), std::istreambuf_iterator<char>());
+        head = bytes.substr(0, 9);
+      }
     }
-  } else if (path == "-") {
-    if (bytes.empty()) {
-      file_ = std::make_unique<InputFile>(path);
-      return;
+    if (head.rfind("SIMPLE  =", 0) == 0) format_ = TableFormat::kFits;
+    if (head.rfind("# %ECSV", 0) == 0) format_ = TableFormat::kEcsv;
+    if (format_ == TableFormat::kFits) {
+      t = read_fits(path, name_, regular ? nullptr : &bytes);
+    } else if (format_ == TableFormat::kEcsv) {
+      std::ifstream file;
+      std::istringstream memory(bytes);
+      if (regular) file.open(path, std::ios::binary);
+      t = read_ecsv(regular ? static_cast<std::istream&>(file) : memory, name_);
+    } else {
+      if (!bytes.empty()) {  // CSV that began with '#' or 'S', already read
+        text_.str(std::move(bytes));
+        converted_ = true;
+      }
+      return;  // else CSV streamed by file_
     }
-    text_.str(std::move(bytes));
-    converted_ = true;
-    return;
-  } else {
-    return;  // CSV file, streamed by file_
   }
   text_.str(to_csv(t, expected, name_, units_));
   converted_ = true;

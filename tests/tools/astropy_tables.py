@@ -165,6 +165,22 @@ for path in (as_fits, as_ecsv, as_fits + "[1]"):
     out = os.path.join(work, "screen_from_" + os.path.basename(path).replace("[1]", "_ext1") + ".csv")
     run("screen", "-q", path, "-o", out)
     check(open(out).read() == open(screen_csv).read(), f"screen of {path} differs from the CSV path")
+# Pipes are read once: a FIFO (made in the work folder) carrying FITS, ECSV or CSV.
+import threading
+for path in (as_fits, as_ecsv, stars):
+    fifo = os.path.join(work, "pipe")
+    if os.path.exists(fifo):
+        os.remove(fifo)
+    os.mkfifo(fifo)
+    def feed(src=path, dst=fifo):
+        with open(src, "rb") as a, open(dst, "wb") as b:
+            b.write(a.read())
+    th = threading.Thread(target=feed)
+    th.start()
+    out = os.path.join(work, "screen_from_fifo.csv")
+    run("screen", "-q", fifo, "-o", out)
+    th.join()
+    check(open(out).read() == open(screen_csv).read(), f"screen of {os.path.basename(path)} through a FIFO differs")
 arcsec = demo.copy()
 for name in ("early_ra_error", "late_ra_error", "late_parallax_error"):
     arcsec[name] = arcsec[name].to(u.arcsec)
