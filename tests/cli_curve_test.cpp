@@ -1,5 +1,6 @@
 // heft curve and heft plot curve end to end: determinism, JSON, bad input, SVG.
 #include <catch2/catch.hpp>
+#include <set>
 #include <nlohmann/json.hpp>
 #include "heft/calibration.hpp"
 #include "heft/curve.hpp"
@@ -13,7 +14,7 @@ TEST_CASE("heft curve CLI: deterministic, modes in JSON, bad input", "[curve][cl
                          "--companion-mass loguniform:20,80 --distance uniform:20,40 -o " + stars) == 0);
   const std::string o1 = test::tmp_path("curve1.csv"), o2 = test::tmp_path("curve2.csv"),
                     js = test::tmp_path("curve.json");
-  const std::string args = "curve -q " + stars + " --n-a 6 --draws 256 --a-min 1 --a-max 100 ";
+  const std::string args = "curve -q --all " + stars + " --n-a 6 --draws 256 --a-min 1 --a-max 100 ";
   REQUIRE(test::run_heft(args + "-j 1 -o " + o1 + " --json " + js) == 0);
   REQUIRE(test::run_heft(args + "-j 2 -o " + o2) == 0);
   CHECK(test::read_text(o1) == test::read_text(o2));
@@ -61,13 +62,27 @@ TEST_CASE("heft curve CLI: deterministic, modes in JSON, bad input", "[curve][cl
   }
   const std::string no_mass = test::tmp_path("curve_nomass.csv"), js2 = test::tmp_path("curve_nomass.json");
   test::write_text(no_mass, csv);
-  CHECK(test::run_heft(args.substr(0, 9) + no_mass + " --n-a 3 --draws 64 -o /dev/null --json " + js2) == 4);
+  CHECK(test::run_heft(args.substr(0, 15) + no_mass + " --n-a 3 --draws 64 -o /dev/null --json " + js2) == 4);
   CHECK(nlohmann::json::parse(test::read_text(js2))["stars"][0]["status"] == "bad_input:no_host_mass");
-  CHECK(test::run_heft(args.substr(0, 9) + no_mass + " --n-a 3 --draws 64 -o /dev/null --host-mass 1.1") == 0);
+  CHECK(test::run_heft(args.substr(0, 15) + no_mass + " --n-a 3 --draws 64 -o /dev/null --host-mass 1.1") == 0);
   std::string err;
   CHECK(test::run_heft("curve -q " + stars + " --id NOPE", &err) == 2);
   CHECK(err.find("NOPE") != std::string::npos);
-  CHECK(test::run_heft("curve -q " + stars + " --ecc beta:1", &err) == 1);  // a bad option value is a usage error
+  CHECK(test::run_heft("curve -q --all " + stars + " --ecc beta:1", &err) == 1);  // a bad option value is a usage error
+  // Which stars is always said (a curve costs seconds): none of --id, --ids,
+  // --all is a usage error; --ids names the ids it could not find.
+  CHECK(test::run_heft("curve -q " + stars, &err) == 1);
+  CHECK_THAT(err, Catch::Contains("--ids FILE"));
+  const std::string ids = test::tmp_path("curve_ids.txt"), two = test::tmp_path("curve_two.csv");
+  test::write_text(ids, "# two of them\n" + t.str(0, "id") + "\n" + t.str(t.rows.size() - 1, "id") + "\n");
+  REQUIRE(test::run_heft("curve -q " + stars + " --n-a 6 --draws 256 --a-min 1 --a-max 100 --ids " + ids +
+                         " -o " + two) == 0);
+  std::set<std::string> got;
+  for (const auto& row : test::read_table(two).rows) got.insert(row[0]);
+  CHECK(got == std::set<std::string>{t.str(0, "id"), t.str(t.rows.size() - 1, "id")});
+  test::write_text(ids, "NOPE-1\n" + t.str(0, "id") + "\n");
+  CHECK(test::run_heft("curve -q " + stars + " --ids " + ids + " -o /dev/null", &err) == 2);
+  CHECK_THAT(err, Catch::Contains("'NOPE-1'"));
 }
 
 TEST_CASE("heft plot curve writes an SVG that renders", "[curve][cli][plot]") {
@@ -76,7 +91,7 @@ TEST_CASE("heft plot curve writes an SVG that renders", "[curve][cli][plot]") {
                     svg = test::tmp_path("plot.svg"), png = test::tmp_path("plot.png");
   REQUIRE(test::run_heft("simulate -q --stars 3 --seed 8 --companion-fraction 1 --a loguniform:3,10 "
                          "--companion-mass loguniform:30,60 --distance uniform:20,30 -o " + stars) == 0);
-  REQUIRE(test::run_heft("curve -q " + stars + " --n-a 8 --draws 256 -o " + curve) == 0);
+  REQUIRE(test::run_heft("curve -q --all " + stars + " --n-a 8 --draws 256 -o " + curve) == 0);
   REQUIRE(test::run_heft("plot curve " + curve + " -o " + svg) == 0);
   const std::string text = test::read_text(svg);
   CHECK(text.find("<svg") != std::string::npos);

@@ -2,7 +2,10 @@
 
 #include <omp.h>
 
+#include <algorithm>
+#include <fstream>
 #include <memory>
+#include <set>
 
 #include "cli/commands.hpp"
 #include "heft/curve.hpp"
@@ -14,7 +17,7 @@ namespace heft::cli {
 namespace {
 
 struct CurveCliOptions {
-  std::string input, output = "-", json, keep_draws, id, method = "montecarlo", ecc, format;
+  std::string input, output = "-", json, keep_draws, id, ids, method = "montecarlo", ecc, format;
   std::string late_spin_table;
   ScreenOptions screen;
   WindowDefaults windows;
@@ -24,7 +27,7 @@ struct CurveCliOptions {
   int n_a = 64;
   std::vector<double> a_list;
   int threads = 0, starts = 16;
-  bool quiet = false;
+  bool quiet = false, all = false;
 };
 
 int run_curve(CurveCliOptions o) {
@@ -44,6 +47,28 @@ int run_curve(CurveCliOptions o) {
   if (o.method != "montecarlo") copt.refine_rounds = 0;
   if (o.threads > 0) omp_set_num_threads(o.threads);
 
+  // A curve costs seconds: which stars is always said, never implied.
+  if ((!o.id.empty()) + (!o.ids.empty()) + o.all != 1)
+    throw UsageError("--id/--ids/--all", "", "choose the stars: --id ID, --ids FILE (one id per line) or --all");
+  std::set<std::string> wanted;
+  if (!o.id.empty()) wanted.insert(o.id);
+  if (!o.ids.empty()) {
+    InputFile f(o.ids);
+    for (std::string line; std::getline(f.stream(), line);) {
+      if (!line.empty() && line.back() == '\r') line.pop_back();
+      if (!line.empty() && line[0] != '#') wanted.insert(line);
+    }
+    if (wanted.empty()) throw InputError(f.name(), 0, 0, "no ids (one per line, '#' lines are comments)");
+  }
+  // The bar's total: the ids asked for, or with --all the data lines of a
+  // regular file (no bar when reading a pipe).
+  long total = static_cast<long>(wanted.size());
+  if (o.all && o.input != "-") {
+    std::ifstream count(o.input, std::ios::binary);
+    for (std::string line; std::getline(count, line);) total += !line.empty() && line[0] != '#';
+    total = std::max(0L, total - 1);  // the header
+  }
+  ProgressBar bar("curve", total, o.quiet);
   TableInput in(o.input, star_column_units());
   StarTableReader reader(in.stream(), in.name(), o.windows);
   TableOutput out(o.output, format_for(o.output, o.format), curve_column_units());
@@ -61,11 +86,12 @@ int run_curve(CurveCliOptions o) {
   StatusCounter counter;
   StarRecord star;
   std::string bad;
-  bool found = false;
-  long n_json = 0;
+  std::set<std::string> found;
+  long n_json = 0, done = 0;
   while (reader.next(star, bad)) {
-    if (!o.id.empty() && star.id != o.id) continue;
-    found = true;
+    if (!o.all && !wanted.count(star.id)) continue;
+    found.insert(star.id);
+    bar.update(++done);
     const ScreenRow row = screen_star(star, bad, sopt);
     RowStatus status = row.status;
     AnomalyData d;
@@ -123,7 +149,11 @@ int run_curve(CurveCliOptions o) {
     }
     if (json) json->write(std::string(n_json++ ? ",\n" : "") + j.dump());
   }
-  if (!o.id.empty() && !found) throw InputError(in.name(), 0, 0, "no star with id '" + o.id + "'");
+  bar.finish();
+  std::string missing;
+  for (const auto& id : wanted)
+    if (!found.count(id)) missing += (missing.empty() ? "'" : ", '") + clip_for_message(id) + "'";
+  if (!missing.empty()) throw InputError(in.name(), 0, 0, "no star with id " + missing);
   if (json) {
     nlohmann::ordered_json run = counter.run_json("curve", in.name());
     run["method"] = o.method;
@@ -157,7 +187,9 @@ void setup_curve(CLI::App& app, Runner& run) {
       "Companion mass-separation constraints from each star's anomaly (dark companion assumed): "
       "posterior mass quantiles (MJup) per trial semi-major axis (AU).");
   sub->add_option("stars", o->input, "canonical star table (CSV; '-' = stdin)")->required();
-  sub->add_option("--id", o->id, "only this star (default: every row)");
+  sub->add_option("--id", o->id, "the star to compute (or --ids, --all)");
+  sub->add_option("--ids", o->ids, "file of star ids, one per line ('#' lines are comments)");
+  sub->add_flag("--all", o->all, "every star of the table (seconds each; a progress bar on a terminal)");
   sub->add_option("-o,--output", o->output, "curve table (CSV, ECSV or FITS); default stdout");
   add_format_option(sub, o->format);
   sub->add_option("--json", o->json, "also write the curves as JSON (mode, ESS, priors)");
@@ -190,7 +222,7 @@ void setup_curve(CLI::App& app, Runner& run) {
   add_screen_options(sub, o->screen, o->windows, o->late_spin_table);
   sub->add_option("-j,--threads", o->threads, "threads (default: all cores); output is identical")
       ->check(CLI::NonNegativeNumber);
-  sub->add_flag("-q,--quiet", o->quiet, "no informational messages");
+  sub->add_flag("-q,--quiet", o->quiet, "no informational messages and no progress bar");
   sub->footer(
       "Columns: id, a_au (AU), sep_mas (a x parallax, mas), period_yr, weight (posterior "
       "probability of the separation bin, log-uniform prior on a), mass_lo95, mass_lo68, mass_med, "
