@@ -49,7 +49,7 @@ int run_curve(CurveCliOptions o) {
 
   // A curve costs seconds: which stars is always said, never implied.
   if ((!o.id.empty()) + (!o.ids.empty()) + o.all != 1)
-    throw UsageError("--id/--ids/--all", "", "choose the stars: --id ID, --ids FILE (one id per line) or --all");
+    throw CLI::ValidationError("choose the stars: --id ID, --ids FILE (one id per line) or --all (one of them)");
   std::set<std::string> wanted;
   if (!o.id.empty()) wanted.insert(o.id);
   if (!o.ids.empty()) {
@@ -87,6 +87,7 @@ int run_curve(CurveCliOptions o) {
   StarRecord star;
   std::string bad;
   std::set<std::string> found;
+  std::vector<std::string> warnings;
   long n_json = 0, done = 0;
   while (reader.next(star, bad)) {
     if (!o.all && !wanted.count(star.id)) continue;
@@ -130,9 +131,9 @@ int run_curve(CurveCliOptions o) {
         draws->write(dbuf);
       }
       const bool low_ess = o.method == "montecarlo" && c.min_ess < 100.0;
-      if (low_ess && !o.quiet)
-        message("curve", "warning: star " + star.id + ": effective sample size " +
-                             format_double(std::round(c.min_ess)) + " < 100 at some separation; raise --draws");
+      if (low_ess && !o.quiet)  // printed after the progress bar is gone
+        warnings.push_back("warning: star " + star.id + ": effective sample size " +
+                           format_double(std::round(c.min_ess)) + " < 100 at some separation; raise --draws");
       j["method"] = o.method;
       j["mode"] = c.upper_limit ? "upper_limit" : "detection";
       j["dark_companion_assumed"] = true;
@@ -150,6 +151,7 @@ int run_curve(CurveCliOptions o) {
     if (json) json->write(std::string(n_json++ ? ",\n" : "") + j.dump());
   }
   bar.finish();
+  for (const auto& w : warnings) message("curve", w);
   std::string missing;
   for (const auto& id : wanted)
     if (!found.count(id)) missing += (missing.empty() ? "'" : ", '") + clip_for_message(id) + "'";
