@@ -168,9 +168,7 @@ bool is_carried_column(std::string_view name) {
 const std::vector<ColumnUnit>& star_column_units() {
   static const std::vector<ColumnUnit> cols = [] {
     std::vector<ColumnUnit> c = {{"id", ""}};
-    auto ends = [](const std::string& s, const std::string& t) {
-      return s.size() >= t.size() && s.compare(s.size() - t.size(), t.size(), t) == 0;
-    };
+    auto ends = [](const std::string& s, std::string_view t) { return s.ends_with(t); };
     for (const auto& n : star_field_names()) {
       const char* u = "";
       if (ends(n, "_epoch") || ends(n, "_window_start") || ends(n, "_window_end")) u = "yr";

@@ -285,9 +285,7 @@ void FitModel::prior_residuals(const T* p, T r[2], T& extra) const {
 
 template <typename T>
 bool FitModel::evaluate(const T* p, T* r, T& extra) const {
-  double v[kMaxFitParams];
-  for (int i = 0; i < n_params(); ++i) v[i] = scalar_of(p[i]);
-  if (!in_support(v)) return false;
+  if (!in_support(p)) return false;
   const Orbit<T> o = orbit_at(p);
   int n = 0;
   anomaly_residuals(o, p, r);

@@ -171,8 +171,7 @@ EpochMap parse_epoch_map(const nlohmann::json& j, const std::string& path,
           m.weight_matrix.push_back(n.get<std::string>());
         }
       } else if (v.contains("column") && v["column"].is_string()) {
-        m.weight_matrix.assign(15, "");
-        m.weight_matrix[0] = "@" + v["column"].get<std::string>();  // resolved against the header
+        m.weight_matrix_vector = v["column"].get<std::string>();  // resolved against the header
       } else {
         throw InputError::at_json(file, p, "must have 'columns' (15 names) or 'column' (a vector column)");
       }
@@ -190,7 +189,8 @@ EpochMap parse_epoch_map(const nlohmann::json& j, const std::string& path,
   // With a weight matrix the errors and correlations come from it.
   for (const char* req : {"epoch", "ra", "dec", "parallax", "pmra", "pmdec", "ra_error",
                           "dec_error", "parallax_error", "pmra_error", "pmdec_error"})
-    if (!m.fields.count(req) && (m.weight_matrix.empty() || std::string_view(req).find("_error") == std::string_view::npos))
+    if (!m.fields.count(req) && ((m.weight_matrix.empty() && m.weight_matrix_vector.empty()) ||
+                                 !std::string_view(req).ends_with("_error")))
       throw InputError::at_json(file, path + "/columns", std::string("missing field '") + req + "'");
   return m;
 }
@@ -314,15 +314,12 @@ std::vector<RawEntry> read_raw_catalogue(std::istream& in, const std::string& na
   std::vector<std::pair<std::string, Bound>> carried;
   for (const auto& [f, src] : map.carry) carried.push_back({f, {nullptr, f, src, find(src.column)}});
   std::vector<int> uw_cols;
-  if (!map.weight_matrix.empty()) {
-    if (map.weight_matrix[0].rfind("@", 0) == 0) {
-      const std::string base = map.weight_matrix[0].substr(1);
-      const bool vector = std::find(header.begin(), header.end(), base + "_1") != header.end();
-      for (int k = 1; k <= 15; ++k) uw_cols.push_back(find(base + (vector ? "_" : "") + std::to_string(k)));
-    } else {
-      for (const auto& c : map.weight_matrix) uw_cols.push_back(find(c));
-    }
+  if (!map.weight_matrix_vector.empty()) {
+    const std::string& base = map.weight_matrix_vector;
+    const bool vector = std::find(header.begin(), header.end(), base + "_1") != header.end();
+    for (int k = 1; k <= 15; ++k) uw_cols.push_back(find(base + (vector ? "_" : "") + std::to_string(k)));
   }
+  for (const auto& c : map.weight_matrix) uw_cols.push_back(find(c));
   std::vector<RawEntry> rows;
   while (csv.next()) {
     const auto& f = csv.fields();
@@ -334,37 +331,34 @@ std::vector<RawEntry> read_raw_catalogue(std::istream& in, const std::string& na
     e.line = csv.line();
     if (key_index_col >= 0) e.key = f[key_index_col];
     if (id_col >= 0) e.star.id = f[id_col];
-    for (const auto& b : bound) {
-      double* slot = b.slot(e, b.field);
-      if (b.index < 0) {
-        *slot = b.src.constant;
-        continue;
-      }
-      const std::string_view text = f[b.index];
-      if (text.empty()) continue;
-      double v;
-      if (!parse_double(text, v))
-        throw InputError(name, csv.line(), csv.column(b.index),
-                         "column '" + header[b.index] + "' (" + b.field + "): not a number: '" +
-                             std::string(text) + "'");
-      *slot = v * b.src.scale + b.src.offset;
-    }
-    auto number = [&](int col, const std::string& what) {
+    // Field `col` as a number into v; false when empty.
+    auto number = [&](int col, const std::string& what, double& v) {
       const std::string_view text = f[col];
-      double v = kAbsent;
-      if (!text.empty() && !parse_double(text, v))
+      if (text.empty()) return false;
+      if (!parse_double(text, v))
         throw InputError(name, csv.line(), csv.column(col),
                          "column '" + header[col] + "' (" + what + "): not a number: '" + std::string(text) + "'");
-      return v;
+      return true;
     };
+    for (const auto& b : bound) {
+      double* slot = b.slot(e, b.field);
+      double v;
+      if (b.index < 0)
+        *slot = b.src.constant;
+      else if (number(b.index, b.field, v))
+        *slot = v * b.src.scale + b.src.offset;
+    }
     for (const auto& [field, b] : carried) {
-      const double v = number(b.index, field);
-      e.carried[field] = present(v) ? v * b.src.scale + b.src.offset : kAbsent;
+      double v = kAbsent;
+      e.carried[field] = number(b.index, field, v) && present(v) ? v * b.src.scale + b.src.offset : kAbsent;
     }
     if (!uw_cols.empty()) {
       double u[15];
       bool all = true;
-      for (int k = 0; k < 15; ++k) all = present(u[k] = number(uw_cols[k], "weight matrix")) && all;
+      for (int k = 0; k < 15; ++k) {
+        const bool given = number(uw_cols[k], "weight matrix", u[k]);
+        all = given && present(u[k]) && all;
+      }
       Eigen::Matrix<double, 5, 5> cov;
       if (all && !covariance_from_weight_matrix(u, cov))
         throw InputError(name, csv.line(), csv.column(uw_cols[0]), "weight matrix is singular or not finite");

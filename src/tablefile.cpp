@@ -23,10 +23,6 @@
 namespace heft {
 namespace {
 
-bool ends_with(std::string_view s, std::string_view tail) {
-  return s.size() >= tail.size() && s.compare(s.size() - tail.size(), tail.size(), tail) == 0;
-}
-
 std::string lower(std::string_view s) {
   std::string out(s);
   for (char& c : out) c = static_cast<char>(std::tolower(static_cast<unsigned char>(c)));
@@ -96,6 +92,16 @@ TextTable read_fits(const std::string& spec, const std::string& name, std::strin
   int st = 0;
   void* mem = nullptr;
   std::size_t mem_size = 0;
+  // cfitsio reads gzip-compressed files (whatever their name); their cards
+  // and size are checked by cfitsio as it inflates them.
+  const std::string plain = spec.substr(0, spec.find('['));
+  bool compressed = false;
+  if (!bytes) {
+    unsigned char magic[2] = {0, 0};
+    std::ifstream probe(plain, std::ios::binary);
+    probe.read(reinterpret_cast<char*>(magic), 2);
+    compressed = magic[0] == 0x1f && magic[1] == 0x8b;
+  }
   if (bytes) {
     mem = bytes->data();
     mem_size = bytes->size();
@@ -106,8 +112,7 @@ TextTable read_fits(const std::string& spec, const std::string& name, std::strin
     if (!st) fits_movabs_hdu(f, 2, &hdutype, &st);
     if (!st && hdutype == IMAGE_HDU) st = NOT_TABLE;
   } else {
-    const std::string plain = spec.substr(0, spec.find('['));
-    if (!ends_with(lower(plain), ".gz")) {
+    if (!compressed) {
       std::ifstream in(plain, std::ios::binary);
       std::string block(2880 * 64, '\0');  // whole cards, memory flat
       while (in.read(block.data(), static_cast<std::streamsize>(block.size())) || in.gcount() > 0)
@@ -136,11 +141,9 @@ TextTable read_fits(const std::string& spec, const std::string& name, std::strin
   fits_read_key_lng(f, "NAXIS1", &row_bytes, nullptr, &st);
   if (st) fits_fail(name, st, "cannot read the table size");
   // A header that promises more data than the file holds is refused before
-  // anything is allocated for it (compressed files are checked by cfitsio).
-  const std::string plain = spec.substr(0, spec.find('['));
+  // anything is allocated for it.
   std::error_code ec;
   const auto file_bytes = bytes ? bytes->size() : std::filesystem::file_size(plain, ec);
-  const bool compressed = !bytes && (ends_with(lower(plain), ".gz") || ends_with(lower(plain), ".z"));
   if (nrows < 0 || row_bytes < 0 ||
       (!compressed && !ec && static_cast<long double>(nrows) * row_bytes > static_cast<long double>(file_bytes)))
     throw InputError(name, 0, 0, "FITS table: the header promises " + std::to_string(nrows) + " rows of " +
@@ -343,7 +346,7 @@ TextTable read_ecsv(std::istream& in, const std::string& name) {
       throw InputError(name, line_no, 1,
                        "ECSV: " + std::to_string(f.size()) + " fields, the header has " + std::to_string(t.names.size()));
     for (std::size_t k = 0; k < f.size(); ++k)
-      if (numeric[k] && (lower(f[k]) == "nan" || lower(f[k]) == "--")) f[k].clear();  // absent values
+      if (numeric[k] && (f[k] == "--" || lower(f[k]) == "nan")) f[k].clear();  // absent values
     t.rows.push_back(std::move(f));
   }
   return t;
@@ -577,8 +580,8 @@ TableFormat output_table_format(const std::string& path, const std::string& form
   if (!format.empty()) throw UsageError(option, format, "expected csv, ecsv or fits");
   const std::string p = lower(path);
   for (const char* ext : {".fits", ".fit", ".fts", ".fits.gz", ".fit.gz", ".fts.gz"})
-    if (ends_with(p, ext)) return TableFormat::kFits;
-  if (ends_with(p, ".ecsv")) return TableFormat::kEcsv;
+    if (p.ends_with(ext)) return TableFormat::kFits;
+  if (p.ends_with(".ecsv")) return TableFormat::kEcsv;
   return TableFormat::kCsv;
 }
 

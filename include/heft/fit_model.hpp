@@ -96,6 +96,13 @@ class FitModel {
   /// orbit of p (orbit_at) and writes its whitened residuals.
   /// Inside the prior's support (bounds of every parameter)?
   bool in_support(const double* p) const;
+  /// The same at the values of Jets.
+  template <typename T>
+  bool in_support(const T* p) const {
+    double v[kMaxFitParams];
+    for (int i = 0; i < n_params(); ++i) v[i] = scalar_of(p[i]);
+    return in_support(static_cast<const double*>(v));
+  }
   template <typename T>
   Orbit<T> orbit_at(const T* p) const;
   /// The six catalogue proper motions (pml_late, dpm_late, dpm_early).

@@ -93,9 +93,7 @@ struct PriorResidual : BlockResidual<PriorResidual> {
   static constexpr int kSize = 2;
   template <typename T>
   bool residuals(const T* p, T* r) const {
-    double v[kMaxFitParams];
-    for (int i = 0; i < model->n_params(); ++i) v[i] = scalar_of(p[i]);
-    if (!model->in_support(v)) return false;
+    if (!model->in_support(p)) return false;
     T extra(0.0);
     model->prior_residuals(p, r, extra);
     return true;

@@ -34,9 +34,11 @@ struct EpochMap {
   /// Quality indicators carried through (kCarriedFields -> source).
   std::map<std::string, FieldSource> carry;
   /// The 15 columns of an upper-triangular weight matrix U (docs/formats.md
-  /// gives the element order); empty when the catalogue gives errors and
-  /// correlations instead.
+  /// gives the element order), or the name of its vector column (NAME_1 ...
+  /// NAME_15 when the extract has them, else NAME1 ... NAME15); both empty
+  /// when the catalogue gives errors and correlations instead.
   std::vector<std::string> weight_matrix;
+  std::string weight_matrix_vector;
 };
 
 /// The column map of a public catalogue schema (docs/formats.md, "Presets"):

@@ -60,16 +60,26 @@ int run_curve(CurveCliOptions o) {
     }
     if (wanted.empty()) throw InputError(f.name(), 0, 0, "no ids (one per line, '#' lines are comments)");
   }
-  // The bar's total: the ids asked for, or with --all the data lines of a
-  // regular file (no bar when reading a pipe).
+  TableInput in(o.input, star_column_units());
+  // The bar's total: the ids asked for, or with --all the table's data
+  // lines (a CSV file read once more, a converted table rewound; no bar
+  // when streaming a pipe).
+  auto data_lines = [](std::istream& text) {
+    long n = 0;
+    for (std::string line; std::getline(text, line);) n += !line.empty() && line[0] != '#';
+    return std::max(0L, n - 1);  // the header
+  };
   long total = static_cast<long>(wanted.size());
-  if (o.all && o.input != "-") {
-    std::ifstream count(o.input, std::ios::binary);
-    for (std::string line; std::getline(count, line);) total += !line.empty() && line[0] != '#';
-    total = std::max(0L, total - 1);  // the header
+  if (o.all && in.format() != TableFormat::kCsv) {
+    const auto start = in.stream().tellg();
+    total = data_lines(in.stream());
+    in.stream().clear();
+    in.stream().seekg(start);
+  } else if (o.all && o.input != "-") {
+    std::ifstream file(o.input, std::ios::binary);
+    total = data_lines(file);
   }
   ProgressBar bar("curve", total, o.quiet);
-  TableInput in(o.input, star_column_units());
   StarTableReader reader(in.stream(), in.name(), o.windows);
   TableOutput out(o.output, format_for(o.output, o.format), curve_column_units());
   std::unique_ptr<AtomicOutput> json;
