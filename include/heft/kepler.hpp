@@ -25,27 +25,24 @@
 
 namespace heft {
 
-/// Solves Kepler's equation E - e sin E = M for the eccentric anomaly.
-/// Given: M (rad, any value), e (0 <= e < 1).
-/// Returned: E (rad), in the same 2 pi turn as M (E = M at M = k pi).
-/// Notes: safeguarded Newton iteration on a bracket, so it converges for
-/// every (M, e) including e = 0.99 near M = 0 and 2 pi; accurate to ~1e-15.
-double solve_kepler(double mean_anom_rad, double ecc);
-
-/// Batched solve for one eccentricity and many mean anomalies: a cubic
-/// Hermite table of E(M) followed by Newton polishing. Same accuracy as
-/// solve_kepler.
-class KeplerSolver {
- public:
-  explicit KeplerSolver(double ecc, int n_nodes = 1024);
-  double operator()(double mean_anom_rad) const;
-  void solve(const double* mean_anom_rad, double* ecc_anom_rad, std::size_t n) const;
-  double ecc() const { return e_; }
-
- private:
-  double e_, h_;
-  std::vector<double> E_, dE_, sin_, cos_;
+/// The eccentric anomaly with its sine and cosine.
+struct KeplerSolution {
+  double E, sin_E, cos_E;
 };
+
+/// Solves Kepler's equation E - e sin E = M with no libm call but cbrt:
+/// the non-iterative starter of Markley (1995, Celest. Mech. Dyn. Astron.
+/// 63, 101) and his fifth-order correction, sin and cos by polynomials.
+/// Given: M (rad, any value), e (0 <= e < 1).
+/// Returned: E (rad, in the same 2 pi turn as M; E = M at M = k pi), sin E
+/// and cos E. Accurate to a few 1e-16 rad for every (M, e), e = 0.999 next
+/// to periastron included (tests/kepler_test.cpp).
+KeplerSolution kepler_solution(double mean_anom_rad, double ecc);
+
+/// The eccentric anomaly alone: kepler_solution(M, e).E.
+inline double solve_kepler(double mean_anom_rad, double ecc) {
+  return kepler_solution(mean_anom_rad, ecc).E;
+}
 
 /// The value part of a scalar (the Jet's .a), for control flow.
 inline double scalar_of(double x) { return x; }
@@ -54,17 +51,31 @@ double scalar_of(const ceres::Jet<double, N>& x) {
   return x.a;
 }
 
-/// Eccentric anomaly for any scalar: doubles directly; Ceres Jets by the
-/// implicit derivative dE = (dM + sin E de) / (1 - e cos E).
-inline double eccentric_anomaly(double mean_anom_rad, double ecc) {
-  return solve_kepler(mean_anom_rad, ecc);
+/// Eccentric anomaly with its sine and cosine, for any scalar.
+template <typename T>
+struct KeplerState {
+  T E, sin_E, cos_E;
+};
+
+/// Doubles directly; Ceres Jets by the implicit derivative
+/// dE = (dM + sin E de) / (1 - e cos E) and the chain rule for sin E, cos E.
+inline KeplerState<double> kepler_state(double mean_anom_rad, double ecc) {
+  const KeplerSolution k = kepler_solution(mean_anom_rad, ecc);
+  return {k.E, k.sin_E, k.cos_E};
 }
 template <int N>
-ceres::Jet<double, N> eccentric_anomaly(const ceres::Jet<double, N>& m,
-                                        const ceres::Jet<double, N>& e) {
-  const double E = solve_kepler(m.a, e.a);
-  const double denom = 1.0 - e.a * std::cos(E);
-  return ceres::Jet<double, N>(E, (m.v + std::sin(E) * e.v) / denom);
+KeplerState<ceres::Jet<double, N>> kepler_state(const ceres::Jet<double, N>& m,
+                                                const ceres::Jet<double, N>& e) {
+  using J = ceres::Jet<double, N>;
+  const KeplerSolution k = kepler_solution(m.a, e.a);
+  const Eigen::Matrix<double, N, 1> dE = (m.v + k.sin_E * e.v) / (1.0 - e.a * k.cos_E);
+  return {J(k.E, dE), J(k.sin_E, k.cos_E * dE), J(k.cos_E, -k.sin_E * dE)};
+}
+
+/// Eccentric anomaly alone, for any scalar.
+template <typename T>
+T eccentric_anomaly(const T& mean_anom_rad, const T& ecc) {
+  return kepler_state(mean_anom_rad, ecc).E;
 }
 
 /// Thiele-Innes constants of an orbit (in the unit of a).
@@ -121,9 +132,9 @@ OrbitPoint<T> orbit_point(const Orbit<T>& o, double t_yr) {
   using std::cos;
   using std::sin;
   using std::sqrt;
-  const T E = eccentric_anomaly(mean_anomaly(o, t_yr), o.ecc);
+  const KeplerState<T> k = kepler_state(mean_anomaly(o, t_yr), o.ecc);
   const ThieleInnes<T> ti = thiele_innes(T(1.0), o.inc_rad, o.arg_peri_rad, o.node_rad);
-  const T cE = cos(E), sE = sin(E);
+  const T cE = k.cos_E, sE = k.sin_E;
   const T b = sqrt(T(1.0) - o.ecc * o.ecc);
   const T X = cE - o.ecc, Y = b * sE;
   const T Edot = T(units::kTwoPi) / o.period_yr / (T(1.0) - o.ecc * cE);

@@ -47,11 +47,11 @@ namespace detail {
 /// Antiderivatives in E of X w, X w u, Y w / b and Y w u / b, with
 /// X = cos E - e, b Y = sqrt(1 - e^2) sin E, w = 1 - e cos E (= du/dE) and
 /// u = E - e sin E (docs/method.md, Sect. 6): the window moments in closed form.
+/// Takes sin E and cos E from the Kepler solve (kepler_state).
 template <typename T>
-void window_antiderivatives(const T& E, const T& e, T f[4]) {
-  using std::cos;
-  using std::sin;
-  const T s = sin(E), c = cos(E), s2 = T(2.0) * s * c, c2 = c * c - s * s;
+void window_antiderivatives(const KeplerState<T>& k, const T& e, T f[4]) {
+  const T &E = k.E, &s = k.sin_E, &c = k.cos_E;
+  const T s2 = T(2.0) * s * c, c2 = c * c - s * s;
   const T ee = T(1.0) + e * e;
   f[0] = ee * s - T(1.5) * e * E - T(0.25) * e * s2;
   f[1] = ee * (E * s + c) - e * (E * E * T(0.25) + E * s2 * T(0.25) + c2 * T(0.125)) -
@@ -69,9 +69,7 @@ void window_antiderivatives(const T& E, const T& e, T f[4]) {
 /// the cost does not grow with the number of orbits in the window.
 template <typename T>
 WindowBasis<T> window_basis(const Orbit<T>& o, const Window& w) {
-  using std::cos;
   using std::floor;
-  using std::sin;
   using std::sqrt;
   const T e = o.ecc;
   const T b = sqrt(T(1.0) - e * e);
@@ -90,10 +88,9 @@ WindowBasis<T> window_basis(const Orbit<T>& o, const Window& w) {
     // Both ends shifted by the same whole turns: only differences matter.
     const double turns = units::kTwoPi * floor(scalar_of(mean_anomaly(o, w.start_yr)) / units::kTwoPi);
     const T Ms = mean_anomaly(o, w.start_yr) - T(turns), Me = mean_anomaly(o, w.end_yr) - T(turns);
-    const T Es = eccentric_anomaly(Ms, e), Ee = eccentric_anomaly(Me, e);
     T fs[4], fe[4];
-    detail::window_antiderivatives(Es, e, fs);
-    detail::window_antiderivatives(Ee, e, fe);
+    detail::window_antiderivatives(kepler_state(Ms, e), e, fs);
+    detail::window_antiderivatives(kepler_state(Me, e), e, fe);
     // dt = k w dE and tau = ts + k (u - Ms), u = E - e sin E (du = w dE).
     const T c0 = T(ts) - k * Ms;
     sx = k * (fe[0] - fs[0]);
@@ -104,8 +101,8 @@ WindowBasis<T> window_basis(const Orbit<T>& o, const Window& w) {
     for (std::size_t i = 0; i < w.times_yr.size(); ++i) {
       const T wi(w.weights.empty() ? 1.0 : w.weights[i]);
       const double tau = w.times_yr[i] - w.ref_epoch_yr;
-      const T E = eccentric_anomaly(mean_anomaly(o, w.times_yr[i]), e);
-      const T X = cos(E) - e, Y = b * sin(E);
+      const KeplerState<T> k = kepler_state(mean_anomaly(o, w.times_yr[i]), e);
+      const T X = k.cos_E - e, Y = b * k.sin_E;
       s0 += wi;
       s1 += wi * tau;
       s2 += wi * tau * tau;
