@@ -33,37 +33,51 @@ AnomalyData anomaly_data(const StarRecord& star, const AnomalyResult& r, double 
 
 namespace {
 
+// Sky-plane Thiele-Innes constants of a draw at node 0 (x north, y east).
+struct Projection {
+  double A, B, F, G;
+};
+
 // (north, east) reflex anomaly vectors per unit s = q a parallax at node 0:
 // column 0 late, column 1 early.
-Eigen::Matrix<double, 2, 2> unit_anomalies(const Orbit<double>& o, const Window& early,
-                                           const Window& late) {
-  const WindowBasis<double> be = window_basis(o, early), bl = window_basis(o, late);
-  const ThieleInnes<double> ti = thiele_innes(1.0, o.inc_rad, o.arg_peri_rad, 0.0);
-  auto host = [&](double x, double y) {  // host side of the relative orbit
-    return Eigen::Vector2d(-(ti.A * x + ti.F * y), -(ti.B * x + ti.G * y));
+template <typename T>
+Eigen::Matrix<T, 2, 2> unit_anomalies(const Projection& pr, const Orbit<T>& o, const Window& early,
+                                      const Window& late) {
+  const WindowBasis<T> be = window_basis(o, early), bl = window_basis(o, late);
+  auto host = [&](const T& x, const T& y) {  // host side of the relative orbit
+    return Eigen::Matrix<T, 2, 1>(-(pr.A * x + pr.F * y), -(pr.B * x + pr.G * y));
   };
-  const Eigen::Vector2d pos_l = host(bl.x0, bl.y0), pos_e = host(be.x0, be.y0);
-  const Eigen::Vector2d pml = (pos_l - pos_e) / (late.ref_epoch_yr - early.ref_epoch_yr);
-  Eigen::Matrix<double, 2, 2> v;
+  const Eigen::Matrix<T, 2, 1> pos_l = host(bl.x0, bl.y0), pos_e = host(be.x0, be.y0);
+  const T inv_baseline(1.0 / (late.ref_epoch_yr - early.ref_epoch_yr));
+  const Eigen::Matrix<T, 2, 1> pml = (pos_l - pos_e) * inv_baseline;
+  Eigen::Matrix<T, 2, 2> v;
   v.col(0) = host(bl.xs, bl.ys) - pml;
   v.col(1) = host(be.xs, be.ys) - pml;
   return v;
 }
 
-// Design matrix: observed (late ra, late dec, early ra, early dec) = K z.
-Eigen::Matrix<double, 4, 2> design(const Eigen::Matrix<double, 2, 2>& v, double scale) {
-  Eigen::Matrix<double, 4, 2> k;
+// Design matrix per unit scale: observed (late ra, late dec, early ra,
+// early dec) = scale K z.
+template <typename T>
+Eigen::Matrix<T, 4, 2> design(const Eigen::Matrix<T, 2, 2>& v) {
+  Eigen::Matrix<T, 4, 2> k;
   for (int c = 0; c < 2; ++c) {
-    const double n = v(0, c), e = v(1, c);
-    k.row(2 * c) << e, n;       // east  = e z1 + n z2
-    k.row(2 * c + 1) << n, -e;  // north = n z1 - e z2
+    const T n = v(0, c), e = v(1, c);
+    k(2 * c, 0) = e;  // east  = e z1 + n z2
+    k(2 * c, 1) = n;
+    k(2 * c + 1, 0) = n;  // north = n z1 - e z2
+    k(2 * c + 1, 1) = -e;
   }
-  return k * scale;
+  return k;
 }
+
+using Mat42 = Eigen::Matrix<double, 4, 2>;
 
 struct Draw {
   double inc, omega, ecc, m0, m1, plx;
-  std::vector<double> n1, n2, u1, u2;  // deviates for the z samples
+  std::size_t dev;  ///< first of its z-sample deviates in DrawSet::dev
+  Projection proj;  ///< from inc and omega
+  double q_lo, q_hi, log_prior_c;  ///< the mass prior in q for this host mass
 };
 
 // The random numbers of a star's curve, drawn once and shared by every
@@ -71,37 +85,10 @@ struct Draw {
 // for the prior half of the adaptive stage, kernel deviates and picks.
 struct DrawSet {
   std::vector<Draw> first, second;
+  std::vector<double> dev;  // per draw and z sample: n1, n2, u1, u2
   std::vector<Eigen::Vector4d> kernel;  // (cos i, omega, M0, e) deviates
   std::vector<double> pick;
 };
-
-Draw prior_draw(const AnomalyData& d, const CurveOptions& opt, Rng& rng) {
-  Draw dr;
-  dr.inc = std::acos(rng.uniform(-1.0, 1.0));
-  dr.omega = units::kTwoPi * rng.uniform();
-  dr.ecc = std::clamp(opt.prior.ecc.draw(rng), 0.0, 0.99);
-  dr.m0 = units::kTwoPi * rng.uniform();
-  do dr.m1 = d.host_mass_msun + d.host_mass_error_msun * rng.normal(); while (!(dr.m1 > 0.01));
-  do dr.plx = d.parallax_mas + d.parallax_error_mas * rng.normal(); while (!(dr.plx > 0));
-  for (int s = 0; s < opt.z_samples; ++s) {
-    dr.n1.push_back(rng.normal());
-    dr.n2.push_back(rng.normal());
-    dr.u1.push_back(rng.uniform_open());
-    dr.u2.push_back(rng.uniform());
-  }
-  return dr;
-}
-
-DrawSet make_draws(const AnomalyData& d, const CurveOptions& opt, const std::string& id) {
-  Rng rng = Rng::for_star(opt.seed, id);
-  DrawSet ds;
-  for (int k = 0; k < opt.draws; ++k) ds.first.push_back(prior_draw(d, opt, rng));
-  for (int k = 0; k < opt.draws; ++k) ds.second.push_back(prior_draw(d, opt, rng));
-  for (int k = 0; k < opt.draws; ++k)
-    ds.kernel.emplace_back(rng.normal(), rng.normal(), rng.normal(), rng.normal());
-  for (int k = 0; k < 2 * opt.draws; ++k) ds.pick.push_back(rng.uniform());
-  return ds;
-}
 
 // heft's mass prior (prior.hpp) as a density in the z plane (normalised).
 struct ZPlanePrior {
@@ -111,21 +98,20 @@ struct ZPlanePrior {
         m_hi_msun(p.m_max_mjup * (1.0 / units::kMjupPerMsun)) {}
   bool log_uniform;
   double m_lo_msun, m_hi_msun;
-  double q_lo(double m1) const { return m_lo_msun / (m1 + m_lo_msun); }
-  double q_hi(double m1) const { return m_hi_msun / (m1 + m_hi_msun); }
-  double log_density(double q, double m1) const {
-    const double lo = q_lo(m1), hi = q_hi(m1);
-    if (!(q > lo && q < hi)) return -std::numeric_limits<double>::infinity();
-    // Log-uniform m2 with uniform Omega: p(q) = 1 / (q (1 - q) Z);
-    // uniform m2: p(q) = m1 / ((1 - q)^2 m_hi); p(z) = p(q) / (2 pi q).
-    double log_pq;
-    if (log_uniform) {
-      const double z = std::log(hi / (1 - hi)) - std::log(lo / (1 - lo));
-      log_pq = -std::log(q) - std::log1p(-q) - std::log(z);
-    } else {
-      log_pq = std::log(m1) - 2.0 * std::log1p(-q) - std::log(m_hi_msun);
-    }
-    return log_pq - std::log(units::kTwoPi * q);
+  // The support and the constant of the density for a host of mass m1.
+  // Log-uniform m2 with uniform Omega: p(q) = 1 / (q (1 - q) Z); uniform
+  // m2: p(q) = m1 / ((1 - q)^2 m_hi); p(z) = p(q) / (2 pi q).
+  void prepare(Draw& dr) const {
+    dr.q_lo = m_lo_msun / (dr.m1 + m_lo_msun);
+    dr.q_hi = m_hi_msun / (dr.m1 + m_hi_msun);
+    dr.log_prior_c = log_uniform ? -std::log(std::log(dr.q_hi / (1 - dr.q_hi)) - std::log(dr.q_lo / (1 - dr.q_lo)))
+                                 : std::log(dr.m1) - std::log(m_hi_msun);
+    dr.log_prior_c -= std::log(units::kTwoPi);
+  }
+  // log p(z) at |z| = q, given log q and log(1 - q).
+  double log_density(const Draw& dr, double q, double log_q, double log_1mq) const {
+    if (!(q > dr.q_lo && q < dr.q_hi)) return -std::numeric_limits<double>::infinity();
+    return dr.log_prior_c + (log_uniform ? -2.0 * log_q - log_1mq : -log_q - 2.0 * log_1mq);
   }
   // A draw of q from the prior itself, from a uniform deviate.
   double draw_q(double u, double m1) const {
@@ -135,14 +121,53 @@ struct ZPlanePrior {
   }
 };
 
+// Fills the parts of a draw that follow from its angles and host mass.
+void prepare_draw(Draw& dr, const ZPlanePrior& prior) {
+  const ThieleInnes<double> ti = thiele_innes(1.0, dr.inc, dr.omega, 0.0);
+  dr.proj = {ti.A, ti.B, ti.F, ti.G};
+  prior.prepare(dr);
+}
+
+Draw prior_draw(const AnomalyData& d, const CurveOptions& opt, const ZPlanePrior& prior, Rng& rng,
+                std::vector<double>& dev) {
+  Draw dr;
+  dr.inc = std::acos(rng.uniform(-1.0, 1.0));
+  dr.omega = units::kTwoPi * rng.uniform();
+  dr.ecc = std::clamp(opt.prior.ecc.draw(rng), 0.0, 0.99);
+  dr.m0 = units::kTwoPi * rng.uniform();
+  do dr.m1 = d.host_mass_msun + d.host_mass_error_msun * rng.normal(); while (!(dr.m1 > 0.01));
+  do dr.plx = d.parallax_mas + d.parallax_error_mas * rng.normal(); while (!(dr.plx > 0));
+  dr.dev = dev.size();
+  for (int s = 0; s < opt.z_samples; ++s) {
+    const double n1 = rng.normal(), n2 = rng.normal(), u1 = rng.uniform_open(), u2 = rng.uniform();
+    dev.insert(dev.end(), {n1, n2, u1, u2});
+  }
+  prepare_draw(dr, prior);
+  return dr;
+}
+
+DrawSet make_draws(const AnomalyData& d, const CurveOptions& opt, const ZPlanePrior& prior,
+                   const std::string& id) {
+  Rng rng = Rng::for_star(opt.seed, id);
+  DrawSet ds;
+  ds.dev.reserve(8 * static_cast<std::size_t>(opt.draws) * opt.z_samples);
+  for (int k = 0; k < opt.draws; ++k) ds.first.push_back(prior_draw(d, opt, prior, rng, ds.dev));
+  for (int k = 0; k < opt.draws; ++k) ds.second.push_back(prior_draw(d, opt, prior, rng, ds.dev));
+  for (int k = 0; k < opt.draws; ++k)
+    ds.kernel.emplace_back(rng.normal(), rng.normal(), rng.normal(), rng.normal());
+  for (int k = 0; k < 2 * opt.draws; ++k) ds.pick.push_back(rng.uniform());
+  return ds;
+}
+
 struct Sample {
-  double log_w, m2_mjup, node;
+  double log_w, m2_mjup, z1, z2;
 };
 
 struct PointResult {
   CurvePoint point;
   double log_evidence;
   std::vector<OrbitDraw> draws;
+  long draws_weighed = 0, window_evaluations = 0;
 };
 
 // Everything a separation needs that does not depend on the draw.
@@ -157,76 +182,206 @@ struct Problem {
   double snr;  ///< sqrt(chi2_data)
 };
 
-// Relative change of the model when the period moves from p to p_new: about
-// the phase drift over the baseline, 2 pi (baseline / P + 1) |dP / P|; chi2
-// changes by about (drift x S/N)^2, so changes with drift x S/N < 0.05 are
-// negligible.
-double period_drift(const Problem& pb, double p, double p_new) {
-  return units::kTwoPi * (pb.baseline_yr / p + 1.0) * std::abs(p_new / p - 1.0);
+// The model's period dependence. A relative change of the period by
+// d ln P moves the model by about the phase drift over the baseline,
+// 2 pi (baseline / P + 1) |d ln P|, and chi2 by about drift x S/N. Changes
+// with drift x S/N below kDriftTolerance are neglected, and an
+// interpolated model is used where its error bound x S/N stays below it.
+constexpr double kDriftTolerance = 0.05;
+// The mass ratio at which the period's dependence on q is capped (the
+// dark-companion model does not hold beyond; keeps ln P finite).
+const double kLog1mPeriodQCap = std::log1p(-0.9);
+
+// The scaled design matrix K(x) and dK/dx at x = ln P - ln P0 (P0: the
+// period at q = 0), from one Jet evaluation of the window model.
+struct DesignNode {
+  double x;
+  Mat42 k, dk;
+};
+
+// The unscaled design matrix and its derivative with respect to ln P, from
+// one Jet evaluation of the window model (orbit o at node 0).
+void design_and_derivative(const Projection& pr, const Orbit<double>& o, const Window& early,
+                           const Window& late, Mat42& k, Mat42& dk) {
+  using J = ceres::Jet<double, 1>;
+  J period(o.period_yr, 0);
+  period.v[0] = o.period_yr;  // dP / d ln P
+  const Orbit<J> oj{period, J(o.ecc), J(o.inc_rad), J(o.arg_peri_rad), J(0.0), J(o.mean_anom_ref_rad),
+                    o.ref_epoch_yr};
+  const Eigen::Matrix<J, 4, 2> kj = design(unit_anomalies(pr, oj, early, late));
+  for (int i = 0; i < 4; ++i)
+    for (int j = 0; j < 2; ++j) {
+      k(i, j) = kj(i, j).a;
+      dk(i, j) = kj(i, j).v[0];
+    }
 }
+
+DesignNode design_node(const Problem& pb, const Draw& dr, double p0, double x) {
+  const Orbit<double> o{x == 0.0 ? p0 : p0 * std::exp(x), dr.ecc, dr.inc, dr.omega, 0.0, dr.m0,
+                        pb.d.late.ref_epoch_yr};
+  DesignNode n{x, {}, {}};
+  design_and_derivative(dr.proj, o, pb.d.early, pb.d.late, n.k, n.dk);
+  const double scale = pb.a_au * dr.plx;
+  n.k *= scale;
+  n.dk *= scale;
+  return n;
+}
+
+// K(x) of one draw between full evaluations: one node and the linear
+// model about it, whose error is about (drift / (1 - e))^2 / 2. Where that is not
+// enough and the model is smooth in x over the prior's whole range of q
+// (long periods), a cubic Hermite interpolant on a few nodes spanning the
+// range replaces it: its error is about (w h)^4 / 384 of the model for node
+// spacing h, with w = 2 pi baseline / P + 2 the model's rate of change per
+// unit ln P (phase drift, and the P^-1 ... P^-2 scaling of velocity and
+// acceleration), times 1 / (1 - e) for the faster motion next to periastron
+// (tests/curve_test.cpp, "period correction"). Elsewhere (short periods) the linear model is moved to the
+// period of the best z and other periods are evaluated exactly.
+class PeriodModel {
+ public:
+  PeriodModel(const Problem& pb, const Draw& dr, double p0, double x_min)
+      : pb_(pb), dr_(dr), p0_(p0), x_min_(x_min) {
+    // Next to periastron the orbit moves faster by up to 1 / (1 - e).
+    const double speed_up = 1.0 / (1.0 - dr.ecc);
+    const double w = (units::kTwoPi * pb.baseline_yr / p0 + 2.0) * speed_up;
+    drift_rate_ = units::kTwoPi * (pb.baseline_yr / p0 + 1.0) * pb.snr;
+    curvature_rate_ = drift_rate_ * speed_up;
+    // Hermite intervals needed for (w h)^4 / 384 x S/N < tolerance.
+    const double h_max = std::pow(384.0 * kDriftTolerance / std::max(pb.snr, 1e-3), 0.25) / w;
+    const double intervals = std::ceil(-x_min / h_max);
+    hermite_intervals_ = intervals <= kMaxHermiteIntervals ? std::max(1, static_cast<int>(intervals)) : 0;
+    nodes_[0] = design_node(pb, dr, p0, 0.0);
+  }
+  int evaluations() const { return n_nodes_ + exact_; }
+  // Whether a change of x by dx changes chi2 by less than the tolerance.
+  bool negligible(double dx) const { return drift_rate_ * std::abs(dx) < kDriftTolerance; }
+  // Makes the model accurate at x: the interpolant where possible, else
+  // the linear model moved to x (at most kMaxMoves times).
+  void centre(double x) {
+    if (accurate(x)) return;
+    if (hermite_intervals_ > 0) {
+      build_hermite();
+    } else if (moves_ < kMaxMoves) {
+      nodes_[0] = design_node(pb_, dr_, p0_, x);
+      ++moves_;
+      ++exact_;
+    }
+  }
+  // K at x: interpolated where accurate, else evaluated exactly.
+  Mat42 k_at(double x) {
+    if (!accurate(x) && hermite_intervals_ > 0) build_hermite();
+    if (accurate(x)) return at(x);
+    const Orbit<double> o{p0_ * std::exp(x), dr_.ecc, dr_.inc, dr_.omega, 0.0, dr_.m0, pb_.d.late.ref_epoch_yr};
+    ++exact_;
+    return pb_.a_au * dr_.plx * design(unit_anomalies(dr_.proj, o, pb_.d.early, pb_.d.late));
+  }
+
+ private:
+  static constexpr int kMaxHermiteIntervals = 2;
+  static constexpr int kMaxMoves = 3;
+  bool accurate(double x) const {
+    if (n_nodes_ > 1) return x >= nodes_[n_nodes_ - 1].x && x <= nodes_[0].x;
+    const double dx = x - nodes_[0].x;
+    return 0.5 * curvature_rate_ * curvature_rate_ * dx * dx / pb_.snr < kDriftTolerance;
+  }
+  // Nodes at x = 0 (kept), x_min / n, ..., x_min (descending).
+  void build_hermite() {
+    if (nodes_[0].x != 0.0) nodes_[0] = design_node(pb_, dr_, p0_, 0.0), ++exact_;
+    const int n = hermite_intervals_;
+    for (int k = 1; k <= n; ++k) nodes_[k] = design_node(pb_, dr_, p0_, x_min_ * k / n);
+    n_nodes_ = n + 1;
+    hermite_intervals_ = 0;
+  }
+  Mat42 at(double x) const {
+    if (n_nodes_ == 1) return nodes_[0].k + (x - nodes_[0].x) * nodes_[0].dk;
+    int i = 0;  // nodes descend in x
+    while (i + 2 < n_nodes_ && x < nodes_[i + 1].x) ++i;
+    const DesignNode &a = nodes_[i + 1], &b = nodes_[i];
+    const double h = b.x - a.x, t = (x - a.x) / h, t2 = t * t, t3 = t2 * t;
+    return (2 * t3 - 3 * t2 + 1) * a.k + (t3 - 2 * t2 + t) * h * a.dk + (-2 * t3 + 3 * t2) * b.k +
+           (t3 - t2) * h * b.dk;
+  }
+  const Problem& pb_;
+  const Draw& dr_;
+  double p0_, x_min_, drift_rate_, curvature_rate_;
+  int hermite_intervals_ = 0, n_nodes_ = 1, exact_ = 0, moves_ = 0;
+  std::array<DesignNode, kMaxHermiteIntervals + 1> nodes_;
+};
 
 // Weighted z samples of one draw of (i, omega, e, M0, m1, parallax):
 // z = q (cos Omega, sin Omega) is marginalised through its exact Gaussian
 // likelihood and importance-sampled against the mass prior. `log_extra` is
-// added to every weight (prior / proposal of the draw itself).
-void weigh_draw(const Problem& pb, const Draw& dr, double log_extra, Sample* out) {
+// added to every weight (prior / proposal of the draw itself). Returns the
+// number of window-model evaluations.
+int weigh_draw(const Problem& pb, const Draw& dr, const double* dev, double log_extra, Sample* out) {
   const AnomalyData& d = pb.d;
   const ZPlanePrior& prior = pb.prior;
-  const double a_au = pb.a_au;
-  double q_hat = 0.0, period = 0.0;
+  // x = ln P - ln P0 = log1p(-q) / 2 (Kepler's third law, m1 + m2 = m1 / (1 - q));
+  // the q used for the period is capped at kPeriodQCap.
+  auto x_of = [](double log_1mq) { return 0.5 * std::max(log_1mq, kLog1mPeriodQCap); };
+  const double p0 = period_from_a(pb.a_au, dr.m1);
+  const double x_min = x_of(std::log1p(-dr.q_hi));
+  PeriodModel model(pb, dr, p0, x_min);
+  // Fixed point of the period on m1 + m2 (m2 from the best z).
+  double x = 0.0;
+  Mat42 kmat;
   Eigen::Matrix2d fisher;
   Eigen::Vector2d z_hat;
-  auto design_at = [&](double per) {
-    const Orbit<double> o{per, dr.ecc, dr.inc, dr.omega, 0.0, dr.m0, d.late.ref_epoch_yr};
-    return design(unit_anomalies(o, d.early, d.late), a_au * dr.plx);
-  };
-  Eigen::Matrix<double, 4, 2> kmat;
-  // Fixed-point iteration of the period on m1 + m2 (m2 from the best z).
-  for (int it = 0; it < 3; ++it) {
-    const double p_new = period_from_a(a_au, dr.m1 / (1.0 - q_hat));
-    if (it > 0 && period_drift(pb, period, p_new) * pb.snr < 0.05) break;
-    period = p_new;
-    kmat = design_at(period);
-    fisher = kmat.transpose() * pb.cinv * kmat;
-    const Eigen::Vector2d b = kmat.transpose() * pb.cinv * d.dpm;
-    z_hat = fisher.ldlt().solve(b);
-    q_hat = std::min(z_hat.norm(), 0.9);
+  for (int it = 0; it < 8; ++it) {
+    kmat = model.k_at(x);
+    const Eigen::Matrix<double, 2, 4> kc = kmat.transpose() * pb.cinv;
+    fisher = kc * kmat;
+    z_hat = fisher.inverse() * (kc * d.dpm);
+    // Beyond the prior's largest q no sample has weight: the period there
+    // is the one at that q.
+    const double x_new = std::max(x_of(std::log1p(-std::min(z_hat.norm(), 0.999))), x_min);
+    if (model.negligible(x_new - x)) break;
+    x = x_new;
+    model.centre(x);
   }
   const double chi2_min = pb.chi2_data - z_hat.dot(fisher * z_hat);
-  Eigen::SelfAdjointEigenSolver<Eigen::Matrix2d> es(fisher);
+  Eigen::SelfAdjointEigenSolver<Eigen::Matrix2d> es;
+  es.computeDirect(fisher);
   const Eigen::Vector2d lam = es.eigenvalues().cwiseMax(1e-300);
+  const double log_gauss_norm = std::log(units::kTwoPi) - 0.5 * std::log(lam(0) * lam(1));
   // Gaussian extent of z versus the prior range decides the proposal.
-  const bool gaussian = 1.0 / std::sqrt(lam.minCoeff()) < 0.3 * prior.q_hi(dr.m1);
+  const bool gaussian = 1.0 / std::sqrt(lam.minCoeff()) < 0.3 * dr.q_hi;
   for (int s = 0; s < pb.opt.z_samples; ++s) {
+    const double* u = dev + 4 * s;
     Eigen::Vector2d z;
     double log_w;
     if (gaussian) {
       // z ~ N(z_hat, F^-1): weight = prior(z) exp(-chi2_min/2) 2 pi sqrt(det F^-1).
-      const Eigen::Vector2d n(dr.n1[s], dr.n2[s]);
-      z = z_hat + es.eigenvectors() * (n.array() / lam.array().sqrt()).matrix();
-      log_w = prior.log_density(z.norm(), dr.m1) - 0.5 * chi2_min + std::log(units::kTwoPi) -
-              0.5 * std::log(lam(0) * lam(1));
+      z = z_hat + es.eigenvectors() * Eigen::Vector2d(u[0] / std::sqrt(lam(0)), u[1] / std::sqrt(lam(1)));
     } else {
       // z from the prior: weight = likelihood.
-      const double q = prior.draw_q(dr.u1[s], dr.m1), om = units::kTwoPi * dr.u2[s];
+      const double q = prior.draw_q(u[2], dr.m1), om = units::kTwoPi * u[3];
       z << q * std::cos(om), q * std::sin(om);
+    }
+    const double q = z.norm();
+    const double log_1mq = q < 1.0 ? std::log1p(-q) : -std::numeric_limits<double>::infinity();
+    if (gaussian) {
+      log_w = prior.log_density(dr, q, std::log(q), log_1mq) - 0.5 * chi2_min + log_gauss_norm;
+    } else {
       const Eigen::Vector2d dz = z - z_hat;
       log_w = -0.5 * chi2_min - 0.5 * dz.dot(fisher * dz);
     }
-    const double q = z.norm();
     // The Gaussian used the period of the best z; where this sample's own
     // m1 + m2 moves the period, correct by the exact / Gaussian likelihood.
-    const double p_s = period_from_a(a_au, dr.m1 / (1.0 - std::min(q, 0.9)));
-    if (std::isfinite(log_w) && period_drift(pb, period, p_s) * pb.snr > 0.05) {
-      const Eigen::Vector4d r_hat = d.dpm - kmat * z, r_s = d.dpm - design_at(p_s) * z;
+    const double x_s = x_of(log_1mq);
+    if (std::isfinite(log_w) && !model.negligible(x_s - x)) {
+      const Mat42 k_s = model.k_at(x_s);
+      const Eigen::Vector4d r_hat = d.dpm - kmat * z, r_s = d.dpm - k_s * z;
       log_w += -0.5 * r_s.dot(pb.cinv * r_s) + 0.5 * r_hat.dot(pb.cinv * r_hat);
     }
     log_w += log_extra;
     Sample& o = out[s];
     o.log_w = std::isfinite(log_w) ? log_w : -std::numeric_limits<double>::infinity();
     o.m2_mjup = dr.m1 * q / (1.0 - std::min(q, 0.999999)) * units::kMjupPerMsun;
-    o.node = std::atan2(z.y(), z.x());
+    o.z1 = z.x();
+    o.z2 = z.y();
   }
+  return model.evaluations();
 }
 
 // The orbit-angle part of a draw in sampling coordinates:
@@ -234,28 +389,73 @@ void weigh_draw(const Problem& pb, const Draw& dr, double log_extra, Sample* out
 using Coords = Eigen::Vector4d;
 Coords coords_of(const Draw& d) { return {std::cos(d.inc), d.omega, d.m0, d.ecc}; }
 
-
 // Log density of the prior of the orbit-angle part.
 double log_prior_coords(const Coords& c, const Distribution& ecc) {
   if (std::abs(c(0)) > 1.0 || c(3) < 0.0 || c(3) > 0.99) return -std::numeric_limits<double>::infinity();
   return -std::log(2.0) - 2.0 * std::log(units::kTwoPi) + ecc.log_pdf(c(3));
 }
 
-double log_sum_exp(const std::vector<double>& v) {
-  double m = -std::numeric_limits<double>::infinity();
-  for (double x : v) m = std::max(m, x);
-  if (!std::isfinite(m)) return m;
-  double s = 0;
-  for (double x : v) s += std::exp(x - m);
-  return m + std::log(s);
+// Weights exp(log_w - max) of the samples, their sum and sum of squares.
+struct Weights {
+  std::vector<double> w;
+  double max_log_w, sum, sum2;
+};
+Weights weights_of(const std::vector<Sample>& ss) {
+  Weights r{std::vector<double>(ss.size(), 0.0), -std::numeric_limits<double>::infinity(), 0.0, 0.0};
+  for (const auto& s : ss) r.max_log_w = std::max(r.max_log_w, s.log_w);
+  if (!std::isfinite(r.max_log_w)) return r;
+  for (std::size_t i = 0; i < ss.size(); ++i) {
+    r.w[i] = std::exp(ss[i].log_w - r.max_log_w);
+    r.sum += r.w[i];
+    r.sum2 += r.w[i] * r.w[i];
+  }
+  return r;
 }
+
+// Gaussian kernels in the orbit-angle coordinates around ancestors, with
+// per-axis widths; angles (in [0, 2 pi)) wrap. The mixture's log density skips kernels
+// whose exponent is more than kKernelCut below the nearest one (their
+// share is below exp(-kKernelCut)).
+class KernelMixture {
+ public:
+  KernelMixture(std::vector<Coords> anc, const Coords& width) : anc_(std::move(anc)) {
+    log_norm_ = std::log(static_cast<double>(anc_.size()));
+    inv_w2_.setZero();
+    for (int i = 0; i < 4; ++i)
+      if (width(i) > 0.0) {
+        inv_w2_(i) = 1.0 / (width(i) * width(i));
+        log_norm_ += std::log(width(i) * std::sqrt(units::kTwoPi));
+      }
+  }
+  double log_density(const Coords& c, std::vector<double>& q) const {
+    q.resize(anc_.size());
+    double q_min = std::numeric_limits<double>::infinity();
+    for (std::size_t m = 0; m < anc_.size(); ++m) {
+      double acc = 0;
+      for (int i = 0; i < 4; ++i) {
+        double dx = c(i) - anc_[m](i);
+        if (i == 1 || i == 2) dx = dx > units::kPi ? dx - units::kTwoPi : (dx < -units::kPi ? dx + units::kTwoPi : dx);
+        acc += dx * dx * inv_w2_(i);
+      }
+      q[m] = 0.5 * acc;
+      q_min = std::min(q_min, q[m]);
+    }
+    double s = 0;
+    for (double v : q)
+      if (v - q_min < kKernelCut) s += std::exp(q_min - v);
+    return -q_min + std::log(s) - log_norm_;
+  }
+
+ private:
+  static constexpr double kKernelCut = 40.0;
+  std::vector<Coords> anc_;
+  Coords inv_w2_;
+  double log_norm_;
+};
 
 PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const DrawSet& ds,
                        const ZPlanePrior& prior, bool upper, double a_au) {
   const std::vector<Draw>& draws = ds.first;
-  const std::vector<Draw>& draws2 = ds.second;
-  const std::vector<Coords>& kernel_dev = ds.kernel;
-  const std::vector<double>& pick_dev = ds.pick;
   Eigen::LLT<Eigen::Matrix4d> cllt(d.cov);
   const double chi2_data = d.dpm.dot(cllt.solve(d.dpm));
   const Problem pb{d, opt, prior, cllt.solve(Eigen::Matrix4d::Identity()), chi2_data, a_au,
@@ -263,20 +463,14 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const Draw
   const int nz = opt.z_samples;
   const std::size_t n = draws.size();
   std::vector<Sample> samples(n * nz);
-#pragma omp parallel for schedule(static)
-  for (std::size_t k = 0; k < n; ++k) weigh_draw(pb, draws[k], 0.0, &samples[k * nz]);
+  PointResult r;
+  long evaluations = 0;
+#pragma omp parallel for schedule(static) reduction(+ : evaluations)
+  for (std::size_t k = 0; k < n; ++k)
+    evaluations += weigh_draw(pb, draws[k], &ds.dev[draws[k].dev], 0.0, &samples[k * nz]);
+  r.draws_weighed += static_cast<long>(n);
 
-  auto ess_of = [&](const std::vector<Sample>& ss) {
-    double m = -std::numeric_limits<double>::infinity(), sw = 0, sw2 = 0;
-    for (const auto& s : ss) m = std::max(m, s.log_w);
-    if (!std::isfinite(m)) return 0.0;
-    for (const auto& s : ss) {
-      const double w = std::exp(s.log_w - m);
-      sw += w;
-      sw2 += w * w;
-    }
-    return effective_sample_size(sw, sw2);
-  };
+  Weights wts = weights_of(samples);
   const std::vector<Draw>* used = &draws;
   // Second stage when the prior draws degenerate (high S/N): a defensive
   // mixture of the prior and Gaussian kernels around draws resampled from
@@ -287,20 +481,16 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const Draw
   constexpr double kAdaptEss = 1000.0;
   std::vector<Draw> adapted;
   // Up to three rounds, each proposing around the previous round's draws.
-  for (int round = 0; round < 3 && ess_of(samples) < kAdaptEss && !draws2.empty();
+  for (int round = 0; round < 3 && effective_sample_size(wts.sum, wts.sum2) < kAdaptEss && !ds.second.empty();
        ++round) {
     const std::vector<Draw>& src = *used;
-    std::vector<double> ld(n);
-    for (std::size_t k = 0; k < n; ++k) {
-      std::vector<double> lw(nz);
-      for (int s = 0; s < nz; ++s) lw[s] = samples[k * nz + s].log_w;
-      ld[k] = log_sum_exp(lw);
-    }
-    const double lmax = *std::max_element(ld.begin(), ld.end());
+    // Ancestors by systematic resampling of the draws, and their spread.
     std::vector<double> cw(n);
     double acc = 0;
-    for (std::size_t k = 0; k < n; ++k) cw[k] = acc += std::isfinite(ld[k]) ? std::exp(ld[k] - lmax) : 0.0;
-    // Ancestors by systematic resampling, and their weighted spread.
+    for (std::size_t k = 0; k < n; ++k) {
+      for (int s = 0; s < nz; ++s) acc += wts.w[k * nz + s];
+      cw[k] = acc;
+    }
     const int n_anc = 64;
     std::vector<Coords> anc;
     for (int j = 0; j < n_anc; ++j) {
@@ -321,85 +511,68 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const Draw
     const Coords floor_w(0.01, 0.02, 0.02, 0.005), cap_w(1.0, 2.0, 2.0, 0.5);
     width = width.cwiseMax(floor_w).cwiseMin(cap_w);
     if (opt.prior.ecc.kind == Distribution::Kind::kFixed) width(3) = 0.0;
-    double log_norm = std::log(static_cast<double>(anc.size()));
-    Coords inv_w2 = Coords::Zero();
-    for (int i = 0; i < 4; ++i)
-      if (width(i) > 0.0) {
-        inv_w2(i) = 1.0 / (width(i) * width(i));
-        log_norm += std::log(width(i) * std::sqrt(units::kTwoPi));
-      }
-    std::vector<double> terms(anc.size());
-    auto log_kernel_mix = [&](const Coords& c) {
-      for (std::size_t m = 0; m < anc.size(); ++m) {
-        double q = 0;
-        for (int i = 0; i < 4; ++i) {
-          double dx = c(i) - anc[m](i);
-          if (i == 1 || i == 2) dx = dx > units::kPi ? dx - units::kTwoPi : (dx < -units::kPi ? dx + units::kTwoPi : dx);
-          q += dx * dx * inv_w2(i);
-        }
-        terms[m] = -0.5 * q;
-      }
-      return log_sum_exp(terms) - log_norm;
-    };
-    std::vector<Draw> next = draws2;
+    const KernelMixture mixture(anc, width);
+    std::vector<Draw> next = ds.second;
     std::vector<double> log_extra(n);
-    for (std::size_t j = 0; j < n; ++j) {
-      Draw& dr = next[j];
-      if (pick_dev[j] >= 0.5) {  // kernel component
-        const Coords& a = anc[static_cast<std::size_t>(pick_dev[j + n] * n_anc) % n_anc];
-        Coords c = a + width.cwiseProduct(kernel_dev[j]);
-        c(1) = wrap_2pi(c(1));
-        c(2) = wrap_2pi(c(2));
-        if (opt.prior.ecc.kind == Distribution::Kind::kFixed) c(3) = dr.ecc;
-        dr.inc = std::acos(std::clamp(c(0), -1.0, 1.0));
-        dr.omega = c(1);
-        dr.m0 = c(2);
-        dr.ecc = c(3);
+#pragma omp parallel
+    {
+      std::vector<double> scratch;
+#pragma omp for schedule(static)
+      for (std::size_t j = 0; j < n; ++j) {
+        Draw& dr = next[j];
+        if (ds.pick[j] >= 0.5) {  // kernel component
+          const Coords& a = anc[static_cast<std::size_t>(ds.pick[j + n] * n_anc) % n_anc];
+          Coords c = a + width.cwiseProduct(ds.kernel[j]);
+          c(1) = wrap_2pi(c(1));
+          c(2) = wrap_2pi(c(2));
+          if (opt.prior.ecc.kind == Distribution::Kind::kFixed) c(3) = dr.ecc;
+          dr.inc = std::acos(std::clamp(c(0), -1.0, 1.0));
+          dr.omega = c(1);
+          dr.m0 = c(2);
+          dr.ecc = c(3);
+          prepare_draw(dr, prior);
+        }
+        const Coords c = coords_of(dr);
+        const double lp = log_prior_coords(c, opt.prior.ecc);
+        // Mixture density 0.5 prior + 0.5 kernels.
+        const double lk = mixture.log_density(c, scratch);
+        const double mix = std::isfinite(lp) ? std::max(lp, lk) + std::log1p(std::exp(-std::abs(lp - lk))) - std::log(2.0)
+                                             : lk;
+        log_extra[j] = std::isfinite(lp) ? lp - mix : -std::numeric_limits<double>::infinity();
       }
-      const Coords c = coords_of(next[j]);
-      const double lp = log_prior_coords(c, opt.prior.ecc);
-      // Mixture density 0.5 prior + 0.5 kernels.
-      const double lk = log_kernel_mix(c);
-      const double mix = std::isfinite(lp) ? log_sum_exp({lp, lk}) - std::log(2.0) : lk;
-      log_extra[j] = std::isfinite(lp) ? lp - mix : -std::numeric_limits<double>::infinity();
     }
-#pragma omp parallel for schedule(static)
+#pragma omp parallel for schedule(static) reduction(+ : evaluations)
     for (std::size_t j = 0; j < n; ++j) {
       if (std::isfinite(log_extra[j])) {
-        weigh_draw(pb, next[j], log_extra[j], &samples[j * nz]);
+        evaluations += weigh_draw(pb, next[j], &ds.dev[next[j].dev], log_extra[j], &samples[j * nz]);
       } else {  // outside the prior's support: no weight
-        for (int s = 0; s < nz; ++s) samples[j * nz + s] = {-std::numeric_limits<double>::infinity(), 0.0, 0.0};
+        for (int s = 0; s < nz; ++s) samples[j * nz + s] = {-std::numeric_limits<double>::infinity(), 0.0, 0.0, 0.0};
       }
     }
+    r.draws_weighed += static_cast<long>(n);
+    wts = weights_of(samples);
     adapted.swap(next);
     used = &adapted;
   }
   const std::vector<Draw>& fin = *used;
+  r.window_evaluations = evaluations;
 
   // Reduce in a fixed order: results do not depend on the thread count.
-  double max_lw = -std::numeric_limits<double>::infinity();
-  for (const auto& s : samples) max_lw = std::max(max_lw, s.log_w);
-  std::vector<std::pair<double, double>> mw;
-  mw.reserve(samples.size());
-  double sw = 0, sw2 = 0;
-  for (const auto& s : samples) {
-    const double w = std::isfinite(max_lw) ? std::exp(s.log_w - max_lw) : 0.0;
-    mw.emplace_back(s.m2_mjup, w);
-    sw += w;
-    sw2 += w * w;
-  }
-  PointResult r;
+  const double sw = wts.sum;
   CurvePoint& p = r.point;
   p.a_au = a_au;
   p.sep_mas = a_au * d.parallax_mas;
   p.period_yr = period_from_a(a_au, d.host_mass_msun);
-  p.ess = effective_sample_size(sw, sw2);
-  r.log_evidence = std::isfinite(max_lw) && sw > 0
-                       ? max_lw + std::log(sw) - std::log(static_cast<double>(samples.size()))
+  p.ess = effective_sample_size(wts.sum, wts.sum2);
+  r.log_evidence = std::isfinite(wts.max_log_w) && sw > 0
+                       ? wts.max_log_w + std::log(sw) - std::log(static_cast<double>(samples.size()))
                        : -std::numeric_limits<double>::infinity();
   p.mass_lo95 = p.mass_lo68 = p.mass_med = p.mass_hi68 = p.mass_hi95 = kAbsent;
   if (sw > 0) {
-    std::vector<std::pair<double, double>> sorted = mw;
+    std::vector<std::pair<double, double>> sorted;
+    sorted.reserve(samples.size());
+    for (std::size_t i = 0; i < samples.size(); ++i)
+      if (wts.w[i] > 0) sorted.emplace_back(samples[i].m2_mjup, wts.w[i]);
     std::sort(sorted.begin(), sorted.end());
     if (upper) {
       p.mass_hi68 = weighted_quantile(sorted, sw, 0.68);
@@ -417,13 +590,14 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const Draw
     const std::size_t keep = 256;
     double acc = 0, next = 0.5 * sw / keep;
     for (std::size_t i = 0; i < samples.size() && r.draws.size() < keep; ++i) {
-      acc += mw[i].second;
+      acc += wts.w[i];
       while (acc >= next && r.draws.size() < keep) {
         const Draw& dr = fin[i / nz];
-        const double m2_msun = samples[i].m2_mjup / units::kMjupPerMsun;
-        r.draws.push_back({a_au, samples[i].m2_mjup, dr.ecc, units::rad_to_deg(dr.inc),
+        const Sample& s = samples[i];
+        const double m2_msun = s.m2_mjup / units::kMjupPerMsun;
+        r.draws.push_back({a_au, s.m2_mjup, dr.ecc, units::rad_to_deg(dr.inc),
                            units::rad_to_deg(dr.omega),
-                           units::rad_to_deg(wrap_2pi(samples[i].node)),
+                           units::rad_to_deg(wrap_2pi(std::atan2(s.z2, s.z1))),
                            units::rad_to_deg(dr.m0), d.late.ref_epoch_yr,
                            period_from_a(a_au, dr.m1 + m2_msun), dr.plx, dr.m1, 1.0});
         next += sw / keep;
@@ -459,19 +633,33 @@ void set_weights(std::vector<PointResult>& pts) {
 
 }  // namespace
 
+namespace {
+Projection projection_of(const Orbit<double>& o) {
+  const ThieleInnes<double> ti = thiele_innes(1.0, o.inc_rad, o.arg_peri_rad, 0.0);
+  return {ti.A, ti.B, ti.F, ti.G};
+}
+Eigen::Vector2d z_of(const Orbit<double>& o, double q) {
+  return {q * std::cos(o.node_rad), q * std::sin(o.node_rad)};
+}
+}  // namespace
+
 Eigen::Vector4d model_anomaly(const Orbit<double>& o, double a_au, double q, double parallax_mas,
                               const Window& early, const Window& late) {
-  const Eigen::Vector2d z(q * std::cos(o.node_rad), q * std::sin(o.node_rad));
-  Orbit<double> o0 = o;
-  o0.node_rad = 0.0;
-  return design(unit_anomalies(o0, early, late), a_au * parallax_mas) * z;
+  return a_au * parallax_mas * design(unit_anomalies(projection_of(o), o, early, late)) * z_of(o, q);
+}
+
+Eigen::Vector4d model_anomaly_dlnp(const Orbit<double>& o, double a_au, double q, double parallax_mas,
+                                   const Window& early, const Window& late) {
+  Mat42 k, dk;
+  design_and_derivative(projection_of(o), o, early, late, k, dk);
+  return a_au * parallax_mas * dk * z_of(o, q);
 }
 
 Curve montecarlo_curve(const AnomalyData& d, const CurveOptions& opt, const std::string& rng_id) {
   Curve c;
   c.upper_limit = opt.prior.upper_limit(d.sig_joint);
   const ZPlanePrior prior(opt.prior.mass_prior(c.upper_limit));
-  const DrawSet draws = make_draws(d, opt, rng_id);
+  const DrawSet draws = make_draws(d, opt, prior, rng_id);
   std::vector<PointResult> pts;
   for (double a : opt.a_au) pts.push_back(evaluate_a(d, opt, draws, prior, c.upper_limit, a));
   // Adaptive refinement where neighbouring bands do not overlap or the
@@ -499,6 +687,8 @@ Curve montecarlo_curve(const AnomalyData& d, const CurveOptions& opt, const std:
   for (auto& p : pts) {
     c.points.push_back(p.point);
     c.min_ess = std::min(c.min_ess, p.point.ess);
+    c.draws_weighed += p.draws_weighed;
+    c.window_evaluations += p.window_evaluations;
     const double per = p.draws.empty() ? 0.0 : p.point.weight / p.draws.size();
     for (auto& dr : p.draws) {
       dr.weight = per;

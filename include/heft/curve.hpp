@@ -72,6 +72,10 @@ struct Curve {
   std::vector<CurvePoint> points;
   std::vector<OrbitDraw> draws;  ///< with keep_draws (for `heft predict`)
   double min_ess = 0.0;
+  /// Work done (Monte Carlo curves): orbit draws weighed over all
+  /// separations and adaptive rounds, and evaluations of the two-catalogue
+  /// window model (each solves Kepler's equation four times).
+  long draws_weighed = 0, window_evaluations = 0;
 };
 
 /// Forward-model Monte Carlo curve (docs/method.md, Sect. 8).
@@ -117,6 +121,13 @@ double projection_factor_quantile(double p);
 /// companion through the window model, for tests and the simulator check.
 Eigen::Vector4d model_anomaly(const Orbit<double>& o, double a_au, double q, double parallax_mas,
                               const Window& early, const Window& late);
+
+/// Derivative of model_anomaly with respect to ln P (mas/yr per unit
+/// ln P) with e, the angles, the mean anomaly at the reference epoch, a, q
+/// and the parallax held fixed, from one Jet evaluation of the window model:
+/// the Monte Carlo curve interpolates its period correction with it.
+Eigen::Vector4d model_anomaly_dlnp(const Orbit<double>& o, double a_au, double q, double parallax_mas,
+                                   const Window& early, const Window& late);
 
 
 /// Reads the rows of one star from a curve table (the first star when `id`
