@@ -224,13 +224,16 @@ StarTableReader::StarTableReader(std::istream& in, std::string name, WindowDefau
 }
 
 bool StarTableReader::next(StarRecord& star, std::string& bad_reason) {
-  if (!csv_.next()) return false;
-  ++rows_;
+  // Rows of ids not asked for are passed over before their numbers are parsed.
+  do {
+    if (!csv_.next()) return false;
+    ++rows_;
+    if (csv_.fields().size() != n_fields_)
+      throw InputError(csv_.name(), csv_.line(), 0,
+                       "row has " + std::to_string(csv_.fields().size()) + " fields, header has " +
+                           std::to_string(n_fields_));
+  } while (keep_ && !keep_(csv_.fields()[field_of_column_[0]]));
   const auto& f = csv_.fields();
-  if (f.size() != n_fields_)
-    throw InputError(csv_.name(), csv_.line(), 0,
-                     "row has " + std::to_string(f.size()) + " fields, header has " +
-                         std::to_string(n_fields_));
   star = StarRecord{};
   star.id = f[field_of_column_[0]];
   // Ids travel into every table and JSON heft writes, one line per star.

@@ -13,6 +13,7 @@
 #include <cmath>
 #include <cstdint>
 #include <iosfwd>
+#include <functional>
 #include <limits>
 #include <string>
 #include <string_view>
@@ -87,6 +88,9 @@ class StarTableReader {
   long line() const { return csv_.line(); }
   /// Data rows read so far.
   long rows() const { return rows_; }
+  /// Only rows whose id `keep` accepts are returned; the others are passed
+  /// over before their numbers are parsed (nor validated).
+  void keep_ids(std::function<bool(std::string_view)> keep) { keep_ = std::move(keep); }
   /// Header columns that are not canonical (ignored; the CLI warns).
   const std::vector<std::string>& unknown_columns() const { return unknown_columns_; }
 
@@ -98,6 +102,7 @@ class StarTableReader {
   long rows_ = 0;
   std::unordered_set<std::uint64_t> seen_ids_;
   std::vector<std::string> unknown_columns_;
+  std::function<bool(std::string_view)> keep_;
 };
 
 /// A canonical numeric column of `star` by its table name (e.g. "late_pmra"),

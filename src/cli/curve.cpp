@@ -50,7 +50,7 @@ int run_curve(CurveCliOptions o) {
   // A curve costs seconds: which stars is always said, never implied.
   if ((!o.id.empty()) + (!o.ids.empty()) + o.all != 1)
     throw CLI::ValidationError("choose the stars: --id ID, --ids FILE (one id per line) or --all (one of them)");
-  std::set<std::string> wanted;
+  std::set<std::string, std::less<>> wanted;  // found by string_view
   if (!o.id.empty()) wanted.insert(o.id);
   if (!o.ids.empty()) {
     InputFile f(o.ids);
@@ -81,6 +81,7 @@ int run_curve(CurveCliOptions o) {
   }
   ProgressBar bar("curve", total, o.quiet);
   StarTableReader reader(in.stream(), in.name(), o.windows);
+  if (!o.all) reader.keep_ids([&](std::string_view id) { return wanted.count(id) > 0; });
   TableOutput out(o.output, format_for(o.output, o.format), curve_column_units());
   std::unique_ptr<AtomicOutput> json;
   std::unique_ptr<TableOutput> draws;
@@ -100,7 +101,6 @@ int run_curve(CurveCliOptions o) {
   std::vector<std::string> warnings;
   long n_json = 0, done = 0;
   while (reader.next(star, bad)) {
-    if (!o.all && !wanted.count(star.id)) continue;
     found.insert(star.id);
     bar.update(++done);
     const ScreenRow row = screen_star(star, bad, sopt);
