@@ -163,12 +163,6 @@ struct Sample {
   double log_w, m2_mjup, z1, z2;
 };
 
-struct PointResult {
-  CurvePoint point;
-  double log_evidence;
-  std::vector<OrbitDraw> draws;
-  long draws_weighed = 0, window_evaluations = 0;
-};
 
 // Everything a separation needs that does not depend on the draw.
 struct Problem {
@@ -453,102 +447,142 @@ class KernelMixture {
   double log_norm_;
 };
 
+// A defensive importance proposal for the orbit-angle part: half the
+// prior, half Gaussian kernels around ancestors (adaptive importance
+// sampling, e.g. Cappe et al. 2004, J. Comput. Graph. Stat. 13, 907).
+struct Proposal {
+  std::vector<Coords> anc;
+  Coords width;
+};
+
+// Ancestors by systematic resampling of weighted draws, and kernel widths
+// from their spread.
+Proposal proposal_from(const std::vector<Draw>& src, const Weights& wts, int nz, const Distribution& ecc) {
+  const std::size_t n = src.size();
+  std::vector<double> cw(n);
+  double acc = 0;
+  for (std::size_t k = 0; k < n; ++k) {
+    for (int s = 0; s < nz; ++s) acc += wts.w[k * nz + s];
+    cw[k] = acc;
+  }
+  constexpr int n_anc = 64;
+  Proposal p;
+  for (int j = 0; j < n_anc; ++j) {
+    const double u = (j + 0.5) / n_anc * acc;
+    const std::size_t k = std::lower_bound(cw.begin(), cw.end(), u) - cw.begin();
+    p.anc.push_back(coords_of(src[std::min(k, n - 1)]));
+  }
+  Coords mean = Coords::Zero(), var = Coords::Zero();
+  for (const auto& c : p.anc) mean += c;
+  mean /= n_anc;
+  for (const auto& c : p.anc) {
+    Coords dc = c - mean;
+    dc(1) = wrap_pi(c(1) - p.anc[0](1));  // spread of angles about one ancestor
+    dc(2) = wrap_pi(c(2) - p.anc[0](2));
+    var += dc.cwiseProduct(dc);
+  }
+  p.width = (var / n_anc).cwiseSqrt() * 0.7;
+  const Coords floor_w(0.01, 0.02, 0.02, 0.005), cap_w(1.0, 2.0, 2.0, 0.5);
+  p.width = p.width.cwiseMax(floor_w).cwiseMin(cap_w);
+  if (ecc.kind == Distribution::Kind::kFixed) p.width(3) = 0.0;
+  return p;
+}
+
+// Draws from the proposal (the second set of draws, moved onto the kernels
+// by the shared deviates) into `next`, weighed into `samples`. Returns the
+// number of window-model evaluations.
+long weigh_proposal(const Problem& pb, const DrawSet& ds, const Proposal& prop, std::vector<Draw>& next,
+                    std::vector<Sample>& samples) {
+  const CurveOptions& opt = pb.opt;
+  const int nz = opt.z_samples;
+  const std::size_t n = ds.second.size(), n_anc = prop.anc.size();
+  const KernelMixture mixture(prop.anc, prop.width);
+  next = ds.second;
+  std::vector<double> log_extra(n);
+#pragma omp parallel
+  {
+    std::vector<double> scratch;
+#pragma omp for schedule(static)
+    for (std::size_t j = 0; j < n; ++j) {
+      Draw& dr = next[j];
+      if (ds.pick[j] >= 0.5) {  // kernel component
+        const Coords& a = prop.anc[static_cast<std::size_t>(ds.pick[j + n] * n_anc) % n_anc];
+        Coords c = a + prop.width.cwiseProduct(ds.kernel[j]);
+        c(1) = wrap_2pi(c(1));
+        c(2) = wrap_2pi(c(2));
+        if (opt.prior.ecc.kind == Distribution::Kind::kFixed) c(3) = dr.ecc;
+        dr.inc = std::acos(std::clamp(c(0), -1.0, 1.0));
+        dr.omega = c(1);
+        dr.m0 = c(2);
+        dr.ecc = c(3);
+        prepare_draw(dr, pb.prior);
+      }
+      const Coords c = coords_of(dr);
+      const double lp = log_prior_coords(c, opt.prior.ecc);
+      // Mixture density 0.5 prior + 0.5 kernels.
+      const double lk = mixture.log_density(c, scratch);
+      const double mix =
+          std::isfinite(lp) ? std::max(lp, lk) + std::log1p(std::exp(-std::abs(lp - lk))) - std::log(2.0) : lk;
+      log_extra[j] = std::isfinite(lp) ? lp - mix : -std::numeric_limits<double>::infinity();
+    }
+  }
+  long evaluations = 0;
+#pragma omp parallel for schedule(static) reduction(+ : evaluations)
+  for (std::size_t j = 0; j < n; ++j) {
+    if (std::isfinite(log_extra[j])) {
+      evaluations += weigh_draw(pb, next[j], &ds.dev[next[j].dev], log_extra[j], &samples[j * nz]);
+    } else {  // outside the prior's support: no weight
+      for (int s = 0; s < nz; ++s) samples[j * nz + s] = {-std::numeric_limits<double>::infinity(), 0.0, 0.0, 0.0};
+    }
+  }
+  return evaluations;
+}
+
+struct PointResult {
+  CurvePoint point;
+  double log_evidence;
+  std::vector<OrbitDraw> draws;
+  double evidence_rel_var = 0.0;  ///< Monte Carlo variance of exp(log_evidence), relative
+  long draws_weighed = 0, window_evaluations = 0;
+  Proposal proposal;  ///< the last proposal used (empty without the adaptive stage)
+};
+
+// One separation. `seed`: the final proposal of a neighbouring separation
+// that needed the adaptive stage (the posterior of the orbit angles changes
+// slowly with a), or null to start from the prior.
 PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const DrawSet& ds,
-                       const ZPlanePrior& prior, bool upper, double a_au) {
-  const std::vector<Draw>& draws = ds.first;
+                       const ZPlanePrior& prior, bool upper, double a_au, const Proposal* seed) {
   Eigen::LLT<Eigen::Matrix4d> cllt(d.cov);
   const double chi2_data = d.dpm.dot(cllt.solve(d.dpm));
   const Problem pb{d, opt, prior, cllt.solve(Eigen::Matrix4d::Identity()), chi2_data, a_au,
                    d.late.ref_epoch_yr - d.early.ref_epoch_yr, std::sqrt(chi2_data)};
   const int nz = opt.z_samples;
-  const std::size_t n = draws.size();
+  const std::size_t n = ds.first.size();
   std::vector<Sample> samples(n * nz);
   PointResult r;
   long evaluations = 0;
-#pragma omp parallel for schedule(static) reduction(+ : evaluations)
-  for (std::size_t k = 0; k < n; ++k)
-    evaluations += weigh_draw(pb, draws[k], &ds.dev[draws[k].dev], 0.0, &samples[k * nz]);
-  r.draws_weighed += static_cast<long>(n);
-
-  Weights wts = weights_of(samples);
-  const std::vector<Draw>* used = &draws;
-  // Second stage when the prior draws degenerate (high S/N): a defensive
-  // mixture of the prior and Gaussian kernels around draws resampled from
-  // the first stage (adaptive importance sampling, e.g. Cappe et al. 2004,
-  // J. Comput. Graph. Stat. 13, 907), with the same deviates for every a.
-  // Effective sample size below which the adaptive stage runs: enough for
-  // percentiles to ~2 % of the band.
-  constexpr double kAdaptEss = 1000.0;
   std::vector<Draw> adapted;
-  // Up to three rounds, each proposing around the previous round's draws.
-  for (int round = 0; round < 3 && effective_sample_size(wts.sum, wts.sum2) < kAdaptEss && !ds.second.empty();
-       ++round) {
-    const std::vector<Draw>& src = *used;
-    // Ancestors by systematic resampling of the draws, and their spread.
-    std::vector<double> cw(n);
-    double acc = 0;
-    for (std::size_t k = 0; k < n; ++k) {
-      for (int s = 0; s < nz; ++s) acc += wts.w[k * nz + s];
-      cw[k] = acc;
-    }
-    const int n_anc = 64;
-    std::vector<Coords> anc;
-    for (int j = 0; j < n_anc; ++j) {
-      const double u = (j + 0.5) / n_anc * acc;
-      const std::size_t k = std::lower_bound(cw.begin(), cw.end(), u) - cw.begin();
-      anc.push_back(coords_of(src[std::min(k, n - 1)]));
-    }
-    Coords mean = Coords::Zero(), var = Coords::Zero();
-    for (const auto& c : anc) mean += c;
-    mean /= n_anc;
-    for (const auto& c : anc) {
-      Coords dc = c - mean;
-      dc(1) = wrap_pi(c(1) - anc[0](1));  // spread of angles about one ancestor
-      dc(2) = wrap_pi(c(2) - anc[0](2));
-      var += dc.cwiseProduct(dc);
-    }
-    Coords width = (var / n_anc).cwiseSqrt() * 0.7;
-    const Coords floor_w(0.01, 0.02, 0.02, 0.005), cap_w(1.0, 2.0, 2.0, 0.5);
-    width = width.cwiseMax(floor_w).cwiseMin(cap_w);
-    if (opt.prior.ecc.kind == Distribution::Kind::kFixed) width(3) = 0.0;
-    const KernelMixture mixture(anc, width);
-    std::vector<Draw> next = ds.second;
-    std::vector<double> log_extra(n);
-#pragma omp parallel
-    {
-      std::vector<double> scratch;
-#pragma omp for schedule(static)
-      for (std::size_t j = 0; j < n; ++j) {
-        Draw& dr = next[j];
-        if (ds.pick[j] >= 0.5) {  // kernel component
-          const Coords& a = anc[static_cast<std::size_t>(ds.pick[j + n] * n_anc) % n_anc];
-          Coords c = a + width.cwiseProduct(ds.kernel[j]);
-          c(1) = wrap_2pi(c(1));
-          c(2) = wrap_2pi(c(2));
-          if (opt.prior.ecc.kind == Distribution::Kind::kFixed) c(3) = dr.ecc;
-          dr.inc = std::acos(std::clamp(c(0), -1.0, 1.0));
-          dr.omega = c(1);
-          dr.m0 = c(2);
-          dr.ecc = c(3);
-          prepare_draw(dr, prior);
-        }
-        const Coords c = coords_of(dr);
-        const double lp = log_prior_coords(c, opt.prior.ecc);
-        // Mixture density 0.5 prior + 0.5 kernels.
-        const double lk = mixture.log_density(c, scratch);
-        const double mix = std::isfinite(lp) ? std::max(lp, lk) + std::log1p(std::exp(-std::abs(lp - lk))) - std::log(2.0)
-                                             : lk;
-        log_extra[j] = std::isfinite(lp) ? lp - mix : -std::numeric_limits<double>::infinity();
-      }
-    }
+  const std::vector<Draw>* used = &ds.first;
+  if (seed) {
+    evaluations += weigh_proposal(pb, ds, *seed, adapted, samples);
+    used = &adapted;
+    r.proposal = *seed;
+  } else {
 #pragma omp parallel for schedule(static) reduction(+ : evaluations)
-    for (std::size_t j = 0; j < n; ++j) {
-      if (std::isfinite(log_extra[j])) {
-        evaluations += weigh_draw(pb, next[j], &ds.dev[next[j].dev], log_extra[j], &samples[j * nz]);
-      } else {  // outside the prior's support: no weight
-        for (int s = 0; s < nz; ++s) samples[j * nz + s] = {-std::numeric_limits<double>::infinity(), 0.0, 0.0, 0.0};
-      }
-    }
+    for (std::size_t k = 0; k < n; ++k)
+      evaluations += weigh_draw(pb, ds.first[k], &ds.dev[ds.first[k].dev], 0.0, &samples[k * nz]);
+  }
+  r.draws_weighed += static_cast<long>(n);
+  Weights wts = weights_of(samples);
+  // Adaptive stage when the draws degenerate (high S/N): up to three
+  // rounds, each proposing around the previous round's weighted draws, with
+  // the same deviates for every a. Effective sample size below which it
+  // runs: enough for percentiles to ~2 % of the band.
+  constexpr double kAdaptEss = 1000.0;
+  std::vector<Draw> next;
+  for (int round = 0; round < 3 && effective_sample_size(wts.sum, wts.sum2) < kAdaptEss; ++round) {
+    r.proposal = proposal_from(*used, wts, nz, opt.prior.ecc);
+    evaluations += weigh_proposal(pb, ds, r.proposal, next, samples);
     r.draws_weighed += static_cast<long>(n);
     wts = weights_of(samples);
     adapted.swap(next);
@@ -564,6 +598,9 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const Draw
   p.sep_mas = a_au * d.parallax_mas;
   p.period_yr = period_from_a(a_au, d.host_mass_msun);
   p.ess = effective_sample_size(wts.sum, wts.sum2);
+  // The mean weight estimates the marginal likelihood; its relative
+  // variance is 1 / ESS - 1 / N.
+  r.evidence_rel_var = sw > 0 ? std::max(0.0, 1.0 / p.ess - 1.0 / static_cast<double>(samples.size())) : 0.0;
   r.log_evidence = std::isfinite(wts.max_log_w) && sw > 0
                        ? wts.max_log_w + std::log(sw) - std::log(static_cast<double>(samples.size()))
                        : -std::numeric_limits<double>::infinity();
@@ -612,23 +649,53 @@ bool bands_disjoint(const CurvePoint& a, const CurvePoint& b) {
   return a.mass_hi68 < b.mass_lo68 || b.mass_hi68 < a.mass_lo68;
 }
 
-// Turns log evidences into bin weights under a log-uniform prior on a: each
-// point owns the bin between the geometric midpoints to its neighbours.
-void set_weights(std::vector<PointResult>& pts) {
+// Each point owns the bin in ln a between the geometric midpoints to its
+// neighbours (a log-uniform prior on a over the grid).
+std::vector<double> bin_widths(const std::vector<PointResult>& pts) {
   const std::size_t n = pts.size();
-  double max_le = -std::numeric_limits<double>::infinity();
-  for (const auto& p : pts) max_le = std::max(max_le, p.log_evidence);
-  double total = 0;
+  std::vector<double> w(n, 1.0);
+  if (n == 1) return w;
   for (std::size_t k = 0; k < n; ++k) {
     const double la = std::log(pts[k].point.a_au);
     const double lo = k > 0 ? 0.5 * (la + std::log(pts[k - 1].point.a_au)) : la;
     const double hi = k + 1 < n ? 0.5 * (la + std::log(pts[k + 1].point.a_au)) : la;
-    const double width = n == 1 ? 1.0 : hi - lo;
-    const double w = std::isfinite(max_le) ? std::exp(pts[k].log_evidence - max_le) * width : 0.0;
+    w[k] = hi - lo;
+  }
+  return w;
+}
+
+// Turns log evidences into bin weights under a log-uniform prior on a.
+void set_weights(std::vector<PointResult>& pts) {
+  double max_le = -std::numeric_limits<double>::infinity();
+  for (const auto& p : pts) max_le = std::max(max_le, p.log_evidence);
+  const std::vector<double> width = bin_widths(pts);
+  double total = 0;
+  for (std::size_t k = 0; k < pts.size(); ++k) {
+    const double w = std::isfinite(max_le) ? std::exp(pts[k].log_evidence - max_le) * width[k] : 0.0;
     pts[k].point.weight = w;
     total += w;
   }
   for (auto& p : pts) p.point.weight = total > 0 ? p.point.weight / total : 0.0;
+}
+
+// log10 of the Bayes factor companion / no companion and its Monte Carlo
+// error: the evidence is the prior-weighted mean of the separations'
+// marginal likelihoods, the no-companion likelihood exp(-chi2_data / 2)
+// (the Gaussian normalisation is common to both).
+void set_bayes_factor(const std::vector<PointResult>& pts, double chi2_data, Curve& c) {
+  double max_le = -std::numeric_limits<double>::infinity();
+  for (const auto& p : pts) max_le = std::max(max_le, p.log_evidence);
+  if (!std::isfinite(max_le)) return;
+  const std::vector<double> width = bin_widths(pts);
+  double z = 0.0, var = 0.0, total = 0.0;
+  for (std::size_t k = 0; k < pts.size(); ++k) {
+    const double t = std::exp(pts[k].log_evidence - max_le) * width[k];
+    z += t;
+    var += t * t * pts[k].evidence_rel_var;
+    total += width[k];
+  }
+  c.log10_bayes = (max_le + std::log(z / total) + 0.5 * chi2_data) / std::log(10.0);
+  c.log10_bayes_error = std::sqrt(var) / z / std::log(10.0);
 }
 
 }  // namespace
@@ -661,7 +728,12 @@ Curve montecarlo_curve(const AnomalyData& d, const CurveOptions& opt, const std:
   const ZPlanePrior prior(opt.prior.mass_prior(c.upper_limit));
   const DrawSet draws = make_draws(d, opt, prior, rng_id);
   std::vector<PointResult> pts;
-  for (double a : opt.a_au) pts.push_back(evaluate_a(d, opt, draws, prior, c.upper_limit, a));
+  // Each separation starts from its left neighbour's proposal when that one
+  // needed the adaptive stage (in grid order, so results do not depend on
+  // threads).
+  auto seed_of = [](const PointResult& p) { return p.proposal.anc.empty() ? nullptr : &p.proposal; };
+  for (double a : opt.a_au)
+    pts.push_back(evaluate_a(d, opt, draws, prior, c.upper_limit, a, pts.empty() ? nullptr : seed_of(pts.back())));
   // Adaptive refinement where neighbouring bands do not overlap or the
   // posterior weight jumps by more than a factor 3.
   for (int round = 0; round < opt.refine_rounds; ++round) {
@@ -675,7 +747,8 @@ Curve montecarlo_curve(const AnomalyData& d, const CurveOptions& opt, const std:
       const double wmax = std::max(p.weight, q.weight), wmin = std::min(p.weight, q.weight);
       const bool jump = wmax > 1e-3 && wmin < wmax / 3.0;
       if (bands_disjoint(p, q) || jump) {
-        refined.push_back(evaluate_a(d, opt, draws, prior, c.upper_limit, std::sqrt(p.a_au * q.a_au)));
+        const Proposal* seed = seed_of(pts[k]) ? seed_of(pts[k]) : seed_of(pts[k + 1]);
+        refined.push_back(evaluate_a(d, opt, draws, prior, c.upper_limit, std::sqrt(p.a_au * q.a_au), seed));
         changed = true;
       }
     }
@@ -683,6 +756,7 @@ Curve montecarlo_curve(const AnomalyData& d, const CurveOptions& opt, const std:
     if (!changed) break;
   }
   set_weights(pts);
+  set_bayes_factor(pts, d.dpm.dot(d.cov.llt().solve(d.dpm)), c);
   c.min_ess = std::numeric_limits<double>::infinity();
   for (auto& p : pts) {
     c.points.push_back(p.point);

@@ -11,6 +11,7 @@
 
 #include <Eigen/Core>
 #include <array>
+#include <limits>
 #include <nlohmann/json.hpp>
 #include <string>
 #include <vector>
@@ -76,6 +77,12 @@ struct Curve {
   /// separations and adaptive rounds, and evaluations of the two-catalogue
   /// window model (each solves Kepler's equation four times).
   long draws_weighed = 0, window_evaluations = 0;
+  /// Monte Carlo curves: log10 of the Bayes factor between "one companion
+  /// drawn from the curve's prior" (mass, orbit, and a log-uniform in a over
+  /// the grid) and "no companion" for the observed anomalies, and its Monte
+  /// Carlo error (docs/method.md, Sect. 8); NaN when not computed.
+  double log10_bayes = std::numeric_limits<double>::quiet_NaN();
+  double log10_bayes_error = std::numeric_limits<double>::quiet_NaN();
 };
 
 /// Forward-model Monte Carlo curve (docs/method.md, Sect. 8).

@@ -153,6 +153,8 @@ int run_curve(CurveCliOptions o) {
       if (o.method == "montecarlo") {
         j["min_ess"] = c.min_ess;
         j["ess_warning"] = low_ess;
+        j["log10_bayes"] = json_number(c.log10_bayes);
+        j["log10_bayes_error"] = json_number(c.log10_bayes_error);
       }
       nlohmann::ordered_json pts = nlohmann::ordered_json::array();
       for (const auto& p : c.points) pts.push_back(curve_point_json(p, c.upper_limit));
