@@ -51,10 +51,12 @@ awk -F, 'NR == 2 { printf "at %s: separation %.1f mas (68 %%: %.1f-%.1f), positi
 echo
 echo "== the ten best imaging candidates at $date"
 # ranked.csv: line 1 run metadata, line 2 header; columns 1 id, 2 rank,
-# 3 score, 4 p_detect, 7-9 mass lo68/med/hi68, 10-12 sep lo68/med/hi68,
-# 13 pa_mode, 14 pa_arc68_start, 15 pa_arc68_width.
-awk -F, 'NR == 2 { printf "%4s %-10s %6s %6s %19s %21s %8s %15s\n", "rank", "id", "score", "p_det",
+# 3 score, 4 p_detect, 5 p_real, 10-12 mass lo68/med/hi68,
+# 13-15 sep lo68/med/hi68, 16 pa_mode, 17 pa_arc68_start, 18 pa_arc68_width.
+awk -F, 'NR == 2 { printf "%4s %-10s %6s %6s %6s %19s %21s %8s %15s\n", "rank", "id", "p_real", "score", "p_det",
                    "mass MJup (68 %)", "sep mas (68 %)", "PA mode", "PA 68 % arc" }
-         NR > 2 && NR <= 12 { printf "%4d %-10s %6.3f %6.3f %6.1f (%5.1f-%5.1f) %6.0f (%5.0f-%6.0f) %8.0f %6.0f+%-6.0f\n",
-                   $2, $1, $3, $4, $8, $7, $9, $11, $10, $12, $13, $14, $15 }' "$out/ranked.csv"
+         NR > 2 && NR <= 12 { printf "%4d %-10s %6.3f %6.3f %6.3f %6.1f (%5.1f-%5.1f) %6.0f (%5.0f-%6.0f) %8.0f %6.0f+%-6.0f\n",
+                   $2, $1, $5, $3, $4, $11, $10, $12, $14, $13, $15, $16, $17, $18 }' "$out/ranked.csv"
+echo "(p_real: probability that the anomaly is a companion, at the assumed occurrence of 0.1 (--occurrence);"
+echo " score and p_det include it)"
 echo "outputs in $out"

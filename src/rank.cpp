@@ -122,21 +122,29 @@ RankRecord rank_star(const StarRecord& star, const ScreenRow& row, const RankOpt
   // the marginalisation over separation.
   const std::vector<SkyOffset> off = sky_offsets(c.draws, opt.date_yr);
   const bool detect = opt.contrast && opt.mass_mag && present(star.mag);
-  double sw = 0.0, in_window = 0.0, detected = 0.0;
+  double sw = 0.0, in_window = 0.0, detected = 0.0, stellar = 0.0;
   for (std::size_t k = 0; k < off.size(); ++k) {
     const OrbitDraw& dr = c.draws[k];
     const double w = dr.weight;
     sw += w;
     const bool in_wa = off[k].sep_mas >= opt.iwa_mas && off[k].sep_mas <= opt.owa_mas;
-    if (in_wa && dr.mass_mjup >= opt.target_min_mjup && dr.mass_mjup <= opt.target_max_mjup) in_window += w;
-    if (detect && in_wa) {
+    const bool in_target = dr.mass_mjup >= opt.target_min_mjup && dr.mass_mjup <= opt.target_max_mjup;
+    if (dr.mass_mjup > kStellarMassMjup) stellar += w;
+    if (in_wa && in_target) in_window += w;
+    if (detect && in_wa && in_target) {
       // Distance modulus from the draw's parallax; contrast in the host's band.
       const double app = opt.mass_mag->abs_mag(dr.mass_mjup) + 5.0 * std::log10(100.0 / dr.parallax_mas);
       if (app - star.mag <= opt.contrast->limit_mag(off[k].sep_mas)) detected += w;
     }
   }
-  r.score = sw > 0 ? in_window / sw : 0.0;
-  if (detect) r.p_detect = sw > 0 ? detected / sw : 0.0;
+  // Scores are probabilities that the companion exists and is where (and
+  // what) the plan needs; given the companion they are sums over the draws.
+  r.log10_bayes = c.log10_bayes;
+  r.p_real = probability_real(c.log10_bayes, opt.occurrence);
+  r.p_stellar = sw > 0 ? stellar / sw : 0.0;
+  if (r.p_stellar > 0.5) add_note(r.notes, "stellar_mass_likely");
+  r.score = sw > 0 ? r.p_real * in_window / sw : 0.0;
+  if (detect) r.p_detect = sw > 0 ? r.p_real * detected / sw : 0.0;
   if (opt.contrast && opt.mass_mag && !present(star.mag)) add_note(r.notes, "no_mag");
   if (c.upper_limit) add_note(r.notes, "upper_limit");
   PredictOptions po;
@@ -154,12 +162,31 @@ RankRecord rank_star(const StarRecord& star, const ScreenRow& row, const RankOpt
   return r;
 }
 
-void assign_ranks(std::vector<RankRecord>& records) {
-  auto key = [](const RankRecord& r) { return present(r.score) ? r.score : -1.0; };
-  auto sig = [](const RankRecord& r) { return present(r.sig_joint) ? r.sig_joint : -1.0; };
+double probability_real(double log10_bayes, double occurrence) {
+  if (!std::isfinite(log10_bayes)) return kAbsent;
+  // F B / (F B + 1 - F) as a logistic function of the log posterior odds.
+  const double log_odds = std::log(occurrence) - std::log1p(-occurrence) + log10_bayes * std::log(10.0);
+  return log_odds > 0 ? 1.0 / (1.0 + std::exp(-log_odds)) : std::exp(log_odds) / (1.0 + std::exp(log_odds));
+}
+
+const char* rank_by_name(RankBy by) { return by == RankBy::kDetect ? "p_detect" : "score"; }
+
+bool parse_rank_by(const std::string& word, RankBy& by) {
+  if (word != "p_detect" && word != "score") return false;
+  by = word == "p_detect" ? RankBy::kDetect : RankBy::kScore;
+  return true;
+}
+
+void assign_ranks(std::vector<RankRecord>& records, RankBy by) {
+  auto or_below = [](double v) { return present(v) ? v : -1.0; };
+  auto key = [&](const RankRecord& r) {
+    // Ranking by p_detect: stars without one (no magnitude) follow, by score.
+    if (by == RankBy::kDetect) return present(r.p_detect) ? 2.0 + r.p_detect : or_below(r.score);
+    return or_below(r.score);
+  };
   std::sort(records.begin(), records.end(), [&](const RankRecord& a, const RankRecord& b) {
     if (key(a) != key(b)) return key(a) > key(b);
-    if (sig(a) != sig(b)) return sig(a) > sig(b);
+    if (or_below(a.sig_joint) != or_below(b.sig_joint)) return or_below(a.sig_joint) > or_below(b.sig_joint);
     return a.id < b.id;
   });
   for (std::size_t k = 0; k < records.size(); ++k) records[k].rank = static_cast<long>(k + 1);
@@ -168,6 +195,7 @@ void assign_ranks(std::vector<RankRecord>& records) {
 const std::vector<ColumnUnit>& rank_column_units() {
   static const std::vector<ColumnUnit> c = {
       {"id", ""},           {"rank", ""},           {"score", ""},           {"p_detect", ""},
+      {"p_real", ""},       {"log10_bayes", ""},    {"p_stellar", ""},
       {"sig_joint", ""}, {"a_best_au", "AU"},  {"mass_lo68", "Mjup"},   {"mass_med", "Mjup"},
       {"mass_hi68", "Mjup"}, {"sep_lo68", "mas"},   {"sep_med", "mas"},      {"sep_hi68", "mas"},
       {"pa_mode_deg", "deg"}, {"pa_arc68_start_deg", "deg"}, {"pa_arc68_width_deg", "deg"},
@@ -185,7 +213,7 @@ std::string rank_header() { return header_line(rank_column_units()); }
 void append_rank_row(std::string& out, const RankRecord& r) {
   append_csv_field(out, r.id);
   out += ',' + std::to_string(r.rank);
-  for (double v : {r.score, r.p_detect, r.sig_joint, r.a_best_au, r.mass_lo68, r.mass_med, r.mass_hi68, r.sep_lo68,
+  for (double v : {r.score, r.p_detect, r.p_real, r.log10_bayes, r.p_stellar, r.sig_joint, r.a_best_au, r.mass_lo68, r.mass_med, r.mass_hi68, r.sep_lo68,
                    r.sep_med, r.sep_hi68, r.pa_mode_deg, r.pa_arc68_start_deg, r.pa_arc68_width_deg}) {
     out += ',';
     append_double(out, v);
@@ -205,10 +233,10 @@ RankRecord parse_rank_row(const ColumnTable& t) {
   const double rank = t.number(ir);
   if (!(rank >= 0 && rank <= 1e15 && rank == std::floor(rank))) t.fail(ir, "must be a whole number from 0 to 1e15");
   r.rank = static_cast<long>(rank);
-  double* slots[] = {&r.score,    &r.p_detect, &r.sig_joint, &r.a_best_au, &r.mass_lo68,
+  double* slots[] = {&r.score,    &r.p_detect, &r.p_real, &r.log10_bayes, &r.p_stellar, &r.sig_joint, &r.a_best_au, &r.mass_lo68,
                      &r.mass_med, &r.mass_hi68, &r.sep_lo68, &r.sep_med,   &r.sep_hi68,
                      &r.pa_mode_deg, &r.pa_arc68_start_deg, &r.pa_arc68_width_deg};
-  for (int k = 0; k < 13; ++k) {
+  for (std::size_t k = 0; k < std::size(slots); ++k) {
     const int c = t.index(cols[k + 2]);
     *slots[k] = t.text(c).empty() ? kAbsent : t.number(c);
   }

@@ -41,6 +41,8 @@ RankRunInfo metadata(const SurveyOptions& o, const std::string& input_name, long
   f["max_curves"] = std::to_string(o.max_curves);
   f["host_mass_default_msun"] = (present(r.host_mass_msun) ? format_double(r.host_mass_msun) : "none") + "," +
                                 (present(r.host_mass_error_msun) ? format_double(r.host_mass_error_msun) : "none");
+  f["occurrence"] = format_double(r.occurrence);
+  f["rank_by"] = rank_by_name(r.contrast ? RankBy::kDetect : RankBy::kScore);
   f["contrast"] = metadata_word(o.contrast_name);
   f["mass_mag"] = metadata_word(o.mass_mag_name);
   f["screen_options"] = o.screen_fingerprint;
@@ -212,7 +214,7 @@ SurveyRun run_survey(std::istream& in, const std::string& input_name, const Surv
     }
   run.stage2_s = seconds_since(t_start) - run.screen_s;
   for (auto& r : computed) run.records.push_back(std::move(r));
-  assign_ranks(run.records);
+  assign_ranks(run.records, opt.rank.contrast ? RankBy::kDetect : RankBy::kScore);
   return run;
 }
 

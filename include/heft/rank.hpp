@@ -3,7 +3,9 @@
 /// Survey-scale ranking of imaging candidates: each star is screened, its
 /// Monte Carlo curve computed when the anomaly is significant, and its
 /// companion's sky position at the planned date predicted from the curve's
-/// draws; the score is the posterior probability that the companion lies
+/// draws; the score is the probability that the star has a companion (the
+/// false-alarm odds from the curve's Bayes factor and the assumed
+/// occurrence) times the posterior probability that the companion lies
 /// between the working angles with a mass inside the target window
 /// (docs/method.md, Sect. 10). The ranked table and its run metadata are
 /// defined so that shards merge into exactly the table of a single run.
@@ -50,8 +52,22 @@ class MassMagnitude {
   std::vector<double> log_mass_, mag_;
 };
 
+/// Companions above this mass (MJup) burn hydrogen: stars, luminous, so
+/// their host's anomaly is diluted by their light (not modelled yet; the
+/// hydrogen-burning limit is ~75-80 MJup, e.g. Chabrier & Baraffe 2000,
+/// ARA&A 38, 337).
+inline constexpr double kStellarMassMjup = 80.0;
+
+/// Probability that a star hosts a companion, from the Bayes factor B
+/// (companion drawn from the prior / none) and the prior occurrence F:
+/// F B / (F B + 1 - F) (docs/method.md, Sect. 10).
+double probability_real(double log10_bayes, double occurrence);
+
 struct RankOptions {
   double date_yr = 2027.5;
+  /// Prior fraction of stars that host a companion inside the prior's mass
+  /// and separation ranges (an assumption the user should set).
+  double occurrence = 0.1;
   double iwa_mas = 0.0, owa_mas = std::numeric_limits<double>::infinity();
   double target_min_mjup = 1.0, target_max_mjup = 80.0;  ///< scoring window in mass
   CurveOptions curve;           ///< prior bounds, a grid, draws, seed, detect_sigma
@@ -64,6 +80,8 @@ struct RankOptions {
 struct RankRecord {
   std::string id;
   double score = kAbsent, p_detect = kAbsent, sig_joint = kAbsent;
+  double p_real = kAbsent, log10_bayes = kAbsent;  ///< companion probability; its Bayes factor
+  double p_stellar = kAbsent;  ///< P(mass > kStellarMassMjup | companion, data)
   double a_best_au = kAbsent, mass_lo68 = kAbsent, mass_med = kAbsent, mass_hi68 = kAbsent;
   double sep_lo68 = kAbsent, sep_med = kAbsent, sep_hi68 = kAbsent;
   double pa_mode_deg = kAbsent, pa_arc68_start_deg = kAbsent, pa_arc68_width_deg = kAbsent;
@@ -84,9 +102,16 @@ RankRecord rank_star(const StarRecord& star, const ScreenRow& row, const RankOpt
 /// not computed (below the detection threshold, or bad input).
 RankRecord screened_record(const ScreenRow& row);
 
-/// Sorts by score (descending; stars without a score last), then sig_joint
-/// (descending), then id, and numbers the ranks.
-void assign_ranks(std::vector<RankRecord>& records);
+/// What the ranks sort by: p_detect when the run has a detection model
+/// (--contrast and --mass-mag), else score.
+enum class RankBy { kScore, kDetect };
+/// The rank_by metadata value, and back (false for an unknown word).
+const char* rank_by_name(RankBy by);
+bool parse_rank_by(const std::string& word, RankBy& by);
+/// Sorts by the key (descending; stars without it last, by score when
+/// ranking by p_detect), then sig_joint (descending), then id, and numbers
+/// the ranks.
+void assign_ranks(std::vector<RankRecord>& records, RankBy by);
 
 /// The ranked table's columns (docs/formats.md, "Ranked candidates").
 /// The ranked table's columns with their units, in output order.

@@ -62,7 +62,10 @@ int run_merge(const MergeCliOptions& o) {
     throw InputError(o.parts.front(), 1, 0,
                      "the parts hold " + std::to_string(all.size()) + " stars but the input had " + merged.fields["rows"]);
   merged.fields["shard"] = "1/1";
-  assign_ranks(all);
+  RankBy by = RankBy::kScore;
+  if (!parse_rank_by(merged.fields["rank_by"], by))
+    throw InputError(o.parts.front(), 1, 0, "run metadata: rank_by must be p_detect or score");
+  assign_ranks(all, by);
   if (!o.json.empty()) write_file_atomic(o.json, ranked_json(merged, all));
   TableOutput table(o.output, format_for(o.output, o.format), rank_column_units());
   table.write(ranked_table(merged, all));

@@ -32,6 +32,8 @@ int run_rank(RankCliOptions o) {
   if (!(so.rank.iwa_mas < so.rank.owa_mas)) throw CLI::ValidationError("--iwa must be below --owa");
   if (!(so.rank.target_min_mjup < so.rank.target_max_mjup))
     throw CLI::ValidationError("--target-mass: MIN must be below MAX");
+  if (!(so.rank.occurrence > 0.0 && so.rank.occurrence < 1.0))
+    throw CLI::ValidationError("--occurrence must be between 0 and 1, exclusive");
   if (o.contrast.empty() != o.mass_mag.empty())
     throw CLI::ValidationError("--contrast and --mass-mag go together (a detection probability needs both)");
   const OutputTarget target = resolve_output(o.output);
@@ -103,8 +105,11 @@ void setup_rank(CLI::App& app, Runner& run) {
   CLI::App* sub = app.add_subcommand(
       "rank",
       "Rank imaging candidates: screen every star, compute curves above --detect-sigma, predict the "
-      "companion's sky position at --date and score the chance that it lies between the working "
-      "angles with a mass in the target window.");
+      "companion's sky position at --date and score the chance that it exists (p_real, from the "
+      "Bayes factor and --occurrence) and lies between the working angles with a mass in the target "
+      "window. Ranks follow p_detect with --contrast and --mass-mag, else score. p_stellar is the "
+      "chance that the companion is heavier than 80 MJup (note stellar_mass_likely above 0.5): such "
+      "a companion is a star whose own light dilutes the anomaly, which the curves do not model yet.");
   sub->add_option("stars", o->input, "canonical star table (CSV; '-' = stdin)")->required();
   sub->add_option("--date", r.date_yr, "planned imaging date (decimal Julian year, 1900-2200; not MJD)")
       ->check(CLI::Range(1900.0, 2200.0))
@@ -117,6 +122,12 @@ void setup_rank(CLI::App& app, Runner& run) {
   add_pair_option(sub, "--target-mass", r.target_min_mjup, r.target_max_mjup,
                   "scoring window MIN,MAX of companion mass (MJup); not the prior")
       ->default_str("1,80");
+  sub->add_option("--occurrence", r.occurrence,
+                  "assumed fraction of stars hosting a companion inside the prior's mass and separation "
+                  "ranges (0-1, exclusive): turns each star's Bayes factor into p_real, the probability "
+                  "that its anomaly is a companion and not noise. An assumption: set it for your sample")
+      ->check(CLI::Range(0.0, 1.0))
+      ->capture_default_str();
   sub->add_option("--contrast", o->contrast,
                   "instrument contrast limit (CSV: sep_mas, delta_mag) for a detection probability");
   sub->add_option("--mass-mag", o->mass_mag,
