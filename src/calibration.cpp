@@ -33,6 +33,34 @@ Coverage curve_coverage(const SurveyModel& survey, const CurveOptions& opt, int 
   return cov;
 }
 
+int Reliability::total() const {
+  int n = 0;
+  for (int b = 0; b < kBins; ++b) n += stars[b];
+  return n;
+}
+
+Reliability p_real_reliability(const SurveyModel& survey, const CurveOptions& opt, long n_stars,
+                               double min_sig) {
+  Reliability rel;
+  for (long i = 0; i < n_stars; ++i) {
+    StarRecord s;
+    SimTruth t;
+    simulate_star(survey, i, s, t);
+    const ScreenRow row = screen_star(s, validate_star(s), ScreenOptions{});
+    if (!row.ok() || !(row.result.sig_joint >= min_sig)) continue;
+    bool ok = false;
+    const AnomalyData d = anomaly_data(s, row.result, kAbsent, kAbsent, ok);
+    const double p = probability_real(montecarlo_curve(d, opt, s.id).log10_bayes, survey.companion_fraction);
+    if (!present(p)) continue;
+    const int b = std::min(Reliability::kBins - 1, static_cast<int>(p * Reliability::kBins));
+    ++rel.stars[b];
+    rel.real[b] += t.companion;
+    rel.sum_p[b] += p;
+    rel.sum_pq[b] += p * (1.0 - p);
+  }
+  return rel;
+}
+
 SurveyModel coverage_survey(const CurveOptions& opt, double a_lo_au, double a_hi_au,
                             std::uint64_t seed) {
   SurveyModel m;

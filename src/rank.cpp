@@ -162,13 +162,6 @@ RankRecord rank_star(const StarRecord& star, const ScreenRow& row, const RankOpt
   return r;
 }
 
-double probability_real(double log10_bayes, double occurrence) {
-  if (!std::isfinite(log10_bayes)) return kAbsent;
-  // F B / (F B + 1 - F) as a logistic function of the log posterior odds.
-  const double log_odds = std::log(occurrence) - std::log1p(-occurrence) + log10_bayes * std::log(10.0);
-  return log_odds > 0 ? 1.0 / (1.0 + std::exp(-log_odds)) : std::exp(log_odds) / (1.0 + std::exp(log_odds));
-}
-
 const char* rank_by_name(RankBy by) { return by == RankBy::kDetect ? "p_detect" : "score"; }
 
 bool parse_rank_by(const std::string& word, RankBy& by) {

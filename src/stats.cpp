@@ -137,4 +137,11 @@ int bin_index(double x, double lo, double width, int n) {
   return static_cast<int>(k);
 }
 
+double probability_real(double log10_bayes, double occurrence) {
+  if (!std::isfinite(log10_bayes)) return std::numeric_limits<double>::quiet_NaN();
+  // F B / (F B + 1 - F) as a logistic function of the log posterior odds.
+  const double log_odds = std::log(occurrence) - std::log1p(-occurrence) + log10_bayes * std::log(10.0);
+  return log_odds > 0 ? 1.0 / (1.0 + std::exp(-log_odds)) : std::exp(log_odds) / (1.0 + std::exp(log_odds));
+}
+
 }  // namespace heft

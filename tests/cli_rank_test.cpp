@@ -181,13 +181,21 @@ TEST_CASE("rank: detection probability, and malformed contrast and mass-magnitud
                          &err) == 0);
   const test::Table t = test::read_table(out);
   int with_p = 0;
+  double last = 2.0;
   for (std::size_t k = 0; k < t.rows.size(); ++k)
     if (!t.str(k, "p_detect").empty()) {
       ++with_p;
       CHECK(t.num(k, "p_detect") >= 0.0);
-      CHECK(t.num(k, "p_detect") <= 1.0);
+      // Detectable draws are a subset of those in the working angles with a
+      // target mass: p_detect <= score <= p_real.
+      CHECK(t.num(k, "p_detect") <= t.num(k, "score") + 1e-12);
+      CHECK(t.num(k, "score") <= t.num(k, "p_real") + 1e-12);
+      // With a detection model the ranks follow p_detect.
+      CHECK(t.num(k, "p_detect") <= last);
+      last = t.num(k, "p_detect");
     }
   CHECK(with_p > 0);
+  CHECK(test::read_text(out).find("rank_by=p_detect") != std::string::npos);
   test::write_text(contrast, "sep_mas,delta_mag\n80,6\n70,10\n");
   CHECK(test::run_heft("rank " + stars + kRankArgs + kFast + " --contrast " + contrast + " --mass-mag " + massmag, &err) == 2);
   CHECK_THAT(err, Catch::Contains("contrast.csv:3:1") && Catch::Contains("increase"));
@@ -215,4 +223,34 @@ TEST_CASE("rank: progress bar only on a terminal, never under -q or in a pipe", 
   REQUIRE(test::run_heft("rank " + stars + " --date 2027.5 --draws 64 --n-a 8 -o " + out, &err) == 0);
   CHECK_THAT(err, !Catch::Contains("ETA"));
   CHECK_THAT(err, Catch::Contains("with curves"));
+}
+
+TEST_CASE("rank: p_real follows the Bayes factor and the assumed occurrence", "[rank][cli]") {
+  // p_real = F B / (F B + 1 - F) (docs/method.md, Sect. 10; Bayes' rule).
+  const std::string stars = survey("occurrence"), lo = test::tmp_path("occ_lo.csv"), hi = test::tmp_path("occ_hi.csv");
+  REQUIRE(test::run_heft("rank " + stars + kRankArgs + kFast + " --occurrence 0.01 -o " + lo) == 0);
+  REQUIRE(test::run_heft("rank " + stars + kRankArgs + kFast + " --occurrence 0.5 -o " + hi) == 0);
+  const test::Table a = test::read_table(lo), b = test::read_table(hi);
+  std::map<std::string, std::size_t> row_b;
+  for (std::size_t k = 0; k < b.rows.size(); ++k) row_b[b.str(k, "id")] = k;
+  int checked = 0;
+  for (std::size_t k = 0; k < a.rows.size(); ++k) {
+    if (a.str(k, "log10_bayes").empty()) continue;
+    const std::size_t j = row_b.at(a.str(k, "id"));
+    const double lb = a.num(k, "log10_bayes");
+    CHECK(b.num(j, "log10_bayes") == lb);  // B does not depend on F
+    for (auto [f, p] : {std::pair{0.01, a.num(k, "p_real")}, std::pair{0.5, b.num(j, "p_real")}}) {
+      const double fb = f * std::pow(10.0, std::min(lb, 300.0));
+      CHECK(p == Approx(fb / (fb + 1.0 - f)).epsilon(1e-12).margin(1e-300));
+    }
+    CHECK(a.num(k, "p_stellar") >= 0.0);
+    CHECK(a.num(k, "p_stellar") <= 1.0);
+    ++checked;
+  }
+  CHECK(checked >= 10);
+  CHECK(test::read_text(lo).find("occurrence=0.01") != std::string::npos);
+  std::string err;
+  CHECK(test::run_heft("rank " + stars + kRankArgs + kFast + " --occurrence 1", &err) == 1);  // usage error
+  CHECK_THAT(err, Catch::Contains("--occurrence"));
+  CHECK(test::run_heft("rank " + stars + kRankArgs + kFast + " --occurrence 0", &err) == 1);
 }

@@ -23,6 +23,21 @@ struct Coverage {
 Coverage curve_coverage(const SurveyModel& survey, const CurveOptions& opt, int n_systems,
                         double min_sig);
 
+/// Reliability of p_real (docs/method.md, Sect. 10): stars of `survey`
+/// (whose companion fraction is the occurrence) with sig_joint >= min_sig,
+/// each with its curve on `opt.a_au`, binned by p_real. Calibrated when,
+/// in every bin, the fraction of stars with an injected companion matches
+/// the mean p_real.
+struct Reliability {
+  static constexpr int kBins = 5;  ///< p_real in [0, 0.2), ..., [0.8, 1]
+  int stars[kBins] = {}, real[kBins] = {};
+  double sum_p[kBins] = {};   ///< expected number of real companions per bin
+  double sum_pq[kBins] = {};  ///< its variance, the sum of p (1 - p)
+  int total() const;
+};
+Reliability p_real_reliability(const SurveyModel& survey, const CurveOptions& opt, long n_stars,
+                               double min_sig);
+
 /// A survey of companions drawn from the prior of `opt` (log-uniform mass in
 /// [m_min, m_max], e from opt.ecc, isotropic) with a log-uniform in [a_lo, a_hi],
 /// hosts at 10-60 pc with 5 % mass errors and RVs: the population for which

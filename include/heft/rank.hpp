@@ -58,11 +58,6 @@ class MassMagnitude {
 /// ARA&A 38, 337).
 inline constexpr double kStellarMassMjup = 80.0;
 
-/// Probability that a star hosts a companion, from the Bayes factor B
-/// (companion drawn from the prior / none) and the prior occurrence F:
-/// F B / (F B + 1 - F) (docs/method.md, Sect. 10).
-double probability_real(double log10_bayes, double occurrence);
-
 struct RankOptions {
   double date_yr = 2027.5;
   /// Prior fraction of stars that host a companion inside the prior's mass

@@ -61,4 +61,10 @@ int bin_index(double x, double lo, double width, int n);
 /// in Numerical Recipes, 3rd ed., Sect. 14.3.3).
 double ks_test(std::vector<double>& sample, double (*cdf)(double), double& p_value);
 
+/// Posterior probability of a hypothesis from its Bayes factor B against the
+/// alternative (log10 B) and its prior probability F: F B / (F B + 1 - F),
+/// as a logistic function of the log odds (no overflow). NaN for a
+/// non-finite log10 B. heft rank's p_real (docs/method.md, Sect. 10).
+double probability_real(double log10_bayes, double occurrence);
+
 }  // namespace heft

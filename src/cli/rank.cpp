@@ -32,8 +32,6 @@ int run_rank(RankCliOptions o) {
   if (!(so.rank.iwa_mas < so.rank.owa_mas)) throw CLI::ValidationError("--iwa must be below --owa");
   if (!(so.rank.target_min_mjup < so.rank.target_max_mjup))
     throw CLI::ValidationError("--target-mass: MIN must be below MAX");
-  if (!(so.rank.occurrence > 0.0 && so.rank.occurrence < 1.0))
-    throw CLI::ValidationError("--occurrence must be between 0 and 1, exclusive");
   if (o.contrast.empty() != o.mass_mag.empty())
     throw CLI::ValidationError("--contrast and --mass-mag go together (a detection probability needs both)");
   const OutputTarget target = resolve_output(o.output);
@@ -127,6 +125,12 @@ void setup_rank(CLI::App& app, Runner& run) {
                   "ranges (0-1, exclusive): turns each star's Bayes factor into p_real, the probability "
                   "that its anomaly is a companion and not noise. An assumption: set it for your sample")
       ->check(CLI::Range(0.0, 1.0))
+      ->check(CLI::Validator(
+          [](const std::string& v) {
+            const double f = std::stod(v);  // a number: CLI::Range has checked it
+            return f > 0.0 && f < 1.0 ? std::string() : std::string("must be between 0 and 1, exclusive");
+          },
+          "", "exclusive"))
       ->capture_default_str();
   sub->add_option("--contrast", o->contrast,
                   "instrument contrast limit (CSV: sep_mas, delta_mag) for a detection probability");
