@@ -37,7 +37,8 @@ const std::vector<ColumnUnit>& prediction_column_units() {
       {"id", ""},           {"date_yr", "yr"},      {"n_draws", ""},          {"ess", ""},
       {"sep_lo95", "mas"},  {"sep_lo68", "mas"},    {"sep_med", "mas"},       {"sep_hi68", "mas"},
       {"sep_hi95", "mas"},  {"pa_mean_deg", "deg"}, {"pa_resultant", ""},     {"pa_modes_deg", "deg"},
-      {"pa_arc68_start_deg", "deg"}, {"pa_arc68_width_deg", "deg"}, {"p_in_wa", ""}};
+      {"pa_arc68_start_deg", "deg"}, {"pa_arc68_width_deg", "deg"}, {"p_in_wa", ""},
+      {"notes", ""}};
   return cols;
 }
 
@@ -59,6 +60,7 @@ void append_prediction_row(std::string& out, const std::string& id, std::size_t 
     out += ',';
     append_double(out, v);
   }
+  out += p.pa_constrained ? "," : ",pa_unconstrained";
   out += '\n';
 }
 
@@ -166,7 +168,7 @@ SkyPrediction summarize_sky(const std::vector<SkyOffset>& off, double date_yr, c
     if (!std::isfinite(off[k].sep_mas) || !std::isfinite(off[k].pa_deg))
       throw NumericError("draw " + std::to_string(k + 1), "predict at " + format_double(date_yr),
                          "the orbit gives a non-finite sky offset");
-  double sw = 0.0, sw2 = 0.0, c = 0.0, s = 0.0, in = 0.0;
+  double sw = 0.0, sw2 = 0.0, c = 0.0, s = 0.0, c2 = 0.0, s2 = 0.0, in = 0.0;
   std::vector<std::pair<double, double>> sep, pa;
   for (const auto& o : off) {
     sw += o.weight;
@@ -175,6 +177,8 @@ SkyPrediction summarize_sky(const std::vector<SkyOffset>& off, double date_yr, c
     pa.emplace_back(o.pa_deg, o.weight);
     c += o.weight * std::cos(units::deg_to_rad(o.pa_deg));
     s += o.weight * std::sin(units::deg_to_rad(o.pa_deg));
+    c2 += o.weight * std::cos(2.0 * units::deg_to_rad(o.pa_deg));
+    s2 += o.weight * std::sin(2.0 * units::deg_to_rad(o.pa_deg));
     if (o.sep_mas >= opt.iwa_mas && o.sep_mas <= opt.owa_mas) in += o.weight;
   }
   if (!(sw > 0)) return r;
@@ -186,6 +190,9 @@ SkyPrediction summarize_sky(const std::vector<SkyOffset>& off, double date_yr, c
   // Circular statistics (e.g. Mardia & Jupp 2000, Directional Statistics, ch. 2).
   r.pa_mean_deg = wrap_360(units::rad_to_deg(std::atan2(s, c)));
   r.pa_resultant = std::hypot(c, s) / sw;
+  // Axial data: the doubled angles (Mardia & Jupp 2000, Sect. 9.1).
+  r.pa_resultant_axial = std::hypot(c2, s2) / sw;
+  r.pa_constrained = std::max(r.pa_resultant, r.pa_resultant_axial) >= kMinPaResultant;
   shortest_arc(pa, 0.68, r.pa_arc68_start_deg, r.pa_arc68_width_deg);
   // Modes: 1-deg histogram smoothed with a circular 5-deg Gaussian kernel.
   std::vector<double> hist(360, 0.0), smooth(360, 0.0);
@@ -200,7 +207,8 @@ SkyPrediction summarize_sky(const std::vector<SkyOffset>& off, double date_yr, c
     if (smooth[i] > l && smooth[i] >= h && smooth[i] >= 0.25 * peak) modes.emplace_back(smooth[i], i + 0.5);
   }
   std::sort(modes.rbegin(), modes.rend());
-  for (const auto& m : modes) r.pa_modes_deg.push_back(m.second);
+  if (r.pa_constrained)
+    for (const auto& m : modes) r.pa_modes_deg.push_back(m.second);
   // Density map.
   r.grid_n = opt.grid_n;
   r.grid_half_mas = opt.grid_half_mas > 0 ? opt.grid_half_mas
@@ -225,9 +233,11 @@ nlohmann::ordered_json prediction_json(const std::string& id, std::size_t n_draw
           {"sep_mas", quantiles_json({{2.5, p.sep_q[0]}, {16, p.sep_q[1]}, {50, p.sep_q[2]}, {84, p.sep_q[3]},
                                       {97.5, p.sep_q[4]}})},
           {"pa_deg", {{"circular_mean", json_number(p.pa_mean_deg)}, {"resultant", json_number(p.pa_resultant)},
+                      {"resultant_axial", json_number(p.pa_resultant_axial)}, {"constrained", p.pa_constrained},
                       {"modes", p.pa_modes_deg}, {"arc68_start", json_number(p.pa_arc68_start_deg)},
                       {"arc68_width", json_number(p.pa_arc68_width_deg)}}},
-          {"p_in_wa", p.p_in_wa}};
+          {"p_in_wa", p.p_in_wa},
+          {"notes", p.pa_constrained ? std::vector<std::string>{} : std::vector<std::string>{"pa_unconstrained"}}};
 }
 
 }  // namespace heft

@@ -156,6 +156,7 @@ RankRecord rank_star(const StarRecord& star, const ScreenRow& row, const RankOpt
   r.sep_med = p.sep_q[2];
   r.sep_hi68 = p.sep_q[3];
   if (!p.pa_modes_deg.empty()) r.pa_mode_deg = p.pa_modes_deg.front();
+  if (!p.pa_constrained) add_note(r.notes, "pa_unconstrained");
   r.pa_arc68_start_deg = p.pa_arc68_start_deg;
   r.pa_arc68_width_deg = p.pa_arc68_width_deg;
   r.predict_s = std::chrono::duration<double>(std::chrono::steady_clock::now() - t1).count();

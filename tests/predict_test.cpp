@@ -81,3 +81,33 @@ TEST_CASE("predict: shortest arc and modes of a bimodal position angle", "[predi
   CHECK(std::fmod(p.pa_modes_deg[0], 360.0) == Approx(350.0).margin(2.0));
   CHECK(p.pa_modes_deg[1] == Approx(170.0).margin(2.0));
 }
+
+TEST_CASE("predict: position-angle modes only where the angle is constrained", "[predict]") {
+  // Mean resultant lengths (Mardia & Jupp 2000, Directional Statistics,
+  // Sects. 2.3 and 9.1): uniform angles give R ~ 1/sqrt(n), one cluster
+  // R ~ 1, two opposite clusters R ~ 0 but R of the doubled angles ~ 1.
+  Rng rng(8);
+  auto draws_at = [&](auto node_of) {
+    std::vector<OrbitDraw> d;
+    for (int k = 0; k < 3000; ++k)
+      d.push_back({10.0, 5.0, 0.0, 0.0, 0.0, node_of(k), 0.0, 2027.5, 30.0, 20.0, 1.0, 1.0});
+    return d;
+  };
+  const SkyPrediction uniform = predict_sky(draws_at([&](int) { return 360.0 * rng.uniform(); }), 2027.5, {});
+  CHECK(uniform.pa_resultant < 0.1);
+  CHECK_FALSE(uniform.pa_constrained);
+  CHECK(uniform.pa_modes_deg.empty());
+  const SkyPrediction one = predict_sky(draws_at([&](int) { return 40.0 + 20.0 * rng.normal(); }), 2027.5, {});
+  CHECK(one.pa_constrained);
+  REQUIRE_FALSE(one.pa_modes_deg.empty());
+  CHECK(one.pa_modes_deg.front() == Approx(40.0).margin(3.0));
+  const SkyPrediction two =
+      predict_sky(draws_at([&](int k) { return (k % 2 ? 100.0 : 280.0) + 10.0 * rng.normal(); }), 2027.5, {});
+  CHECK(two.pa_resultant < 0.1);
+  CHECK(two.pa_resultant_axial > 0.9);
+  CHECK(two.pa_constrained);
+  CHECK(two.pa_modes_deg.size() == 2);
+  std::string row;
+  append_prediction_row(row, "u", 3000, uniform);
+  CHECK(row.substr(row.size() - 17) == "pa_unconstrained\n");
+}

@@ -32,14 +32,25 @@ struct PredictOptions {
   double grid_half_mas = 0.0;   ///< half width of the map; 0 = automatic
 };
 
+/// The position angle counts as constrained when the mean resultant length
+/// of the angles, or of the doubled angles (two opposite directions, the
+/// node ambiguity of velocity-only data), reaches this (for a von Mises
+/// distribution R = 0.5 is a concentration of ~1.2, half the weight within
+/// ~70 deg of the mean). Below it no modes are given (note pa_unconstrained).
+inline constexpr double kMinPaResultant = 0.5;
+
 struct SkyPrediction {
   double date_yr = 0.0;
   double ess = 0.0;             ///< effective number of draws
   double sep_q[5] = {};         ///< separation quantiles 2.5, 16, 50, 84, 97.5 % (mas)
   double pa_mean_deg = 0.0;     ///< circular mean of the position angle
   double pa_resultant = 0.0;    ///< mean resultant length R (1: one direction, 0: uniform)
+  double pa_resultant_axial = 0.0;  ///< the same of the doubled angles (1: one axis)
+  /// max(R, axial R) >= kMinPaResultant; otherwise pa_modes_deg is empty.
+  bool pa_constrained = false;
   /// Modes of the position-angle density (smoothed with a 5 deg Gaussian
-  /// kernel; maxima above a quarter of the highest), strongest first.
+  /// kernel; maxima above a quarter of the highest), strongest first; empty
+  /// unless pa_constrained.
   std::vector<double> pa_modes_deg;
   double pa_arc68_start_deg = 0.0;  ///< shortest arc with 68 % of the weight, from its start
   double pa_arc68_width_deg = 0.0;  ///< through increasing position angle
