@@ -254,3 +254,32 @@ TEST_CASE("rank: p_real follows the Bayes factor and the assumed occurrence", "[
   CHECK_THAT(err, Catch::Contains("--occurrence"));
   CHECK(test::run_heft("rank " + stars + kRankArgs + kFast + " --occurrence 0", &err) == 1);
 }
+
+TEST_CASE("rank and curve + predict agree for the same star and options", "[rank][cli]") {
+  // One code path (common practice, no source): rank's best separation is
+  // the curve's highest-weight point, and its score over p_real (with a
+  // target mass window wider than the prior) is predict's p_in_wa from the
+  // curve's draws, to round-off.
+  const std::string stars = survey("same"), ranked = test::tmp_path("same_ranked.csv");
+  const std::string opts = " --draws 128 --n-a 12 --a-min 0.5 --a-max 500 -q";
+  REQUIRE(test::run_heft("rank " + stars + " --date 2027.5 --iwa 100 --owa 1500 --target-mass 0.001,1e6" + opts +
+                         " -o " + ranked) == 0);
+  const test::Table r = test::read_table(ranked);
+  int compared = 0;
+  for (std::size_t k = 0; k < r.rows.size() && compared < 3; ++k) {
+    if (r.str(k, "p_real").empty() || r.num(k, "p_real") < 0.5) continue;
+    const std::string id = r.str(k, "id"), curve = test::tmp_path("same_curve.csv"),
+                      draws = test::tmp_path("same_draws.csv"), where = test::tmp_path("same_where.csv");
+    REQUIRE(test::run_heft("curve " + stars + " --id " + id + opts + " -o " + curve + " --keep-draws " + draws) == 0);
+    REQUIRE(test::run_heft("predict -q " + draws + " --date 2027.5 --iwa 100 --owa 1500 -o " + where) == 0);
+    const test::Table c = test::read_table(curve), w = test::read_table(where);
+    std::size_t best = 0;
+    for (std::size_t j = 1; j < c.rows.size(); ++j)
+      if (c.num(j, "weight") > c.num(best, "weight")) best = j;
+    INFO(id);
+    CHECK(r.num(k, "a_best_au") == c.num(best, "a_au"));
+    CHECK(r.num(k, "score") / r.num(k, "p_real") == Approx(w.num(0, "p_in_wa")).epsilon(1e-12));
+    ++compared;
+  }
+  CHECK(compared == 3);
+}
