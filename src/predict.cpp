@@ -210,10 +210,14 @@ SkyPrediction summarize_sky(const std::vector<SkyOffset>& off, double date_yr, c
   if (r.pa_constrained)
     for (const auto& m : modes) r.pa_modes_deg.push_back(m.second);
   // Density map.
-  r.grid_n = opt.grid_n;
-  r.grid_half_mas = opt.grid_half_mas > 0 ? opt.grid_half_mas
-                                          : std::max(1.1 * weighted_quantile(sep, sw, 0.99),
-                                                     std::isfinite(opt.owa_mas) ? 1.05 * opt.owa_mas : 0.0);
+  // Sized from the draws, so that a tight prediction is resolved: the 68 %
+  // region's larger extent, radial or along its position-angle arc.
+  r.grid_half_mas = opt.grid_half_mas > 0 ? opt.grid_half_mas : 1.2 * weighted_quantile(sep, sw, 0.995);
+  const double extent68 =
+      std::max(r.sep_q[3] - r.sep_q[1], r.sep_q[2] * units::deg_to_rad(r.pa_arc68_width_deg));
+  const double cells = extent68 > 0 ? std::ceil(kGridCellsAcross68 * 2.0 * r.grid_half_mas / extent68) : kGridMaxCells;
+  r.grid_n = opt.grid_n > 0 ? opt.grid_n
+                            : static_cast<int>(std::clamp(cells, double(kGridMinCells), double(kGridMaxCells)));
   const int n = r.grid_n;
   const double h = r.grid_half_mas, cell = 2.0 * h / n;
   r.density.assign(static_cast<std::size_t>(n) * n, 0.0);

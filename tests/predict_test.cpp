@@ -111,3 +111,27 @@ TEST_CASE("predict: position-angle modes only where the angle is constrained", "
   append_prediction_row(row, "u", 3000, uniform);
   CHECK(row.substr(row.size() - 17) == "pa_unconstrained\n");
 }
+
+TEST_CASE("predict: the density map is sized from the draws, not the working angles", "[predict]") {
+  // Face-on circular orbits at 10 AU and 8 mas parallax: every draw at
+  // 80 mas (common practice, no source), position angles spread by the node.
+  Rng rng(9);
+  auto cluster = [&](double spread_deg) {
+    std::vector<OrbitDraw> d;
+    for (int k = 0; k < 4000; ++k)
+      d.push_back({10.0, 5.0, 0.0, 0.0, 0.0, 30.0 + spread_deg * rng.normal(), 0.0, 2027.5, 30.0, 8.0, 1.0, 1.0});
+    return d;
+  };
+  const auto wide = cluster(20.0);
+  const SkyPrediction a = predict_sky(wide, 2027.5, {0.0, 2000.0, 0, 0.0});
+  const SkyPrediction b = predict_sky(wide, 2027.5, {0.0, 100.0, 0, 0.0});
+  CHECK(a.grid_half_mas == Approx(1.2 * 80.0).epsilon(1e-9));
+  CHECK(b.grid_half_mas == a.grid_half_mas);
+  CHECK(b.grid_n == a.grid_n);
+  const double extent = 80.0 * units::deg_to_rad(a.pa_arc68_width_deg);
+  CHECK(a.grid_n == static_cast<int>(std::ceil(64.0 * 2.0 * a.grid_half_mas / extent)));
+  CHECK(2.0 * a.grid_half_mas / a.grid_n * 64.0 <= extent + 1e-9);  // >= 64 cells across
+  // A tight cluster gets the finest map allowed; an explicit size wins.
+  CHECK(predict_sky(cluster(0.5), 2027.5, {}).grid_n == kGridMaxCells);
+  CHECK(predict_sky(wide, 2027.5, {0.0, 2000.0, 40, 0.0}).grid_n == 40);
+}

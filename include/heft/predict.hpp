@@ -25,11 +25,18 @@ struct SkyOffset {
 /// The companion's offset for each draw at date_yr (docs/orbits.md).
 std::vector<SkyOffset> sky_offsets(const std::vector<OrbitDraw>& draws, double date_yr);
 
+inline constexpr int kGridCellsAcross68 = 64, kGridMinCells = 101, kGridMaxCells = 301;
+
 struct PredictOptions {
   double iwa_mas = 0.0;                                        ///< inner working angle
   double owa_mas = std::numeric_limits<double>::infinity();    ///< outer working angle
-  int grid_n = 101;             ///< cells per side of the density map
-  double grid_half_mas = 0.0;   ///< half width of the map; 0 = automatic
+  /// Cells per side of the density map; 0 = automatic: at least
+  /// kGridCellsAcross68 cells across the 68 % region, kGridMinCells to
+  /// kGridMaxCells.
+  int grid_n = 0;
+  /// Half width of the map (mas); 0 = automatic: 1.2 x the 99.5 % separation
+  /// of the draws (whatever the working angles).
+  double grid_half_mas = 0.0;
 };
 
 /// The position angle counts as constrained when the mean resultant length

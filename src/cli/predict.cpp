@@ -86,8 +86,11 @@ void setup_predict(CLI::App& app, Runner& run) {
   add_format_option(sub, o->format);
   sub->add_option("--json", o->json, "also write the summary as JSON");
   sub->add_option("--grid", o->grid, "2-D density map (CSV: id, date_yr, dra_mas, ddec_mas, density_per_mas2)");
-  sub->add_option("--grid-size", o->predict.grid_n, "cells per side of the map")->check(CLI::Range(4, 2000))->capture_default_str();
-  sub->add_option("--grid-extent", o->predict.grid_half_mas, "half width of the map (mas; default: 1.1 x the 99 % separation)")
+  sub->add_option("--grid-size", o->predict.grid_n,
+                  "cells per side of the map (default: at least 64 across the 68 % region, 101 to 301)")
+      ->check(CLI::Range(4, 2000));
+  sub->add_option("--grid-extent", o->predict.grid_half_mas,
+                  "half width of the map (mas; default: 1.2 x the 99.5 % separation of the draws)")
       ->check(CLI::PositiveNumber);
   sub->add_flag("-q,--quiet", o->quiet, "no informational messages");
   sub->footer(
