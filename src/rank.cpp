@@ -119,32 +119,52 @@ RankRecord rank_star(const StarRecord& star, const ScreenRow& row, const RankOpt
   r.mass_med = best->mass_med;
   r.mass_hi68 = best->mass_hi68;
   // The draws carry the curve's per-separation weights: sums over them are
-  // the marginalisation over separation.
-  const std::vector<SkyOffset> off = sky_offsets(c.draws, opt.date_yr);
+  // the marginalisation over separation. Given the companion, at one date:
+  // P(in the working angles with a target mass), P(also detectable).
   const bool detect = opt.contrast && opt.mass_mag && present(star.mag);
-  double sw = 0.0, in_window = 0.0, detected = 0.0, stellar = 0.0;
-  for (std::size_t k = 0; k < off.size(); ++k) {
-    const OrbitDraw& dr = c.draws[k];
-    const double w = dr.weight;
-    sw += w;
-    const bool in_wa = off[k].sep_mas >= opt.iwa_mas && off[k].sep_mas <= opt.owa_mas;
-    const bool in_target = dr.mass_mjup >= opt.target_min_mjup && dr.mass_mjup <= opt.target_max_mjup;
-    if (dr.mass_mjup > kStellarMassMjup) stellar += w;
-    if (in_wa && in_target) in_window += w;
-    if (detect && in_wa && in_target) {
-      // Distance modulus from the draw's parallax; contrast in the host's band.
-      const double app = opt.mass_mag->abs_mag(dr.mass_mjup) + 5.0 * std::log10(100.0 / dr.parallax_mas);
-      if (app - star.mag <= opt.contrast->limit_mag(off[k].sep_mas)) detected += w;
-    }
+  double sw = 0.0, stellar = 0.0;
+  for (const auto& dr : c.draws) {
+    sw += dr.weight;
+    if (dr.mass_mjup > kStellarMassMjup) stellar += dr.weight;
   }
+  auto chances_at = [&](const std::vector<SkyOffset>& off, double& in_window, double& detected) {
+    in_window = detected = 0.0;
+    for (std::size_t k = 0; k < off.size(); ++k) {
+      const OrbitDraw& dr = c.draws[k];
+      const bool in_wa = off[k].sep_mas >= opt.iwa_mas && off[k].sep_mas <= opt.owa_mas;
+      const bool in_target = dr.mass_mjup >= opt.target_min_mjup && dr.mass_mjup <= opt.target_max_mjup;
+      if (!(in_wa && in_target)) continue;
+      in_window += dr.weight;
+      // Distance modulus from the draw's parallax; contrast in the host's band.
+      if (detect && opt.mass_mag->abs_mag(dr.mass_mjup) + 5.0 * std::log10(100.0 / dr.parallax_mas) - star.mag <=
+                        opt.contrast->limit_mag(off[k].sep_mas))
+        detected += dr.weight;
+    }
+    in_window = sw > 0 ? in_window / sw : 0.0;
+    detected = sw > 0 ? detected / sw : 0.0;
+  };
   // Scores are probabilities that the companion exists and is where (and
-  // what) the plan needs; given the companion they are sums over the draws.
+  // what) the plan needs.
   r.log10_bayes = c.log10_bayes;
   r.p_real = probability_real(c.log10_bayes, opt.occurrence);
   r.p_stellar = sw > 0 ? stellar / sw : 0.0;
   if (r.p_stellar > 0.5) add_note(r.notes, "stellar_mass_likely");
-  r.score = sw > 0 ? r.p_real * in_window / sw : 0.0;
-  if (detect) r.p_detect = sw > 0 ? r.p_real * detected / sw : 0.0;
+  const std::vector<SkyOffset> off = sky_offsets(c.draws, opt.date_yr);
+  double in_window, detected;
+  chances_at(off, in_window, detected);
+  r.score = r.p_real * in_window;
+  if (detect) r.p_detect = r.p_real * detected;
+  // The date grid: each draw moves on its own orbit; the ranking quantity
+  // (p_detect with a detection model, else score) at each date.
+  for (std::size_t k = 0; k < opt.dates_yr.size(); ++k) {
+    chances_at(sky_offsets(c.draws, opt.dates_yr[k]), in_window, detected);
+    const double v = r.p_real * (detect ? detected : in_window);
+    if (k == 0) r.first_date_score = v;
+    if (k == 0 || v > r.best_date_score) {
+      r.best_date_score = v;
+      r.best_date_yr = opt.dates_yr[k];
+    }
+  }
   if (opt.contrast && opt.mass_mag && !present(star.mag)) add_note(r.notes, "no_mag");
   if (c.upper_limit) add_note(r.notes, "upper_limit");
   PredictOptions po;
@@ -190,6 +210,7 @@ const std::vector<ColumnUnit>& rank_column_units() {
   static const std::vector<ColumnUnit> c = {
       {"id", ""},           {"rank", ""},           {"score", ""},           {"p_detect", ""},
       {"p_real", ""},       {"log10_bayes", ""},    {"p_stellar", ""},
+      {"best_date_yr", "yr"}, {"best_date_score", ""}, {"first_date_score", ""},
       {"sig_joint", ""}, {"a_best_au", "AU"},  {"mass_lo68", "Mjup"},   {"mass_med", "Mjup"},
       {"mass_hi68", "Mjup"}, {"sep_lo68", "mas"},   {"sep_med", "mas"},      {"sep_hi68", "mas"},
       {"pa_mode_deg", "deg"}, {"pa_arc68_start_deg", "deg"}, {"pa_arc68_width_deg", "deg"},
@@ -207,7 +228,8 @@ std::string rank_header() { return header_line(rank_column_units()); }
 void append_rank_row(std::string& out, const RankRecord& r) {
   append_csv_field(out, r.id);
   out += ',' + std::to_string(r.rank);
-  for (double v : {r.score, r.p_detect, r.p_real, r.log10_bayes, r.p_stellar, r.sig_joint, r.a_best_au, r.mass_lo68, r.mass_med, r.mass_hi68, r.sep_lo68,
+  for (double v : {r.score, r.p_detect, r.p_real, r.log10_bayes, r.p_stellar, r.best_date_yr, r.best_date_score,
+                   r.first_date_score, r.sig_joint, r.a_best_au, r.mass_lo68, r.mass_med, r.mass_hi68, r.sep_lo68,
                    r.sep_med, r.sep_hi68, r.pa_mode_deg, r.pa_arc68_start_deg, r.pa_arc68_width_deg}) {
     out += ',';
     append_double(out, v);
@@ -227,7 +249,8 @@ RankRecord parse_rank_row(const ColumnTable& t) {
   const double rank = t.number(ir);
   if (!(rank >= 0 && rank <= 1e15 && rank == std::floor(rank))) t.fail(ir, "must be a whole number from 0 to 1e15");
   r.rank = static_cast<long>(rank);
-  double* slots[] = {&r.score,    &r.p_detect, &r.p_real, &r.log10_bayes, &r.p_stellar, &r.sig_joint, &r.a_best_au, &r.mass_lo68,
+  double* slots[] = {&r.score,    &r.p_detect, &r.p_real, &r.log10_bayes, &r.p_stellar, &r.best_date_yr,
+                     &r.best_date_score, &r.first_date_score, &r.sig_joint, &r.a_best_au, &r.mass_lo68,
                      &r.mass_med, &r.mass_hi68, &r.sep_lo68, &r.sep_med,   &r.sep_hi68,
                      &r.pa_mode_deg, &r.pa_arc68_start_deg, &r.pa_arc68_width_deg};
   for (std::size_t k = 0; k < std::size(slots); ++k) {

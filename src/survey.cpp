@@ -42,6 +42,10 @@ RankRunInfo metadata(const SurveyOptions& o, const std::string& input_name, long
   f["host_mass_default_msun"] = (present(r.host_mass_msun) ? format_double(r.host_mass_msun) : "none") + "," +
                                 (present(r.host_mass_error_msun) ? format_double(r.host_mass_error_msun) : "none");
   f["occurrence"] = format_double(r.occurrence);
+  // The date grid as first,last,count.
+  f["dates_yr"] = r.dates_yr.empty() ? "none"
+                                     : format_double(r.dates_yr.front()) + "," + format_double(r.dates_yr.back()) +
+                                           "," + std::to_string(r.dates_yr.size());
   f["rank_by"] = rank_by_name(r.contrast ? RankBy::kDetect : RankBy::kScore);
   f["contrast"] = metadata_word(o.contrast_name);
   f["mass_mag"] = metadata_word(o.mass_mag_name);

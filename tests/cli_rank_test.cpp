@@ -283,3 +283,39 @@ TEST_CASE("rank and curve + predict agree for the same star and options", "[rank
   }
   CHECK(compared == 3);
 }
+
+TEST_CASE("rank and predict --dates: the best date on a grid, from the same draws", "[rank][cli]") {
+  // Consistency (common practice, no source): at the grid's first date the
+  // ranking quantity equals the score of a run planned at that date, the
+  // best is the maximum over the grid, and predict gives one row per date.
+  const std::string stars = survey("dates"), ranked = test::tmp_path("dates_ranked.csv");
+  REQUIRE(test::run_heft("rank " + stars + kRankArgs + kFast + " --dates 2027.5:2030.5:0.5 -o " + ranked) == 0);
+  const test::Table r = test::read_table(ranked);
+  int with = 0;
+  for (std::size_t k = 0; k < r.rows.size(); ++k) {
+    if (r.str(k, "best_date_yr").empty()) continue;
+    ++with;
+    const double best = r.num(k, "best_date_yr");
+    CHECK(best >= 2027.5);
+    CHECK(best <= 2030.5);
+    CHECK(std::fmod(best - 2027.5, 0.5) == Approx(0.0).margin(1e-9));
+    CHECK(r.num(k, "best_date_score") >= r.num(k, "first_date_score"));
+    CHECK(r.num(k, "first_date_score") == Approx(r.num(k, "score")).epsilon(1e-12));  // --date 2027.5 is the first
+  }
+  CHECK(with >= 10);
+  CHECK(test::read_text(ranked).find("dates_yr=2027.5,2030.5,7") != std::string::npos);
+  // predict: the working-angle probability against date.
+  const std::string draws = test::tmp_path("dates_draws.csv"), where = test::tmp_path("dates_where.csv");
+  const std::string id = r.str(0, "id");
+  REQUIRE(test::run_heft("curve -q " + stars + " --id " + id + " --draws 128 --n-a 12 -o " +
+                         test::tmp_path("dates_curve.csv") + " --keep-draws " + draws) == 0);
+  REQUIRE(test::run_heft("predict -q " + draws + " --dates 2027.5:2030.5:0.5 --iwa 100 --owa 1500 -o " + where) == 0);
+  const test::Table w = test::read_table(where);
+  REQUIRE(w.rows.size() == 7);
+  CHECK(w.num(6, "date_yr") == 2030.5);
+  std::string err;
+  CHECK(test::run_heft("predict -q " + draws + " --dates 61000:62000:10", &err) == 1);  // an MJD by mistake
+  CHECK_THAT(err, Catch::Contains("1900-2200"));
+  CHECK(test::run_heft("rank " + stars + kRankArgs + " --dates 2027:2028", &err) == 1);
+  CHECK_THAT(err, Catch::Contains("START:END:STEP"));
+}

@@ -65,6 +65,9 @@ struct RankOptions {
   double occurrence = 0.1;
   double iwa_mas = 0.0, owa_mas = std::numeric_limits<double>::infinity();
   double target_min_mjup = 1.0, target_max_mjup = 80.0;  ///< scoring window in mass
+  /// Dates (Julian years) at which to find each star's best date; empty:
+  /// none. Each draw moves on its own orbit (no re-sampling).
+  std::vector<double> dates_yr;
   CurveOptions curve;           ///< prior bounds, a grid, draws, seed, detect_sigma
   double host_mass_msun = kAbsent, host_mass_error_msun = kAbsent;
   const ContrastCurve* contrast = nullptr;
@@ -77,6 +80,10 @@ struct RankRecord {
   double score = kAbsent, p_detect = kAbsent, sig_joint = kAbsent;
   double p_real = kAbsent, log10_bayes = kAbsent;  ///< companion probability; its Bayes factor
   double p_stellar = kAbsent;  ///< P(mass > kStellarMassMjup | companion, data)
+  /// With RankOptions::dates_yr: the date of the highest ranking quantity
+  /// (p_detect with a detection model, else score), that value, and its
+  /// value at the first date.
+  double best_date_yr = kAbsent, best_date_score = kAbsent, first_date_score = kAbsent;
   double a_best_au = kAbsent, mass_lo68 = kAbsent, mass_med = kAbsent, mass_hi68 = kAbsent;
   double sep_lo68 = kAbsent, sep_med = kAbsent, sep_hi68 = kAbsent;
   double pa_mode_deg = kAbsent, pa_arc68_start_deg = kAbsent, pa_arc68_width_deg = kAbsent;

@@ -67,6 +67,29 @@ CLI::Option* add_pair_option(CLI::App* app, const std::string& name, double& a, 
       ->type_name("A,B");
 }
 
+CLI::Option* add_date_grid_option(CLI::App* app, std::vector<double>& dates, std::string& text) {
+  return app
+      ->add_option_function<std::string>(
+          "--dates",
+          [&dates, &text](const std::string& v) {
+            const auto a = v.find(':'), b = a == std::string::npos ? a : v.find(':', a + 1);
+            double start = 0, end = 0, step = 0;
+            if (b == std::string::npos || !parse_double(std::string_view(v).substr(0, a), start) ||
+                !parse_double(std::string_view(v).substr(a + 1, b - a - 1), end) ||
+                !parse_double(std::string_view(v).substr(b + 1), step))
+              throw CLI::ValidationError("--dates", "expected START:END:STEP (decimal Julian years), got '" + v + "'");
+            if (!(start >= 1900.0 && end <= 2200.0 && start < end))
+              throw CLI::ValidationError("--dates", "START < END, both within 1900-2200 (Julian years, not MJD)");
+            if (!(step > 0.0 && (end - start) / step <= 10000.0))
+              throw CLI::ValidationError("--dates", "STEP must be > 0 and give at most 10000 dates");
+            dates.clear();
+            for (long k = 0; start + k * step <= end + 1e-9 * step; ++k) dates.push_back(start + k * step);
+            text = v;
+          },
+          "a date grid START:END:STEP (decimal Julian years, 1900-2200)")
+      ->type_name("START:END:STEP");
+}
+
 void add_format_option(CLI::App* app, std::string& format) {
   app->add_option("--format", format,
                   "format of the -o table: csv, ecsv (astropy's Enhanced CSV, with units) or fits (binary table "

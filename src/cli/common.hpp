@@ -53,6 +53,10 @@ CLI::Option* add_vec3_option(CLI::App* app, const std::string& name, Eigen::Vect
 CLI::Option* add_pair_option(CLI::App* app, const std::string& name, double& a, double& b,
                              const std::string& help);
 
+/// Adds --dates START:END:STEP (Julian years within 1900-2200, at most
+/// 10000 dates): the grid into `dates`, the text as given into `text`.
+CLI::Option* add_date_grid_option(CLI::App* app, std::vector<double>& dates, std::string& text);
+
 /// Adds the calibration and RV options of the screen stage (shared by every
 /// command that screens stars).
 void add_screen_options(CLI::App* app, ScreenOptions& screen, WindowDefaults& windows,

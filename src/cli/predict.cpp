@@ -12,13 +12,15 @@ namespace heft::cli {
 namespace {
 
 struct PredictCliOptions {
-  std::string input, output = "-", json, grid, id, format;
-  std::vector<double> dates;
+  std::string input, output = "-", json, grid, id, format, date_grid_text;
+  std::vector<double> dates, date_grid;
   PredictOptions predict;
   bool quiet = false;
 };
 
-int run_predict(const PredictCliOptions& o) {
+int run_predict(PredictCliOptions o) {
+  o.dates.insert(o.dates.end(), o.date_grid.begin(), o.date_grid.end());
+  if (o.dates.empty()) throw CLI::ValidationError("a date is needed: --date D1,D2,... or --dates START:END:STEP");
   require_distinct_outputs({{"-o", o.output}, {"--json", o.json}, {"--grid", o.grid}});
   if (!(o.predict.iwa_mas < o.predict.owa_mas)) throw CLI::ValidationError("--iwa must be below --owa");
   TableInput in(o.input, draw_column_units());
@@ -77,8 +79,10 @@ void setup_predict(CLI::App& app, Runner& run) {
   sub->add_option("draws", o->input, "orbit-draw table (CSV; '-' = stdin)")->required();
   sub->add_option("--date", o->dates, "dates D1,D2,... (decimal Julian years, 1900-2200; not MJD)")
       ->delimiter(',')
-      ->check(CLI::Range(1900.0, 2200.0))
-      ->required();
+      ->check(CLI::Range(1900.0, 2200.0));
+  add_date_grid_option(sub, o->date_grid, o->date_grid_text)
+      ->description("also the dates of the grid START:END:STEP (decimal Julian years, 1900-2200): one row per "
+                    "date, so p_in_wa against date");
   sub->add_option("--id", o->id, "only this star");
   sub->add_option("--iwa", o->predict.iwa_mas, "inner working angle (mas)")->check(CLI::NonNegativeNumber)->capture_default_str();
   sub->add_option("--owa", o->predict.owa_mas, "outer working angle (mas; default none)")->check(CLI::PositiveNumber);

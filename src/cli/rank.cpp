@@ -18,7 +18,7 @@ namespace {
 
 struct RankCliOptions {
   std::string input, output = "-", json, shard = "1/1", contrast, mass_mag, ecc, format;
-  std::string late_spin_table;
+  std::string late_spin_table, dates;
   SurveyOptions survey;
   int threads = 0;
   bool resume = false, quiet = false;
@@ -112,6 +112,10 @@ void setup_rank(CLI::App& app, Runner& run) {
   sub->add_option("--date", r.date_yr, "planned imaging date (decimal Julian year, 1900-2200; not MJD)")
       ->check(CLI::Range(1900.0, 2200.0))
       ->required();
+  add_date_grid_option(sub, r.dates_yr, o->dates)
+      ->description("also find each star's best imaging date on the grid START:END:STEP (decimal Julian years, "
+                    "1900-2200): columns best_date_yr, best_date_score and first_date_score (the ranking "
+                    "quantity at the best and at the first date); each draw moves on its own orbit");
   sub->add_option("-o,--output", o->output, "ranked table (CSV, ECSV or FITS); default stdout");
   add_format_option(sub, o->format);
   sub->add_option("--json", o->json, "also write the ranked table as JSON");
