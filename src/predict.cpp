@@ -161,6 +161,18 @@ SkyPrediction predict_sky(const std::vector<OrbitDraw>& draws, double date_yr, c
   return summarize_sky(sky_offsets(draws, date_yr), date_yr, opt);
 }
 
+BestDate best_date(const std::vector<OrbitDraw>& draws, const std::vector<double>& dates_yr,
+                   const std::function<double(const std::vector<SkyOffset>&)>& value) {
+  const double nan = std::numeric_limits<double>::quiet_NaN();
+  BestDate b{nan, nan, nan};
+  for (std::size_t k = 0; k < dates_yr.size(); ++k) {
+    const double v = value(sky_offsets(draws, dates_yr[k]));
+    if (k == 0) b.first_value = v;
+    if (k == 0 || v > b.value) b = {dates_yr[k], v, b.first_value};
+  }
+  return b;
+}
+
 SkyPrediction summarize_sky(const std::vector<SkyOffset>& off, double date_yr, const PredictOptions& opt) {
   SkyPrediction r;
   r.date_yr = date_yr;

@@ -154,16 +154,16 @@ RankRecord rank_star(const StarRecord& star, const ScreenRow& row, const RankOpt
   chances_at(off, in_window, detected);
   r.score = r.p_real * in_window;
   if (detect) r.p_detect = r.p_real * detected;
-  // The date grid: each draw moves on its own orbit; the ranking quantity
-  // (p_detect with a detection model, else score) at each date.
-  for (std::size_t k = 0; k < opt.dates_yr.size(); ++k) {
-    chances_at(sky_offsets(c.draws, opt.dates_yr[k]), in_window, detected);
-    const double v = r.p_real * (detect ? detected : in_window);
-    if (k == 0) r.first_date_score = v;
-    if (k == 0 || v > r.best_date_score) {
-      r.best_date_score = v;
-      r.best_date_yr = opt.dates_yr[k];
-    }
+  // The date grid: the ranking quantity (p_detect with a detection model,
+  // else score) at each date.
+  if (!opt.dates_yr.empty()) {
+    const BestDate b = best_date(c.draws, opt.dates_yr, [&](const std::vector<SkyOffset>& at) {
+      chances_at(at, in_window, detected);
+      return r.p_real * (detect ? detected : in_window);
+    });
+    r.best_date_yr = b.date_yr;
+    r.best_date_score = b.value;
+    r.first_date_score = b.first_value;
   }
   if (opt.contrast && opt.mass_mag && !present(star.mag)) add_note(r.notes, "no_mag");
   if (c.upper_limit) add_note(r.notes, "upper_limit");

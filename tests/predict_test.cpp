@@ -135,3 +135,40 @@ TEST_CASE("predict: the density map is sized from the draws, not the working ang
   CHECK(predict_sky(cluster(0.5), 2027.5, {}).grid_n == kGridMaxCells);
   CHECK(predict_sky(wide, 2027.5, {0.0, 2000.0, 40, 0.0}).grid_n == 40);
 }
+
+TEST_CASE("best date: flat for a face-on circular orbit, at greatest elongation for an edge-on one", "[predict]") {
+  // Geometry (common practice, no source): a face-on circular orbit keeps
+  // its separation a x parallax at every date; an edge-on circular orbit
+  // with omega = Omega = 0 projects to a x parallax x |cos M| along north,
+  // largest at M = 0 and pi. Draws at 10 AU, 20 mas parallax (200 mas),
+  // P = 20 yr, phases spread by 5 deg around M = 0 at 2027.5.
+  Rng rng(10);
+  auto draws_with = [&](double inc_deg) {
+    std::vector<OrbitDraw> d;
+    for (int k = 0; k < 2000; ++k)
+      d.push_back({10.0, 5.0, 0.0, inc_deg, 0.0, 0.0, 5.0 * rng.normal(), 2027.5, 20.0, 20.0, 1.0, 1.0});
+    return d;
+  };
+  std::vector<double> dates;
+  for (double t = 2030.0; t <= 2040.0 + 1e-9; t += 0.25) dates.push_back(t);
+  auto p_in = [](double iwa, double owa) {
+    return [iwa, owa](const std::vector<SkyOffset>& off) {
+      double in = 0, sw = 0;
+      for (const auto& o : off) {
+        sw += o.weight;
+        if (o.sep_mas >= iwa && o.sep_mas <= owa) in += o.weight;
+      }
+      return in / sw;
+    };
+  };
+  const BestDate flat = best_date(draws_with(0.0), dates, p_in(150.0, 1000.0));
+  CHECK(flat.value == 1.0);
+  CHECK(flat.first_value == 1.0);
+  CHECK(flat.date_yr == 2030.0);  // all equal: the first date
+  // Edge-on: inside 190-1000 mas only within ~18 deg of elongation; the
+  // phase spread makes the chance peak at the elongation itself, 2037.5.
+  const BestDate edge = best_date(draws_with(90.0), dates, p_in(190.0, 1000.0));
+  CHECK(edge.date_yr == Approx(2037.5).margin(0.25));
+  CHECK(edge.value > 0.9);
+  CHECK(edge.first_value < 0.01);  // 2030: 45 deg past elongation, 141 mas
+}

@@ -6,6 +6,7 @@
 /// probability of lying between two working angles, and a density map.
 
 #include <iosfwd>
+#include <functional>
 #include <limits>
 #include <nlohmann/json.hpp>
 #include <string>
@@ -73,6 +74,16 @@ struct SkyPrediction {
 SkyPrediction predict_sky(const std::vector<OrbitDraw>& draws, double date_yr, const PredictOptions& opt);
 /// The same from offsets already computed by sky_offsets at date_yr.
 SkyPrediction summarize_sky(const std::vector<SkyOffset>& offsets, double date_yr, const PredictOptions& opt);
+
+/// The best of a grid of dates for a quantity of the sky offsets (each draw
+/// on its own orbit at every date): the date of the largest value (the
+/// first on ties), that value, and the value at the first date. NaN for an
+/// empty grid.
+struct BestDate {
+  double date_yr, value, first_value;
+};
+BestDate best_date(const std::vector<OrbitDraw>& draws, const std::vector<double>& dates_yr,
+                   const std::function<double(const std::vector<SkyOffset>&)>& value);
 
 /// The prediction table of `heft predict` (docs/formats.md): header and one
 /// row per star and date; `n_draws` is the star's number of draws.
