@@ -816,7 +816,8 @@ Curve analytic_curve(const AnomalyData& d, const CurveOptions& opt) {
     qs[k] = q_lo * std::pow(q_hi / q_lo, static_cast<double>(k) / (kAnalyticGridPoints - 1));
   auto to_mjup = [&](double q) { return d.host_mass_msun * q / (1.0 - q) * units::kMjupPerMsun; };
   for (double a : opt.a_au) {
-    CurvePoint p{a, a * d.parallax_mas, period_from_a(a, d.host_mass_msun), 1.0 / opt.a_au.size(),
+    // No posterior over a: the analytic curve has no weight.
+    CurvePoint p{a, a * d.parallax_mas, period_from_a(a, d.host_mass_msun), kAbsent,
                  kAbsent, kAbsent, kAbsent, kAbsent, kAbsent, kAbsent, {}, {}};
     // The relation is linear in f: bracket f = 1 once per separation.
     for (int k = 0; k < kAnalyticGridPoints; ++k) base[k] = analytic_anomaly_mas_yr(d, a, qs[k], 1.0);
@@ -860,6 +861,12 @@ Curve analytic_curve(const AnomalyData& d, const CurveOptions& opt) {
     }
     if (multiple) p.notes.push_back("multiple_solutions");
     if (none) p.notes.push_back("not_converged");
+    // The relation ignores the mass prior: say where it goes beyond it.
+    for (double* col : cols)
+      if (present(*col) && *col > opt.prior.m_max_mjup) {
+        p.notes.push_back("above_prior_max");
+        break;
+      }
     p.ess = kAbsent;
     c.points.push_back(p);
   }
@@ -929,7 +936,7 @@ nlohmann::ordered_json curve_point_json(const CurvePoint& p, bool upper_limit) {
       upper_limit ? quantiles_json({{68, v[3]}, {95, v[4]}})
                   : quantiles_json({{2.5, v[0]}, {16, v[1]}, {50, v[2]}, {84, v[3]}, {97.5, v[4]}});
   nlohmann::ordered_json j = {{"a_au", p.a_au},      {"sep_mas", p.sep_mas},        {"period_yr", p.period_yr},
-                              {"weight", p.weight},  {"mass_mjup", mass},           {"ess", json_number(p.ess)},
+                              {"weight", json_number(p.weight)},  {"mass_mjup", mass},           {"ess", json_number(p.ess)},
                               {"notes", p.notes}};
   if (has_note(p.notes, "multiple_solutions")) {
     nlohmann::ordered_json roots;

@@ -108,6 +108,9 @@ Curve montecarlo_curve(const AnomalyData& d, const CurveOptions& opt, const std:
 ///    sought for q <= 1/2 (the host is the heavier body; beyond, the dark-
 ///    companion model does not apply); a column without one is NaN with
 ///    "not_converged".
+/// 2. The relation is not a posterior: points have no weight (NaN, written
+///    empty), and it ignores the mass prior; a point with a column above
+///    the prior's m_max gets the note "above_prior_max".
 Curve analytic_curve(const AnomalyData& d, const CurveOptions& opt);
 
 /// The late-epoch anomaly (mas/yr) that the analytic relation predicts for
