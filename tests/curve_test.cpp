@@ -349,3 +349,23 @@ TEST_CASE("p_real: reliability on a survey drawn from the prior", "[curve][calib
   // The ambiguous middle is populated.
   CHECK(r.stars[1] + r.stars[2] + r.stars[3] >= 15);
 }
+
+TEST_CASE("analytic curve: no weight, and a note where it exceeds the prior", "[curve]") {
+  // The analytic relation is not a posterior (docs/formats.md): its points
+  // carry no weight, and masses above --m-max are flagged (common practice,
+  // no source). A 50 MJup companion at 8 AU against a 10 MJup prior bound.
+  Orbit<double> o{period_from_a(8.0, 1.0), 0.0, 1.0, 0.0, 0.5, 2.0, kLate.ref_epoch_yr};
+  const AnomalyData d = data_for(o, 8.0, 50.0, 1.0, 30.0, 0.02, 0.3, kEarly, kLate);
+  CurveOptions opt;
+  opt.a_au = {6.0, 8.0, 10.0};
+  opt.prior.m_max_mjup = 10.0;
+  const Curve c = analytic_curve(d, opt);
+  for (const auto& p : c.points) {
+    CHECK(std::isnan(p.weight));
+    REQUIRE(present(p.mass_med));
+    CHECK(p.mass_med > 10.0);
+    CHECK(has_note(p.notes, "above_prior_max"));
+  }
+  opt.prior.m_max_mjup = 1e4;
+  for (const auto& p : analytic_curve(d, opt).points) CHECK_FALSE(has_note(p.notes, "above_prior_max"));
+}
