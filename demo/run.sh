@@ -33,7 +33,7 @@ echo
 echo "== 3. curves and sky maps of the three best candidates"
 for id in $(awk -F, 'NR > 2 && NR <= 5 { print $1 }' "$out/ranked.csv"); do
   "$heft" curve -q "$stars" --id "$id" --draws 1024 --n-a 32 -o "$out/curve_$id.csv" --keep-draws "$out/draws_$id.csv"
-  "$heft" plot curve "$out/curve_$id.csv" -o "$out/curve_$id.svg"
+  "$heft" plot curve "$out/curve_$id.csv" $wa --truth "$demo/survey/truth.csv" -o "$out/curve_$id.svg"
   "$heft" predict -q "$out/draws_$id.csv" --date "$date" $wa -o "$out/where_$id.csv" --grid "$out/grid_$id.csv"
   "$heft" plot sky "$out/grid_$id.csv" $wa -o "$out/sky_$id.svg"
   echo "$id: $out/curve_$id.svg, $out/sky_$id.svg"

@@ -880,6 +880,7 @@ std::vector<CurvePoint> read_curve_table(std::istream& in, const std::string& na
   ColumnTable t(in, name, cols);
   std::vector<int> idx;
   for (const auto& c : cols) idx.push_back(t.index(c));
+  const int iw = t.index("weight");  // optional
   std::vector<CurvePoint> rows;
   while (t.next()) {
     if (id.empty()) id = std::string(t.text(idx[0]));
@@ -890,7 +891,9 @@ std::vector<CurvePoint> read_curve_table(std::istream& in, const std::string& na
     CurvePoint p{};
     p.a_au = v[0];
     p.sep_mas = v[1];
-    p.period_yr = p.weight = p.ess = kAbsent;
+    p.period_yr = p.ess = kAbsent;
+    p.weight = iw < 0 || t.text(iw).empty() ? kAbsent : t.number(iw);
+    if (present(p.weight) && !(p.weight >= 0.0 && p.weight <= 1.0)) t.fail(iw, "weight must be in [0, 1]");
     p.mass_lo95 = v[2];
     p.mass_lo68 = v[3];
     p.mass_med = v[4];

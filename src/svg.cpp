@@ -1,5 +1,6 @@
 #include "heft/svg.hpp"
 
+#include <algorithm>
 #include <cmath>
 #include <cstdio>
 
@@ -80,6 +81,33 @@ void LogLogPlot::hline(double y, const std::string& label, const std::string& st
   body_ += "<text x=\"" + num(kW - kRight - 4) + "\" y=\"" + num(py(y) - 4) +
            "\" font-size=\"12\" text-anchor=\"end\" fill=\"" + stroke + "\">" + xml_escape(label) +
            "</text>\n";
+}
+
+void LogLogPlot::vline(double x, const std::string& label, const std::string& stroke) {
+  if (x <= x_lo_ || x >= x_hi_) return;
+  body_ += "<line x1=\"" + num(px(x)) + "\" x2=\"" + num(px(x)) + "\" y1=\"" + num(kTop) + "\" y2=\"" +
+           num(kH - kBottom) + "\" stroke=\"" + stroke + "\" stroke-width=\"1.2\" stroke-dasharray=\"6,3\"/>\n";
+  body_ += "<text transform=\"translate(" + num(px(x) - 4) + "," + num(kTop + 6) +
+           ") rotate(-90)\" font-size=\"12\" text-anchor=\"end\" fill=\"" + stroke + "\">" + xml_escape(label) +
+           "</text>\n";
+}
+
+void LogLogPlot::bars(const std::vector<std::pair<double, double>>& fraction, const std::string& fill) {
+  const double strip = (kH - kTop - kBottom) / 6.0, half_w = 2.5;
+  for (const auto& [x, f] : fraction) {
+    if (x <= x_lo_ || x >= x_hi_ || !(f > 0)) continue;
+    const double h = strip * std::min(f, 1.0);
+    body_ += "<rect x=\"" + num(px(x) - half_w) + "\" y=\"" + num(kH - kBottom - h) + "\" width=\"" +
+             num(2 * half_w) + "\" height=\"" + num(h) + "\" fill=\"" + fill + "\" fill-opacity=\"0.8\"/>\n";
+  }
+}
+
+void LogLogPlot::marker(double x, double y, const std::string& label, const std::string& stroke) {
+  if (x <= x_lo_ || x >= x_hi_ || y <= y_lo_ || y >= y_hi_) return;
+  body_ += "<circle cx=\"" + num(px(x)) + "\" cy=\"" + num(py(y)) + "\" r=\"6\" fill=\"none\" stroke=\"" +
+           stroke + "\" stroke-width=\"2.5\"/>\n";
+  body_ += "<text x=\"" + num(px(x) + 9) + "\" y=\"" + num(py(y) + 4) + "\" font-size=\"12\" fill=\"" + stroke +
+           "\">" + xml_escape(label) + "</text>\n";
 }
 
 void LogLogPlot::legend(const std::string& colour, const std::string& text) {

@@ -62,9 +62,9 @@ TEST_CASE("heft curve CLI: deterministic, modes in JSON, bad input", "[curve][cl
   }
   const std::string no_mass = test::tmp_path("curve_nomass.csv"), js2 = test::tmp_path("curve_nomass.json");
   test::write_text(no_mass, csv);
-  CHECK(test::run_heft(args.substr(0, 15) + no_mass + " --n-a 3 --draws 64 -o /dev/null --json " + js2) == 4);
+  CHECK(test::run_heft(args.substr(0, 15) + no_mass + " --n-a 3 --draws 64 -o " + test::tmp_path("curve_discard.csv") + " --json " + js2) == 4);
   CHECK(nlohmann::json::parse(test::read_text(js2))["stars"][0]["status"] == "bad_input:no_host_mass");
-  CHECK(test::run_heft(args.substr(0, 15) + no_mass + " --n-a 3 --draws 64 -o /dev/null --host-mass 1.1") == 0);
+  CHECK(test::run_heft(args.substr(0, 15) + no_mass + " --n-a 3 --draws 64 -o " + test::tmp_path("curve_discard.csv") + " --host-mass 1.1") == 0);
   std::string err;
   CHECK(test::run_heft("curve -q " + stars + " --id NOPE", &err) == 2);
   CHECK(err.find("NOPE") != std::string::npos);
@@ -81,7 +81,7 @@ TEST_CASE("heft curve CLI: deterministic, modes in JSON, bad input", "[curve][cl
   for (const auto& row : test::read_table(two).rows) got.insert(row[0]);
   CHECK(got == std::set<std::string>{t.str(0, "id"), t.str(t.rows.size() - 1, "id")});
   test::write_text(ids, "NOPE-1\n" + t.str(0, "id") + "\n");
-  CHECK(test::run_heft("curve -q " + stars + " --ids " + ids + " -o /dev/null", &err) == 2);
+  CHECK(test::run_heft("curve -q " + stars + " --ids " + ids + " -o " + test::tmp_path("curve_discard.csv"), &err) == 2);
   CHECK_THAT(err, Catch::Contains("'NOPE-1'"));
 }
 
@@ -92,12 +92,23 @@ TEST_CASE("heft plot curve writes an SVG that renders", "[curve][cli][plot]") {
   REQUIRE(test::run_heft("simulate -q --stars 3 --seed 8 --companion-fraction 1 --a loguniform:3,10 "
                          "--companion-mass loguniform:30,60 --distance uniform:20,30 -o " + stars) == 0);
   REQUIRE(test::run_heft("curve -q --all " + stars + " --n-a 8 --draws 256 -o " + curve) == 0);
-  REQUIRE(test::run_heft("plot curve " + curve + " -o " + svg) == 0);
+  const std::string truth = test::tmp_path("plot_truth.csv");
+  REQUIRE(test::run_heft("simulate -q --stars 3 --seed 8 --companion-fraction 1 --a loguniform:3,10 "
+                         "--companion-mass loguniform:30,60 --distance uniform:20,30 -o " + stars + " --truth " + truth) == 0);
+  REQUIRE(test::run_heft("plot curve " + curve + " --iwa 80 --owa 2000 --prior-mass 1,200 --truth " + truth + " -o " + svg) == 0);
   const std::string text = test::read_text(svg);
   CHECK(text.find("<svg") != std::string::npos);
   CHECK(text.find("semi-major axis a (AU)") != std::string::npos);
-  CHECK(text.find("projected separation") != std::string::npos);
+  CHECK(text.find("angular semi-major axis a x parallax (mas)") != std::string::npos);
   CHECK(text.find("deuterium burning") != std::string::npos);
+  CHECK(text.find("inner working angle") != std::string::npos);
+  CHECK(text.find("prior upper bound") != std::string::npos);
+  CHECK(text.find("injected companion") != std::string::npos);
+  // One weight bar per separation with weight (8 points, refined).
+  const std::string bar_fill = "fill=\"#fd8d3c\" fill-opacity";
+  std::size_t bars = 0;
+  for (auto at = text.find(bar_fill); at != std::string::npos; at = text.find(bar_fill, at + 1)) ++bars;
+  CHECK(bars >= 8);
   std::remove(png.c_str());
   REQUIRE(std::system(("rsvg-convert " + svg + " -o " + png).c_str()) == 0);
   CHECK(test::read_text(png).size() > 5000);

@@ -29,7 +29,7 @@ TEST_CASE("heft predict and plot sky from fit samples, bad draw tables", "[predi
   CHECK(test::read_table(grid).rows.size() == 2 * 40 * 40);
   // docs/formats.md, JSON outputs: "stars", q-keyed quantiles, units.
   const std::string js = test::tmp_path("pred.json");
-  REQUIRE(test::run_heft("predict -q " + draws + " --date 2027.5 -o /dev/null --json " + js) == 0);
+  REQUIRE(test::run_heft("predict -q " + draws + " --date 2027.5 -o " + test::tmp_path("predict_discard.csv") + " --json " + js) == 0);
   const auto j = nlohmann::json::parse(test::read_text(js));
   REQUIRE(j["stars"].size() == 1);
   CHECK(j["stars"][0]["sep_mas"]["q50"].get<double>() == t.num(0, "sep_med"));

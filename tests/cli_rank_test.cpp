@@ -120,7 +120,7 @@ TEST_CASE("rank: -j 1 equals -j 2, and shards merged equal a single run", "[rank
   CHECK(j["run"]["units"]["sep_med"] == "mas");
   const std::string big_seed = test::tmp_path("shard_seed.json");
   REQUIRE(test::run_heft("rank " + stars + kRankArgs + kFast +
-                         " --max-curves 1 --seed 18446744073709551615 -o /dev/null --json " + big_seed) == 0);
+                         " --max-curves 1 --seed 18446744073709551615 -o " + test::tmp_path("rank_discard.csv") + " --json " + big_seed) == 0);
   CHECK(nlohmann::json::parse(test::read_text(big_seed))["run"]["seed"].get<std::uint64_t>() ==
         18446744073709551615ULL);
   // A missing shard and a duplicated one are errors naming the problem.

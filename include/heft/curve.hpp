@@ -142,8 +142,9 @@ Eigen::Vector4d model_anomaly_dlnp(const Orbit<double>& o, double a_au, double q
 
 /// Reads the rows of one star from a curve table (the first star when `id`
 /// is empty; `id` is set to it), sorted by a. Needs the columns id, a_au,
-/// sep_mas and the five mass quantiles; empty masses read as NaN. Errors
-/// name file, line and column.
+/// sep_mas and the five mass quantiles; empty masses read as NaN; `weight`
+/// is read when present (in [0, 1]; empty or absent: NaN). Errors name
+/// file, line and column.
 std::vector<CurvePoint> read_curve_table(std::istream& in, const std::string& name, std::string& id);
 
 /// One point of a curve as JSON (the `points` of `heft curve --json`): a_au,

@@ -24,6 +24,13 @@ class LogLogPlot {
             double width, bool dashed = false);
   /// A horizontal reference line at y with a label at its right end.
   void hline(double y, const std::string& label, const std::string& stroke);
+  /// A vertical reference line at x with a label at its top end.
+  void vline(double x, const std::string& label, const std::string& stroke);
+  /// Bars standing on the bottom axis at x with heights `fraction` (0-1) of
+  /// a strip of the plot's lower sixth: a panel-less secondary quantity.
+  void bars(const std::vector<std::pair<double, double>>& fraction, const std::string& fill);
+  /// A marker (a ring) at (x, y) with a label beside it.
+  void marker(double x, double y, const std::string& label, const std::string& stroke);
   /// A legend entry (swatch colour, text).
   void legend(const std::string& colour, const std::string& text);
   /// The complete SVG document.

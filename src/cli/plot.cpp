@@ -11,6 +11,7 @@
 #include "heft/error.hpp"
 #include "heft/io.hpp"
 #include "heft/predict.hpp"
+#include "heft/simulate.hpp"
 #include "heft/stats.hpp"
 #include "heft/svg.hpp"
 
@@ -18,9 +19,27 @@ namespace heft::cli {
 namespace {
 
 struct PlotCurveOptions {
-  std::string input, output = "-", id;
+  std::string input, output = "-", id, truth;
   bool quiet = false;
+  double iwa_mas = 0.0, owa_mas = 0.0;
+  double prior_min_mjup = kAbsent, prior_max_mjup = kAbsent;
 };
+
+// The injected companion of star `id` from a heft simulate --truth table:
+// false when the star has none.
+bool truth_of(const std::string& path, const std::string& id, double& a_au, double& mass_mjup) {
+  TableInput in(path, truth_column_units());
+  ColumnTable t(in.stream(), in.name(), {"id", "companion", "a_au", "mass_mjup"});
+  const int ii = t.index("id"), ic = t.index("companion"), ia = t.index("a_au"), im = t.index("mass_mjup");
+  while (t.next()) {
+    if (t.text(ii) != id) continue;
+    if (t.number(ic) == 0) return false;
+    a_au = t.number(ia);
+    mass_mjup = t.number(im);
+    return true;
+  }
+  throw InputError(in.name(), 0, 0, "no row for star '" + id + "'");
+}
 
 
 struct PlotSkyOptions {
@@ -62,7 +81,8 @@ int run_plot_curve(const PlotCurveOptions& o) {
   const double x_hi = std::pow(10.0, std::ceil(std::log10(rows.back().a_au)));
   LogLogPlot plot(x_lo, x_hi, y_lo, y_hi, "semi-major axis a (AU)", "companion mass (Jupiter masses)",
                   "heft curve: " + id + (upper ? " (upper limits)" : "") + ", dark companion assumed");
-  plot.top_axis(rows.front().sep_mas / rows.front().a_au, "projected separation a x parallax (mas)");
+  const double mas_per_au = rows.front().sep_mas / rows.front().a_au;
+  plot.top_axis(mas_per_au, "angular semi-major axis a x parallax (mas)");
   auto band = [&](double CurvePoint::*lo, double CurvePoint::*hi, const std::string& colour, double op) {
     std::vector<std::pair<double, double>> pts;
     for (const auto& r : rows)
@@ -87,6 +107,27 @@ int run_plot_curve(const PlotCurveOptions& o) {
     plot.legend("#3182bd", "68 % band");
     plot.legend("#08306b", "median");
   }
+  // Each separation's posterior weight, relative to the largest.
+  double w_max = 0.0;
+  for (const auto& r : rows)
+    if (present(r.weight)) w_max = std::max(w_max, r.weight);
+  if (w_max > 0) {
+    std::vector<std::pair<double, double>> bars;
+    for (const auto& r : rows)
+      if (present(r.weight)) bars.emplace_back(r.a_au, r.weight / w_max);
+    plot.bars(bars, "#fd8d3c");
+    plot.legend("#fd8d3c", "posterior weight of a (bars, relative)");
+  }
+  // The working angles on the angular axis: a x parallax = angle.
+  if (o.iwa_mas > 0) plot.vline(o.iwa_mas / mas_per_au, "inner working angle", "#a63603");
+  if (o.owa_mas > 0) plot.vline(o.owa_mas / mas_per_au, "outer working angle", "#54278f");
+  // Where a band reaches the prior's bounds, the data do not constrain it.
+  if (present(o.prior_min_mjup)) plot.hline(o.prior_min_mjup, "prior lower bound", "#636363");
+  if (present(o.prior_max_mjup)) plot.hline(o.prior_max_mjup, "prior upper bound", "#636363");
+  if (!o.truth.empty()) {
+    double a = 0, m = 0;
+    if (truth_of(o.truth, id, a, m)) plot.marker(a, m, "injected companion", "#cb181d");
+  }
   // Deuterium and hydrogen burning limits (~13 and ~80 MJup; common practice).
   plot.hline(13.0, "deuterium burning ~13 MJup", "#a63603");
   plot.hline(80.0, "hydrogen burning ~80 MJup", "#54278f");
@@ -104,6 +145,11 @@ void setup_plot(CLI::App& app, Runner& run) {
       "curve", "Mass vs separation (log-log) with the 68 % and 95 % bands of a heft curve table");
   sub->add_option("curve", o->input, "curve table from heft curve (CSV; '-' = stdin)")->required();
   sub->add_option("--id", o->id, "star to plot (default: the first in the table)");
+  sub->add_option("--iwa", o->iwa_mas, "inner working angle, drawn on the angular axis (mas)")->check(CLI::NonNegativeNumber);
+  sub->add_option("--owa", o->owa_mas, "outer working angle, drawn on the angular axis (mas)")->check(CLI::NonNegativeNumber);
+  add_pair_option(sub, "--prior-mass", o->prior_min_mjup, o->prior_max_mjup,
+                  "the curve's mass prior MIN,MAX (MJup), drawn so that bands that reach it show");
+  sub->add_option("--truth", o->truth, "heft simulate --truth table: mark the star's injected companion");
   sub->add_option("-o,--output", o->output, "SVG file; default stdout");
   sub->add_flag("-q,--quiet", o->quiet, "no messages (plot prints none but errors)");
   sub->callback([o, &run] { run = [o] { return run_plot_curve(*o); }; });
