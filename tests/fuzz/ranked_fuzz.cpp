@@ -8,7 +8,7 @@ extern "C" int LLVMFuzzerTestOneInput(const std::uint8_t* data, std::size_t size
   heft::fuzz::guarded(text, [](std::istream& in) {
     heft::RankRunInfo info;
     auto records = heft::read_ranked(in, "ranked.csv", info);
-    heft::assign_ranks(records);
+    heft::assign_ranks(records, heft::RankBy::kScore);
     (void)heft::ranked_json(info, records);
     (void)heft::ranked_table(info, records);
   });
