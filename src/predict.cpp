@@ -225,6 +225,7 @@ SkyPrediction summarize_sky(const std::vector<SkyOffset>& off, double date_yr, c
   // Sized from the draws, so that a tight prediction is resolved: the 68 %
   // region's larger extent, radial or along its position-angle arc.
   r.grid_half_mas = opt.grid_half_mas > 0 ? opt.grid_half_mas : 1.2 * weighted_quantile(sep, sw, 0.995);
+  if (!(r.grid_half_mas > 0)) r.grid_half_mas = 1.0;  // every draw on the star: a 1-mas map
   const double extent68 =
       std::max(r.sep_q[3] - r.sep_q[1], r.sep_q[2] * units::deg_to_rad(r.pa_arc68_width_deg));
   const double cells = extent68 > 0 ? std::ceil(kGridCellsAcross68 * 2.0 * r.grid_half_mas / extent68) : kGridMaxCells;
