@@ -185,6 +185,7 @@ void SkyMap::image(const std::vector<double>& density, int n) {
   double peak = 0.0;
   for (double v : density) peak = std::max(peak, v);
   if (!(peak > 0)) return;
+  peak_ = peak;
   const double cell = 2 * half_ / n;
   for (int j = 0; j < n; ++j)
     for (int i = 0; i < n; ++i) {
@@ -200,6 +201,87 @@ void SkyMap::image(const std::vector<double>& density, int n) {
     }
 }
 
+void SkyMap::credible_contours(const std::vector<double>& raw, int n) {
+  const double cell = 2 * half_ / n;
+  // A histogram of finitely many draws is speckled: smooth it with a
+  // separable Gaussian of Scott's rule width, sigma_data N^(-1/6) in two
+  // dimensions (Scott 1992, Multivariate Density Estimation, Sect. 6.3), with
+  // the map's own spread and N its occupied cells (at most the draws), at
+  // least one cell.
+  double m0 = 0, mi = 0, mj = 0, mii = 0, mjj = 0, occupied = 0;
+  for (int j = 0; j < n; ++j)
+    for (int i = 0; i < n; ++i) {
+      const double v = raw[static_cast<std::size_t>(j) * n + i];
+      if (!(v > 0)) continue;
+      ++occupied;
+      m0 += v;
+      mi += v * i;
+      mj += v * j;
+      mii += v * i * i;
+      mjj += v * j * j;
+    }
+  if (!(m0 > 0)) return;
+  const double var = 0.5 * (mii / m0 - (mi / m0) * (mi / m0) + mjj / m0 - (mj / m0) * (mj / m0));
+  const double sigma = std::max(1.0, std::sqrt(std::max(var, 0.0)) * std::pow(occupied, -1.0 / 6.0));
+  const int reach = static_cast<int>(std::ceil(3 * sigma));
+  std::vector<double> kernel(2 * reach + 1);
+  for (int d = -reach; d <= reach; ++d) kernel[d + reach] = std::exp(-0.5 * d * d / (sigma * sigma));
+  std::vector<double> tmp(raw.size(), 0.0), density(raw.size(), 0.0);
+  for (int pass = 0; pass < 2; ++pass) {  // along i, then along j
+    const std::vector<double>& in = pass == 0 ? raw : tmp;
+    std::vector<double>& out = pass == 0 ? tmp : density;
+    for (int j = 0; j < n; ++j)
+      for (int i = 0; i < n; ++i) {
+        double acc = 0.0;
+        for (int d = -reach; d <= reach; ++d) {
+          const int ii = pass == 0 ? i + d : i, jj = pass == 0 ? j : j + d;
+          if (ii >= 0 && ii < n && jj >= 0 && jj < n) acc += kernel[d + reach] * in[static_cast<std::size_t>(jj) * n + ii];
+        }
+        out[static_cast<std::size_t>(j) * n + i] = acc;
+      }
+  }
+  // Levels: the density above which the cells hold 68 % and 95 % of the map's mass.
+  std::vector<double> sorted(density);
+  std::sort(sorted.rbegin(), sorted.rend());
+  double total = 0.0;
+  for (double v : sorted) total += v;
+  if (!(total > 0)) return;
+  auto level_for = [&](double p) {
+    double acc = 0.0;
+    for (double v : sorted)
+      if ((acc += v) >= p * total) return v;
+    return sorted.back();
+  };
+  const std::pair<double, const char*> levels[2] = {{0.68, "#cb181d"}, {0.95, "#fb6a4a"}};
+  for (const auto& [p, stroke] : levels) {
+    const double t = level_for(p);
+    std::string path;
+    auto at = [&](int i, int j) { return density[static_cast<std::size_t>(j) * n + i]; };
+    // Cell centres (i, j) -> sky offsets; the crossing on an edge by linear interpolation.
+    auto east = [&](double i) { return -half_ + (i + 0.5) * cell; };
+    auto north = [&](double j) { return -half_ + (j + 0.5) * cell; };
+    for (int j = 0; j + 1 < n; ++j)
+      for (int i = 0; i + 1 < n; ++i) {
+        const double v[4] = {at(i, j), at(i + 1, j), at(i + 1, j + 1), at(i, j + 1)};  // counter-clockwise
+        const double ci[4] = {0, 1, 1, 0}, cj[4] = {0, 0, 1, 1};
+        std::vector<std::pair<double, double>> cross;
+        for (int e = 0; e < 4; ++e) {
+          const int f = (e + 1) % 4;
+          if ((v[e] >= t) == (v[f] >= t)) continue;
+          const double u = (t - v[e]) / (v[f] - v[e]);
+          cross.emplace_back(east(i + ci[e] + u * (ci[f] - ci[e])), north(j + cj[e] + u * (cj[f] - cj[e])));
+        }
+        // Two crossings: one segment; four (a saddle): two, pairing neighbours.
+        for (std::size_t k = 0; k + 1 < cross.size(); k += 2)
+          path += "M" + num(px(cross[k].first)) + " " + num(py(cross[k].second)) + " L" + num(px(cross[k + 1].first)) +
+                  " " + num(py(cross[k + 1].second)) + " ";
+      }
+    if (path.empty()) continue;
+    body_ += "<path d=\"" + path + "\" fill=\"none\" stroke=\"" + stroke + "\" stroke-width=\"1.6\"/>\n";
+    legend_ += std::string(legend_.empty() ? "" : "|") + stroke + (p < 0.9 ? " 68 %" : " 95 %");
+  }
+}
+
 void SkyMap::circle(double r_mas, const std::string& label, const std::string& stroke, bool dashed) {
   if (!(r_mas > 0 && r_mas < 1.5 * half_)) return;
   body_ += "<circle clip-path=\"url(#map)\" cx=\"" + num(px(0)) + "\" cy=\"" + num(py(0)) + "\" r=\"" +
@@ -210,7 +292,7 @@ void SkyMap::circle(double r_mas, const std::string& label, const std::string& s
 }
 
 std::string SkyMap::str() const {
-  const double w = kMapLeft + kMapSize + 40, h = kMapTop + kMapSize + 60;
+  const double w = kMapLeft + kMapSize + 100, h = kMapTop + kMapSize + 60;
   std::string s = "<?xml version=\"1.0\" encoding=\"UTF-8\"?>\n";
   s += "<svg xmlns=\"http://www.w3.org/2000/svg\" width=\"" + num(w) + "\" height=\"" + num(h) + "\" viewBox=\"0 0 " +
        num(w) + " " + num(h) + "\" font-family=\"DejaVu Sans, sans-serif\">\n";
@@ -253,6 +335,32 @@ std::string SkyMap::str() const {
        ") rotate(-90)\" font-size=\"14\" text-anchor=\"middle\">offset north, &#916;&#948; (mas)</text>\n";
   s += "<text x=\"" + num(kMapLeft + kMapSize / 2) + "\" y=\"" + num(kMapTop - 22) +
        "\" font-size=\"15\" text-anchor=\"middle\">" + xml_escape(title_) + "</text>\n";
+  // Colour bar of the density image, white (0) to dark blue (the peak).
+  if (peak_ > 0) {
+    const double bx = kMapLeft + kMapSize + 20, bw = 16;
+    s += "<defs><linearGradient id=\"bar\" x1=\"0\" y1=\"1\" x2=\"0\" y2=\"0\"><stop offset=\"0\" "
+         "stop-color=\"#ffffff\"/><stop offset=\"1\" stop-color=\"#08306b\"/></linearGradient></defs>\n";
+    s += "<rect x=\"" + num(bx) + "\" y=\"" + num(kMapTop) + "\" width=\"" + num(bw) + "\" height=\"" + num(kMapSize) +
+         "\" fill=\"url(#bar)\" stroke=\"black\"/>\n";
+    char b[32];
+    std::snprintf(b, sizeof b, "%.3g", peak_);
+    s += "<text x=\"" + num(bx + bw + 4) + "\" y=\"" + num(kMapTop + 10) + "\" font-size=\"12\">" + b + "</text>\n";
+    s += "<text x=\"" + num(bx + bw + 4) + "\" y=\"" + num(kMapTop + kMapSize) + "\" font-size=\"12\">0</text>\n";
+    s += "<text transform=\"translate(" + num(bx + bw + 30) + "," + num(kMapTop + kMapSize / 2) +
+         ") rotate(-90)\" font-size=\"13\" text-anchor=\"middle\">posterior density (per mas&#178;)</text>\n";
+  }
+  // Legend of the credible contours, under the title.
+  double lx = kMapLeft + 8;
+  for (std::size_t at = 0; at < legend_.size();) {
+    const std::size_t bar = std::min(legend_.find('|', at), legend_.size());
+    const std::string item = legend_.substr(at, bar - at);
+    const std::string colour = item.substr(0, 7), text = item.substr(8);
+    s += "<line x1=\"" + num(lx) + "\" x2=\"" + num(lx + 20) + "\" y1=\"" + num(kMapTop + 14) + "\" y2=\"" +
+         num(kMapTop + 14) + "\" stroke=\"" + colour + "\" stroke-width=\"2\"/><text x=\"" + num(lx + 24) + "\" y=\"" +
+         num(kMapTop + 18) + "\" font-size=\"12\">" + xml_escape(text) + " credible region</text>\n";
+    lx += 190;
+    at = bar + 1;
+  }
   s += "</svg>\n";
   return s;
 }

@@ -36,6 +36,8 @@ TEST_CASE("heft predict and plot sky from fit samples, bad draw tables", "[predi
   CHECK(j["run"]["units"]["sep_med"] == "mas");
   REQUIRE(test::run_heft("plot sky " + grid + " --iwa 150 --owa 250 --date 2028 -o " + svg) == 0);
   CHECK(test::read_text(svg).find("outer working angle") != std::string::npos);
+  CHECK(test::read_text(svg).find("68 % credible region") != std::string::npos);
+  CHECK(test::read_text(svg).find("posterior density (per mas") != std::string::npos);
   std::remove(png.c_str());
   // Rendering check with rsvg-convert (librsvg2-bin, Debian).
   REQUIRE(std::system(("rsvg-convert " + svg + " -o " + png).c_str()) == 0);

@@ -11,6 +11,7 @@
 #include "heft/predict.hpp"
 #include "heft/rng.hpp"
 #include "heft/stats.hpp"
+#include "heft/svg.hpp"
 #include "test_util.hpp"
 
 using namespace heft;
@@ -171,4 +172,41 @@ TEST_CASE("best date: flat for a face-on circular orbit, at greatest elongation 
   CHECK(edge.date_yr == Approx(2037.5).margin(0.25));
   CHECK(edge.value > 0.9);
   CHECK(edge.first_value < 0.01);  // 2030: 45 deg past elongation, 141 mas
+}
+
+TEST_CASE("plot sky: the 68 % credible contour of a circular Gaussian", "[predict][plot]") {
+  // A circular 2-D Gaussian of width s holds 68 % within r = s sqrt(-2 ln 0.32)
+  // = 1.51 s (the Rayleigh distribution; common practice, no source). The
+  // map is the exact density on 201 x 201 cells; the contour's mean radius
+  // must match to 3 % (the smoothing adds ~ one cell in quadrature).
+  const int n = 201;
+  const double half = 100.0, s = 15.0, cell = 2 * half / n;
+  std::vector<double> d(static_cast<std::size_t>(n) * n);
+  for (int j = 0; j < n; ++j)
+    for (int i = 0; i < n; ++i) {
+      const double x = -half + (i + 0.5) * cell, y = -half + (j + 0.5) * cell;
+      d[static_cast<std::size_t>(j) * n + i] = std::exp(-0.5 * (x * x + y * y) / (s * s));
+    }
+  SkyMap map(half, "gaussian");
+  map.image(d, n);
+  map.credible_contours(d, n);
+  const std::string svg = map.str();
+  // The first contour path (68 %): its points in pixels, centred on the star's pixel.
+  const auto stroke = svg.find("stroke=\"#cb181d\" stroke-width=\"1.6\"");
+  REQUIRE(stroke != std::string::npos);
+  const auto start = svg.rfind("<path d=\"M", stroke), end = svg.find('"', start + 9);
+  REQUIRE(start != std::string::npos);
+  std::istringstream pts(svg.substr(start + 9, end - start - 9));
+  double sum = 0;
+  int count = 0;
+  for (std::string tok; pts >> tok;) {
+    double x = std::stod(tok.substr(1)), y = 0;
+    pts >> y;
+    // The map is 560 px for 2 half; the star at the centre pixel.
+    const double px_per_mas = 560.0 / (2 * half), cx = 80 + 280, cy = 60 + 280;
+    sum += std::hypot(x - cx, y - cy) / px_per_mas;
+    ++count;
+  }
+  REQUIRE(count > 20);
+  CHECK(sum / count == Approx(s * std::sqrt(-2.0 * std::log(0.32))).epsilon(0.03));
 }

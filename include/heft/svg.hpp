@@ -55,6 +55,11 @@ class SkyMap {
   /// eastwards, j northwards, as SkyPrediction::density), shaded linearly
   /// from white to dark blue up to its maximum.
   void image(const std::vector<double>& density, int n);
+  /// The 68 % and 95 % highest-density credible regions of the same map as
+  /// contour lines: the map smoothed with a Gaussian of Scott's rule width
+  /// (at least one cell), levels from its cells sorted by density, marching
+  /// squares between cell centres; with a legend.
+  void credible_contours(const std::vector<double>& density, int n);
   /// A circle of radius r_mas around the star, labelled.
   void circle(double r_mas, const std::string& label, const std::string& stroke, bool dashed);
   std::string str() const;
@@ -63,7 +68,8 @@ class SkyMap {
   double px(double east_mas) const;
   double py(double north_mas) const;
   double half_;
-  std::string title_, body_;
+  double peak_ = 0.0;  ///< the image's maximum density (per mas^2), for its colour bar
+  std::string title_, body_, legend_;
 };
 
 /// Escapes text for SVG/XML.

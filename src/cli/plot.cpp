@@ -54,6 +54,7 @@ int run_plot_sky(const PlotSkyOptions& o) {
   const SkyGrid g = read_sky_grid(in.stream(), in.name(), o.id, o.date_yr);
   SkyMap map(g.half_mas, "heft predict: " + g.id + " at " + format_double(g.date_yr));
   map.image(g.density, g.n);
+  map.credible_contours(g.density, g.n);
   if (o.iwa_mas > 0) map.circle(o.iwa_mas, "inner working angle", "#a63603", true);
   if (o.owa_mas > 0) map.circle(o.owa_mas, "outer working angle", "#54278f", true);
   write_file_atomic(o.output, map.str());
