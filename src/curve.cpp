@@ -649,33 +649,40 @@ bool bands_disjoint(const CurvePoint& a, const CurvePoint& b) {
   return a.mass_hi68 < b.mass_lo68 || b.mass_hi68 < a.mass_lo68;
 }
 
-// Each point owns the bin in ln a between the geometric midpoints to its
-// neighbours (a log-uniform prior on a over the grid).
-std::vector<double> bin_widths(const std::vector<PointResult>& pts) {
+// The separations' evidences weighted by the prior on a: each point owns
+// the bin in ln a between the geometric midpoints to its neighbours (a
+// log-uniform prior over the grid). term[k] = exp(log_evidence_k - max_le)
+// times its bin width; all zero when no evidence is finite.
+struct EvidenceTerms {
+  double max_le = -std::numeric_limits<double>::infinity(), total_width = 0.0;
+  std::vector<double> term;
+};
+
+EvidenceTerms evidence_terms(const std::vector<PointResult>& pts) {
   const std::size_t n = pts.size();
-  std::vector<double> w(n, 1.0);
-  if (n == 1) return w;
+  EvidenceTerms e;
+  e.term.assign(n, 0.0);
+  for (const auto& p : pts) e.max_le = std::max(e.max_le, p.log_evidence);
   for (std::size_t k = 0; k < n; ++k) {
-    const double la = std::log(pts[k].point.a_au);
-    const double lo = k > 0 ? 0.5 * (la + std::log(pts[k - 1].point.a_au)) : la;
-    const double hi = k + 1 < n ? 0.5 * (la + std::log(pts[k + 1].point.a_au)) : la;
-    w[k] = hi - lo;
+    double width = 1.0;
+    if (n > 1) {
+      const double la = std::log(pts[k].point.a_au);
+      const double lo = k > 0 ? 0.5 * (la + std::log(pts[k - 1].point.a_au)) : la;
+      const double hi = k + 1 < n ? 0.5 * (la + std::log(pts[k + 1].point.a_au)) : la;
+      width = hi - lo;
+    }
+    e.total_width += width;
+    if (std::isfinite(e.max_le)) e.term[k] = std::exp(pts[k].log_evidence - e.max_le) * width;
   }
-  return w;
+  return e;
 }
 
 // Turns log evidences into bin weights under a log-uniform prior on a.
 void set_weights(std::vector<PointResult>& pts) {
-  double max_le = -std::numeric_limits<double>::infinity();
-  for (const auto& p : pts) max_le = std::max(max_le, p.log_evidence);
-  const std::vector<double> width = bin_widths(pts);
+  const EvidenceTerms e = evidence_terms(pts);
   double total = 0;
-  for (std::size_t k = 0; k < pts.size(); ++k) {
-    const double w = std::isfinite(max_le) ? std::exp(pts[k].log_evidence - max_le) * width[k] : 0.0;
-    pts[k].point.weight = w;
-    total += w;
-  }
-  for (auto& p : pts) p.point.weight = total > 0 ? p.point.weight / total : 0.0;
+  for (double t : e.term) total += t;
+  for (std::size_t k = 0; k < pts.size(); ++k) pts[k].point.weight = total > 0 ? e.term[k] / total : 0.0;
 }
 
 // log10 of the Bayes factor companion / no companion and its Monte Carlo
@@ -683,18 +690,14 @@ void set_weights(std::vector<PointResult>& pts) {
 // marginal likelihoods, the no-companion likelihood exp(-chi2_data / 2)
 // (the Gaussian normalisation is common to both).
 void set_bayes_factor(const std::vector<PointResult>& pts, double chi2_data, Curve& c) {
-  double max_le = -std::numeric_limits<double>::infinity();
-  for (const auto& p : pts) max_le = std::max(max_le, p.log_evidence);
-  if (!std::isfinite(max_le)) return;
-  const std::vector<double> width = bin_widths(pts);
-  double z = 0.0, var = 0.0, total = 0.0;
+  const EvidenceTerms e = evidence_terms(pts);
+  if (!std::isfinite(e.max_le)) return;
+  double z = 0.0, var = 0.0;
   for (std::size_t k = 0; k < pts.size(); ++k) {
-    const double t = std::exp(pts[k].log_evidence - max_le) * width[k];
-    z += t;
-    var += t * t * pts[k].evidence_rel_var;
-    total += width[k];
+    z += e.term[k];
+    var += e.term[k] * e.term[k] * pts[k].evidence_rel_var;
   }
-  c.log10_bayes = (max_le + std::log(z / total) + 0.5 * chi2_data) / std::log(10.0);
+  c.log10_bayes = (e.max_le + std::log(z / e.total_width) + 0.5 * chi2_data) / std::log(10.0);
   c.log10_bayes_error = std::sqrt(var) / z / std::log(10.0);
 }
 

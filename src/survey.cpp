@@ -46,7 +46,7 @@ RankRunInfo metadata(const SurveyOptions& o, const std::string& input_name, long
   f["dates_yr"] = r.dates_yr.empty() ? "none"
                                      : format_double(r.dates_yr.front()) + "," + format_double(r.dates_yr.back()) +
                                            "," + std::to_string(r.dates_yr.size());
-  f["rank_by"] = rank_by_name(r.contrast ? RankBy::kDetect : RankBy::kScore);
+  f["rank_by"] = rank_by_name(rank_by(r));
   f["contrast"] = metadata_word(o.contrast_name);
   f["mass_mag"] = metadata_word(o.mass_mag_name);
   f["screen_options"] = o.screen_fingerprint;
@@ -218,7 +218,7 @@ SurveyRun run_survey(std::istream& in, const std::string& input_name, const Surv
     }
   run.stage2_s = seconds_since(t_start) - run.screen_s;
   for (auto& r : computed) run.records.push_back(std::move(r));
-  assign_ranks(run.records, opt.rank.contrast ? RankBy::kDetect : RankBy::kScore);
+  assign_ranks(run.records, rank_by(opt.rank));
   return run;
 }
 

@@ -278,7 +278,7 @@ void SkyMap::credible_contours(const std::vector<double>& raw, int n) {
       }
     if (path.empty()) continue;
     body_ += "<path d=\"" + path + "\" fill=\"none\" stroke=\"" + stroke + "\" stroke-width=\"1.6\"/>\n";
-    legend_ += std::string(legend_.empty() ? "" : "|") + stroke + (p < 0.9 ? " 68 %" : " 95 %");
+    contours_.emplace_back(stroke, p < 0.9 ? "68 % credible region" : "95 % credible region");
   }
 }
 
@@ -351,15 +351,11 @@ std::string SkyMap::str() const {
   }
   // Legend of the credible contours, under the title.
   double lx = kMapLeft + 8;
-  for (std::size_t at = 0; at < legend_.size();) {
-    const std::size_t bar = std::min(legend_.find('|', at), legend_.size());
-    const std::string item = legend_.substr(at, bar - at);
-    const std::string colour = item.substr(0, 7), text = item.substr(8);
+  for (const auto& [colour, text] : contours_) {
     s += "<line x1=\"" + num(lx) + "\" x2=\"" + num(lx + 20) + "\" y1=\"" + num(kMapTop + 14) + "\" y2=\"" +
          num(kMapTop + 14) + "\" stroke=\"" + colour + "\" stroke-width=\"2\"/><text x=\"" + num(lx + 24) + "\" y=\"" +
-         num(kMapTop + 18) + "\" font-size=\"12\">" + xml_escape(text) + " credible region</text>\n";
+         num(kMapTop + 18) + "\" font-size=\"12\">" + xml_escape(text) + "</text>\n";
     lx += 190;
-    at = bar + 1;
   }
   s += "</svg>\n";
   return s;

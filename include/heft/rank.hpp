@@ -107,6 +107,8 @@ RankRecord screened_record(const ScreenRow& row);
 /// What the ranks sort by: p_detect when the run has a detection model
 /// (--contrast and --mass-mag), else score.
 enum class RankBy { kScore, kDetect };
+/// What a run with these options ranks by.
+inline RankBy rank_by(const RankOptions& opt) { return opt.contrast ? RankBy::kDetect : RankBy::kScore; }
 /// The rank_by metadata value, and back (false for an unknown word).
 const char* rank_by_name(RankBy by);
 bool parse_rank_by(const std::string& word, RankBy& by);

@@ -69,7 +69,8 @@ class SkyMap {
   double py(double north_mas) const;
   double half_;
   double peak_ = 0.0;  ///< the image's maximum density (per mas^2), for its colour bar
-  std::string title_, body_, legend_;
+  std::string title_, body_;
+  std::vector<std::pair<std::string, std::string>> contours_;  ///< legend: colour, text
 };
 
 /// Escapes text for SVG/XML.
