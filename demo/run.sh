@@ -4,7 +4,7 @@
 # screen every star, rank the imaging candidates at the planned date
 # (curves, sky positions, Halcyon contrast), plot the three best, run the
 # deep fit of the one star with follow-up imaging, and end with the ten
-# best candidates and where to look.
+# best candidates and where to look, with the plan report (demo/out/plan.html).
 set -euo pipefail
 root=$(cd "$(dirname "$0")/.." && pwd)
 bash "$root/.ci/ensure-packages.sh"
@@ -26,7 +26,7 @@ awk -F, 'NR > 1 && $2 == "ok" && $22 >= 3 { n++ } END { printf "%d stars with si
 echo
 echo "== 2. ranking imaging candidates for $date (Halcyon coronagraph, working angles 80-2000 mas)"
 "$heft" rank "$stars" --date "$date" $wa --target-mass 5,80 \
-  --contrast "$demo/halcyon_contrast.csv" --mass-mag "$demo/keth_mass_mag.csv" \
+  --contrast "$demo/halcyon_contrast.csv" --mass-mag "$demo/keth_mass_mag.csv" --dates 2026.5:2031.5:0.25 \
   -o "$out/ranked.csv" --json "$out/ranked.json"
 
 echo
@@ -49,14 +49,21 @@ awk -F, 'NR == 2 { printf "at %s: separation %.1f mas (68 %%: %.1f-%.1f), positi
                    $2, $7, $6, $8, $12, $13, $14 }' "$out/fit_KMG-00754_where.csv"
 
 echo
+echo "== 5. the plan report (candidates, where to look, each one's curve and sky map)"
+"$heft" report -q "$out/ranked.json" --truth "$demo/survey/truth.csv" -o "$out/plan.html"
+
+echo
 echo "== the ten best imaging candidates at $date"
-# ranked.csv: line 1 run metadata, line 2 header; columns 1 id, 2 rank,
-# 3 score, 4 p_detect, 5 p_real, 10-12 mass lo68/med/hi68,
-# 13-15 sep lo68/med/hi68, 16 pa_mode, 17 pa_arc68_start, 18 pa_arc68_width.
-awk -F, 'NR == 2 { printf "%4s %-10s %6s %6s %6s %19s %21s %8s %15s\n", "rank", "id", "p_real", "score", "p_det",
-                   "mass MJup (68 %)", "sep mas (68 %)", "PA mode", "PA 68 % arc" }
-         NR > 2 && NR <= 12 { printf "%4d %-10s %6.3f %6.3f %6.3f %6.1f (%5.1f-%5.1f) %6.0f (%5.0f-%6.0f) %8.0f %6.0f+%-6.0f\n",
-                   $2, $1, $5, $3, $4, $11, $10, $12, $14, $13, $15, $16, $17, $18 }' "$out/ranked.csv"
+# ranked.csv: line 1 run metadata, line 2 header; columns by name.
+awk -F, 'NR == 2 { for (k = 1; k <= NF; k++) c[$k] = k
+                   printf "%4s %-10s %6s %6s %6s %8s %19s %21s %8s %15s\n", "rank", "id", "p_real", "score", "p_det",
+                   "best", "mass MJup (68 %)", "sep mas (68 %)", "PA mode", "PA 68 % arc" }
+         NR > 2 && NR <= 12 { printf "%4d %-10s %6.3f %6.3f %6.3f %8.2f %6.1f (%5.1f-%5.1f) %6.0f (%5.0f-%6.0f) %8s %6.0f+%-6.0f\n",
+                   $c["rank"], $c["id"], $c["p_real"], $c["score"], $c["p_detect"], $c["best_date_yr"],
+                   $c["mass_med"], $c["mass_lo68"], $c["mass_hi68"], $c["sep_med"], $c["sep_lo68"], $c["sep_hi68"],
+                   $c["pa_mode_deg"] == "" ? "any" : sprintf("%.0f", $c["pa_mode_deg"]),
+                   $c["pa_arc68_start_deg"], $c["pa_arc68_width_deg"] }' "$out/ranked.csv"
 echo "(p_real: probability that the anomaly is a companion, at the assumed occurrence of 0.1 (--occurrence);"
-echo " score and p_det include it)"
+echo " score and p_det include it; best: the date in 2026.5-2031.5 of the highest p_det)"
+echo "plan report: $out/plan.html"
 echo "outputs in $out"

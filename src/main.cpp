@@ -32,6 +32,7 @@ int main(int argc, char** argv) {
   setup_rank(app, run);
   setup_merge(app, run);
   setup_plot(app, run);
+  setup_report(app, run);
   setup_simulate(app, run);
   setup_convert(app, run);
   try {

@@ -83,7 +83,7 @@ RankRecord screened_record(const ScreenRow& row) {
   return r;
 }
 
-RankRecord rank_star(const StarRecord& star, const ScreenRow& row, const RankOptions& opt) {
+RankRecord rank_star(const StarRecord& star, const ScreenRow& row, const RankOptions& opt, RankDetail* detail) {
   RankRecord r = screened_record(row);
   if (!row.ok() || !(row.result.sig_joint >= opt.curve.prior.detect_sigma)) return r;
   bool have_mass = false;
@@ -179,6 +179,12 @@ RankRecord rank_star(const StarRecord& star, const ScreenRow& row, const RankOpt
   if (!p.pa_constrained) add_note(r.notes, "pa_unconstrained");
   r.pa_arc68_start_deg = p.pa_arc68_start_deg;
   r.pa_arc68_width_deg = p.pa_arc68_width_deg;
+  if (detail) {
+    po.grid_n = 0;  // sized from the draws
+    const SkyPrediction map = summarize_sky(off, opt.date_yr, po);
+    detail->curve = c.points;
+    detail->sky = SkyGrid{star.id, opt.date_yr, map.grid_half_mas, map.grid_n, map.density};
+  }
   r.predict_s = std::chrono::duration<double>(std::chrono::steady_clock::now() - t1).count();
   return r;
 }
@@ -336,6 +342,12 @@ std::string ranked_json(const RankRunInfo& info, const std::vector<RankRecord>& 
                   {"rank", r.rank},
                   {"score", num(r.score)},
                   {"p_detect", num(r.p_detect)},
+                  {"p_real", num(r.p_real)},
+                  {"log10_bayes", num(r.log10_bayes)},
+                  {"p_stellar", num(r.p_stellar)},
+                  {"best_date_yr", num(r.best_date_yr)},
+                  {"best_date_score", num(r.best_date_score)},
+                  {"first_date_score", num(r.first_date_score)},
                   {"sig_joint", num(r.sig_joint)},
                   {"a_best_au", num(r.a_best_au)},
                   {"mass_mjup", quantiles_json({{16, r.mass_lo68}, {50, r.mass_med}, {84, r.mass_hi68}})},
@@ -431,6 +443,107 @@ std::vector<RankRecord> read_ranked(std::istream& in, const std::string& name, R
   ColumnTable t(in, name, rank_columns(), 2);
   std::vector<RankRecord> out;
   while (t.next()) out.push_back(parse_rank_row(t));
+  return out;
+}
+
+}  // namespace heft
+
+namespace heft {
+
+std::vector<RankRecord> read_ranked_json(std::istream& in, const std::string& name, RankRunInfo& info) {
+  using json = nlohmann::json;
+  json j;
+  try {
+    j = json::parse(in);
+  } catch (const json::parse_error& e) {
+    throw InputError(name, 0, 0, std::string("not JSON: ") + e.what());
+  }
+  if (!j.is_object() || !j.contains("run") || !j["run"].is_object() || j["run"].value("command", "") != "rank")
+    throw InputError::at_json(name, "/run/command", "not a heft rank JSON (expected \"run\": {\"command\": \"rank\"})");
+  if (!j.contains("stars") || !j["stars"].is_array())
+    throw InputError::at_json(name, "/stars", "expected the array of ranked stars");
+  // The metadata back to their one-word form (the inverse of metadata_json).
+  info.fields.clear();
+  auto word = [](const json& v) -> std::string {
+    if (v.is_null()) return "none";
+    if (v.is_number_unsigned() || v.is_number_integer()) return v.dump();
+    if (v.is_number()) return format_double(v.get<double>());
+    return v.get<std::string>();
+  };
+  for (const auto& [key, v] : j["run"].items()) {
+    if (key == "command" || key == "rows_per_status" || key == "units") continue;
+    const std::string path = "/run/" + key;
+    if (v.is_array()) {
+      std::string list;
+      for (std::size_t k = 0; k < v.size(); ++k) {
+        if (!v[k].is_null() && !v[k].is_number())
+          throw InputError::at_json(name, path + "/" + std::to_string(k), "expected a number or null");
+        list += (k ? "," : "") + word(v[k]);
+      }
+      info.fields[key] = list;
+    } else if (v.is_null() || v.is_number() || v.is_string()) {
+      info.fields[key] = word(v);
+    } else {
+      throw InputError::at_json(name, path, "expected a number, a string, an array or null");
+    }
+  }
+  std::vector<RankRecord> out;
+  const json& stars = j["stars"];
+  for (std::size_t k = 0; k < stars.size(); ++k) {
+    const json& s = stars[k];
+    const std::string at = "/stars/" + std::to_string(k);
+    if (!s.is_object()) throw InputError::at_json(name, at, "expected an object");
+    RankRecord r;
+    auto number = [&](const json& o, const char* key, const std::string& path) {
+      if (!o.contains(key) || o[key].is_null()) return kAbsent;
+      if (!o[key].is_number()) throw InputError::at_json(name, path + "/" + key, "expected a number or null");
+      return o[key].get<double>();
+    };
+    auto object = [&](const char* key) -> const json& {
+      static const json empty = json::object();
+      if (!s.contains(key)) return empty;
+      if (!s[key].is_object()) throw InputError::at_json(name, at + "/" + key, "expected an object");
+      return s[key];
+    };
+    if (!s.contains("id") || !s["id"].is_string()) throw InputError::at_json(name, at + "/id", "expected the star id");
+    r.id = s["id"].get<std::string>();
+    if (!s.contains("rank") || !s["rank"].is_number_integer() || s["rank"].get<long>() < 1)
+      throw InputError::at_json(name, at + "/rank", "expected a whole number >= 1");
+    r.rank = s["rank"].get<long>();
+    if (!s.contains("status") || !s["status"].is_string() || !RowStatus::parse(s["status"].get<std::string>(), r.status))
+      throw InputError::at_json(name, at + "/status", "not a row status (ok, bad_input:REASON, failed:REASON)");
+    r.score = number(s, "score", at);
+    r.p_detect = number(s, "p_detect", at);
+    r.p_real = number(s, "p_real", at);
+    r.log10_bayes = number(s, "log10_bayes", at);
+    r.p_stellar = number(s, "p_stellar", at);
+    r.best_date_yr = number(s, "best_date_yr", at);
+    r.best_date_score = number(s, "best_date_score", at);
+    r.first_date_score = number(s, "first_date_score", at);
+    r.sig_joint = number(s, "sig_joint", at);
+    r.a_best_au = number(s, "a_best_au", at);
+    const json& m = object("mass_mjup");
+    r.mass_lo68 = number(m, "q16", at + "/mass_mjup");
+    r.mass_med = number(m, "q50", at + "/mass_mjup");
+    r.mass_hi68 = number(m, "q84", at + "/mass_mjup");
+    const json& sep = object("sep_mas");
+    r.sep_lo68 = number(sep, "q16", at + "/sep_mas");
+    r.sep_med = number(sep, "q50", at + "/sep_mas");
+    r.sep_hi68 = number(sep, "q84", at + "/sep_mas");
+    const json& pa = object("pa_deg");
+    r.pa_mode_deg = number(pa, "mode", at + "/pa_deg");
+    r.pa_arc68_start_deg = number(pa, "arc68_start", at + "/pa_deg");
+    r.pa_arc68_width_deg = number(pa, "arc68_width", at + "/pa_deg");
+    if (s.contains("notes")) {
+      if (!s["notes"].is_array()) throw InputError::at_json(name, at + "/notes", "expected an array of words");
+      for (std::size_t n = 0; n < s["notes"].size(); ++n) {
+        if (!s["notes"][n].is_string())
+          throw InputError::at_json(name, at + "/notes/" + std::to_string(n), "expected a word");
+        r.notes.push_back(s["notes"][n].get<std::string>());
+      }
+    }
+    out.push_back(std::move(r));
+  }
   return out;
 }
 

@@ -7,6 +7,7 @@
 #include <cstdio>
 #include <cstring>
 #include <fstream>
+#include <charconv>
 #include <map>
 
 #include "heft/error.hpp"
@@ -220,6 +221,121 @@ SurveyRun run_survey(std::istream& in, const std::string& input_name, const Surv
   for (auto& r : computed) run.records.push_back(std::move(r));
   assign_ranks(run.records, rank_by(opt.rank));
   return run;
+}
+
+}  // namespace heft
+
+namespace heft {
+
+std::string metadata_text(const std::string& word) {
+  if (word == "-") return "";
+  std::string o;
+  for (std::size_t k = 0; k < word.size(); ++k) {
+    if (word.compare(k, 3, "%20") == 0) o += ' ', k += 2;
+    else if (word.compare(k, 3, "%25") == 0) o += '%', k += 2;
+    else o += word[k];
+  }
+  return o;
+}
+
+SurveyOptions survey_options_from(const RankRunInfo& info, const std::string& source, SurveyOptions o) {
+  auto field = [&](const std::string& key) -> const std::string& {
+    const auto it = info.fields.find(key);
+    if (it == info.fields.end()) throw InputError(source, 1, 0, "run metadata has no field '" + key + "'");
+    return it->second;
+  };
+  auto bad = [&](const std::string& key, const std::string& rule) {
+    return InputError(source, 1, 0, "run metadata field '" + key + "=" + field(key) + "': " + rule);
+  };
+  // A comma list of n numbers; "none" reads as absent.
+  auto numbers = [&](const std::string& key, std::size_t n) {
+    std::vector<double> v;
+    const std::string& text = field(key);
+    std::size_t start = 0;
+    for (;;) {
+      const std::size_t comma = text.find(',', start);
+      const std::string item = text.substr(start, comma == std::string::npos ? std::string::npos : comma - start);
+      double x = kAbsent;
+      if (item != "none" && !parse_double(item, x)) throw bad(key, "expected numbers");
+      v.push_back(x);
+      if (comma == std::string::npos) break;
+      start = comma + 1;
+    }
+    if (v.size() != n) throw bad(key, "expected " + std::to_string(n) + " value(s)");
+    return v;
+  };
+  auto number = [&](const std::string& key) { return numbers(key, 1)[0]; };
+  auto whole = [&](const std::string& key) {
+    const double x = number(key);
+    if (!(x >= 0 && x == std::floor(x) && x < 1.8e19)) throw bad(key, "expected a whole number");
+    return x;
+  };
+  if (field("screen_options") != o.screen_fingerprint)
+    throw InputError(source, 1, 0,
+                     "ranked with other screening options (fingerprint " + field("screen_options") + ", these give " +
+                         o.screen_fingerprint + "): give the same screening options as to heft rank");
+  RankOptions& r = o.rank;
+  CurveOptions& c = r.curve;
+  r.date_yr = number("date_yr");
+  r.iwa_mas = number("iwa_mas");
+  r.owa_mas = present(number("owa_mas")) ? number("owa_mas") : std::numeric_limits<double>::infinity();
+  const auto target = numbers("target_mass_mjup", 2);
+  r.target_min_mjup = target[0];
+  r.target_max_mjup = target[1];
+  r.occurrence = number("occurrence");
+  const auto host = numbers("host_mass_default_msun", 2);
+  r.host_mass_msun = host[0];
+  r.host_mass_error_msun = host[1];
+  c.prior.detect_sigma = number("detect_sigma");
+  const auto mass = numbers("mass_prior_mjup", 2);
+  c.prior.m_min_mjup = mass[0];
+  c.prior.m_max_mjup = mass[1];
+  try {
+    c.prior.ecc = Distribution::parse(metadata_text(field("ecc_prior")), "ecc_prior");
+    c.prior.validate();
+  } catch (const Error& e) {
+    throw bad("ecc_prior", e.what());
+  }
+  c.draws = static_cast<int>(whole("draws"));
+  // The seed takes all 64 bits: read as an integer, not through a double.
+  const std::string& seed = field("seed");
+  const auto [end, ec] = std::from_chars(seed.data(), seed.data() + seed.size(), c.seed);
+  if (ec != std::errc() || end != seed.data() + seed.size()) throw bad("seed", "expected a whole number");
+  const auto grid = numbers("a_grid_au", 3);
+  o.a_min_au = grid[0];
+  o.a_max_au = grid[1];
+  o.n_a = static_cast<int>(grid[2]);
+  if (!(o.a_min_au > 0 && o.a_min_au < o.a_max_au && o.n_a >= 2)) throw bad("a_grid_au", "expected MIN,MAX,N");
+  o.max_curves = static_cast<long>(whole("max_curves"));
+  if (!parse_shard(field("shard"), o.shard_k, o.shard_n)) throw bad("shard", "expected K/N");
+  return o;
+}
+
+std::vector<StarDetail> rank_details(std::istream& in, const std::string& input_name, const SurveyOptions& opt,
+                                     const std::vector<std::string>& ids) {
+  RankOptions ropt = opt.rank;
+  ropt.curve.a_au = log_grid(opt.a_min_au, opt.a_max_au, opt.n_a);
+  std::map<std::string, std::size_t, std::less<>> index;
+  for (std::size_t k = 0; k < ids.size(); ++k) index.emplace(ids[k], k);
+  std::vector<StarRecord> stars(ids.size());
+  std::vector<ScreenRow> rows(ids.size());
+  std::vector<char> found(ids.size(), 0);
+  StarTableReader reader(in, input_name, opt.windows);
+  reader.keep_ids([&](std::string_view id) { return index.find(id) != index.end(); });
+  StarRecord star;
+  std::string bad;
+  while (reader.next(star, bad)) {
+    const std::size_t k = index.find(star.id)->second;
+    rows[k] = screen_star(star, bad, opt.screen);
+    stars[k] = star;
+    found[k] = 1;
+  }
+  for (std::size_t k = 0; k < ids.size(); ++k)
+    if (!found[k]) throw InputError(input_name, 0, 0, "no row for star '" + ids[k] + "' of the ranked table");
+  std::vector<StarDetail> out(ids.size());
+#pragma omp parallel for schedule(dynamic, 1)
+  for (std::size_t k = 0; k < ids.size(); ++k) out[k].record = rank_star(stars[k], rows[k], ropt, &out[k].detail);
+  return out;
 }
 
 }  // namespace heft

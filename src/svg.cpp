@@ -57,7 +57,7 @@ double LogLogPlot::py(double y) const {
 void LogLogPlot::band(const std::vector<std::pair<double, double>>& pts, const std::string& fill,
                       double opacity) {
   if (pts.size() < 3) return;
-  body_ += "<polygon clip-path=\"url(#frame)\" fill=\"" + fill + "\" fill-opacity=\"" + num(opacity) +
+  body_ += "<polygon clip-path=\"url(#" + ids_ + "frame)\" fill=\"" + fill + "\" fill-opacity=\"" + num(opacity) +
            "\" stroke=\"none\" points=\"";
   for (const auto& [x, y] : pts) body_ += num(px(x)) + "," + num(py(y)) + " ";
   body_ += "\"/>\n";
@@ -66,7 +66,7 @@ void LogLogPlot::band(const std::vector<std::pair<double, double>>& pts, const s
 void LogLogPlot::line(const std::vector<std::pair<double, double>>& pts, const std::string& stroke,
                       double width, bool dashed) {
   if (pts.size() < 2) return;
-  body_ += "<polyline clip-path=\"url(#frame)\" fill=\"none\" stroke=\"" + stroke +
+  body_ += "<polyline clip-path=\"url(#" + ids_ + "frame)\" fill=\"none\" stroke=\"" + stroke +
            "\" stroke-width=\"" + num(width) + "\"" +
            (dashed ? " stroke-dasharray=\"6,4\"" : "") + " points=\"";
   for (const auto& [x, y] : pts) body_ += num(px(x)) + "," + num(py(y)) + " ";
@@ -119,7 +119,7 @@ std::string LogLogPlot::str() const {
   s += "<svg xmlns=\"http://www.w3.org/2000/svg\" width=\"" + num(kW) + "\" height=\"" + num(kH) +
        "\" viewBox=\"0 0 " + num(kW) + " " + num(kH) + "\" font-family=\"DejaVu Sans, sans-serif\">\n";
   s += "<rect width=\"100%\" height=\"100%\" fill=\"white\"/>\n";
-  s += "<defs><clipPath id=\"frame\"><rect x=\"" + num(kLeft) + "\" y=\"" + num(kTop) + "\" width=\"" +
+  s += "<defs><clipPath id=\"" + ids_ + "frame\"><rect x=\"" + num(kLeft) + "\" y=\"" + num(kTop) + "\" width=\"" +
        num(kW - kLeft - kRight) + "\" height=\"" + num(kH - kTop - kBottom) + "\"/></clipPath></defs>\n";
   // Decade grid and ticks.
   for (int e = static_cast<int>(std::floor(std::log10(x_lo_))); e <= std::ceil(std::log10(x_hi_)); ++e) {
@@ -284,7 +284,7 @@ void SkyMap::credible_contours(const std::vector<double>& raw, int n) {
 
 void SkyMap::circle(double r_mas, const std::string& label, const std::string& stroke, bool dashed) {
   if (!(r_mas > 0 && r_mas < 1.5 * half_)) return;
-  body_ += "<circle clip-path=\"url(#map)\" cx=\"" + num(px(0)) + "\" cy=\"" + num(py(0)) + "\" r=\"" +
+  body_ += "<circle clip-path=\"url(#" + ids_ + "map)\" cx=\"" + num(px(0)) + "\" cy=\"" + num(py(0)) + "\" r=\"" +
            num(kMapSize * r_mas / (2 * half_)) + "\" fill=\"none\" stroke=\"" + stroke + "\" stroke-width=\"1.5\"" +
            (dashed ? " stroke-dasharray=\"6,4\"" : "") + "/>\n";
   body_ += "<text x=\"" + num(px(0) + 4) + "\" y=\"" + num(py(r_mas) - 4) + "\" font-size=\"12\" fill=\"" + stroke +
@@ -297,9 +297,9 @@ std::string SkyMap::str() const {
   s += "<svg xmlns=\"http://www.w3.org/2000/svg\" width=\"" + num(w) + "\" height=\"" + num(h) + "\" viewBox=\"0 0 " +
        num(w) + " " + num(h) + "\" font-family=\"DejaVu Sans, sans-serif\">\n";
   s += "<rect width=\"100%\" height=\"100%\" fill=\"white\"/>\n";
-  s += "<defs><clipPath id=\"map\"><rect x=\"" + num(kMapLeft) + "\" y=\"" + num(kMapTop) + "\" width=\"" +
+  s += "<defs><clipPath id=\"" + ids_ + "map\"><rect x=\"" + num(kMapLeft) + "\" y=\"" + num(kMapTop) + "\" width=\"" +
        num(kMapSize) + "\" height=\"" + num(kMapSize) + "\"/></clipPath></defs>\n";
-  s += "<g clip-path=\"url(#map)\">\n" + body_ + "</g>\n";
+  s += "<g clip-path=\"url(#" + ids_ + "map)\">\n" + body_ + "</g>\n";
   // Ticks: a round step giving about five intervals per half.
   const double raw = half_ / 4, mag = std::pow(10.0, std::floor(std::log10(raw)));
   const double step = raw / mag < 2 ? 2 * mag : (raw / mag < 5 ? 5 * mag : 10 * mag);
@@ -338,10 +338,10 @@ std::string SkyMap::str() const {
   // Colour bar of the density image, white (0) to dark blue (the peak).
   if (peak_ > 0) {
     const double bx = kMapLeft + kMapSize + 20, bw = 16;
-    s += "<defs><linearGradient id=\"bar\" x1=\"0\" y1=\"1\" x2=\"0\" y2=\"0\"><stop offset=\"0\" "
+    s += "<defs><linearGradient id=\"" + ids_ + "bar\" x1=\"0\" y1=\"1\" x2=\"0\" y2=\"0\"><stop offset=\"0\" "
          "stop-color=\"#ffffff\"/><stop offset=\"1\" stop-color=\"#08306b\"/></linearGradient></defs>\n";
     s += "<rect x=\"" + num(bx) + "\" y=\"" + num(kMapTop) + "\" width=\"" + num(bw) + "\" height=\"" + num(kMapSize) +
-         "\" fill=\"url(#bar)\" stroke=\"black\"/>\n";
+         "\" fill=\"url(#" + ids_ + "bar)\" stroke=\"black\"/>\n";
     char b[32];
     std::snprintf(b, sizeof b, "%.3g", peak_);
     s += "<text x=\"" + num(bx + bw + 4) + "\" y=\"" + num(kMapTop + 10) + "\" font-size=\"12\">" + b + "</text>\n";

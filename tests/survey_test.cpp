@@ -98,3 +98,60 @@ TEST_CASE("survey: shards join into the single run, and a resumed run equals a f
   CHECK_THROWS_WITH(run_survey(other_in, "s.csv", o), Catch::Contains("checkpoint of a run with other options"));
   std::remove(o.checkpoint.c_str());
 }
+
+TEST_CASE("survey: a ranked run's JSON reads back, its metadata give back its options, and its stars recompute to the bit",
+          "[survey][report]") {
+  const std::string table = survey_table(30);
+  SurveyOptions opt = fast_options();
+  opt.rank.occurrence = 0.03;
+  opt.rank.curve.seed = 18446744073709551615ULL;  // all 64 bits survive the metadata
+  opt.screen_fingerprint = "f00d";
+  std::istringstream in(table);
+  const SurveyRun run = run_survey(in, "s.csv", opt);
+
+  // The JSON reads back into the same records and metadata as the table.
+  std::istringstream json(ranked_json(run.info, run.records));
+  RankRunInfo info;
+  const std::vector<RankRecord> back = read_ranked_json(json, "r.json", info);
+  CHECK(info.fields == run.info.fields);
+  CHECK(ranked_table(info, back) == ranked_table(run.info, run.records));
+
+  // The options back from the metadata (screening: the fingerprint must match).
+  SurveyOptions base;
+  base.screen_fingerprint = "f00d";
+  const SurveyOptions o = survey_options_from(info, "r.json", base);
+  CHECK(o.rank.curve.seed == opt.rank.curve.seed);
+  CHECK(o.rank.occurrence == 0.03);
+  CHECK(o.rank.owa_mas == 1500.0);
+  CHECK(o.n_a == 8);
+  CHECK(o.rank.curve.draws == 128);
+  base.screen_fingerprint = "beef";
+  CHECK_THROWS_WITH(survey_options_from(info, "r.json", base), Catch::Contains("other screening options"));
+
+  // The stars with curves, computed again: the same records, with figures' data.
+  std::vector<std::string> ids;
+  std::vector<RankRecord> expected;
+  for (const auto& r : run.records)
+    if (present(r.p_real)) ids.push_back(r.id), expected.push_back(r);
+  REQUIRE(ids.size() >= 3);
+  std::istringstream again(table);
+  const std::vector<StarDetail> d = rank_details(again, "s.csv", o, ids);
+  REQUIRE(d.size() == ids.size());
+  for (std::size_t k = 0; k < d.size(); ++k) {
+    RankRecord a = d[k].record;
+    a.rank = expected[k].rank;
+    std::string ta, tb;
+    append_rank_row(ta, a);
+    append_rank_row(tb, expected[k]);
+    CHECK(ta == tb);
+    CHECK(d[k].detail.curve.size() >= 8);
+    CHECK(d[k].detail.sky.n >= 101);
+    CHECK(d[k].detail.sky.density.size() == static_cast<std::size_t>(d[k].detail.sky.n * d[k].detail.sky.n));
+  }
+  std::istringstream missing(table);
+  CHECK_THROWS_WITH(rank_details(missing, "s.csv", o, {"no-such-star"}), Catch::Contains("no row for star 'no-such-star'"));
+
+  // Not a rank JSON: the error names the file and the JSON path.
+  std::istringstream other("{\"run\": {\"command\": \"fit\"}, \"stars\": []}");
+  CHECK_THROWS_WITH(read_ranked_json(other, "x.json", info), Catch::Contains("x.json") && Catch::Contains("/run/command"));
+}

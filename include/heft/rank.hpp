@@ -18,6 +18,7 @@
 
 #include "heft/curve.hpp"
 #include "heft/io.hpp"
+#include "heft/predict.hpp"
 #include "heft/screen.hpp"
 
 namespace heft {
@@ -95,10 +96,19 @@ struct RankRecord {
   double curve_s = 0.0, predict_s = 0.0;
 };
 
+/// What the plan report shows of a scored star beside its record: its curve
+/// and its sky map at the date (sized from the draws, as `heft predict`).
+struct RankDetail {
+  std::vector<CurvePoint> curve;
+  SkyGrid sky;
+};
+
 /// Scores one screened star (`row` from screen_star) when its anomaly is
 /// significant: its curve, sky prediction at the date and score. Per-star
 /// numerical failures become a RowState::kFailed status, never an exception.
-RankRecord rank_star(const StarRecord& star, const ScreenRow& row, const RankOptions& opt);
+/// With `detail`, a scored star's curve and sky map are also kept there.
+RankRecord rank_star(const StarRecord& star, const ScreenRow& row, const RankOptions& opt,
+                     RankDetail* detail = nullptr);
 
 /// The screen-only part of rank_star: the record of a star whose curve is
 /// not computed (below the detection threshold, or bad input).
@@ -143,6 +153,9 @@ std::string ranked_json(const RankRunInfo& info, const std::vector<RankRecord>& 
 /// Reads a ranked table back: its metadata line and records. Errors name
 /// file, line and column.
 std::vector<RankRecord> read_ranked(std::istream& in, const std::string& name, RankRunInfo& info);
+/// Reads the JSON of ranked_json back (records and metadata, as written).
+/// Errors name the file and the JSON path.
+std::vector<RankRecord> read_ranked_json(std::istream& in, const std::string& name, RankRunInfo& info);
 
 /// The checkpoint of a running `heft rank` (docs/formats.md): the run
 /// metadata line, the header of the ranked table with a last column

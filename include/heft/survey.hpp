@@ -51,6 +51,28 @@ bool parse_shard(std::string_view text, long& k, long& n);
 /// Metadata value as one word: spaces and '%' percent-encoded, "-" if empty.
 std::string metadata_word(const std::string& text);
 
+/// Metadata word back to its text (the inverse of metadata_word).
+std::string metadata_text(const std::string& word);
+
+/// The options of the run that `info` describes (the inverse of its
+/// metadata), to compute some of its stars again. The screening options
+/// are not in the metadata, only their fingerprint: they are taken from
+/// `base` and must match it. InputError naming `source` and the field when
+/// a field is missing or malformed or the fingerprint differs.
+SurveyOptions survey_options_from(const RankRunInfo& info, const std::string& source, SurveyOptions base);
+
+/// One star of a ranked run computed again, with its figures' data.
+struct StarDetail {
+  RankRecord record;
+  RankDetail detail;
+};
+
+/// Computes the stars `ids` of the star table `in` again as run_survey does
+/// (screen, curve, sky prediction at the date), in parallel; in the order
+/// of `ids`. InputError naming the table when an id has no row.
+std::vector<StarDetail> rank_details(std::istream& in, const std::string& input_name, const SurveyOptions& opt,
+                                     const std::vector<std::string>& ids);
+
 /// Runs the survey over `in` (named `input_name` in the metadata and in
 /// errors). `progress(done, total)` is called from any thread after each
 /// curve. Throws InputError for a bad table, a foreign checkpoint or a

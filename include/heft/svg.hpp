@@ -33,12 +33,16 @@ class LogLogPlot {
   void marker(double x, double y, const std::string& label, const std::string& stroke);
   /// A legend entry (swatch colour, text).
   void legend(const std::string& colour, const std::string& text);
+  /// Prefix of the document's internal ids (clip paths), so that several
+  /// figures can sit inline in one HTML page; set before drawing.
+  void id_prefix(std::string prefix) { ids_ = std::move(prefix); }
   /// The complete SVG document.
   std::string str() const;
 
  private:
   double px(double x) const;
   double py(double y) const;
+  std::string ids_;
   double x_lo_, x_hi_, y_lo_, y_hi_;
   std::string x_label_, y_label_, title_, top_label_;
   double top_factor_ = 0.0;
@@ -62,9 +66,12 @@ class SkyMap {
   void credible_contours(const std::vector<double>& density, int n);
   /// A circle of radius r_mas around the star, labelled.
   void circle(double r_mas, const std::string& label, const std::string& stroke, bool dashed);
+  /// As LogLogPlot::id_prefix.
+  void id_prefix(std::string prefix) { ids_ = std::move(prefix); }
   std::string str() const;
 
  private:
+  std::string ids_;
   double px(double east_mas) const;
   double py(double north_mas) const;
   double half_;

@@ -13,6 +13,7 @@ void setup_predict(CLI::App& app, Runner& run);
 void setup_rank(CLI::App& app, Runner& run);
 void setup_merge(CLI::App& app, Runner& run);
 void setup_plot(CLI::App& app, Runner& run);
+void setup_report(CLI::App& app, Runner& run);
 void setup_screen(CLI::App& app, Runner& run);
 void setup_simulate(CLI::App& app, Runner& run);
 }  // namespace heft::cli

@@ -12,6 +12,8 @@
 #include "heft/error.hpp"
 #include "heft/io.hpp"
 #include "heft/rng.hpp"
+#include "heft/simulate.hpp"
+#include "heft/tablefile.hpp"
 #include "heft/version.hpp"
 
 namespace heft::cli {
@@ -245,6 +247,20 @@ std::string screen_fingerprint(const ScreenOptions& s, const WindowDefaults& w) 
   char b[32];
   std::snprintf(b, sizeof b, "%016llx", static_cast<unsigned long long>(fnv1a64(text)));
   return b;
+}
+
+bool injected_companion(const std::string& path, const std::string& id, double& a_au, double& mass_mjup) {
+  TableInput in(path, truth_column_units());
+  ColumnTable t(in.stream(), in.name(), {"id", "companion", "a_au", "mass_mjup"});
+  const int ii = t.index("id"), ic = t.index("companion"), ia = t.index("a_au"), im = t.index("mass_mjup");
+  while (t.next()) {
+    if (t.text(ii) != id) continue;
+    if (t.number(ic) == 0) return false;
+    a_au = t.number(ia);
+    mass_mjup = t.number(im);
+    return true;
+  }
+  throw InputError(in.name(), 0, 0, "no row for star '" + id + "'");
 }
 
 }  // namespace heft::cli

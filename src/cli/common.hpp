@@ -77,6 +77,10 @@ void add_format_option(CLI::App* app, std::string& format);
 /// from the path's extension.
 TableFormat format_for(const std::string& path, const std::string& format = "");
 
+/// The injected companion of star `id` in a heft simulate --truth table:
+/// false when the star has none; InputError when the table has no row for it.
+bool injected_companion(const std::string& truth_path, const std::string& id, double& a_au, double& mass_mjup);
+
 /// Counts rows by status; prints one summary line per non-ok status.
 class StatusCounter {
  public:
