@@ -45,49 +45,132 @@ long lines_of(const std::string& path) {
 
 }  // namespace
 
-TEST_CASE("rank: imageable injected companions rank above single stars (ROC AUC >= 0.9)", "[rank]") {
-  // Area under the ROC curve by the Mann-Whitney statistic, ties counted
-  // half (Hanley & McNeil 1982, Radiology 143, 29). Positives: injected
-  // companions detected (sig_joint >= 3) whose true separation at the date
-  // is inside the working angles and whose mass is in the target window;
-  // negatives: stars without a companion.
-  std::string truth;
-  const std::string stars = survey("roc", &truth), ranked = test::tmp_path("roc_ranked.csv");
-  REQUIRE(test::run_heft("rank " + stars + kRankArgs + kFast + " -o " + ranked) == 0);
+namespace {
+
+// A ranked simulated survey against its truth: each star's ranking score
+// and p_real, and whether it truly hosts a companion inside the working
+// angles (true separation at the date) with a mass in the target window.
+struct Judged {
+  std::string id;
+  long rank;
+  double score, p_real;
+  bool companion, wanted;
+};
+
+std::vector<Judged> judge(const std::string& stars, const std::string& truth, const std::string& ranked, double date,
+                          double iwa, double owa, double m_lo, double m_hi) {
   const test::Table r = test::read_table(ranked), t = test::read_table(truth), s = test::read_table(stars);
-  std::map<std::string, std::size_t> row_of;
-  for (std::size_t k = 0; k < r.rows.size(); ++k) row_of[r.str(k, "id")] = k;
+  std::map<std::string, std::size_t> truth_row;
+  for (std::size_t k = 0; k < t.rows.size(); ++k) truth_row[t.str(k, "id")] = k;
   std::map<std::string, double> late_epoch;
   for (std::size_t k = 0; k < s.rows.size(); ++k) late_epoch[s.str(k, "id")] = s.num(k, "late_epoch");
-  std::vector<double> pos, neg;
-  for (std::size_t k = 0; k < t.rows.size(); ++k) {
-    const std::string id = t.str(k, "id");
-    const std::size_t i = row_of.at(id);
-    const double score = r.str(i, "score").empty() ? 0.0 : r.num(i, "score");
-    if (t.num(k, "companion") == 0) {
-      neg.push_back(score);
-      continue;
+  std::vector<Judged> out;
+  for (std::size_t i = 0; i < r.rows.size(); ++i) {
+    Judged j{r.str(i, "id"), static_cast<long>(r.num(i, "rank")), 0.0, 0.0, false, false};
+    j.score = r.str(i, "score").empty() ? 0.0 : r.num(i, "score");
+    j.p_real = r.str(i, "p_real").empty() ? 0.0 : r.num(i, "p_real");
+    const std::size_t k = truth_row.at(j.id);
+    j.companion = t.num(k, "companion") != 0;
+    if (j.companion) {
+      SimTruth st{};
+      st.period_yr = t.num(k, "period_yr");
+      st.ecc = t.num(k, "ecc");
+      st.inc_deg = t.num(k, "inc_deg");
+      st.arg_peri_deg = t.num(k, "arg_peri_deg");
+      st.node_deg = t.num(k, "node_deg");
+      st.mean_anom_late_deg = t.num(k, "mean_anom_late_deg");
+      const OrbitPoint<double> p = orbit_point(truth_orbit(st, late_epoch[j.id]), date);
+      const double sep = t.num(k, "a_au") * t.num(k, "parallax") * std::hypot(p.x, p.y);
+      const double m = t.num(k, "mass_mjup");
+      j.wanted = sep >= iwa && sep <= owa && m >= m_lo && m <= m_hi;
     }
-    if (r.str(i, "sig_joint").empty() || r.num(i, "sig_joint") < 3.0) continue;
-    SimTruth st{};
-    st.period_yr = t.num(k, "period_yr");
-    st.ecc = t.num(k, "ecc");
-    st.inc_deg = t.num(k, "inc_deg");
-    st.arg_peri_deg = t.num(k, "arg_peri_deg");
-    st.node_deg = t.num(k, "node_deg");
-    st.mean_anom_late_deg = t.num(k, "mean_anom_late_deg");
-    const OrbitPoint<double> p = orbit_point(truth_orbit(st, late_epoch[id]), 2027.5);
-    const double sep = t.num(k, "a_au") * t.num(k, "parallax") * std::hypot(p.x, p.y);
-    const double m = t.num(k, "mass_mjup");
-    if (sep >= 100 && sep <= 1500 && m >= 5 && m <= 80) pos.push_back(score);
+    out.push_back(j);
   }
-  REQUIRE(pos.size() >= 8);
+  return out;
+}
+
+// Area under the ROC curve by the Mann-Whitney statistic, ties counted half
+// (Hanley & McNeil 1982, Radiology 143, 29).
+double roc_auc(const std::vector<double>& pos, const std::vector<double>& neg) {
   double u = 0.0;
   for (double a : pos)
     for (double b : neg) u += a > b ? 1.0 : (a == b ? 0.5 : 0.0);
-  const double auc = u / (static_cast<double>(pos.size()) * neg.size());
+  return u / (static_cast<double>(pos.size()) * neg.size());
+}
+
+}  // namespace
+
+TEST_CASE("rank: imageable injected companions rank above single stars (ROC AUC >= 0.9)", "[rank]") {
+  // Positives: injected companions detected (sig_joint >= 3) whose true
+  // separation at the date is inside the working angles and whose mass is
+  // in the target window; negatives: stars without a companion.
+  std::string truth;
+  const std::string stars = survey("roc", &truth), ranked = test::tmp_path("roc_ranked.csv");
+  REQUIRE(test::run_heft("rank " + stars + kRankArgs + kFast + " -o " + ranked) == 0);
+  const test::Table r = test::read_table(ranked);
+  std::map<std::string, double> sig;
+  for (std::size_t k = 0; k < r.rows.size(); ++k) sig[r.str(k, "id")] = r.str(k, "sig_joint").empty() ? 0.0 : r.num(k, "sig_joint");
+  std::vector<double> pos, neg;
+  for (const Judged& j : judge(stars, truth, ranked, 2027.5, 100, 1500, 5, 80)) {
+    if (!j.companion) neg.push_back(j.score);
+    else if (j.wanted && sig[j.id] >= 3.0) pos.push_back(j.score);
+  }
+  REQUIRE(pos.size() >= 8);
+  const double auc = roc_auc(pos, neg);
   INFO(pos.size() << " positives, " << neg.size() << " single stars, AUC " << auc);
   CHECK(auc >= 0.9);
+}
+
+TEST_CASE("rank: on a 2000-star survey the wanted companions lead as far as the data allow", "[rank]") {
+  // Positives: every star that truly hosts a companion inside the working
+  // angles at the date with a mass in the target window, detected or not;
+  // negatives: every other star (single, or a companion outside the working
+  // angles). The companions follow the prior of an imaging survey of young
+  // nearby stars (5-80 MJup, 3-60 AU, 20-60 pc).
+  //
+  // A companion whose anomaly stays below --detect-sigma cannot be told from
+  // a single star by any ranking, so the AUC is bounded by that of an oracle
+  // that puts every detected wanted companion first and knows nothing of the
+  // undetected ones (they tie with the undetected negatives). On this survey
+  // the bound is 0.877 (the 0.95 once targeted is out of reach of any
+  // method); a ranking that orders the detected stars at random reaches
+  // 0.861. Among the detected stars alone the score must beat chance.
+  const std::string stars = test::tmp_path("roc2k_stars.csv"), truth = test::tmp_path("roc2k_truth.csv"),
+                    ranked = test::tmp_path("roc2k_ranked.csv");
+  REQUIRE(test::run_heft("simulate -q --stars 2000 --seed 2027 --companion-fraction 0.2 --companion-mass "
+                         "loguniform:5,80 --a loguniform:3,60 --distance uniform:20,60 --rv-fraction 0.5 -o " +
+                         stars + " --truth " + truth) == 0);
+  REQUIRE(test::run_heft("rank " + stars + kRankArgs + kFast + " -o " + ranked) == 0);
+  const std::vector<Judged> all = judge(stars, truth, ranked, 2027.5, 100, 1500, 5, 80);
+  const test::Table r = test::read_table(ranked);
+  std::map<std::string, bool> detected;
+  for (std::size_t k = 0; k < r.rows.size(); ++k)
+    detected[r.str(k, "id")] = !r.str(k, "sig_joint").empty() && r.num(k, "sig_joint") >= 3.0;
+  std::vector<double> pos, neg, pos_det, neg_det, oracle_pos, oracle_neg;
+  const Judged* first = nullptr;
+  for (const Judged& j : all) {
+    const bool d = detected[j.id];
+    (j.wanted ? pos : neg).push_back(j.score);
+    if (d) (j.wanted ? pos_det : neg_det).push_back(j.score);
+    (j.wanted ? oracle_pos : oracle_neg).push_back(j.wanted && d ? 2.0 : (d ? 1.0 : 0.0));
+    if (j.wanted && (!first || j.rank < first->rank)) first = &j;
+  }
+  REQUIRE(pos.size() >= 200);
+  REQUIRE(neg_det.size() >= 30);
+  const double auc = roc_auc(pos, neg), bound = roc_auc(oracle_pos, oracle_neg), auc_det = roc_auc(pos_det, neg_det);
+  INFO(pos.size() << " wanted, " << neg.size() << " others; AUC " << auc << ", oracle bound " << bound
+                  << "; among the detected: " << pos_det.size() << " against " << neg_det.size() << ", AUC " << auc_det);
+  CHECK(auc >= bound - 0.02);
+  // Hanley & McNeil's standard error of an AUC near 0.64 with these counts
+  // is ~0.04: 0.55 is two of them below the measured 0.637.
+  CHECK(auc_det >= 0.55);
+  // No star outranks the first wanted companion on a weaker p_real.
+  REQUIRE(first);
+  for (const Judged& j : all)
+    if (j.rank < first->rank) {
+      INFO(j.id << " rank " << j.rank << " p_real " << j.p_real << " above " << first->id << " p_real " << first->p_real);
+      CHECK(j.p_real >= first->p_real);
+    }
 }
 
 TEST_CASE("rank: -j 1 equals -j 2, and shards merged equal a single run", "[rank][cli]") {
