@@ -12,22 +12,40 @@
 
 namespace heft {
 
+namespace {
+// The draw's companion on the sky at the date, in units of its angular
+// semi-major axis; and that axis (mas).
+OrbitPoint<double> draw_point(const OrbitDraw& d, double date_yr) {
+  const Orbit<double> o{d.period_yr,
+                        d.ecc,
+                        units::deg_to_rad(d.inc_deg),
+                        units::deg_to_rad(d.arg_peri_deg),
+                        units::deg_to_rad(d.node_deg),
+                        units::deg_to_rad(d.mean_anom_deg),
+                        d.ref_epoch_yr};
+  return orbit_point(o, date_yr);
+}
+}  // namespace
+
 std::vector<SkyOffset> sky_offsets(const std::vector<OrbitDraw>& draws, double date_yr) {
   std::vector<SkyOffset> out;
   out.reserve(draws.size());
   for (const auto& d : draws) {
-    const Orbit<double> o{d.period_yr,
-                          d.ecc,
-                          units::deg_to_rad(d.inc_deg),
-                          units::deg_to_rad(d.arg_peri_deg),
-                          units::deg_to_rad(d.node_deg),
-                          units::deg_to_rad(d.mean_anom_deg),
-                          d.ref_epoch_yr};
-    const OrbitPoint<double> p = orbit_point(o, date_yr);
+    const OrbitPoint<double> p = draw_point(d, date_yr);
     const double s = d.a_au * d.parallax_mas;
     double sep, pa;
     separation_pa(s * p.x, s * p.y, sep, pa);
     out.push_back({s * p.y, s * p.x, sep, units::rad_to_deg(pa), d.weight});
+  }
+  return out;
+}
+
+std::vector<double> sky_separations(const std::vector<OrbitDraw>& draws, double date_yr) {
+  std::vector<double> out;
+  out.reserve(draws.size());
+  for (const auto& d : draws) {
+    const OrbitPoint<double> p = draw_point(d, date_yr);
+    out.push_back(d.a_au * d.parallax_mas * std::hypot(p.x, p.y));
   }
   return out;
 }
@@ -162,11 +180,11 @@ SkyPrediction predict_sky(const std::vector<OrbitDraw>& draws, double date_yr, c
 }
 
 BestDate best_date(const std::vector<OrbitDraw>& draws, const std::vector<double>& dates_yr,
-                   const std::function<double(const std::vector<SkyOffset>&)>& value) {
+                   const std::function<double(const std::vector<double>&)>& value) {
   const double nan = std::numeric_limits<double>::quiet_NaN();
   BestDate b{nan, nan, nan};
   for (std::size_t k = 0; k < dates_yr.size(); ++k) {
-    const double v = value(sky_offsets(draws, dates_yr[k]));
+    const double v = value(sky_separations(draws, dates_yr[k]));
     if (k == 0) b.first_value = v;
     if (k == 0 || v > b.value) b = {dates_yr[k], v, b.first_value};
   }

@@ -122,23 +122,34 @@ RankRecord rank_star(const StarRecord& star, const ScreenRow& row, const RankOpt
   // the marginalisation over separation. Given the companion, at one date:
   // P(in the working angles with a target mass), P(also detectable).
   const bool detect = opt.contrast && opt.mass_mag && present(star.mag);
+  // What does not change with the date, once per draw: the draws with a
+  // target mass (the others never count), and the contrast each one needs
+  // (its absolute magnitude, the distance modulus from its own parallax,
+  // against the host's magnitude in the same band).
   double sw = 0.0, stellar = 0.0;
-  for (const auto& dr : c.draws) {
+  std::vector<std::size_t> target;
+  std::vector<double> needed_dmag;
+  for (std::size_t k = 0; k < c.draws.size(); ++k) {
+    const OrbitDraw& dr = c.draws[k];
     sw += dr.weight;
     if (dr.mass_mjup > kStellarMassMjup) stellar += dr.weight;
+    if (!(dr.weight > 0 && dr.mass_mjup >= opt.target_min_mjup && dr.mass_mjup <= opt.target_max_mjup)) continue;
+    target.push_back(k);
+    needed_dmag.push_back(detect ? opt.mass_mag->abs_mag(dr.mass_mjup) + 5.0 * std::log10(100.0 / dr.parallax_mas) -
+                                       star.mag
+                                 : 0.0);
   }
-  auto chances_at = [&](const std::vector<SkyOffset>& off, double& in_window, double& detected) {
+  std::vector<OrbitDraw> target_draws;
+  for (std::size_t k : target) target_draws.push_back(c.draws[k]);
+  // Given the companion, at one date (separations of the target draws):
+  // P(in the working angles with a target mass), P(also detectable).
+  auto chances_at = [&](const std::vector<double>& sep_mas, double& in_window, double& detected) {
     in_window = detected = 0.0;
-    for (std::size_t k = 0; k < off.size(); ++k) {
-      const OrbitDraw& dr = c.draws[k];
-      const bool in_wa = off[k].sep_mas >= opt.iwa_mas && off[k].sep_mas <= opt.owa_mas;
-      const bool in_target = dr.mass_mjup >= opt.target_min_mjup && dr.mass_mjup <= opt.target_max_mjup;
-      if (!(in_wa && in_target)) continue;
-      in_window += dr.weight;
-      // Distance modulus from the draw's parallax; contrast in the host's band.
-      if (detect && opt.mass_mag->abs_mag(dr.mass_mjup) + 5.0 * std::log10(100.0 / dr.parallax_mas) - star.mag <=
-                        opt.contrast->limit_mag(off[k].sep_mas))
-        detected += dr.weight;
+    for (std::size_t j = 0; j < sep_mas.size(); ++j) {
+      if (!(sep_mas[j] >= opt.iwa_mas && sep_mas[j] <= opt.owa_mas)) continue;
+      const double w = target_draws[j].weight;
+      in_window += w;
+      if (detect && needed_dmag[j] <= opt.contrast->limit_mag(sep_mas[j])) detected += w;
     }
     in_window = sw > 0 ? in_window / sw : 0.0;
     detected = sw > 0 ? detected / sw : 0.0;
@@ -150,15 +161,17 @@ RankRecord rank_star(const StarRecord& star, const ScreenRow& row, const RankOpt
   r.p_stellar = sw > 0 ? stellar / sw : 0.0;
   if (r.p_stellar > 0.5) add_note(r.notes, "stellar_mass_likely");
   const std::vector<SkyOffset> off = sky_offsets(c.draws, opt.date_yr);
+  std::vector<double> target_sep;
+  for (std::size_t k : target) target_sep.push_back(off[k].sep_mas);
   double in_window, detected;
-  chances_at(off, in_window, detected);
+  chances_at(target_sep, in_window, detected);
   r.score = r.p_real * in_window;
   if (detect) r.p_detect = r.p_real * detected;
   // The date grid: the ranking quantity (p_detect with a detection model,
   // else score) at each date.
   if (!opt.dates_yr.empty()) {
-    const BestDate b = best_date(c.draws, opt.dates_yr, [&](const std::vector<SkyOffset>& at) {
-      chances_at(at, in_window, detected);
+    const BestDate b = best_date(target_draws, opt.dates_yr, [&](const std::vector<double>& sep_mas) {
+      chances_at(sep_mas, in_window, detected);
       return r.p_real * (detect ? detected : in_window);
     });
     r.best_date_yr = b.date_yr;

@@ -152,14 +152,12 @@ TEST_CASE("best date: flat for a face-on circular orbit, at greatest elongation 
   };
   std::vector<double> dates;
   for (double t = 2030.0; t <= 2040.0 + 1e-9; t += 0.25) dates.push_back(t);
+  // Equal weights: the fraction of draws inside.
   auto p_in = [](double iwa, double owa) {
-    return [iwa, owa](const std::vector<SkyOffset>& off) {
-      double in = 0, sw = 0;
-      for (const auto& o : off) {
-        sw += o.weight;
-        if (o.sep_mas >= iwa && o.sep_mas <= owa) in += o.weight;
-      }
-      return in / sw;
+    return [iwa, owa](const std::vector<double>& sep) {
+      double in = 0;
+      for (double s : sep) in += s >= iwa && s <= owa;
+      return in / static_cast<double>(sep.size());
     };
   };
   const BestDate flat = best_date(draws_with(0.0), dates, p_in(150.0, 1000.0));

@@ -75,15 +75,18 @@ SkyPrediction predict_sky(const std::vector<OrbitDraw>& draws, double date_yr, c
 /// The same from offsets already computed by sky_offsets at date_yr.
 SkyPrediction summarize_sky(const std::vector<SkyOffset>& offsets, double date_yr, const PredictOptions& opt);
 
-/// The best of a grid of dates for a quantity of the sky offsets (each draw
-/// on its own orbit at every date): the date of the largest value (the
+/// The separations alone (mas), as sky_offsets without the position angle.
+std::vector<double> sky_separations(const std::vector<OrbitDraw>& draws, double date_yr);
+
+/// The best of a grid of dates for a quantity of the draws' separations
+/// (mas, in the draws' order; each draw on its own orbit at every date): the date of the largest value (the
 /// first on ties), that value, and the value at the first date. NaN for an
 /// empty grid.
 struct BestDate {
   double date_yr, value, first_value;
 };
 BestDate best_date(const std::vector<OrbitDraw>& draws, const std::vector<double>& dates_yr,
-                   const std::function<double(const std::vector<SkyOffset>&)>& value);
+                   const std::function<double(const std::vector<double>&)>& value);
 
 /// The prediction table of `heft predict` (docs/formats.md): header and one
 /// row per star and date; `n_draws` is the star's number of draws.
