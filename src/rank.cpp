@@ -468,10 +468,11 @@ std::vector<RankRecord> read_ranked_json(std::istream& in, const std::string& na
   json j;
   try {
     j = json::parse(in);
-  } catch (const json::parse_error& e) {
+  } catch (const json::exception& e) {  // syntax, or a number beyond double
     throw InputError(name, 0, 0, std::string("not JSON: ") + e.what());
   }
-  if (!j.is_object() || !j.contains("run") || !j["run"].is_object() || j["run"].value("command", "") != "rank")
+  if (!j.is_object() || !j.contains("run") || !j["run"].is_object() || !j["run"].contains("command") ||
+      j["run"]["command"] != "rank")
     throw InputError::at_json(name, "/run/command", "not a heft rank JSON (expected \"run\": {\"command\": \"rank\"})");
   if (!j.contains("stars") || !j["stars"].is_array())
     throw InputError::at_json(name, "/stars", "expected the array of ranked stars");

@@ -265,9 +265,10 @@ SurveyOptions survey_options_from(const RankRunInfo& info, const std::string& so
     return v;
   };
   auto number = [&](const std::string& key) { return numbers(key, 1)[0]; };
-  auto whole = [&](const std::string& key) {
+  auto whole = [&](const std::string& key, double lo, double hi) {
     const double x = number(key);
-    if (!(x >= 0 && x == std::floor(x) && x < 1.8e19)) throw bad(key, "expected a whole number");
+    if (!(x >= lo && x <= hi && x == std::floor(x)))
+      throw bad(key, "expected a whole number from " + format_double(lo) + " to " + format_double(hi));
     return x;
   };
   if (field("screen_options") != o.screen_fingerprint)
@@ -277,15 +278,22 @@ SurveyOptions survey_options_from(const RankRunInfo& info, const std::string& so
   RankOptions& r = o.rank;
   CurveOptions& c = r.curve;
   r.date_yr = number("date_yr");
+  if (!(r.date_yr >= 1900 && r.date_yr <= 2200)) throw bad("date_yr", "expected a date from 1900 to 2200");
   r.iwa_mas = number("iwa_mas");
+  if (!(r.iwa_mas >= 0)) throw bad("iwa_mas", "expected a number >= 0");
   r.owa_mas = present(number("owa_mas")) ? number("owa_mas") : std::numeric_limits<double>::infinity();
   const auto target = numbers("target_mass_mjup", 2);
   r.target_min_mjup = target[0];
   r.target_max_mjup = target[1];
+  if (!(r.target_min_mjup < r.target_max_mjup)) throw bad("target_mass_mjup", "expected MIN,MAX with MIN < MAX");
   r.occurrence = number("occurrence");
+  if (!(r.occurrence > 0 && r.occurrence < 1)) throw bad("occurrence", "expected a fraction between 0 and 1");
   const auto host = numbers("host_mass_default_msun", 2);
   r.host_mass_msun = host[0];
   r.host_mass_error_msun = host[1];
+  if ((present(r.host_mass_msun) && !(r.host_mass_msun > 0)) ||
+      (present(r.host_mass_error_msun) && !(r.host_mass_error_msun >= 0)))
+    throw bad("host_mass_default_msun", "expected a mass > 0 and an error >= 0 (or none)");
   c.prior.detect_sigma = number("detect_sigma");
   const auto mass = numbers("mass_prior_mjup", 2);
   c.prior.m_min_mjup = mass[0];
@@ -296,7 +304,7 @@ SurveyOptions survey_options_from(const RankRunInfo& info, const std::string& so
   } catch (const Error& e) {
     throw bad("ecc_prior", e.what());
   }
-  c.draws = static_cast<int>(whole("draws"));
+  c.draws = static_cast<int>(whole("draws", 16, 1e7));
   // The seed takes all 64 bits: read as an integer, not through a double.
   const std::string& seed = field("seed");
   const auto [end, ec] = std::from_chars(seed.data(), seed.data() + seed.size(), c.seed);
@@ -304,9 +312,10 @@ SurveyOptions survey_options_from(const RankRunInfo& info, const std::string& so
   const auto grid = numbers("a_grid_au", 3);
   o.a_min_au = grid[0];
   o.a_max_au = grid[1];
+  if (!(o.a_min_au > 0 && o.a_min_au < o.a_max_au && grid[2] >= 2 && grid[2] <= 100000 && grid[2] == std::floor(grid[2])))
+    throw bad("a_grid_au", "expected MIN,MAX,N with 0 < MIN < MAX and N from 2 to 100000");
   o.n_a = static_cast<int>(grid[2]);
-  if (!(o.a_min_au > 0 && o.a_min_au < o.a_max_au && o.n_a >= 2)) throw bad("a_grid_au", "expected MIN,MAX,N");
-  o.max_curves = static_cast<long>(whole("max_curves"));
+  o.max_curves = static_cast<long>(whole("max_curves", 0, 1e15));
   if (!parse_shard(field("shard"), o.shard_k, o.shard_n)) throw bad("shard", "expected K/N");
   return o;
 }
