@@ -1,11 +1,14 @@
 // fit_bench: the deep fit's cost and the sampler's calibration.
-//  1. A three-epoch deep fit of the demo follow-up star on one core:
-//     optimiser (64 starts) and 10^5 ensemble steps of 64 walkers.
+//  1. The default deep fit of the demo follow-up star (three epochs) on one
+//     core: optimiser, and optimiser plus sampler.
 //  2. Coverage: on injected systems drawn from the fit's own prior, each
-//     with three epochs of relative astrometry, how often the sampler's
-//     68 % (and 95 %) intervals of mass, a and e contain the truth.
+//     with three epochs of relative astrometry over 2 yr and over 8 yr, how
+//     often the sampler's 68 % (and 95 %) intervals of mass, a and e
+//     contain the truth, per regime (arc, S/N, period over arc); and how
+//     often the optimiser's best minimum is within 1 of -2 ln L at the
+//     truth (or better).
 //
-// Usage: fit_bench [systems=50] [steps=20000]
+// Usage: fit_bench [systems per arc=50] [steps=20000]
 
 #include <glog/logging.h>
 #include <omp.h>
@@ -15,8 +18,10 @@
 #include <cstdio>
 #include <cstdlib>
 #include <fstream>
+#include <functional>
 
 #include "heft/fit.hpp"
+#include "heft/kepler.hpp"
 #include "heft/simulate.hpp"
 #include "heft/stats.hpp"
 
@@ -44,10 +49,7 @@ int main(int argc, char** argv) {
     std::ifstream in(std::string(HEFT_SOURCE_DIR) + "/demo/followup/KMG-00754.json");
     const StarFile f = read_star_file(in, "KMG-00754.json");
     const ScreenRow row = screen_star(f.star, "", ScreenOptions{});
-    FitOptions o;
-    o.sampler.steps = 100000;
-    o.sampler.burn = 5000;
-    o.sampler.thin = 100;
+    FitOptions o;  // the defaults of heft fit
     omp_set_num_threads(1);
     const auto t0 = std::chrono::steady_clock::now();
     FitOptions opt_only = o;
@@ -57,10 +59,10 @@ int main(int argc, char** argv) {
     const double t_opt = seconds_since(t0);
     const FitResult r = run_fit(m, o, f.star.id);
     const double t_all = seconds_since(t0) - t_opt;
-    std::printf("deep fit, 3 epochs, one core: optimiser (%d starts) %.2f s; optimiser + %d x %d walker steps %.1f s "
-                "(acceptance %.2f, max tau %.0f steps)\n",
-                o.starts, t_opt, o.sampler.steps + o.sampler.burn, o.walkers, t_all, r.chain.acceptance,
-                *std::max_element(r.chain.iat_steps.begin(), r.chain.iat_steps.end()));
+    std::printf("deep fit, 3 epochs, one core: optimiser (%d starts) %.2f s; optimiser + %d steps x %d walkers "
+                "(%d chains) %.1f s (acceptance %.2f, max tau %.0f steps)\n",
+                o.starts, t_opt, o.sampler.steps + o.sampler.burn, r.chain.walkers, r.chain.chains, t_all,
+                r.chain.acceptance, *std::max_element(r.chain.iat_steps.begin(), r.chain.iat_steps.end()));
   }
 
   omp_set_num_threads(omp_get_num_procs());
@@ -78,40 +80,91 @@ int main(int argc, char** argv) {
   o.a_min_au = 3.0;
   o.a_max_au = 30.0;
   o.sampler.steps = steps;
-  int used = 0, in68[3] = {}, in95[3] = {};
+  o.sampler.burn = std::min(o.sampler.burn, steps / 2);
+  // Per system: inside the 68 % and 95 % intervals (mass, a, e), the regime
+  // and whether the optimiser's best is within 1 of -2 ln L at the truth
+  // (the orbit pinned there, the nuisances optimised).
+  struct System {
+    bool in68[3], in95[3], basin;
+    double sig, p_over_arc, arc;
+  };
+  std::vector<System> sys;
   const auto t0 = std::chrono::steady_clock::now();
-  for (long i = 0; used < n_sys; ++i) {
-    StarFile f;
-    SimTruth t;
-    simulate_star(sm, i, f.star, t);
-    const ScreenRow row = screen_star(f.star, "", ScreenOptions{});
-    if (!row.ok()) continue;
-    f.host_mass = {HostMassPrior::Kind::kNormal, f.star.mass_msun, f.star.mass_error_msun};
-    Rng rng = Rng::for_star(77, f.star.id);
-    for (double ep : {2025.0, 2026.0, 2027.0})
-      f.relative.push_back(observe_companion(t, f.star.late.epoch_yr, ep, 2.0, 0.3, rng));
-    const FitModel m(f, row.result, o);
-    const FitResult r = run_fit(m, o, f.star.id);
-    std::vector<std::pair<double, double>> v[3];
-    for (Eigen::Index k = 0; k < r.chain.samples.rows(); ++k) {
-      const Eigen::VectorXd p = r.chain.samples.row(k).transpose();
-      const OrbitDraw d = m.orbit(p.data());
-      const double w = r.sample_weight[k];
-      v[0].emplace_back(d.mass_mjup, w);
-      v[1].emplace_back(d.a_au, w);
-      v[2].emplace_back(d.ecc, w);
+  for (const double arc : {2.0, 8.0})
+    for (long i = 0, used = 0; used < n_sys; ++i) {
+      StarFile f;
+      SimTruth t;
+      simulate_star(sm, i, f.star, t);
+      const ScreenRow row = screen_star(f.star, "", ScreenOptions{});
+      if (!row.ok()) continue;
+      f.host_mass = {HostMassPrior::Kind::kNormal, f.star.mass_msun, f.star.mass_error_msun};
+      Rng rng = Rng::for_star(77, f.star.id);
+      for (double ep : {2025.0, 2025.0 + arc / 2, 2025.0 + arc})
+        f.relative.push_back(observe_companion(t, f.star.late.epoch_yr, ep, 2.0, 0.3, rng));
+      const FitModel m(f, row.result, o);
+      const FitResult r = run_fit(m, o, f.star.id);
+      std::vector<std::pair<double, double>> v[3];
+      for (Eigen::Index k = 0; k < r.chain.samples.rows(); ++k) {
+        const Eigen::VectorXd p = r.chain.samples.row(k).transpose();
+        const OrbitDraw d = m.orbit(p.data());
+        const double w = r.sample_weight[k];
+        v[0].emplace_back(d.mass_mjup, w);
+        v[1].emplace_back(d.a_au, w);
+        v[2].emplace_back(d.ecc, w);
+      }
+      System s{};
+      const double truth[3] = {t.mass_mjup, t.a_au, t.ecc};
+      for (int k = 0; k < 3; ++k) {
+        s.in68[k] = truth[k] >= quantile(v[k], 0.16) && truth[k] <= quantile(v[k], 0.84);
+        s.in95[k] = truth[k] >= quantile(v[k], 0.025) && truth[k] <= quantile(v[k], 0.975);
+      }
+      const Orbit<double> to = truth_orbit(t, f.star.late.epoch_yr);
+      const double mean_anom = to.mean_anom_ref_rad + units::kTwoPi * (m.ref_epoch_yr() - to.ref_epoch_yr) / to.period_yr;
+      Pinned pin;
+      pin.index = {kLnMass, kLnA, kSqrtECos, kSqrtESin, kCosInc, kNode, kLambda};
+      pin.value = {std::log(t.mass_mjup), std::log(t.a_au), std::sqrt(t.ecc) * std::cos(to.arg_peri_rad),
+                   std::sqrt(t.ecc) * std::sin(to.arg_peri_rad), std::cos(to.inc_rad), to.node_rad,
+                   mean_anom + to.arg_peri_rad + to.node_rad};
+      std::vector<Eigen::VectorXd> starts;
+      for (int k = 0; k < 8; ++k) {
+        Eigen::VectorXd p = m.prior_draw(rng);
+        pin.apply(p.data());
+        starts.push_back(p);
+      }
+      const std::vector<FitMinimum> at_truth = find_minima(m, pin, starts);
+      s.basin = !at_truth.empty() && r.minima.front().m2lnl <= at_truth.front().m2lnl + 1.0;
+      s.sig = row.result.sig_joint;
+      s.arc = arc;
+      s.p_over_arc = t.period_yr / arc;
+      sys.push_back(s);
+      ++used;
     }
-    const double truth[3] = {t.mass_mjup, t.a_au, t.ecc};
-    for (int k = 0; k < 3; ++k) {
-      in68[k] += truth[k] >= quantile(v[k], 0.16) && truth[k] <= quantile(v[k], 0.84);
-      in95[k] += truth[k] >= quantile(v[k], 0.025) && truth[k] <= quantile(v[k], 0.975);
-    }
-    ++used;
-  }
   const char* names[3] = {"mass", "a", "e"};
-  std::printf("sampler coverage on %d systems (3 epochs, %d steps, %.0f s):", used, steps, seconds_since(t0));
-  for (int k = 0; k < 3; ++k)
-    std::printf(" %s 68 %% %.0f %%, 95 %% %.0f %%;", names[k], 100.0 * in68[k] / used, 100.0 * in95[k] / used);
-  std::printf("\n");
+  auto report = [&](const char* label, const std::function<bool(const System&)>& keep) {
+    int n = 0, in68[3] = {}, in95[3] = {}, basin = 0;
+    for (const System& s : sys) {
+      if (!keep(s)) continue;
+      ++n;
+      basin += s.basin;
+      for (int k = 0; k < 3; ++k) {
+        in68[k] += s.in68[k];
+        in95[k] += s.in95[k];
+      }
+    }
+    if (n == 0) return;
+    std::printf("  %-28s %4d systems:", label, n);
+    for (int k = 0; k < 3; ++k)
+      std::printf(" %s %3.0f/%3.0f %%;", names[k], 100.0 * in68[k] / n, 100.0 * in95[k] / n);
+    std::printf(" optimiser in the truth's basin %3.0f %%\n", 100.0 * basin / n);
+  };
+  std::printf("sampler coverage (68 %% / 95 %% intervals; 3 epochs, %d steps per chain, %.0f s):\n", steps,
+              seconds_since(t0));
+  report("all", [](const System&) { return true; });
+  report("arc 2 yr", [](const System& s) { return s.arc == 2.0; });
+  report("arc 8 yr", [](const System& s) { return s.arc == 8.0; });
+  report("sig_joint < 20", [](const System& s) { return s.sig < 20; });
+  report("sig_joint >= 20", [](const System& s) { return s.sig >= 20; });
+  report("period < 10 arcs", [](const System& s) { return s.p_over_arc < 10; });
+  report("period >= 10 arcs", [](const System& s) { return s.p_over_arc >= 10; });
   return 0;
 }

@@ -12,7 +12,8 @@ namespace heft {
 
 using ojson = nlohmann::ordered_json;
 
-FitResult run_fit(const FitModel& m, const FitOptions& opt, const std::string& rng_id) {
+FitResult run_fit(const FitModel& m, const FitOptions& opt, const std::string& rng_id,
+                  const std::function<void(long, long)>& progress) {
   FitResult res;
   res.upper_limit = m.upper_limit();
   Rng rng = Rng::for_star(opt.seed, rng_id);
@@ -20,22 +21,42 @@ FitResult run_fit(const FitModel& m, const FitOptions& opt, const std::string& r
   res.minima = find_minima(m, none, draw_starts(m, opt.starts, rng));
   if (res.minima.empty()) throw NumericError(rng_id, "fit", "no start reached a finite posterior");
   for (auto& mn : res.minima) finish_minimum(m, mn);
+  res.minima = merge_minima(m, std::move(res.minima));
+  // Minima far above the best carry no posterior weight (e^-25 and less):
+  // starts stranded at the prior's bounds, not alternatives.
+  const double worst = res.minima.front().m2lnpost + kMinimumDeltaKept;
+  const auto far = std::find_if(res.minima.begin(), res.minima.end(), [&](const FitMinimum& x) { return x.m2lnpost > worst; });
+  res.minima_dropped = static_cast<int>(res.minima.end() - far);
+  res.minima.erase(far, res.minima.end());
   if (!opt.sample) return res;
   Rng srng = Rng::for_star(opt.seed ^ 0x5a3c9e1fULL, rng_id);
+  const int walkers = walkers_per_chain(m, opt) * std::max(1, opt.sampler.chains);
   std::vector<EnsembleStart> starts;
   if (m.has_relative())
-    starts = mode_starts(m, res.minima, opt.walkers, srng);
+    starts = mode_starts(m, res.minima, walkers, srng);
   else
-    starts.push_back({walkers_from_curve(m, opt.walkers, srng, rng_id, res.init_ess), {0.0, 1.0, opt.walkers}});
-  PooledChain pooled = sample_modes(m, std::move(starts), opt.sampler, srng);
+    starts.push_back({walkers_from_curve(m, walkers, srng, rng_id, res.init_ess), {0.0, 1.0, walkers}});
+  PooledChain pooled = sample_modes(m, std::move(starts), opt.sampler, srng, progress);
   res.chain = std::move(pooled.chain);
   res.sample_weight = std::move(pooled.sample_weight);
   res.modes = std::move(pooled.modes);
   res.sampled = true;
   const double tau = *std::max_element(res.chain.iat_steps.begin(), res.chain.iat_steps.end());
   if (!(opt.sampler.steps >= 50.0 * tau))
-    res.warnings.push_back("chain shorter than 50 autocorrelation times (max tau " +
-                           std::to_string(static_cast<long>(std::ceil(tau))) + " steps); raise --steps");
+    res.warnings.push_back("chains shorter than 50 autocorrelation times (max tau " +
+                           std::to_string(static_cast<long>(std::ceil(tau))) + " steps): raise --steps to " +
+                           std::to_string(static_cast<long>(std::ceil(50.0 * tau / 1000.0)) * 1000) +
+                           " or more, and --burn with it");
+  const auto names = m.param_names();
+  for (std::size_t i = 0; i < res.chain.rhat.size(); ++i)
+    if (!(res.chain.rhat[i] <= kMaxRhat)) {
+      res.warnings.push_back("the chains disagree on " + names[i] + " (Gelman-Rubin R-hat " +
+                             format_double(std::round(res.chain.rhat[i] * 1000.0) / 1000.0) + " > " +
+                             format_double(kMaxRhat) +
+                             "): the posterior has parts the chains did not all reach; raise --steps and --burn, "
+                             "or --starts so that the optimiser finds every mode");
+      break;
+    }
   if (!m.has_relative() && res.init_ess < opt.walkers)
     res.warnings.push_back("importance draws for the walkers have effective size " +
                            std::to_string(static_cast<long>(res.init_ess)) + " < walkers; mode weights are uncertain");
@@ -151,12 +172,14 @@ ojson fit_json(const FitModel& model, const StarFile& f, const ScreenRow& row, c
   for (const auto& mn : r.minima) mins.push_back(minimum_json(model, mn, false));
   j["best"] = minimum_json(model, r.minima.front(), true);
   j["minima"] = mins;
+  j["minima_dropped"] = r.minima_dropped;
   std::vector<std::string> warnings = r.warnings;
   if (!r.minima.front().covariance_ok) warnings.push_back("best-fit covariance: " + r.minima.front().flag);
   if (r.sampled) {
     const EnsembleChain& c = r.chain;
     const auto names = model.param_names();
     ojson post;
+    post["chains"] = c.chains;
     post["walkers"] = c.walkers;
     post["steps"] = fopt.sampler.steps;
     post["burn"] = fopt.sampler.burn;
@@ -170,10 +193,15 @@ ojson fit_json(const FitModel& model, const StarFile& f, const ScreenRow& row, c
     if (f.relative.empty())
       post["start"] = {{"method", "heft curve draws, importance-weighted"}, {"ess", r.init_ess}};
     else
-      post["start"] = {{"method", "one ensemble per mode, modes weighted by Laplace evidence"}, {"modes", modes}};
+      post["start"] = {{"method", "walkers of every chain from the modes by their Laplace evidence (stratified); "
+                                  "sampled in the relative position and velocity at the mean imaging epoch"},
+                       {"modes", modes}};
     ojson tau;
     for (int i = 0; i < model.n_params(); ++i) tau[names[i]] = json_number(c.iat_steps[i]);
     post["autocorr_steps"] = tau;
+    ojson rhat;
+    for (std::size_t i = 0; i < c.rhat.size(); ++i) rhat[names[i]] = json_number(c.rhat[i]);
+    post["rhat"] = rhat;
     post["quantiles"] = posterior_quantiles(r, posterior_draws(model, r));
     j["posterior"] = post;
   }

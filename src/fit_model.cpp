@@ -347,6 +347,105 @@ Eigen::VectorXd FitModel::prior_draw(Rng& rng) const {
   return p;
 }
 
+Eigen::VectorXd observables_from_params(const FitModel& m, const Eigen::VectorXd& p) {
+  Eigen::VectorXd u = p;
+  const OrbitPoint<double> s = orbit_point(m.orbit_at(p.data()), m.ref_epoch_yr());
+  const double k = std::exp(p[kLnA]) * p[kParallax];  // mas per unit of a
+  const double x[6] = {s.x, s.y, s.z, s.vx, s.vy, s.vz};
+  for (int i = 0; i < 6; ++i) u[kLnA + i] = k * x[i];
+  return u;
+}
+
+bool params_from_observables(const FitModel& m, const double* u, double* p, double& log_jacobian) {
+  const double plx = u[kParallax], m_total = u[kHostMass] + std::exp(u[kLnMass]) / units::kMjupPerMsun;
+  if (!(plx > 0.0 && m_total > 0.0)) return false;
+  const double gm = units::kGMSunAu3Yr2 * m_total;
+  const double r[3] = {u[kLnA] / plx, u[kLnA + 1] / plx, u[kLnA + 2] / plx};
+  const double v[3] = {u[kLnA + 3] / plx, u[kLnA + 4] / plx, u[kLnA + 5] / plx};
+  StateElements<double> el;
+  if (!elements_from_state(r, v, gm, el)) return false;
+  for (int i = 0; i < m.n_params(); ++i) p[i] = u[i];
+  const double root_e = std::sqrt(el.ecc);
+  p[kLnA] = std::log(el.a);
+  p[kSqrtECos] = el.e_cos_w / root_e;
+  p[kSqrtESin] = el.e_sin_w / root_e;
+  p[kCosInc] = el.cos_inc;
+  p[kNode] = el.node_rad;
+  p[kLambda] = el.mean_anom_rad + el.arg_peri_rad + el.node_rad;
+  // d^3r d^3v = gm^(3/2) a^(3/2) e d(ln a) d(sqrt(e) cos w) d(sqrt(e) sin w)
+  // d(cos i) dOmega dlambda: the Delaunay variables are canonical (e.g.
+  // Murray & Dermott 1999, Sect. 2.10), and u = parallax x (r, v).
+  log_jacobian = -(6.0 * std::log(plx) + 1.5 * std::log(gm) + 1.5 * std::log(el.a) + std::log(el.ecc));
+  return true;
+}
+
+int walkers_per_chain(const FitModel& m, const FitOptions& opt) {
+  if (opt.walkers > 0) return opt.walkers;
+  const int n = std::max(32, 2 * m.n_params());
+  return n + n % 2;
+}
+
+Eigen::VectorXd FitModel::observable_draw(Rng& rng) const {
+  // The imaged positions (x north, y east; mas) with an isotropic error each.
+  std::vector<double> t, x, y, s2;
+  for (const auto& e : rel_) {
+    const double pa = units::deg_to_rad(e.v2);
+    t.push_back(e.epoch_yr - phase_epoch_yr_);
+    x.push_back(e.polar ? e.v1 * std::cos(pa) : e.v2);
+    y.push_back(e.polar ? e.v1 * std::sin(pa) : e.v1);
+    const double s = e.polar ? std::max(e.e1, e.v1 * units::deg_to_rad(e.e2)) : std::max(e.e1, e.e2);
+    s2.push_back(s * s);
+  }
+  // Weighted straight line through them, position at the phase epoch and
+  // velocity, each drawn from its least-squares error; one epoch (or one
+  // date) leaves the velocity to the bound below.
+  double sw = 0, swt = 0, swtt = 0;
+  for (std::size_t k = 0; k < t.size(); ++k) {
+    sw += 1 / s2[k];
+    swt += t[k] / s2[k];
+    swtt += t[k] * t[k] / s2[k];
+  }
+  const double det = sw * swtt - swt * swt;
+  const bool moving = t.size() >= 2 && det > 1e-12 * sw * sw;
+  auto line = [&](const std::vector<double>& v, double& at, double& rate) {
+    double swv = 0, swtv = 0;
+    for (std::size_t k = 0; k < t.size(); ++k) {
+      swv += v[k] / s2[k];
+      swtv += t[k] * v[k] / s2[k];
+    }
+    if (!moving) {
+      at = swv / sw + rng.normal() / std::sqrt(sw);
+      rate = 0.0;
+      return;
+    }
+    at = (swtt * swv - swt * swtv) / det + rng.normal() * std::sqrt(swtt / det);
+    rate = (sw * swtv - swt * swv) / det + rng.normal() * std::sqrt(sw / det);
+  };
+  for (int tries = 0; tries < 200; ++tries) {
+    Eigen::VectorXd u = prior_draw(rng);
+    double x0, vx, y0, vy;
+    line(x, x0, vx);
+    line(y, y0, vy);
+    // Speeds in mas/yr: a bound orbit has v^2 < 2 GM / r.
+    const double plx = u[kParallax];
+    const double gm_mas = units::kGMSunAu3Yr2 * (u[kHostMass] + std::exp(u[kLnMass]) / units::kMjupPerMsun) * plx * plx * plx;
+    const double s = std::hypot(x0, y0), z = rng.uniform(-1.5, 1.5) * s, r = std::hypot(s, z);
+    if (!moving) {
+      const double v_proj = std::sqrt(gm_mas / r) * rng.uniform(), ang = units::kTwoPi * rng.uniform();
+      vx = v_proj * std::cos(ang);
+      vy = v_proj * std::sin(ang);
+    }
+    const double vz2_max = 2.0 * gm_mas / r - vx * vx - vy * vy;
+    if (!(vz2_max > 0)) continue;
+    const double state[6] = {x0, y0, z, vx, vy, std::sqrt(vz2_max) * rng.uniform(-0.95, 0.95)};
+    for (int k = 0; k < 6; ++k) u[kLnA + k] = state[k];
+    Eigen::VectorXd p(n_params());
+    double log_jac;
+    if (params_from_observables(*this, u.data(), p.data(), log_jac) && std::isfinite(neg_log_post(p.data()))) return p;
+  }
+  return prior_draw(rng);
+}
+
 OrbitDraw FitModel::orbit(const double* p) const {
   OrbitDraw d;
   d.mass_mjup = std::exp(p[kLnMass]);

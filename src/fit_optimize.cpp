@@ -2,6 +2,7 @@
 
 #include <ceres/ceres.h>
 
+#include <Eigen/Cholesky>
 #include <Eigen/Eigenvalues>
 #include <algorithm>
 #include <cmath>
@@ -216,13 +217,43 @@ std::vector<FitMinimum> find_minima(const FitModel& m, const Pinned& pinned,
 
 std::vector<Eigen::VectorXd> draw_starts(const FitModel& m, int n, Rng& rng) {
   std::vector<Eigen::VectorXd> s;
-  for (int k = 0; k < n; ++k) s.push_back(m.prior_draw(rng));
+  // With imaging, every second start from the observables: they find the
+  // basin of short arcs; the prior's starts keep the rest of the space.
+  for (int k = 0; k < n; ++k) s.push_back(m.has_relative() && k % 2 == 0 ? m.observable_draw(rng) : m.prior_draw(rng));
   return s;
 }
 
 void finish_minimum(const FitModel& m, FitMinimum& mn) {
   covariance_at(m, mn);
   derive(mn);
+}
+
+std::vector<FitMinimum> merge_minima(const FitModel& m, std::vector<FitMinimum> minima) {
+  const int nc = kFitCore + m.n_instruments();
+  std::vector<FitMinimum> out;
+  std::vector<Eigen::MatrixXd> chol;  // of the kept minima's covariances (empty: none)
+  for (auto& mn : minima) {
+    bool merged = false;
+    for (std::size_t k = 0; k < out.size() && !merged; ++k) {
+      if (chol[k].size() == 0) continue;
+      Eigen::VectorXd d = (mn.p - out[k].p).head(nc);
+      d[kNode] = wrap_pi(d[kNode]);
+      d[kLambda] = wrap_pi(d[kLambda]);
+      if (chol[k].triangularView<Eigen::Lower>().solve(d).squaredNorm() < kSameMinimumMahalanobis2) {
+        out[k].hits += mn.hits;
+        merged = true;
+      }
+    }
+    if (merged) continue;
+    Eigen::MatrixXd L;
+    if (mn.covariance_ok) {
+      const Eigen::LLT<Eigen::MatrixXd> llt(mn.cov.topLeftCorner(nc, nc));
+      if (llt.info() == Eigen::Success) L = llt.matrixL();
+    }
+    chol.push_back(L);
+    out.push_back(std::move(mn));
+  }
+  return out;
 }
 
 }  // namespace heft

@@ -147,54 +147,71 @@ std::vector<EnsembleStart> mode_starts(const FitModel& m, const std::vector<FitM
   return out;
 }
 
-PooledChain sample_modes(const FitModel& m, std::vector<EnsembleStart> starts, const EnsembleOptions& opt,
-                         Rng& srng) {
-  PooledChain res;
-  std::vector<double>& weight = res.sample_weight;
-  for (auto& [start, mode] : starts) {
-    // Omega and the mean longitude are periodic. Around an imaged mode the
-    // walkers are confined to one turn centred on it, so that they cannot
-    // spread over the copies of the mode. Without imaging the walkers start
-    // as posterior draws spread over the whole circle and stay unconfined:
-    // walls would cut the (Omega, lambda) ridges of that posterior into
-    // pieces (measured: the 95 % upper limit fell from 67 to 35 MJup against
-    // heft curve's 61 in tests/fit_test.cpp).
-    const bool confine = m.has_relative();
-    const double c_node = start(kNode, 0), c_lambda = start(kLambda, 0);
-    if (confine)
-      for (Eigen::Index k = 0; k < start.cols(); ++k) {
-        start(kNode, k) = c_node + wrap_pi(start(kNode, k) - c_node);
-        start(kLambda, k) = c_lambda + wrap_pi(start(kLambda, k) - c_lambda);
-      }
-    auto log_prob = [&m, confine, c_node, c_lambda](const double* p) {
-      if (confine && !(std::abs(p[kNode] - c_node) < units::kPi && std::abs(p[kLambda] - c_lambda) < units::kPi))
-        return -kInf;
-      return -m.neg_log_post(p);
-    };
-    EnsembleOptions eo = opt;
-    eo.seed = srng.next();
-    eo.rescue = m.has_relative();  // heft curve's draws already follow the posterior
-    EnsembleChain c = run_ensemble(log_prob, start, eo);
-    if (mode.mirrored)
-      for (Eigen::Index k = 1; k < c.samples.rows(); k += 2) {
-        const Eigen::VectorXd q = mirror_orbit(c.samples.row(k).transpose());
-        c.samples.row(k) = q.transpose();
-      }
-    const Eigen::Index rows0 = res.chain.samples.rows();
-    if (rows0 == 0) {
-      res.chain = c;
-      res.chain.acceptance = 0.0;
-    } else {
-      res.chain.samples.conservativeResize(rows0 + c.samples.rows(), Eigen::NoChange);
-      res.chain.samples.bottomRows(c.samples.rows()) = c.samples;
-      res.chain.log_prob.insert(res.chain.log_prob.end(), c.log_prob.begin(), c.log_prob.end());
-      for (std::size_t i = 0; i < c.iat_steps.size(); ++i)
-        res.chain.iat_steps[i] = std::max(res.chain.iat_steps[i], c.iat_steps[i]);
-    }
-    res.chain.acceptance += mode.weight * c.acceptance;
-    weight.insert(weight.end(), c.samples.rows(), mode.weight / c.samples.rows());
-    res.modes.push_back(mode);
+namespace {
+
+// Every chain samples every mode: walker k of a chain of nw comes from the
+// mode in which (k + 1/2) / nw falls on the modes' cumulative weights.
+Eigen::MatrixXd stratified_walkers(const std::vector<EnsembleStart>& starts, int chains) {
+  const Eigen::Index walkers = starts.front().walkers.cols(), nw = walkers / chains;
+  Eigen::MatrixXd w(starts.front().walkers.rows(), walkers);
+  for (Eigen::Index k = 0; k < walkers; ++k) {
+    const double at = (k % nw + 0.5) / static_cast<double>(nw);
+    double cum = 0.0;
+    std::size_t j = 0;
+    while (j + 1 < starts.size() && (cum += starts[j].mode.weight) < at) ++j;
+    w.col(k) = starts[j].walkers.col(k);
   }
+  return w;
+}
+
+}  // namespace
+
+PooledChain sample_modes(const FitModel& m, std::vector<EnsembleStart> starts, const EnsembleOptions& opt,
+                         Rng& srng, const std::function<void(long, long)>& progress) {
+  PooledChain res;
+  EnsembleOptions eo = opt;
+  eo.seed = srng.next();
+  if (!m.has_relative()) {
+    // Walkers from heft curve's draws already follow the posterior over the
+    // whole circle in Omega and lambda: no rescue, no walls.
+    eo.rescue = false;
+    res.chain = run_ensemble([&m](const double* p) { return -m.neg_log_post(p); }, starts.front().walkers, eo, progress);
+    res.sample_weight.assign(res.chain.samples.rows(), 1.0 / res.chain.samples.rows());
+    res.modes.push_back(starts.front().mode);
+    return res;
+  }
+  // With imaging: one ensemble in the observable coordinates (relative
+  // position and velocity at the mean imaging epoch), where the short-arc
+  // posterior is compact and has no periodic copies; the parameters' density
+  // times |d params / d observables| (docs/method.md, Sect. 9).
+  const Eigen::MatrixXd w = stratified_walkers(starts, std::max(1, opt.chains));
+  Eigen::MatrixXd u(w.rows(), w.cols());
+  for (Eigen::Index k = 0; k < w.cols(); ++k) u.col(k) = observables_from_params(m, w.col(k));
+  const int n = m.n_params();
+  EnsembleChain c = run_ensemble(
+      [&m](const double* x) {
+        double p[kMaxFitParams], log_jac = 0.0;
+        if (!params_from_observables(m, x, p, log_jac)) return -kInf;
+        return -m.neg_log_post(p) + log_jac;
+      },
+      u, eo, progress);
+  // Without RVs the mirror orbit (omega + pi, Omega + pi) has the same
+  // likelihood: every second sample is mirrored, so both are held exactly.
+  const bool mirrored = m.n_instruments() == 0;
+  for (Eigen::Index k = 0; k < c.samples.rows(); ++k) {
+    double p[kMaxFitParams], log_jac = 0.0;
+    const Eigen::VectorXd uk = c.samples.row(k).transpose();
+    params_from_observables(m, uk.data(), p, log_jac);
+    Eigen::VectorXd q = Eigen::Map<const Eigen::VectorXd>(p, n);
+    if (mirrored && k % 2 == 1) q = mirror_orbit(q);
+    c.samples.row(k) = q.transpose();
+  }
+  res.chain = std::move(c);
+  res.sample_weight.assign(res.chain.samples.rows(), 1.0 / res.chain.samples.rows());
+  ModeStart mode = starts.front().mode;
+  mode.weight = 1.0;
+  mode.mirrored = mirrored;
+  res.modes.push_back(mode);
   return res;
 }
 

@@ -1,6 +1,7 @@
 // Deep fit: optimiser pulls on simulated systems, the visual-binary worked
 // example, upper limits, star-file errors.
 
+#include <Eigen/LU>
 #include <catch2/catch.hpp>
 #include <cmath>
 #include <fstream>
@@ -296,4 +297,68 @@ TEST_CASE("fit: profile and Monte Carlo curves agree on the lower edge and diffe
   }
   REQUIRE(done == 2);
   CHECK(finite_hi < 0.5 * points);
+}
+
+TEST_CASE("fit: observable coordinates invert the orbit and carry the Delaunay Jacobian", "[fit][sampler]") {
+  // The sampler's coordinates with imaging are the companion's relative
+  // position and velocity at the mean imaging epoch. (1) From parameters
+  // to observables and back is the identity (in the mean anomaly mod 2 pi).
+  // (2) ln |d params / d observables| equals -(6 ln plx + 3/2 ln GM + 3/2
+  // ln a + ln e), from the Delaunay variables being canonical (Murray &
+  // Dermott 1999, Sect. 2.10; from memory), checked against central
+  // differences of the inverse map (6 x 6 determinant).
+  const SurveyModel sm = imaged_survey(11);
+  StarRecord star;
+  SimTruth truth;
+  long i = 0;
+  ScreenRow row;
+  do row = test::simulate_and_screen(sm, i++, star, truth); while (!row.ok());
+  bool ok = false;
+  StarFile f = star_file_of(star, kAbsent, kAbsent, ok);
+  REQUIRE(ok);
+  Rng rng = Rng::for_star(5, star.id);
+  for (double t : {2025.0, 2026.0})
+    f.relative.push_back(observe_companion(truth, star.late.epoch_yr, t, 2.0, 0.3, rng));
+  const FitModel m(f, row.result, FitOptions{});
+  const int n = m.n_params();
+  double worst_round_trip = 0.0, worst_jacobian = 0.0;
+  for (int trial = 0; trial < 200; ++trial) {
+    Eigen::VectorXd p = m.prior_draw(rng);
+    const Eigen::VectorXd u = observables_from_params(m, p);
+    Eigen::VectorXd back(n);
+    double log_jac = 0.0;
+    REQUIRE(params_from_observables(m, u.data(), back.data(), log_jac));
+    for (int k = 0; k < n; ++k) {
+      double d = back[k] - p[k];
+      if (k == kNode || k == kLambda) d = std::remainder(d, 2.0 * units::kPi);
+      worst_round_trip = std::max(worst_round_trip, std::abs(d));
+    }
+    // Central differences of the six orbital slots, step 1e-6 relative.
+    Eigen::Matrix<double, 6, 6> J;
+    for (int c = 0; c < 6; ++c) {
+      Eigen::VectorXd up = u, um = u;
+      const double h = 1e-6 * std::max(1e-3, std::abs(u[kLnA + c]));
+      up[kLnA + c] += h;
+      um[kLnA + c] -= h;
+      Eigen::VectorXd pp(n), pm(n);
+      double lj;
+      REQUIRE(params_from_observables(m, up.data(), pp.data(), lj));
+      REQUIRE(params_from_observables(m, um.data(), pm.data(), lj));
+      for (int r = 0; r < 6; ++r) {
+        double d = pp[kLnA + r] - pm[kLnA + r];
+        if (kLnA + r == kNode || kLnA + r == kLambda) d = std::remainder(d, 2.0 * units::kPi);
+        J(r, c) = d / (2 * h);
+      }
+    }
+    worst_jacobian = std::max(worst_jacobian, std::abs(std::log(std::abs(J.determinant())) - log_jac));
+  }
+  INFO("round trip " << worst_round_trip << ", ln|J| " << worst_jacobian);
+  CHECK(worst_round_trip < 1e-8);
+  CHECK(worst_jacobian < 1e-4);
+  // An unbound state (speed above escape) is outside the support.
+  Eigen::VectorXd u = observables_from_params(m, m.prior_draw(rng));
+  for (int k = 3; k < 6; ++k) u[kLnA + k] *= 10.0;
+  Eigen::VectorXd p(n);
+  double lj;
+  CHECK_FALSE(params_from_observables(m, u.data(), p.data(), lj));
 }

@@ -1,10 +1,16 @@
 #pragma once
 /// \file ensemble.hpp
-/// Affine-invariant ensemble sampler with the stretch move (Goodman & Weare
-/// 2010, Comm. App. Math. Comp. Sci. 5, 65), parallel over each half of the
-/// ensemble as in Foreman-Mackey et al. 2013 (PASP 125, 306), and the
+/// Ensemble sampler: independent ensembles (chains) of walkers, each moved
+/// half against half (Foreman-Mackey et al. 2013, PASP 125, 306) by a
+/// mixture of the affine-invariant stretch move (Goodman & Weare 2010,
+/// Comm. App. Math. Comp. Sci. 5, 65) and the differential-evolution move
+/// (ter Braak 2006, Stat. Comput. 16, 239), which follows correlated and
+/// curved densities better and, at unit scale, jumps between modes. The
+/// chains run in parallel, one per thread at a time. Diagnostics: the
 /// integrated autocorrelation time with Sokal's automatic window (Sokal
-/// 1997, "Monte Carlo methods in statistical mechanics", Sect. 3).
+/// 1997, "Monte Carlo methods in statistical mechanics", Sect. 3) and the
+/// Gelman-Rubin R-hat across the chains (Gelman & Rubin 1992, Stat. Sci. 7,
+/// 457).
 
 #include <Eigen/Core>
 #include <cstdint>
@@ -18,6 +24,8 @@ struct EnsembleOptions {
   int burn = 5000;         ///< ensemble steps discarded first
   int thin = 50;           ///< keep every thin-th step
   double stretch = 2.0;    ///< scale a of the stretch move, z ~ 1/sqrt(z) on [1/a, a]
+  double de_fraction = 0.5;  ///< share of differential-evolution moves (the rest: stretch)
+  int chains = 4;          ///< independent ensembles; the start's columns split evenly
   std::uint64_t seed = 1;
   /// During burn-in, move walkers stranded far below the ensemble's median
   /// log density onto better ones (for starts that are not yet posterior
@@ -26,7 +34,8 @@ struct EnsembleOptions {
 };
 
 struct EnsembleChain {
-  int dim = 0, walkers = 0;
+  int dim = 0, walkers = 0;  ///< walkers: of all chains
+  int chains = 1;
   /// Kept positions after burn-in and thinning, one row each (step-major,
   /// walker-minor), and their log densities.
   Eigen::MatrixXd samples;
@@ -35,15 +44,29 @@ struct EnsembleChain {
   /// Integrated autocorrelation time of each parameter, in ensemble steps,
   /// from the unthinned post-burn-in chain.
   std::vector<double> iat_steps;
+  /// Gelman-Rubin R-hat of each parameter across the chains (empty for one
+  /// chain); near 1 when the chains agree.
+  std::vector<double> rhat;
 };
 
-/// Runs the sampler from `start` (one walker per column; an even number
-/// >= 2 dim, all with finite log density). `log_prob` returns -inf outside
-/// the support and must be safe to call concurrently. The result depends
-/// on `seed` only, not on the number of threads: every walker draws from
-/// its own random stream.
+/// Runs the sampler from `start` (one walker per column, chain after chain:
+/// opt.chains blocks of an even number >= 2 dim of walkers, all with finite
+/// log density). `log_prob` returns -inf outside the support and must be
+/// safe to call concurrently. Kept samples are step-major, then walker
+/// (chain after chain). The result depends on `seed` only, not on the
+/// number of threads: every walker draws from its own random stream.
+/// `progress(done, total)` reports ensemble steps, from any thread (one at
+/// a time).
 EnsembleChain run_ensemble(const std::function<double(const double*)>& log_prob,
-                           const Eigen::MatrixXd& start, const EnsembleOptions& opt);
+                           const Eigen::MatrixXd& start, const EnsembleOptions& opt,
+                           const std::function<void(long, long)>& progress = {});
+
+/// Gelman-Rubin potential scale reduction of one quantity over independent
+/// chains (each a matrix of its samples, any shape): sqrt(((n-1)/n W + B/n)
+/// / W) with W the mean within-chain variance and B/n the variance of the
+/// chain means (Gelman & Rubin 1992, Stat. Sci. 7, 457, eq. 3 without the
+/// degrees-of-freedom factor).
+double gelman_rubin(const std::vector<Eigen::MatrixXd>& chains);
 
 /// Integrated autocorrelation time (in steps) of one parameter from
 /// `series` (steps x walkers): the walker-averaged normalised

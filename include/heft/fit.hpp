@@ -12,6 +12,7 @@
 /// Model, priors and their references: docs/method.md, Sect. 9.
 
 #include <nlohmann/json.hpp>
+#include <functional>
 #include <string>
 #include <vector>
 
@@ -23,7 +24,8 @@
 namespace heft {
 
 struct FitResult {
-  std::vector<FitMinimum> minima;  ///< best first
+  std::vector<FitMinimum> minima;  ///< best first, merged (merge_minima), within kMinimumDeltaKept of the best
+  int minima_dropped = 0;          ///< minima further above the best
   bool upper_limit = false;
   bool orbit_statistical = false;  ///< no relative astrometry
   bool sampled = false;
@@ -41,7 +43,19 @@ struct FitResult {
 /// (opt.sample) the ensemble sampler: with relative astrometry one ensemble
 /// per mode, the modes weighted by their Laplace evidence; without, one
 /// ensemble started from heft curve's importance-weighted draws.
-FitResult run_fit(const FitModel& model, const FitOptions& opt, const std::string& rng_id);
+/// `progress(done, total)` reports the sampler's steps (from any thread,
+/// one at a time). Warnings: chains under 50 autocorrelation times, R-hat
+/// above kMaxRhat.
+FitResult run_fit(const FitModel& model, const FitOptions& opt, const std::string& rng_id,
+                  const std::function<void(long, long)>& progress = {});
+
+/// Minima whose -2 ln posterior exceeds the best's by more than this are
+/// not kept (their posterior weight is below e^-25).
+inline constexpr double kMinimumDeltaKept = 50.0;
+
+/// Chains whose Gelman-Rubin R-hat exceeds this on any parameter get a
+/// warning (Vehtari et al. 2021, Bayesian Anal. 16, 667, recommend 1.01).
+inline constexpr double kMaxRhat = 1.01;
 
 /// The posterior samples as orbit draws, each with its sample weight (the
 /// `--samples` table of heft fit, the table heft predict reads).

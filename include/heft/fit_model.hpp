@@ -58,7 +58,9 @@ struct FitOptions {
   double jitter_min_m_s = 0.01, jitter_max_m_s = 1000.0;  ///< log-uniform jitter prior
   int starts = 64;
   std::uint64_t seed = 1;
-  int walkers = 64;
+  /// Walkers per chain (EnsembleOptions::chains); 0: automatic, the even
+  /// max(32, 2 x parameters) (walkers_per_chain).
+  int walkers = 0;
   EnsembleOptions sampler;
   bool sample = true;
 };
@@ -128,6 +130,14 @@ class FitModel {
   /// the imaged separation when there is relative astrometry).
   Eigen::VectorXd prior_draw(Rng& rng) const;
 
+  /// With relative astrometry: a start drawn from the observables. The
+  /// imaged positions fix the sky position and motion at ref_epoch_yr() (a
+  /// weighted straight line, drawn within its errors); the line-of-sight
+  /// offset z is uniform within 1.5 x the projected separation and the
+  /// radial velocity uniform within the bound-orbit limit; masses, parallax,
+  /// PM and RV terms as prior_draw. Falls back to prior_draw.
+  Eigen::VectorXd observable_draw(Rng& rng) const;
+
   /// Parameters of an orbit draw (e.g. from heft curve): the barycentric PM
   /// drawn given the orbit's reflex, RV offsets at their weighted best,
   /// jitters at the median RV error.
@@ -171,6 +181,20 @@ class FitModel {
   Eigen::Vector2d pml_obs_;
   Eigen::Matrix2d pml_cov_;
 };
+
+/// The deep fit's sampling coordinates with relative astrometry: the
+/// parameters with the slots kLnA ... kLambda holding the companion's
+/// relative position (x north, y east, z away; mas) and velocity (mas/yr)
+/// at FitModel::ref_epoch_yr() instead of its orbital elements.
+Eigen::VectorXd observables_from_params(const FitModel& m, const Eigen::VectorXd& p);
+/// The inverse: parameters p (n_params() values) from observables u, and
+/// ln |d params / d u|; false where u is not a bound orbit (0 < e < 1).
+bool params_from_observables(const FitModel& m, const double* u, double* p, double& log_jacobian);
+
+
+/// Walkers per chain of a run: FitOptions::walkers, or when 0 the even
+/// max(32, 2 x parameters).
+int walkers_per_chain(const FitModel& m, const FitOptions& opt);
 
 /// A star of the canonical table as a star file: normal host-mass prior
 /// from its mass columns or from the defaults; no follow-up data. `ok`

@@ -34,7 +34,9 @@ struct FitMinimum {
 /// Names of FitMinimum::derived.
 const std::vector<std::string>& derived_names();
 
-/// `n` optimiser starts drawn from the prior (FitModel::prior_draw).
+/// `n` optimiser starts: with relative astrometry every second one drawn
+/// from the observables (FitModel::observable_draw), the others (and all
+/// without imaging) from the prior.
 std::vector<Eigen::VectorXd> draw_starts(const FitModel& m, int n, Rng& rng);
 
 /// Minimises from every start (in parallel; the result does not depend on
@@ -49,5 +51,16 @@ std::vector<FitMinimum> find_minima(const FitModel& m, const Pinned& pinned,
 /// (jitters held at their values) and the derived values with their
 /// linearised errors; a degenerate covariance sets `flag` instead of failing.
 void finish_minimum(const FitModel& m, FitMinimum& mn);
+
+/// Minima closer than this squared Mahalanobis distance to a better one
+/// (in its covariance, angles wrapped) are the same basin.
+inline constexpr double kSameMinimumMahalanobis2 = 9.0;
+
+/// Distinct minima in the statistical sense: each minimum (best first, with
+/// finish_minimum applied) joins the first better one whose covariance puts
+/// it within kSameMinimumMahalanobis2 (its hits added); what remains are
+/// basins the data tell apart. Not a claim that every local minimum exists
+/// or was found: the starts sample the observables, not the whole space.
+std::vector<FitMinimum> merge_minima(const FitModel& m, std::vector<FitMinimum> minima);
 
 }  // namespace heft

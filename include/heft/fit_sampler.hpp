@@ -6,6 +6,7 @@
 /// into one weighted chain. The sampler itself is ensemble.hpp.
 
 #include <Eigen/Core>
+#include <functional>
 #include <string>
 #include <vector>
 
@@ -54,15 +55,17 @@ std::vector<EnsembleStart> mode_starts(const FitModel& m, const std::vector<FitM
 Eigen::MatrixXd walkers_from_curve(const FitModel& m, int walkers, Rng& rng, const std::string& rng_id,
                                    double& ess);
 
-/// The ensembles run one after another and pooled with their modes'
-/// weights: `chain` (iat_steps the largest over modes, acceptance weighted
-/// by the modes) and each kept sample's weight (summing to 1).
+/// The posterior chain. With relative astrometry: one ensemble in the
+/// observable coordinates, its walkers drawn from the modes by their
+/// weights (stratified), every second sample mirrored without RVs; without:
+/// one ensemble from heft curve's walkers in the parameters. `chain`
+/// holds parameters; each kept sample's weight (summing to 1).
 struct PooledChain {
   EnsembleChain chain;
   std::vector<double> sample_weight;
   std::vector<ModeStart> modes;
 };
 PooledChain sample_modes(const FitModel& m, std::vector<EnsembleStart> starts, const EnsembleOptions& opt,
-                         Rng& rng);
+                         Rng& rng, const std::function<void(long, long)>& progress = {});
 
 }  // namespace heft

@@ -189,4 +189,64 @@ Reflex<T> host_reflex(const Orbit<T>& o, const T& a_au, const T& q, const T& par
   return {s * p.y, s * p.x, s * p.vy, s * p.vx, -q * a_au * p.vz * T(units::kKmsPerAuYr)};
 }
 
+/// Elements of a bound relative orbit from its state at one epoch: the
+/// inverse of orbit_point (same frame: x north, y east, z away from the
+/// observer). The eccentricity vector and the angular momentum give e, i,
+/// Omega and omega; the vis-viva equation a; the eccentric anomaly from the
+/// position in the orbital plane (e.g. Murray & Dermott 1999, Solar System
+/// Dynamics, Sect. 2.8).
+template <typename T>
+struct StateElements {
+  T a;               ///< semi-major axis (unit of r)
+  T ecc;
+  T cos_inc;         ///< cos i (i in [0, pi])
+  T node_rad;        ///< Omega, in (-pi, pi]
+  T arg_peri_rad;    ///< omega, in (-pi, pi]
+  T mean_anom_rad;   ///< mean anomaly at the epoch of the state, in (-pi, pi]
+  T e_cos_w, e_sin_w;  ///< the eccentricity vector on the node and its normal in the orbit plane
+};
+
+/// Given: position r and velocity v (e.g. AU and AU/yr), gm = G (m1 + m2)
+/// in the matching unit (e.g. AU^3/yr^2, units::kGMSunAu3Yr2 x Msun).
+/// Returns false for a state that is not a bound orbit with 0 < e < 1 and
+/// non-zero angular momentum.
+template <typename T>
+bool elements_from_state(const T r[3], const T v[3], const T& gm, StateElements<T>& el) {
+  using std::atan2;
+  using std::sin;
+  using std::sqrt;
+  const T rn = sqrt(r[0] * r[0] + r[1] * r[1] + r[2] * r[2]);
+  const T v2 = v[0] * v[0] + v[1] * v[1] + v[2] * v[2];
+  const T inv_a = T(2.0) / rn - v2 / gm;  // vis-viva
+  if (!(inv_a > T(0.0))) return false;
+  const T h[3] = {r[1] * v[2] - r[2] * v[1], r[2] * v[0] - r[0] * v[2], r[0] * v[1] - r[1] * v[0]};
+  const T hn = sqrt(h[0] * h[0] + h[1] * h[1] + h[2] * h[2]);
+  if (!(hn > T(0.0))) return false;
+  const T w[3] = {h[0] / hn, h[1] / hn, h[2] / hn};  // (sin i sin Omega, -sin i cos Omega, cos i)
+  // Eccentricity vector (v x h) / gm - r / |r|.
+  const T ev[3] = {(v[1] * h[2] - v[2] * h[1]) / gm - r[0] / rn, (v[2] * h[0] - v[0] * h[2]) / gm - r[1] / rn,
+                   (v[0] * h[1] - v[1] * h[0]) / gm - r[2] / rn};
+  const T e = sqrt(ev[0] * ev[0] + ev[1] * ev[1] + ev[2] * ev[2]);
+  if (!(e > T(0.0) && e < T(1.0))) return false;
+  el.a = T(1.0) / inv_a;
+  el.ecc = e;
+  el.cos_inc = w[2];
+  el.node_rad = atan2(w[0], -w[1]);
+  // Node direction n = (cos Omega, sin Omega, 0) and m = w x n, its normal
+  // in the orbit plane.
+  const T sn = sqrt(w[0] * w[0] + w[1] * w[1]);
+  const T n[3] = {-w[1] / sn, w[0] / sn, T(0.0)};
+  const T m[3] = {-w[2] * n[1], w[2] * n[0], w[0] * n[1] - w[1] * n[0]};
+  el.e_cos_w = ev[0] * n[0] + ev[1] * n[1];
+  el.e_sin_w = ev[0] * m[0] + ev[1] * m[1] + ev[2] * m[2];
+  el.arg_peri_rad = atan2(el.e_sin_w, el.e_cos_w);
+  // Perifocal axes P (to periastron) and Q = w x P; r = a (cos E - e) P + b sin E Q.
+  const T P[3] = {ev[0] / e, ev[1] / e, ev[2] / e};
+  const T Q[3] = {w[1] * P[2] - w[2] * P[1], w[2] * P[0] - w[0] * P[2], w[0] * P[1] - w[1] * P[0]};
+  const T rp = r[0] * P[0] + r[1] * P[1] + r[2] * P[2], rq = r[0] * Q[0] + r[1] * Q[1] + r[2] * Q[2];
+  const T E = atan2(rq / (el.a * sqrt(T(1.0) - e * e)), rp / el.a + e);
+  el.mean_anom_rad = E - e * sin(E);
+  return true;
+}
+
 }  // namespace heft

@@ -49,7 +49,7 @@ int run_fit_command(FitCliOptions o) {
   const ScreenRow row = screen_star(f.star, "", sopt);
   if (!row.ok()) throw NumericError(f.star.id, "screen", row.status.text());
   const FitModel model(f, row.result, fopt);
-  if (fopt.sample && fopt.walkers < 2 * model.n_params())
+  if (fopt.sample && fopt.walkers != 0 && fopt.walkers < 2 * model.n_params())
     throw CLI::ValidationError("--walkers must be at least twice the number of parameters (" +
                                std::to_string(2 * model.n_params()) + ")");
 
@@ -60,7 +60,12 @@ int run_fit_command(FitCliOptions o) {
   if (!o.profile.empty())
     profile = std::make_unique<TableOutput>(o.profile, format_for(o.profile), curve_column_units());
 
-  const FitResult r = run_fit(model, fopt, f.star.id);
+  std::unique_ptr<ProgressBar> bar;
+  const FitResult r = run_fit(model, fopt, f.star.id, [&](long done, long total) {
+    if (!bar) bar = std::make_unique<ProgressBar>("fit", total, o.quiet);
+    bar->update(done);
+  });
+  if (bar) bar->finish();
   const nlohmann::ordered_json j = fit_json(model, f, row, r, in.name());
   if (samples) {  // the header alone with --no-sample
     std::string buf = draws_header();
@@ -80,8 +85,9 @@ int run_fit_command(FitCliOptions o) {
   out.commit();
   if (!o.quiet) {
     for (const auto& w : j["warnings"]) message("fit", "warning: " + w.get<std::string>());
-    message("fit", f.star.id + ": " + std::to_string(r.minima.size()) + " distinct minima, best -2 ln L " +
-                       format_double(std::round(r.minima.front().m2lnl * 100) / 100));
+    message("fit", f.star.id + ": " + std::to_string(r.minima.size()) + " distinct minima (basins the data tell apart" +
+                       (r.minima_dropped ? "; " + std::to_string(r.minima_dropped) + " more far above the best, not kept" : "") +
+                       "), best -2 ln L " + format_double(std::round(r.minima.front().m2lnl * 100) / 100));
   }
   return kOk;
 }
@@ -94,7 +100,11 @@ void setup_fit(CLI::App& app, Runner& run) {
   CLI::App* sub = app.add_subcommand(
       "fit",
       "Deep Keplerian fit of one star (JSON star file: catalogue solutions, host-mass prior, relative "
-      "astrometry, RVs): every local minimum (Ceres), posterior by an affine-invariant ensemble sampler.");
+      "astrometry, RVs): local minima (Ceres) from starts drawn from the imaged positions and motion (else "
+      "from the prior), and the posterior from independent ensembles of walkers (stretch and "
+      "differential-evolution moves) in the companion's relative position and velocity at the mean "
+      "imaging epoch; R-hat across the chains and autocorrelation times checked. A progress bar on a "
+      "terminal.");
   sub->add_option("star", o->input, "star file (JSON, docs/formats.md; '-' = stdin)")->required();
   sub->add_option("-o,--output", o->output, "fit result (JSON); default stdout");
   sub->add_option("--samples", o->samples, "posterior orbit draws (CSV, the table heft predict reads)");
@@ -112,11 +122,13 @@ void setup_fit(CLI::App& app, Runner& run) {
       ->check(CLI::PositiveNumber)->capture_default_str();
   add_prior_options(sub, f.prior, o->ecc,
                     "without relative astrometry and below this sig_joint: upper limit (mass prior uniform)");
-  sub->add_option("--starts", f.starts, "optimiser starts drawn from the prior")
+  sub->add_option("--starts", f.starts, "optimiser starts (from the imaged positions and motion, else the prior)")
       ->check(CLI::Range(1, 100000))->capture_default_str();
-  sub->add_option("--walkers", f.walkers, "ensemble walkers (even, >= 2 x parameters)")
-      ->check(CLI::Range(2, 100000))->capture_default_str();
-  sub->add_option("--steps", f.sampler.steps, "ensemble steps after burn-in")
+  sub->add_option("--walkers", f.walkers, "walkers per chain (even, >= 2 x parameters; 0 = the even max(32, 2 x parameters))")
+      ->check(CLI::Range(0, 100000))->capture_default_str();
+  sub->add_option("--chains", f.sampler.chains, "independent chains (ensembles), for R-hat; run in parallel")
+      ->check(CLI::Range(1, 64))->capture_default_str();
+  sub->add_option("--steps", f.sampler.steps, "ensemble steps per chain after burn-in")
       ->check(CLI::Range(10, 100000000))->capture_default_str();
   sub->add_option("--burn", f.sampler.burn, "ensemble steps discarded as burn-in")
       ->check(CLI::NonNegativeNumber)->capture_default_str();
