@@ -41,7 +41,11 @@ done
 
 echo
 echo "== 4. deep fit of KMG-00754 (catalogues + three Halcyon epochs of its companion)"
-"$heft" fit -q "$demo/followup/KMG-00754.json" -o "$out/fit_KMG-00754.json" --samples "$out/fit_KMG-00754_samples.csv"
+"$heft" fit "$demo/followup/KMG-00754.json" -o "$out/fit_KMG-00754.json" --samples "$out/fit_KMG-00754_samples.csv" 2>&1 |
+  sed 's/^heft fit: /  /'
+awk -F, 'NR == 1 { for (k = 1; k <= NF; k++) c[$k] = k } $1 == "KMG-00754" {
+           printf "  injected (the simulator'"'"'s truth): mass %.3g MJup, a %.3g AU, period %.3g yr, e %.3g, i %.3g deg\n",
+                  $c["mass_mjup"], $c["a_au"], $c["period_yr"], $c["ecc"], $c["inc_deg"] }' "$demo/survey/truth.csv"
 "$heft" predict -q "$out/fit_KMG-00754_samples.csv" --date "$date" $wa -o "$out/fit_KMG-00754_where.csv" \
   --grid "$out/fit_KMG-00754_grid.csv"
 "$heft" plot sky "$out/fit_KMG-00754_grid.csv" $wa -o "$out/fit_KMG-00754_sky.svg"

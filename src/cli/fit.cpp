@@ -2,6 +2,7 @@
 
 #include <omp.h>
 
+#include <cstdio>
 #include <memory>
 
 #include "cli/commands.hpp"
@@ -85,6 +86,28 @@ int run_fit_command(FitCliOptions o) {
   out.commit();
   if (!o.quiet) {
     for (const auto& w : j["warnings"]) message("fit", "warning: " + w.get<std::string>());
+    if (r.sampled) {
+      // The posterior summary: median, 68 % and 95 % intervals.
+      const auto& q = j["posterior"]["quantiles"];
+      auto fmt = [](double v) {
+        char b[32];
+        std::snprintf(b, sizeof b, "%.3g", v);
+        return std::string(b);
+      };
+      for (const auto& [key, label] : {std::pair{"mass_mjup", "mass (MJup)"}, {"a_au", "a (AU)"},
+                                       {"period_yr", "period (yr)"}, {"ecc", "e"}, {"inc_deg", "i (deg)"}}) {
+        const auto& x = q[key];
+        if (!x.contains("q50") || x["q50"].is_null()) {
+          if (x.contains("q95") && !x["q95"].is_null())
+            message("fit", std::string(label) + ": below " + fmt(x["q68"].get<double>()) + " (68 %), " +
+                               fmt(x["q95"].get<double>()) + " (95 %)");
+          continue;
+        }
+        message("fit", std::string(label) + ": " + fmt(x["q50"].get<double>()) + "  68 %: " + fmt(x["q16"].get<double>()) +
+                           "-" + fmt(x["q84"].get<double>()) + "  95 %: " + fmt(x["q2.5"].get<double>()) + "-" +
+                           fmt(x["q97.5"].get<double>()));
+      }
+    }
     message("fit", f.star.id + ": " + std::to_string(r.minima.size()) + " distinct minima (basins the data tell apart" +
                        (r.minima_dropped ? "; " + std::to_string(r.minima_dropped) + " more far above the best, not kept" : "") +
                        "), best -2 ln L " + format_double(std::round(r.minima.front().m2lnl * 100) / 100));
