@@ -90,8 +90,10 @@ int main(int argc, char** argv) {
   };
   std::vector<System> sys;
   const auto t0 = std::chrono::steady_clock::now();
+  // Distinct stars for the two arcs: the same stars would share their host
+  // masses' and catalogues' noise draws, and the sample would be half as big.
   for (const double arc : {2.0, 8.0})
-    for (long i = 0, used = 0; used < n_sys; ++i) {
+    for (long i = arc == 2.0 ? 0 : 100000, used = 0; used < n_sys; ++i) {
       StarFile f;
       SimTruth t;
       simulate_star(sm, i, f.star, t);
