@@ -123,8 +123,8 @@ void setup_fit(CLI::App& app, Runner& run) {
   CLI::App* sub = app.add_subcommand(
       "fit",
       "Deep Keplerian fit of one star (JSON star file: catalogue solutions, host-mass prior, relative "
-      "astrometry, RVs): local minima (Ceres) from starts drawn from the imaged positions and motion (else "
-      "from the prior), and the posterior from independent ensembles of walkers (stretch and "
+      "astrometry, RVs): local minima (Ceres) from starts drawn half from the imaged positions and motion "
+      "and half from the prior (all from the prior without imaging), and the posterior from independent ensembles of walkers (stretch and "
       "differential-evolution moves) in the companion's relative position and velocity at the mean "
       "imaging epoch; R-hat across the chains and autocorrelation times checked. A progress bar on a "
       "terminal.");
@@ -145,7 +145,7 @@ void setup_fit(CLI::App& app, Runner& run) {
       ->check(CLI::PositiveNumber)->capture_default_str();
   add_prior_options(sub, f.prior, o->ecc,
                     "without relative astrometry and below this sig_joint: upper limit (mass prior uniform)");
-  sub->add_option("--starts", f.starts, "optimiser starts (from the imaged positions and motion, else the prior)")
+  sub->add_option("--starts", f.starts, "optimiser starts (with imaging half from the imaged positions and motion, half from the prior)")
       ->check(CLI::Range(1, 100000))->capture_default_str();
   sub->add_option("--walkers", f.walkers, "walkers per chain (even, >= 2 x parameters; 0 = the even max(32, 2 x parameters))")
       ->check(CLI::Range(0, 100000))->capture_default_str();
