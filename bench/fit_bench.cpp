@@ -23,7 +23,6 @@
 #include "heft/fit.hpp"
 #include "heft/kepler.hpp"
 #include "heft/simulate.hpp"
-#include "heft/stats.hpp"
 
 using namespace heft;
 
@@ -31,11 +30,6 @@ namespace {
 
 double seconds_since(std::chrono::steady_clock::time_point t0) {
   return std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
-}
-
-double quantile(std::vector<std::pair<double, double>> v, double p) {
-  std::sort(v.begin(), v.end());
-  return weighted_quantile(v, 1.0, p);
 }
 
 }  // namespace
@@ -94,31 +88,22 @@ int main(int argc, char** argv) {
   // masses' and catalogues' noise draws, and the sample would be half as big.
   for (const double arc : {2.0, 8.0})
     for (long i = arc == 2.0 ? 0 : 100000, used = 0; used < n_sys; ++i) {
-      StarFile f;
+      StarRecord star;
       SimTruth t;
-      simulate_star(sm, i, f.star, t);
-      const ScreenRow row = screen_star(f.star, "", ScreenOptions{});
+      simulate_star(sm, i, star, t);
+      const ScreenRow row = screen_star(star, "", ScreenOptions{});
       if (!row.ok()) continue;
-      f.host_mass = {HostMassPrior::Kind::kNormal, f.star.mass_msun, f.star.mass_error_msun};
-      Rng rng = Rng::for_star(77, f.star.id);
-      for (double ep : {2025.0, 2025.0 + arc / 2, 2025.0 + arc})
-        f.relative.push_back(observe_companion(t, f.star.late.epoch_yr, ep, 2.0, 0.3, rng));
+      Rng rng = Rng::for_star(77, star.id);
+      const StarFile f = follow_up_star_file(star, t, {2025.0, 2025.0 + arc / 2, 2025.0 + arc}, 2.0, 0.3, rng);
       const FitModel m(f, row.result, o);
       const FitResult r = run_fit(m, o, f.star.id);
-      std::vector<std::pair<double, double>> v[3];
-      for (Eigen::Index k = 0; k < r.chain.samples.rows(); ++k) {
-        const Eigen::VectorXd p = r.chain.samples.row(k).transpose();
-        const OrbitDraw d = m.orbit(p.data());
-        const double w = r.sample_weight[k];
-        v[0].emplace_back(d.mass_mjup, w);
-        v[1].emplace_back(d.a_au, w);
-        v[2].emplace_back(d.ecc, w);
-      }
+      const std::vector<OrbitDraw> draws = posterior_draws(m, r);
       System s{};
       const double truth[3] = {t.mass_mjup, t.a_au, t.ecc};
+      double OrbitDraw::*const field[3] = {&OrbitDraw::mass_mjup, &OrbitDraw::a_au, &OrbitDraw::ecc};
       for (int k = 0; k < 3; ++k) {
-        s.in68[k] = truth[k] >= quantile(v[k], 0.16) && truth[k] <= quantile(v[k], 0.84);
-        s.in95[k] = truth[k] >= quantile(v[k], 0.025) && truth[k] <= quantile(v[k], 0.975);
+        s.in68[k] = in_interval(draws, field[k], truth[k], 0.16, 0.84);
+        s.in95[k] = in_interval(draws, field[k], truth[k], 0.025, 0.975);
       }
       const Orbit<double> to = truth_orbit(t, f.star.late.epoch_yr);
       const double mean_anom = to.mean_anom_ref_rad + units::kTwoPi * (m.ref_epoch_yr() - to.ref_epoch_yr) / to.period_yr;

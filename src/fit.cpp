@@ -110,12 +110,27 @@ ojson minimum_json(const FitModel& m, const FitMinimum& mn, bool with_cov) {
 
 }  // namespace
 
+namespace {
+
+// The draws' values of one quantity with their weights, sorted.
+std::vector<std::pair<double, double>> weighted_values(const std::vector<OrbitDraw>& draws, double OrbitDraw::*field) {
+  std::vector<std::pair<double, double>> v;
+  for (const OrbitDraw& d : draws) v.emplace_back(d.*field, d.weight);
+  std::sort(v.begin(), v.end());
+  return v;
+}
+
+}  // namespace
+
+bool in_interval(const std::vector<OrbitDraw>& draws, double OrbitDraw::*field, double value, double p_lo, double p_hi) {
+  const auto v = weighted_values(draws, field);
+  return value >= weighted_quantile(v, 1.0, p_lo) && value <= weighted_quantile(v, 1.0, p_hi);
+}
+
 ojson posterior_quantiles(const FitResult& r, const std::vector<OrbitDraw>& draws) {
   ojson q;
   auto add = [&](const char* name, double OrbitDraw::*field) {
-    std::vector<std::pair<double, double>> v;
-    for (std::size_t k = 0; k < draws.size(); ++k) v.emplace_back(draws[k].*field, r.sample_weight[k]);
-    std::sort(v.begin(), v.end());
+    const auto v = weighted_values(draws, field);
     auto at = [&](double p) { return weighted_quantile(v, 1.0, p); };
     if (r.upper_limit && field == &OrbitDraw::mass_mjup)
       q[name] = quantiles_json({{68, at(0.68)}, {95, at(0.95)}});

@@ -228,6 +228,13 @@ void finish_minimum(const FitModel& m, FitMinimum& mn) {
   derive(mn);
 }
 
+double distance2_to_minimum(const Eigen::VectorXd& p, const Eigen::VectorXd& at, const Eigen::MatrixXd& chol, int nc) {
+  Eigen::VectorXd d = (p - at).head(nc);
+  d[kNode] = wrap_pi(d[kNode]);
+  d[kLambda] = wrap_pi(d[kLambda]);
+  return chol.triangularView<Eigen::Lower>().solve(d).squaredNorm();
+}
+
 std::vector<FitMinimum> merge_minima(const FitModel& m, std::vector<FitMinimum> minima) {
   const int nc = kFitCore + m.n_instruments();
   std::vector<FitMinimum> out;
@@ -236,10 +243,7 @@ std::vector<FitMinimum> merge_minima(const FitModel& m, std::vector<FitMinimum> 
     bool merged = false;
     for (std::size_t k = 0; k < out.size() && !merged; ++k) {
       if (chol[k].size() == 0) continue;
-      Eigen::VectorXd d = (mn.p - out[k].p).head(nc);
-      d[kNode] = wrap_pi(d[kNode]);
-      d[kLambda] = wrap_pi(d[kLambda]);
-      if (chol[k].triangularView<Eigen::Lower>().solve(d).squaredNorm() < kSameMinimumMahalanobis2) {
+      if (distance2_to_minimum(mn.p, out[k].p, chol[k], nc) < kSameMinimumMahalanobis2) {
         out[k].hits += mn.hits;
         merged = true;
       }

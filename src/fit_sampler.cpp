@@ -65,16 +65,13 @@ Eigen::VectorXd mirror_orbit(Eigen::VectorXd p) {
   return p;
 }
 
-// Starts with relative astrometry: the minima are the modes (a minimum
-// within a Mahalanobis distance of 3 of a better one is the same mode; the
-// mirror orbit with omega + pi, Omega + pi is a separate mode of equal
-// likelihood without RVs, sampled once with half its samples mirrored).
-// Each mode keeps its Laplace evidence
-// exp(-nlp) sqrt(det C) (e.g. MacKay 2003, Information Theory, Inference and
-// Learning Algorithms, ch. 27) as its posterior weight and gets an ensemble
-// of its own, started from N(p, C / 4) in the core and +-0.1 in the ln
-// jitters: walkers of this sampler do not cross between modes, and pairing
-// walkers of different modes would only waste moves. Modes whose evidence
+// Starts with relative astrometry: the minima, as merge_minima leaves them,
+// are the modes; without RVs the mirror orbit with omega + pi, Omega + pi
+// has the same likelihood and joins its mode (sampled once, half its
+// samples mirrored). Each mode keeps its Laplace evidence exp(-nlp)
+// sqrt(det C) (e.g. MacKay 2003, Information Theory, Inference and Learning
+// Algorithms, ch. 27) as its posterior weight, and its walkers start from
+// N(p, C / 4) in the core and +-0.1 in the ln jitters. Modes whose evidence
 // is below kMinModeEvidenceRatio of the strongest's are dropped, at most
 // kMaxModes are kept (docs/method.md, Sect. 9).
 std::vector<EnsembleStart> mode_starts(const FitModel& m, const std::vector<FitMinimum>& minima, int walkers,
@@ -94,24 +91,15 @@ std::vector<EnsembleStart> mode_starts(const FitModel& m, const std::vector<FitM
     if (llt.info() != Eigen::Success) continue;
     const Eigen::MatrixXd L = llt.matrixL();
     const double log_z = -0.5 * mn.m2lnpost + L.diagonal().array().log().sum();
-    bool same = false;
-    for (auto& x : ms) {
-      auto near = [&](const Eigen::VectorXd& q) {
-        Eigen::VectorXd d = (q - x.mn->p).head(nc);
-        d[kNode] = wrap_pi(d[kNode]);
-        d[kLambda] = wrap_pi(d[kLambda]);
-        return x.chol.triangularView<Eigen::Lower>().solve(d).squaredNorm() < 9.0;
-      };
-      if (near(mn.p)) {
-        same = true;
-      } else if (symmetric && !x.mirrored && near(mirror_orbit(mn.p))) {
-        // The mirror of a mode: sampled once, half its samples mirrored.
+    bool mirror = false;
+    for (auto& x : ms)
+      if (symmetric && !x.mirrored &&
+          distance2_to_minimum(mirror_orbit(mn.p), x.mn->p, x.chol, nc) < kSameMinimumMahalanobis2) {
         x.log_z += std::log1p(std::exp(log_z - x.log_z));
-        x.mirrored = same = true;
+        x.mirrored = mirror = true;
+        break;
       }
-      if (same) break;
-    }
-    if (same) continue;
+    if (mirror) continue;
     ms.push_back({&mn, L, log_z, false});
   }
   if (ms.empty()) ms.push_back({&minima.front(), Eigen::MatrixXd::Identity(nc, nc) * 1e-6, 0.0, false});

@@ -203,6 +203,16 @@ RelativeEpoch observe_companion(const SimTruth& t, double late_epoch_yr, double 
           sep_error_mas, pa_error_deg, 0.0};
 }
 
+StarFile follow_up_star_file(const StarRecord& star, const SimTruth& t, const std::vector<double>& epochs_yr,
+                             double sep_error_mas, double pa_error_deg, Rng& rng) {
+  StarFile f;
+  f.star = star;
+  f.host_mass = {HostMassPrior::Kind::kNormal, star.mass_msun, star.mass_error_msun};
+  for (double ep : epochs_yr)
+    f.relative.push_back(observe_companion(t, star.late.epoch_yr, ep, sep_error_mas, pa_error_deg, rng));
+  return f;
+}
+
 const std::vector<ColumnUnit>& truth_column_units() {
   static const std::vector<ColumnUnit> cols = {
       {"id", ""},           {"host_mass", "Msun"},     {"parallax", "mas"},        {"distance_pc", "pc"},

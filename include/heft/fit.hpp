@@ -67,6 +67,11 @@ std::vector<OrbitDraw> posterior_draws(const FitModel& model, const FitResult& r
 /// mass gets q68 and q95 only.
 nlohmann::ordered_json posterior_quantiles(const FitResult& r, const std::vector<OrbitDraw>& draws);
 
+/// Whether `value` lies between the weighted quantiles p_lo and p_hi (e.g.
+/// 0.16 and 0.84) of the draws' `field`: the check of a coverage study
+/// against an injected truth.
+bool in_interval(const std::vector<OrbitDraw>& draws, double OrbitDraw::*field, double value, double p_lo, double p_hi);
+
 /// The priors of a run, with their values (the JSON "priors" object).
 nlohmann::ordered_json fit_priors_json(const FitModel& model, const StarFile& f);
 

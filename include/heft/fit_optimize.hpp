@@ -56,6 +56,12 @@ void finish_minimum(const FitModel& m, FitMinimum& mn);
 /// (in its covariance, angles wrapped) are the same basin.
 inline constexpr double kSameMinimumMahalanobis2 = 9.0;
 
+/// Squared Mahalanobis distance of parameters `p` from a minimum at `at` in
+/// the core and the RV offsets (the first `nc` parameters; Omega and the
+/// mean longitude wrapped), with `chol` the Cholesky factor of the
+/// minimum's covariance.
+double distance2_to_minimum(const Eigen::VectorXd& p, const Eigen::VectorXd& at, const Eigen::MatrixXd& chol, int nc);
+
 /// Distinct minima in the statistical sense: each minimum (best first, with
 /// finish_minimum applied) joins the first better one whose covariance puts
 /// it within kSameMinimumMahalanobis2 (its hits added); what remains are

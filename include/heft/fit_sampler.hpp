@@ -42,10 +42,10 @@ struct EnsembleStart {
 /// the same sky motion with the line of sight reversed.
 Eigen::VectorXd mirror_orbit(Eigen::VectorXd p);
 
-/// With relative astrometry: the modes among `minima` (a minimum within a
-/// Mahalanobis distance of 3 of a better one is the same mode; without RVs
-/// a mirror orbit joins its mode), each weighted by its Laplace evidence
-/// and started from N(p, C / 4) in the core and +-0.1 in the ln jitters.
+/// With relative astrometry: the modes among `minima` as merge_minima
+/// leaves them (without RVs a mirror orbit joins its mode), each weighted
+/// by its Laplace evidence and started from N(p, C / 4) in the core and
+/// +-0.1 in the ln jitters.
 std::vector<EnsembleStart> mode_starts(const FitModel& m, const std::vector<FitMinimum>& minima, int walkers,
                                        Rng& rng);
 

@@ -6,6 +6,7 @@
 #include <Eigen/Core>
 #include <cstdint>
 #include <string>
+#include <vector>
 
 #include "heft/catalog.hpp"
 #include "heft/propagate.hpp"
@@ -94,6 +95,13 @@ Orbit<double> truth_orbit(const SimTruth& t, double late_epoch_yr);
 /// angle at epoch_yr with Gaussian errors (mas, deg).
 RelativeEpoch observe_companion(const SimTruth& t, double late_epoch_yr, double epoch_yr,
                                 double sep_error_mas, double pa_error_deg, Rng& rng);
+
+/// The follow-up star file of a simulated star with a companion: its
+/// catalogue row, a normal host-mass prior from its mass columns, and one
+/// relative-astrometry epoch per entry of `epochs_yr` (observe_companion,
+/// in order, from `rng`).
+StarFile follow_up_star_file(const StarRecord& star, const SimTruth& t, const std::vector<double>& epochs_yr,
+                             double sep_error_mas, double pa_error_deg, Rng& rng);
 
 /// Truth table header and rows (CSV, with newline).
 /// The truth table's columns with their units, in output order.

@@ -49,14 +49,12 @@ void write_star_file(const SimulateCliOptions& o) {
     throw CLI::ValidationError("--star-file needs --star-file-id and --imaging-epochs");
   for (long i = 0; i < m.n_stars; ++i) {
     if (simulated_id(m, i) != o.star_file_id) continue;
-    StarFile f;
+    StarRecord star;
     SimTruth t;
-    simulate_star(m, i, f.star, t);
+    simulate_star(m, i, star, t);
     if (!t.companion) throw CLI::ValidationError("--star-file-id: star " + o.star_file_id + " has no companion");
-    f.host_mass = {HostMassPrior::Kind::kNormal, f.star.mass_msun, f.star.mass_error_msun};
-    Rng rng = Rng::for_star(m.seed ^ 0x1a6e5ULL, f.star.id);
-    for (double ep : o.imaging_epochs)
-      f.relative.push_back(observe_companion(t, f.star.late.epoch_yr, ep, o.sep_error_mas, o.pa_error_deg, rng));
+    Rng rng = Rng::for_star(m.seed ^ 0x1a6e5ULL, star.id);
+    const StarFile f = follow_up_star_file(star, t, o.imaging_epochs, o.sep_error_mas, o.pa_error_deg, rng);
     write_file_atomic(o.star_file, star_file_json(f));
     return;
   }
