@@ -606,20 +606,21 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const Draw
                        : -std::numeric_limits<double>::infinity();
   p.mass_lo95 = p.mass_lo68 = p.mass_med = p.mass_hi68 = p.mass_hi95 = kAbsent;
   if (sw > 0) {
-    std::vector<std::pair<double, double>> sorted;
-    sorted.reserve(samples.size());
+    std::vector<std::pair<double, double>> pairs;
+    pairs.reserve(samples.size());
     for (std::size_t i = 0; i < samples.size(); ++i)
-      if (wts.w[i] > 0) sorted.emplace_back(samples[i].m2_mjup, wts.w[i]);
-    std::sort(sorted.begin(), sorted.end());
+      if (wts.w[i] > 0) pairs.emplace_back(samples[i].m2_mjup, wts.w[i]);
     if (upper) {
-      p.mass_hi68 = weighted_quantile(sorted, sw, 0.68);
-      p.mass_hi95 = weighted_quantile(sorted, sw, 0.95);
+      const std::vector<double> q = weighted_quantiles(pairs, sw, {0.68, 0.95});
+      p.mass_hi68 = q[0];
+      p.mass_hi95 = q[1];
     } else {
-      p.mass_lo95 = weighted_quantile(sorted, sw, 0.025);
-      p.mass_lo68 = weighted_quantile(sorted, sw, 0.16);
-      p.mass_med = weighted_quantile(sorted, sw, 0.5);
-      p.mass_hi68 = weighted_quantile(sorted, sw, 0.84);
-      p.mass_hi95 = weighted_quantile(sorted, sw, 0.975);
+      const std::vector<double> q = weighted_quantiles(pairs, sw, {0.025, 0.16, 0.5, 0.84, 0.975});
+      p.mass_lo95 = q[0];
+      p.mass_lo68 = q[1];
+      p.mass_med = q[2];
+      p.mass_hi68 = q[3];
+      p.mass_hi95 = q[4];
     }
   }
   if (opt.keep_draws && sw > 0) {

@@ -124,6 +124,54 @@ double weighted_quantile(const std::vector<std::pair<double, double>>& sorted, d
   return sorted.empty() ? std::numeric_limits<double>::quiet_NaN() : sorted.back().first;
 }
 
+std::vector<double> weighted_quantiles(std::vector<std::pair<double, double>>& pairs, double total,
+                                       const std::vector<double>& ps) {
+  std::vector<double> out;
+  // [lo, hi) holds the answer; `below` is the weight of the pairs before lo
+  // (all ordered below it). Quantiles ascend, so each search starts where
+  // the previous one ended.
+  std::size_t lo = 0;
+  double below = 0.0;
+  for (const double p : ps) {
+    if (pairs.empty()) {
+      out.push_back(std::numeric_limits<double>::quiet_NaN());
+      continue;
+    }
+    const double target = p * total;
+    std::size_t hi = pairs.size();
+    while (hi - lo > 64) {
+      const auto mid = pairs.begin() + static_cast<std::ptrdiff_t>(lo + (hi - lo) / 2);
+      std::nth_element(pairs.begin() + static_cast<std::ptrdiff_t>(lo), mid,
+                       pairs.begin() + static_cast<std::ptrdiff_t>(hi));
+      double left = below;
+      for (auto it = pairs.begin() + static_cast<std::ptrdiff_t>(lo); it != mid; ++it) left += it->second;
+      if (left >= target) {
+        hi = static_cast<std::size_t>(mid - pairs.begin());
+      } else {
+        lo = static_cast<std::size_t>(mid - pairs.begin());
+        below = left;
+      }
+    }
+    std::sort(pairs.begin() + static_cast<std::ptrdiff_t>(lo), pairs.begin() + static_cast<std::ptrdiff_t>(hi));
+    // Not reached within [lo, hi) only by rounding: then the answer is the
+    // pair at hi (the smallest beyond), or the largest of all.
+    double acc = below, v = hi < pairs.size() ? pairs[hi].first : pairs[hi - 1].first;
+    std::size_t k = lo;
+    for (; k < hi; ++k) {
+      acc += pairs[k].second;
+      if (acc >= target) {
+        v = pairs[k].first;
+        break;
+      }
+    }
+    out.push_back(v);
+    // The next quantile lies at k or beyond: the pairs before k are below.
+    for (std::size_t j = lo; j < k && j < hi; ++j) below += pairs[j].second;
+    lo = std::min(k, hi);
+  }
+  return out;
+}
+
 std::vector<double> log_grid(double lo, double hi, int n) {
   std::vector<double> g(n);
   for (int k = 0; k < n; ++k)

@@ -1,4 +1,6 @@
 #include <catch2/catch.hpp>
+#include <algorithm>
+#include <random>
 #include <cmath>
 #include <cstdio>
 #include <cstdlib>
@@ -102,4 +104,33 @@ TEST_CASE("chi2 to sigma against mpmath at 50 digits, up to 270 sigma", "[stats]
   }
   std::fclose(f);
   CHECK(max_sigma > 270.0);
+}
+
+TEST_CASE("weighted quantiles by selection equal those of the sorted values", "[stats]") {
+  // Oracle: weighted_quantile on the fully sorted pairs (its definition).
+  // Weights are multiples of 1/8 so every cumulative sum is exact and the
+  // two must agree exactly; values include ties.
+  const std::vector<double> ps = {0.0, 0.025, 0.16, 0.5, 0.84, 0.975, 1.0};
+  for (const std::size_t n : {std::size_t{0}, std::size_t{1}, std::size_t{7}, std::size_t{65},
+                              std::size_t{1000}, std::size_t{32768}}) {
+    std::mt19937_64 gen(n + 1);
+    std::vector<std::pair<double, double>> pairs;
+    double total = 0.0;
+    for (std::size_t i = 0; i < n; ++i) {
+      const double v = static_cast<double>(gen() % (n / 3 + 1)) + 0.25 * static_cast<double>(gen() % 4);
+      const double w = static_cast<double>(gen() % 17) / 8.0;
+      pairs.emplace_back(v, w);
+      total += w;
+    }
+    std::vector<std::pair<double, double>> sorted = pairs;
+    std::sort(sorted.begin(), sorted.end());
+    const std::vector<double> got = weighted_quantiles(pairs, total, ps);
+    REQUIRE(got.size() == ps.size());
+    for (std::size_t k = 0; k < ps.size(); ++k) {
+      INFO("n " << n << " p " << ps[k]);
+      const double want = weighted_quantile(sorted, total, ps[k]);
+      if (std::isnan(want)) CHECK(std::isnan(got[k]));
+      else CHECK(got[k] == want);
+    }
+  }
 }

@@ -38,6 +38,13 @@ double normal_quantile(double p);
 /// cumulative weight reaches p total (NaN when empty).
 double weighted_quantile(const std::vector<std::pair<double, double>>& sorted, double total, double p);
 
+/// The same quantiles for several p (ascending) of unsorted (value, weight)
+/// pairs by selection (expected linear time, no full sort); `pairs` is
+/// reordered. Equal to weighted_quantile on the sorted pairs up to the
+/// rounding of the cumulative sums (NaN when empty).
+std::vector<double> weighted_quantiles(std::vector<std::pair<double, double>>& pairs, double total,
+                                       const std::vector<double>& ps);
+
 /// Effective number of samples of weights with sum `sum_w` and sum of
 /// squares `sum_w2`: (sum w)^2 / sum w^2 (Kish 1965, Survey Sampling,
 /// Sect. 11.7); 0 when there is no weight.
