@@ -193,6 +193,7 @@ struct DesignNode {
   Mat42 k, dk;
 };
 
+
 // The unscaled design matrix and its derivative with respect to ln P, from
 // one Jet evaluation of the window model (orbit o at node 0).
 void design_and_derivative(const Projection& pr, const Orbit<double>& o, const Window& early,
@@ -302,6 +303,17 @@ class PeriodModel {
   std::array<DesignNode, kMaxHermiteIntervals + 1> nodes_;
 };
 
+// x = ln P - ln P0 = log1p(-q) / 2 (Kepler's third law, m1 + m2 = m1 / (1 - q));
+// the q used for the period is capped at kPeriodQCap.
+double x_of(double log_1mq) { return 0.5 * std::max(log_1mq, kLog1mPeriodQCap); }
+
+// log(exp(a) + exp(b)) without overflow or underflow.
+double log_add_exp(double a, double b) {
+  const double hi = std::max(a, b), lo = std::min(a, b);
+  if (!std::isfinite(hi)) return hi;
+  return hi + std::log1p(std::exp(lo - hi));
+}
+
 // Weighted z samples of one draw of (i, omega, e, M0, m1, parallax):
 // z = q (cos Omega, sin Omega) is marginalised through its exact Gaussian
 // likelihood and importance-sampled against the mass prior. `log_extra` is
@@ -310,9 +322,6 @@ class PeriodModel {
 int weigh_draw(const Problem& pb, const Draw& dr, const double* dev, double log_extra, Sample* out) {
   const AnomalyData& d = pb.d;
   const ZPlanePrior& prior = pb.prior;
-  // x = ln P - ln P0 = log1p(-q) / 2 (Kepler's third law, m1 + m2 = m1 / (1 - q));
-  // the q used for the period is capped at kPeriodQCap.
-  auto x_of = [](double log_1mq) { return 0.5 * std::max(log_1mq, kLog1mPeriodQCap); };
   const double p0 = period_from_a(pb.a_au, dr.m1);
   const double x_min = x_of(std::log1p(-dr.q_hi));
   PeriodModel model(pb, dr, p0, x_min);
@@ -399,7 +408,9 @@ Weights weights_of(const std::vector<Sample>& ss) {
   for (const auto& s : ss) r.max_log_w = std::max(r.max_log_w, s.log_w);
   if (!std::isfinite(r.max_log_w)) return r;
   for (std::size_t i = 0; i < ss.size(); ++i) {
-    r.w[i] = std::exp(ss[i].log_w - r.max_log_w);
+    // exp underflows to zero below -745.2 (and takes libm's slow path there).
+    const double t = ss[i].log_w - r.max_log_w;
+    r.w[i] = t > -746.0 ? std::exp(t) : 0.0;
     r.sum += r.w[i];
     r.sum2 += r.w[i] * r.w[i];
   }
@@ -521,8 +532,7 @@ long weigh_proposal(const Problem& pb, const DrawSet& ds, const Proposal& prop, 
       const double lp = log_prior_coords(c, opt.prior.ecc);
       // Mixture density 0.5 prior + 0.5 kernels.
       const double lk = mixture.log_density(c, scratch);
-      const double mix =
-          std::isfinite(lp) ? std::max(lp, lk) + std::log1p(std::exp(-std::abs(lp - lk))) - std::log(2.0) : lk;
+      const double mix = std::isfinite(lp) ? log_add_exp(lp, lk) - std::log(2.0) : lk;
       log_extra[j] = std::isfinite(lp) ? lp - mix : -std::numeric_limits<double>::infinity();
     }
   }
@@ -580,13 +590,25 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const Draw
   // runs: enough for percentiles to ~2 % of the band.
   constexpr double kAdaptEss = 1000.0;
   std::vector<Draw> next;
-  for (int round = 0; round < 3 && effective_sample_size(wts.sum, wts.sum2) < kAdaptEss; ++round) {
+  int rounds = 0;
+  for (; rounds < 3 && effective_sample_size(wts.sum, wts.sum2) < kAdaptEss; ++rounds) {
     r.proposal = proposal_from(*used, wts, nz, opt.prior.ecc);
     evaluations += weigh_proposal(pb, ds, r.proposal, next, samples);
     r.draws_weighed += static_cast<long>(n);
     wts = weights_of(samples);
     adapted.swap(next);
     used = &adapted;
+  }
+  // A neighbour's proposal is passed on only while the posterior stays
+  // where its kernels are: when the kernels' draws hold less than half the
+  // weight here, the posterior is broad again, and the next separation
+  // starts from the prior draws.
+  if (seed && rounds == 0 && wts.sum > 0) {
+    double kernel_w = 0.0;
+    for (std::size_t j = 0; j < n; ++j)
+      if (ds.pick[j] >= 0.5)
+        for (int s = 0; s < nz; ++s) kernel_w += wts.w[j * nz + s];
+    if (kernel_w < 0.5 * wts.sum) r.proposal = Proposal{};
   }
   const std::vector<Draw>& fin = *used;
   r.window_evaluations = evaluations;
