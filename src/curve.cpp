@@ -43,7 +43,8 @@ struct Projection {
 template <typename T>
 Eigen::Matrix<T, 2, 2> unit_anomalies(const Projection& pr, const Orbit<T>& o, const Window& early,
                                       const Window& late) {
-  const WindowBasis<T> be = window_basis(o, early), bl = window_basis(o, late);
+  WindowBasis<T> be, bl;
+  window_basis_pair(o, early, late, be, bl);
   auto host = [&](const T& x, const T& y) {  // host side of the relative orbit
     return Eigen::Matrix<T, 2, 1>(-(pr.A * x + pr.F * y), -(pr.B * x + pr.G * y));
   };
@@ -608,7 +609,7 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const Draw
     for (std::size_t j = 0; j < n; ++j)
       if (ds.pick[j] >= 0.5)
         for (int s = 0; s < nz; ++s) kernel_w += wts.w[j * nz + s];
-    if (kernel_w < 0.5 * wts.sum) r.proposal = Proposal{};
+    if (kernel_w < 0.5 * wts.sum) r.proposal.anc.clear();
   }
   const std::vector<Draw>& fin = *used;
   r.window_evaluations = evaluations;

@@ -39,6 +39,13 @@ struct KeplerSolution {
 /// to periastron included (tests/kepler_test.cpp).
 KeplerSolution kepler_solution(double mean_anom_rad, double ecc);
 
+/// kepler_solution for four (M, e) pairs at once, in SIMD lanes where the
+/// processor has AVX2 (a clone chosen at load time; SSE2 otherwise).
+/// Given: M[4] (rad), e[4] (0 <= e < 1). Returned: out[4]. Each lane's
+/// result is independent of the others; it equals kepler_solution's to
+/// round-off (FMA contraction in the AVX2 clone), tests/kepler_test.cpp.
+void kepler_solutions4(const double* mean_anom_rad, const double* ecc, KeplerSolution* out);
+
 /// The eccentric anomaly alone: kepler_solution(M, e).E.
 inline double solve_kepler(double mean_anom_rad, double ecc) {
   return kepler_solution(mean_anom_rad, ecc).E;
@@ -63,13 +70,36 @@ inline KeplerState<double> kepler_state(double mean_anom_rad, double ecc) {
   const KeplerSolution k = kepler_solution(mean_anom_rad, ecc);
   return {k.E, k.sin_E, k.cos_E};
 }
+/// The Jet state from the solution at the value parts, by the implicit
+/// derivative dE = (dM + sin E de) / (1 - e cos E).
+template <int N>
+KeplerState<ceres::Jet<double, N>> jet_state(const KeplerSolution& k, const ceres::Jet<double, N>& m,
+                                             const ceres::Jet<double, N>& e) {
+  using J = ceres::Jet<double, N>;
+  const Eigen::Matrix<double, N, 1> dE = (m.v + k.sin_E * e.v) / (1.0 - e.a * k.cos_E);
+  return {J(k.E, dE), J(k.sin_E, k.cos_E * dE), J(k.cos_E, -k.sin_E * dE)};
+}
 template <int N>
 KeplerState<ceres::Jet<double, N>> kepler_state(const ceres::Jet<double, N>& m,
                                                 const ceres::Jet<double, N>& e) {
-  using J = ceres::Jet<double, N>;
-  const KeplerSolution k = kepler_solution(m.a, e.a);
-  const Eigen::Matrix<double, N, 1> dE = (m.v + k.sin_E * e.v) / (1.0 - e.a * k.cos_E);
-  return {J(k.E, dE), J(k.sin_E, k.cos_E * dE), J(k.cos_E, -k.sin_E * dE)};
+  return jet_state(kepler_solution(m.a, e.a), m, e);
+}
+
+/// kepler_state for four mean anomalies of one orbit, solved as one batch
+/// (kepler_solutions4); Jets get the same implicit derivative.
+inline void kepler_states4(const double* m, double e, KeplerState<double>* out) {
+  const double es[4] = {e, e, e, e};
+  KeplerSolution k[4];
+  kepler_solutions4(m, es, k);
+  for (int i = 0; i < 4; ++i) out[i] = {k[i].E, k[i].sin_E, k[i].cos_E};
+}
+template <int N>
+void kepler_states4(const ceres::Jet<double, N>* m, const ceres::Jet<double, N>& e,
+                    KeplerState<ceres::Jet<double, N>>* out) {
+  const double ma[4] = {m[0].a, m[1].a, m[2].a, m[3].a}, es[4] = {e.a, e.a, e.a, e.a};
+  KeplerSolution k[4];
+  kepler_solutions4(ma, es, k);
+  for (int i = 0; i < 4; ++i) out[i] = jet_state(k[i], m[i], e);
 }
 
 /// Eccentric anomaly alone, for any scalar.

@@ -62,6 +62,56 @@ void window_antiderivatives(const KeplerState<T>& k, const T& e, T f[4]) {
 }
 }  // namespace detail
 
+namespace detail {
+/// Mean anomalies at the ends of a continuous window, shifted by the same
+/// whole turns (only differences matter).
+template <typename T>
+void window_end_anomalies(const Orbit<T>& o, const Window& w, T& m_start, T& m_end) {
+  using std::floor;
+  const double turns = units::kTwoPi * floor(scalar_of(mean_anomaly(o, w.start_yr)) / units::kTwoPi);
+  m_start = mean_anomaly(o, w.start_yr) - T(turns);
+  m_end = mean_anomaly(o, w.end_yr) - T(turns);
+}
+
+/// Whether window_basis's closed forms apply: 0 <= e < 1, finite P > 0.
+template <typename T>
+bool window_domain(const Orbit<T>& o) {
+  const double e_val = scalar_of(o.ecc), p_val = scalar_of(o.period_yr);
+  return e_val >= 0.0 && e_val < 1.0 && p_val > 0.0 && std::isfinite(p_val);
+}
+
+/// The window fit from the sums s0 = sum w, s1 = sum w tau, s2 = sum w tau^2
+/// and the data sums of X and Y (tau = t - t_ref).
+template <typename T>
+WindowBasis<T> line_fit(const T& s0, const T& s1, const T& s2, const T& sx, const T& sxt, const T& sy,
+                        const T& syt) {
+  const T det = s0 * s2 - s1 * s1;
+  const T xs = (s0 * sxt - s1 * sx) / det, ys = (s0 * syt - s1 * sy) / det;
+  return {(sx - xs * s1) / s0, xs, (sy - ys * s1) / s0, ys};
+}
+
+/// Window fit over a continuous window from the Kepler states at its ends
+/// (mean anomalies m_start, m_end from window_end_anomalies).
+template <typename T>
+WindowBasis<T> continuous_window_basis(const Orbit<T>& o, const Window& w, const T& m_start,
+                                       const KeplerState<T>& k_start, const KeplerState<T>& k_end) {
+  using std::sqrt;
+  const T e = o.ecc;
+  const T b = sqrt(T(1.0) - e * e);
+  const T k = o.period_yr / T(units::kTwoPi);  // yr per rad of mean anomaly
+  const double ts = w.start_yr - w.ref_epoch_yr, te = w.end_yr - w.ref_epoch_yr;
+  T fs[4], fe[4];
+  window_antiderivatives(k_start, e, fs);
+  window_antiderivatives(k_end, e, fe);
+  // dt = k w dE and tau = ts + k (u - Ms), u = E - e sin E (du = w dE).
+  const T c0 = T(ts) - k * m_start;
+  const T sx = k * (fe[0] - fs[0]);
+  const T sy = k * b * (fe[2] - fs[2]);
+  return line_fit(T(te - ts), T((te * te - ts * ts) / 2.0), T((te * te * te - ts * ts * ts) / 3.0), sx,
+                  c0 * sx + k * k * (fe[1] - fs[1]), sy, c0 * sy + k * k * b * (fe[3] - fs[3]));
+}
+}  // namespace detail
+
 /// Window fit of X(t), Y(t) for orbit (P, e, M0) (angles of `o` unused).
 /// Continuous sampling is integrated in eccentric anomaly,
 /// dt = P (1 - e cos E) dE / 2 pi, where every moment has an elementary
@@ -69,52 +119,54 @@ void window_antiderivatives(const KeplerState<T>& k, const T& e, T f[4]) {
 /// the cost does not grow with the number of orbits in the window.
 template <typename T>
 WindowBasis<T> window_basis(const Orbit<T>& o, const Window& w) {
-  using std::floor;
   using std::sqrt;
-  const T e = o.ecc;
-  const T b = sqrt(T(1.0) - e * e);
-  const T k = o.period_yr / T(units::kTwoPi);  // yr per rad of mean anomaly
-  T s0(0.0), s1(0.0), s2(0.0), sx(0.0), sxt(0.0), sy(0.0), syt(0.0);
-  const double e_val = scalar_of(e), p_val = scalar_of(o.period_yr);
-  if (!(e_val >= 0.0 && e_val < 1.0 && p_val > 0.0 && std::isfinite(p_val))) {
+  if (!detail::window_domain(o)) {
     const T nan(std::numeric_limits<double>::quiet_NaN());
     return {nan, nan, nan, nan};  // outside the domain: the caller sees NaN
   }
   if (w.times_yr.empty()) {
-    const double ts = w.start_yr - w.ref_epoch_yr, te = w.end_yr - w.ref_epoch_yr;
-    s0 = T(te - ts);
-    s1 = T((te * te - ts * ts) / 2.0);
-    s2 = T((te * te * te - ts * ts * ts) / 3.0);
-    // Both ends shifted by the same whole turns: only differences matter.
-    const double turns = units::kTwoPi * floor(scalar_of(mean_anomaly(o, w.start_yr)) / units::kTwoPi);
-    const T Ms = mean_anomaly(o, w.start_yr) - T(turns), Me = mean_anomaly(o, w.end_yr) - T(turns);
-    T fs[4], fe[4];
-    detail::window_antiderivatives(kepler_state(Ms, e), e, fs);
-    detail::window_antiderivatives(kepler_state(Me, e), e, fe);
-    // dt = k w dE and tau = ts + k (u - Ms), u = E - e sin E (du = w dE).
-    const T c0 = T(ts) - k * Ms;
-    sx = k * (fe[0] - fs[0]);
-    sxt = c0 * sx + k * k * (fe[1] - fs[1]);
-    sy = k * b * (fe[2] - fs[2]);
-    syt = c0 * sy + k * k * b * (fe[3] - fs[3]);
-  } else {
-    for (std::size_t i = 0; i < w.times_yr.size(); ++i) {
-      const T wi(w.weights.empty() ? 1.0 : w.weights[i]);
-      const double tau = w.times_yr[i] - w.ref_epoch_yr;
-      const KeplerState<T> k = kepler_state(mean_anomaly(o, w.times_yr[i]), e);
-      const T X = k.cos_E - e, Y = b * k.sin_E;
-      s0 += wi;
-      s1 += wi * tau;
-      s2 += wi * tau * tau;
-      sx += wi * X;
-      sxt += wi * X * tau;
-      sy += wi * Y;
-      syt += wi * Y * tau;
-    }
+    T ms, me;
+    detail::window_end_anomalies(o, w, ms, me);
+    return detail::continuous_window_basis(o, w, ms, kepler_state(ms, o.ecc), kepler_state(me, o.ecc));
   }
-  const T det = s0 * s2 - s1 * s1;
-  const T xs = (s0 * sxt - s1 * sx) / det, ys = (s0 * syt - s1 * sy) / det;
-  return {(sx - xs * s1) / s0, xs, (sy - ys * s1) / s0, ys};
+  const T e = o.ecc;
+  const T b = sqrt(T(1.0) - e * e);
+  T s0(0.0), s1(0.0), s2(0.0), sx(0.0), sxt(0.0), sy(0.0), syt(0.0);
+  for (std::size_t i = 0; i < w.times_yr.size(); ++i) {
+    const T wi(w.weights.empty() ? 1.0 : w.weights[i]);
+    const double tau = w.times_yr[i] - w.ref_epoch_yr;
+    const KeplerState<T> k = kepler_state(mean_anomaly(o, w.times_yr[i]), e);
+    const T X = k.cos_E - e, Y = b * k.sin_E;
+    s0 += wi;
+    s1 += wi * tau;
+    s2 += wi * tau * tau;
+    sx += wi * X;
+    sxt += wi * X * tau;
+    sy += wi * Y;
+    syt += wi * Y * tau;
+  }
+  return detail::line_fit(s0, s1, s2, sx, sxt, sy, syt);
+}
+
+/// window_basis for two windows at once (the two catalogues): with both
+/// windows continuous, the four Kepler solves at their ends run as one
+/// four-lane batch (kepler_solutions4); equal to two window_basis calls to
+/// round-off (tests/window_test.cpp).
+template <typename T>
+void window_basis_pair(const Orbit<T>& o, const Window& w1, const Window& w2, WindowBasis<T>& b1,
+                       WindowBasis<T>& b2) {
+  if (!w1.times_yr.empty() || !w2.times_yr.empty() || !detail::window_domain(o)) {
+    b1 = window_basis(o, w1);
+    b2 = window_basis(o, w2);
+    return;
+  }
+  T m[4];
+  detail::window_end_anomalies(o, w1, m[0], m[1]);
+  detail::window_end_anomalies(o, w2, m[2], m[3]);
+  KeplerState<T> k[4];
+  kepler_states4(m, o.ecc, k);
+  b1 = detail::continuous_window_basis(o, w1, m[0], k[0], k[1]);
+  b2 = detail::continuous_window_basis(o, w2, m[2], k[2], k[3]);
 }
 
 /// The catalogue-reported reflex of the host for a companion of mass ratio
