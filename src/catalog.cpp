@@ -223,7 +223,7 @@ StarTableReader::StarTableReader(std::istream& in, std::string name, WindowDefau
                        "missing required column '" + cols[k].name + "'");
 }
 
-bool StarTableReader::next(StarRecord& star, std::string& bad_reason) {
+bool StarTableReader::next_raw(RawStarRow& row) {
   // Rows of ids not asked for are passed over before their numbers are parsed.
   do {
     if (!csv_.next()) return false;
@@ -233,35 +233,61 @@ bool StarTableReader::next(StarRecord& star, std::string& bad_reason) {
                        "row has " + std::to_string(csv_.fields().size()) + " fields, header has " +
                            std::to_string(n_fields_));
   } while (keep_ && !keep_(csv_.fields()[field_of_column_[0]]));
-  const auto& f = csv_.fields();
+  row.line = csv_.line();
+  row.text.clear();
+  row.ends.clear();
+  row.columns.clear();
+  for (std::size_t i = 0; i < csv_.fields().size(); ++i) {
+    row.text += csv_.fields()[i];
+    row.ends.push_back(row.text.size());
+    row.columns.push_back(csv_.column(i));
+  }
+  return true;
+}
+
+void StarTableReader::parse(const RawStarRow& row, StarRecord& star, std::string& bad_reason) const {
+  auto field = [&](int i) {
+    const std::size_t lo = i == 0 ? 0 : row.ends[i - 1];
+    return std::string_view(row.text).substr(lo, row.ends[i] - lo);
+  };
   star = StarRecord{};
-  star.id = f[field_of_column_[0]];
+  star.id = field(field_of_column_[0]);
   // Ids travel into every table and JSON heft writes, one line per star.
   for (char c : star.id)
     if (static_cast<unsigned char>(c) < 0x20 || c == 0x7F)
-      throw InputError(csv_.name(), csv_.line(), csv_.column(field_of_column_[0]),
+      throw InputError(csv_.name(), row.line, row.columns[field_of_column_[0]],
                        "column 'id': contains a control character (line break, tab, ...)");
   bad_reason.clear();
   const auto& cols = columns();
   for (std::size_t k = 0; k < cols.size(); ++k) {
     const int fi = field_of_column_[k + 1];
     double& slot = cols[k].get(star);
-    if (fi < 0 || f[fi].empty()) {
+    const std::string_view f = fi < 0 ? std::string_view() : field(fi);
+    if (f.empty()) {
       if (cols[k].required && bad_reason.empty()) bad_reason = "missing_" + cols[k].name;
       if (is_corr_column(k)) slot = 0.0;
       continue;
     }
-    if (!parse_double(f[fi], slot))
-      throw InputError(csv_.name(), csv_.line(), csv_.column(fi),
-                       "column '" + cols[k].name + "': not a number: '" + clip_for_message(f[fi]) + "'");
+    if (!parse_double(f, slot))
+      throw InputError(csv_.name(), row.line, row.columns[fi],
+                       "column '" + cols[k].name + "': not a number: '" + clip_for_message(f) + "'");
   }
   if (!present(star.early.window_start_yr)) star.early.window_start_yr = windows_.early_start_yr;
   if (!present(star.early.window_end_yr)) star.early.window_end_yr = windows_.early_end_yr;
   if (!present(star.late.window_start_yr)) star.late.window_start_yr = windows_.late_start_yr;
   if (!present(star.late.window_end_yr)) star.late.window_end_yr = windows_.late_end_yr;
   if (bad_reason.empty()) bad_reason = validate_star(star);
+}
+
+void StarTableReader::finish(const StarRecord& star, std::string& bad_reason) {
   if (!star.id.empty() && !seen_ids_.insert(fnv1a64(star.id)).second && bad_reason.empty())
     bad_reason = "duplicate_id";
+}
+
+bool StarTableReader::next(StarRecord& star, std::string& bad_reason) {
+  if (!next_raw(raw_)) return false;
+  parse(raw_, star, bad_reason);
+  finish(star, bad_reason);
   return true;
 }
 

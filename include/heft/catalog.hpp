@@ -69,6 +69,16 @@ struct WindowDefaults {
   double late_start_yr = 2014.57, late_end_yr = 2017.41;
 };
 
+/// One data row of the star table as read, before its numbers are parsed:
+/// the fields back to back in `text` (field i ends at ends[i]) with the
+/// line and the column where each starts, for messages.
+struct RawStarRow {
+  long line = 0;
+  std::string text;
+  std::vector<std::size_t> ends;
+  std::vector<long> columns;
+};
+
 /// Reads the canonical star table row by row.
 ///
 /// Notes:
@@ -85,6 +95,15 @@ class StarTableReader {
   /// Reads the next row; false at end of input. On return `bad_reason` is
   /// empty for a valid row.
   bool next(StarRecord& star, std::string& bad_reason);
+  /// next() in three steps, so that a batch can parse rows in parallel
+  /// while reading and the duplicate-id check stay in file order:
+  /// next_raw reads a row (false at end of input; the field-count check),
+  /// parse fills `star` from it (thread-safe; InputError on a number that
+  /// does not parse or a control character in the id), and finish checks
+  /// the id against those before it (in file order).
+  bool next_raw(RawStarRow& row);
+  void parse(const RawStarRow& row, StarRecord& star, std::string& bad_reason) const;
+  void finish(const StarRecord& star, std::string& bad_reason);
   long line() const { return csv_.line(); }
   /// Data rows read so far.
   long rows() const { return rows_; }
@@ -103,6 +122,7 @@ class StarTableReader {
   std::unordered_set<std::uint64_t> seen_ids_;
   std::vector<std::string> unknown_columns_;
   std::function<bool(std::string_view)> keep_;
+  RawStarRow raw_;  // next()'s row
 };
 
 /// A canonical numeric column of `star` by its table name (e.g. "late_pmra"),

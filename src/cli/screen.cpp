@@ -2,6 +2,7 @@
 
 #include <omp.h>
 
+#include <exception>
 #include <memory>
 
 #include "cli/commands.hpp"
@@ -54,27 +55,46 @@ int run_screen(const ScreenCliOptions& o) {
   }
   std::string buf = screen_header(), jbuf;
   StatusCounter counter;
-  // Rows are parsed in order, screened in parallel chunk by chunk, and
-  // written in order: the output does not depend on the thread count.
+  // Rows are read in order, parsed and screened in parallel chunk by chunk,
+  // and checked and written in order: the output and the first error
+  // reported do not depend on the thread count, and memory stays flat.
   const std::size_t chunk = 2048;
+  std::vector<RawStarRow> raw(chunk);
   std::vector<StarRecord> stars(chunk);
   std::vector<std::string> bad(chunk);
-  std::vector<long> lines(chunk);
+  std::vector<std::exception_ptr> failed(chunk);
   std::vector<ScreenRow> rows(chunk);
   for (bool more = true; more;) {
     std::size_t n = 0;
-    while (n < chunk && (more = reader.next(stars[n], bad[n]))) {
-      if (o.strict && !bad[n].empty())
-        throw InputError(in.name(), reader.line(), 0,
-                         "star '" + stars[n].id + "': bad input: " + bad[n]);
-      lines[n++] = reader.line();
+    std::exception_ptr unreadable;  // a row that does not read: after the rows before it
+    try {
+      while (n < chunk && (more = reader.next_raw(raw[n]))) ++n;
+    } catch (const InputError&) {
+      unreadable = std::current_exception();
+      more = false;
     }
+#pragma omp parallel for schedule(static)
+    for (std::size_t i = 0; i < n; ++i) {
+      failed[i] = nullptr;
+      try {
+        reader.parse(raw[i], stars[i], bad[i]);
+      } catch (...) {
+        failed[i] = std::current_exception();
+      }
+    }
+    for (std::size_t i = 0; i < n; ++i) {
+      if (failed[i]) std::rethrow_exception(failed[i]);
+      reader.finish(stars[i], bad[i]);
+      if (o.strict && !bad[i].empty())
+        throw InputError(in.name(), raw[i].line, 0, "star '" + stars[i].id + "': bad input: " + bad[i]);
+    }
+    if (unreadable) std::rethrow_exception(unreadable);
 #pragma omp parallel for schedule(static)
     for (std::size_t i = 0; i < n; ++i) rows[i] = screen_star(stars[i], bad[i], opt);
     for (std::size_t i = 0; i < n; ++i) {
       const ScreenRow& row = rows[i];
       if (o.strict && !row.ok())
-        throw InputError(in.name(), lines[i], 0, "star '" + row.id + "': " + row.status.text());
+        throw InputError(in.name(), raw[i].line, 0, "star '" + row.id + "': " + row.status.text());
       counter.add(row.status);
       append_screen_row(buf, row);
       if (json) {
