@@ -169,6 +169,40 @@ TEST_CASE("screen: structural errors name file, line and column", "[cli][screen]
     CHECK(err.find("late_pmra") != std::string::npos);
     CHECK(!test::file_exists(out));
   }
+  SECTION("the first error in file order, whatever the threads") {
+    // Rows are parsed in parallel: a later row's error must not win over
+    // an earlier one's, nor a row that does not read over a number before it.
+    std::vector<StarRecord> many;
+    for (int i = 0; i < 40; ++i) many.push_back(good_star("S" + std::to_string(i)));
+    std::string csv = set_field(table_of(many), 30, "late_pmra", "x");  // line 32
+    csv = set_field(csv, 10, "early_pmra", "1.2.3");                     // line 12
+    const std::string in = tmp_path("two_errors.csv");
+    test::write_text(in, csv);
+    for (const char* j : {"1", "2"}) {
+      std::string err;
+      CHECK(run_heft(std::string("screen -j ") + j + " " + in + " -o " + in + ".out", &err) == 2);
+      CHECK(err.find(in + ":12:") != std::string::npos);
+    }
+    // A short row after the bad number: the number (line 12) still first.
+    std::string shorter = csv;
+    const std::size_t l20 = [&] {
+      std::size_t p = 0;
+      for (int k = 0; k < 19; ++k) p = shorter.find('\n', p) + 1;
+      return p;
+    }();
+    shorter.erase(shorter.find_last_of(',', shorter.find('\n', l20)), shorter.find('\n', l20) - shorter.find_last_of(',', shorter.find('\n', l20)));
+    test::write_text(in, shorter);
+    for (const char* j : {"1", "2"}) {
+      std::string err;
+      CHECK(run_heft(std::string("screen -j ") + j + " " + in + " -o " + in + ".out", &err) == 2);
+      CHECK(err.find(in + ":12:") != std::string::npos);
+    }
+    // Without the bad number the short row is the first error.
+    test::write_text(in, set_field(shorter, 10, "early_pmra", "1.0"));
+    std::string err;
+    CHECK(run_heft("screen -j 2 " + in + " -o " + in + ".out", &err) == 2);
+    CHECK(err.find(in + ":20: row has") != std::string::npos);
+  }
   SECTION("missing required column") {
     const std::string in = tmp_path("missing_col.csv");
     std::string csv = base;
