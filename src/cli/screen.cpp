@@ -55,15 +55,17 @@ int run_screen(const ScreenCliOptions& o) {
   }
   std::string buf = screen_header(), jbuf;
   StatusCounter counter;
-  // Rows are read in order, parsed and screened in parallel chunk by chunk,
-  // and checked and written in order: the output and the first error
-  // reported do not depend on the thread count, and memory stays flat.
+  // Rows are read in order, parsed, screened and formatted in parallel
+  // chunk by chunk, and checked and written in order: the output and the
+  // first error reported do not depend on the thread count, and memory
+  // stays flat.
   const std::size_t chunk = 2048;
   std::vector<RawStarRow> raw(chunk);
   std::vector<StarRecord> stars(chunk);
   std::vector<std::string> bad(chunk);
   std::vector<std::exception_ptr> failed(chunk);
   std::vector<ScreenRow> rows(chunk);
+  std::vector<std::string> text(chunk), json_text(json ? chunk : 0);  // each row formatted in parallel
   for (bool more = true; more;) {
     std::size_t n = 0;
     std::exception_ptr unreadable;  // a row that does not read: after the rows before it
@@ -90,16 +92,21 @@ int run_screen(const ScreenCliOptions& o) {
     }
     if (unreadable) std::rethrow_exception(unreadable);
 #pragma omp parallel for schedule(static)
-    for (std::size_t i = 0; i < n; ++i) rows[i] = screen_star(stars[i], bad[i], opt);
+    for (std::size_t i = 0; i < n; ++i) {
+      rows[i] = screen_star(stars[i], bad[i], opt);
+      text[i].clear();
+      append_screen_row(text[i], rows[i]);
+      if (json) json_text[i] = screen_row_json(rows[i]).dump();
+    }
     for (std::size_t i = 0; i < n; ++i) {
       const ScreenRow& row = rows[i];
       if (o.strict && !row.ok())
         throw InputError(in.name(), raw[i].line, 0, "star '" + row.id + "': " + row.status.text());
       counter.add(row.status);
-      append_screen_row(buf, row);
+      buf += text[i];
       if (json) {
         if (counter.total() > 1) jbuf += ",\n";
-        jbuf += screen_row_json(row).dump();
+        jbuf += json_text[i];
       }
     }
     out.write(buf);
