@@ -142,7 +142,6 @@ __attribute__((target_clones("arch=x86-64-v3", "default"))) void kepler_solution
                                                                                    const double* e,
                                                                                    KeplerSolution* out) {
   double E[4], s[4], c[4];
-#pragma omp simd
   for (int i = 0; i < 4; ++i) {
     const KeplerSolution k = solve_one(M[i], e[i]);
     E[i] = k.E;
