@@ -30,9 +30,10 @@ struct KeplerSolution {
   double E, sin_E, cos_E;
 };
 
-/// Solves Kepler's equation E - e sin E = M with no libm call but cbrt:
+/// Solves Kepler's equation E - e sin E = M without iteration or branch:
 /// the non-iterative starter of Markley (1995, Celest. Mech. Dyn. Astron.
-/// 63, 101) and his fifth-order correction, sin and cos by polynomials.
+/// 63, 101) and his fifth-order correction, sin and cos by polynomials,
+/// the starter's cube root from exponent and mantissa (docs/method.md).
 /// Given: M (rad, any value), e (0 <= e < 1).
 /// Returned: E (rad, in the same 2 pi turn as M; E = M at M = k pi), sin E
 /// and cos E. Accurate to a few 1e-16 rad for every (M, e), e = 0.999 next
