@@ -60,26 +60,16 @@ int main(int argc, char** argv) {
   }
 
   omp_set_num_threads(omp_get_num_procs());
-  SurveyModel sm;
-  sm.seed = 4242;
-  sm.companion_fraction = 1.0;
-  sm.companion_mass_mjup = {Distribution::Kind::kLogUniform, 5.0, 100.0};
-  sm.a_au = {Distribution::Kind::kLogUniform, 3.0, 30.0};
-  sm.ecc = {Distribution::Kind::kUniform, 0.0, 0.95};
-  sm.distance_pc = {Distribution::Kind::kUniform, 20.0, 60.0};
-  sm.host_mass_rel_error = 0.05;
-  FitOptions o;
-  o.prior.m_min_mjup = 5.0;
-  o.prior.m_max_mjup = 100.0;
-  o.a_min_au = 3.0;
-  o.a_max_au = 30.0;
+  const SurveyModel sm = fit_coverage_survey(4242);
+  FitOptions o = fit_coverage_options(sm);
   o.sampler.steps = steps;
   o.sampler.burn = std::min(o.sampler.burn, steps / 2);
   // Per system: inside the 68 % and 95 % intervals (mass, a, e), the regime
   // and whether the optimiser's best is within 1 of -2 ln L at the truth
   // (the orbit pinned there, the nuisances optimised).
   struct System {
-    bool in68[3], in95[3], basin;
+    TruthInIntervals in;
+    bool basin;
     double sig, p_over_arc, arc;
   };
   std::vector<System> sys;
@@ -88,23 +78,15 @@ int main(int argc, char** argv) {
   // masses' and catalogues' noise draws, and the sample would be half as big.
   for (const double arc : {2.0, 8.0})
     for (long i = arc == 2.0 ? 0 : 100000, used = 0; used < n_sys; ++i) {
-      StarRecord star;
-      SimTruth t;
-      simulate_star(sm, i, star, t);
-      const ScreenRow row = screen_star(star, "", ScreenOptions{});
-      if (!row.ok()) continue;
-      Rng rng = Rng::for_star(77, star.id);
-      const StarFile f = follow_up_star_file(star, t, {2025.0, 2025.0 + arc / 2, 2025.0 + arc}, 2.0, 0.3, rng);
-      const FitModel m(f, row.result, o);
+      InjectedFollowUp inj;
+      Rng rng(0);
+      if (!injected_follow_up(sm, i, arc, 77, inj, rng)) continue;
+      const SimTruth& t = inj.truth;
+      const StarFile& f = inj.file;
+      const FitModel m(f, inj.row.result, o);
       const FitResult r = run_fit(m, o, f.star.id);
-      const std::vector<OrbitDraw> draws = posterior_draws(m, r);
       System s{};
-      const double truth[3] = {t.mass_mjup, t.a_au, t.ecc};
-      double OrbitDraw::*const field[3] = {&OrbitDraw::mass_mjup, &OrbitDraw::a_au, &OrbitDraw::ecc};
-      for (int k = 0; k < 3; ++k) {
-        s.in68[k] = in_interval(draws, field[k], truth[k], 0.16, 0.84);
-        s.in95[k] = in_interval(draws, field[k], truth[k], 0.025, 0.975);
-      }
+      s.in = truth_in_intervals(posterior_draws(m, r), t);
       const Orbit<double> to = truth_orbit(t, f.star.late.epoch_yr);
       const double mean_anom = to.mean_anom_ref_rad + units::kTwoPi * (m.ref_epoch_yr() - to.ref_epoch_yr) / to.period_yr;
       Pinned pin;
@@ -120,7 +102,7 @@ int main(int argc, char** argv) {
       }
       const std::vector<FitMinimum> at_truth = find_minima(m, pin, starts);
       s.basin = !at_truth.empty() && r.minima.front().m2lnl <= at_truth.front().m2lnl + 1.0;
-      s.sig = row.result.sig_joint;
+      s.sig = inj.row.result.sig_joint;
       s.arc = arc;
       s.p_over_arc = t.period_yr / arc;
       sys.push_back(s);
@@ -134,8 +116,8 @@ int main(int argc, char** argv) {
       ++n;
       basin += s.basin;
       for (int k = 0; k < 3; ++k) {
-        in68[k] += s.in68[k];
-        in95[k] += s.in95[k];
+        in68[k] += s.in.in68[k];
+        in95[k] += s.in.in95[k];
       }
     }
     if (n == 0) return;

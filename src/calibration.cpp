@@ -75,4 +75,27 @@ SurveyModel coverage_survey(const CurveOptions& opt, double a_lo_au, double a_hi
   return m;
 }
 
+SurveyModel fit_coverage_survey(std::uint64_t seed) {
+  SurveyModel m;
+  m.seed = seed;
+  m.companion_fraction = 1.0;
+  m.companion_mass_mjup = {Distribution::Kind::kLogUniform, 5.0, 100.0};
+  m.a_au = {Distribution::Kind::kLogUniform, 3.0, 30.0};
+  m.ecc = {Distribution::Kind::kUniform, 0.0, 0.95};
+  m.distance_pc = {Distribution::Kind::kUniform, 20.0, 60.0};
+  m.host_mass_rel_error = 0.05;
+  return m;
+}
+
+bool injected_follow_up(const SurveyModel& survey, long index, double arc_yr, std::uint64_t noise_seed,
+                        InjectedFollowUp& out, Rng& noise) {
+  StarRecord star;
+  simulate_star(survey, index, star, out.truth);
+  out.row = screen_star(star, "", ScreenOptions{});
+  if (!out.row.ok()) return false;
+  noise = Rng::for_star(noise_seed, star.id);
+  out.file = follow_up_star_file(star, out.truth, {2025.0, 2025.0 + arc_yr / 2, 2025.0 + arc_yr}, 2.0, 0.3, noise);
+  return true;
+}
+
 }  // namespace heft

@@ -122,9 +122,29 @@ std::vector<std::pair<double, double>> weighted_values(const std::vector<OrbitDr
 
 }  // namespace
 
-bool in_interval(const std::vector<OrbitDraw>& draws, double OrbitDraw::*field, double value, double p_lo, double p_hi) {
-  const auto v = weighted_values(draws, field);
-  return value >= weighted_quantile(v, 1.0, p_lo) && value <= weighted_quantile(v, 1.0, p_hi);
+TruthInIntervals truth_in_intervals(const std::vector<OrbitDraw>& draws, const SimTruth& truth) {
+  const double value[3] = {truth.mass_mjup, truth.a_au, truth.ecc};
+  double OrbitDraw::*const field[3] = {&OrbitDraw::mass_mjup, &OrbitDraw::a_au, &OrbitDraw::ecc};
+  TruthInIntervals r{};
+  for (int k = 0; k < 3; ++k) {
+    const auto v = weighted_values(draws, field[k]);
+    auto inside = [&](double p_lo, double p_hi) {
+      return value[k] >= weighted_quantile(v, 1.0, p_lo) && value[k] <= weighted_quantile(v, 1.0, p_hi);
+    };
+    r.in68[k] = inside(0.16, 0.84);
+    r.in95[k] = inside(0.025, 0.975);
+  }
+  return r;
+}
+
+FitOptions fit_coverage_options(const SurveyModel& survey) {
+  FitOptions o;
+  o.prior.m_min_mjup = survey.companion_mass_mjup.p1;
+  o.prior.m_max_mjup = survey.companion_mass_mjup.p2;
+  o.a_min_au = survey.a_au.p1;
+  o.a_max_au = survey.a_au.p2;
+  o.prior.ecc = survey.ecc;
+  return o;
 }
 
 ojson posterior_quantiles(const FitResult& r, const std::vector<OrbitDraw>& draws) {

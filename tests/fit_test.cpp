@@ -374,19 +374,8 @@ TEST_CASE("fit: 68 % and 95 % intervals hold the truth as often as they claim (c
   // two binomial standard errors for 40 systems (68 +- 15 %, and at least
   // 88 % for the 95 % interval); the full study with 200 systems and its
   // regimes is bench/fit_bench (docs/performance.md).
-  SurveyModel sm;
-  sm.seed = 97;
-  sm.companion_fraction = 1.0;
-  sm.companion_mass_mjup = {Distribution::Kind::kLogUniform, 5.0, 100.0};
-  sm.a_au = {Distribution::Kind::kLogUniform, 3.0, 30.0};
-  sm.ecc = {Distribution::Kind::kUniform, 0.0, 0.95};
-  sm.distance_pc = {Distribution::Kind::kUniform, 20.0, 60.0};
-  sm.host_mass_rel_error = 0.05;
-  FitOptions o;
-  o.prior.m_min_mjup = 5.0;
-  o.prior.m_max_mjup = 100.0;
-  o.a_min_au = 3.0;
-  o.a_max_au = 30.0;
+  const SurveyModel sm = fit_coverage_survey(97);
+  FitOptions o = fit_coverage_options(sm);
   o.starts = 32;
   o.sampler.steps = 5000;  // as bench/fit_bench
   o.sampler.burn = 2500;
@@ -396,22 +385,14 @@ TEST_CASE("fit: 68 % and 95 % intervals hold the truth as often as they claim (c
   for (long i = 0; used < n_sys; ++i) {
     const bool long_arc = used >= n_sys / 2;
     if (long_arc && i < 100000) i = 100000;
-    StarRecord star;
-    SimTruth t;
-    simulate_star(sm, i, star, t);
-    const ScreenRow row = screen_star(star, "", ScreenOptions{});
-    if (!row.ok()) continue;
-    Rng rng = Rng::for_star(78, star.id);
-    const double arc = long_arc ? 8.0 : 2.0;
-    const StarFile f = follow_up_star_file(star, t, {2025.0, 2025.0 + arc / 2, 2025.0 + arc}, 2.0, 0.3, rng);
-    const FitModel m(f, row.result, o);
-    const FitResult r = run_fit(m, o, f.star.id);
-    const std::vector<OrbitDraw> draws = posterior_draws(m, r);
-    const double truth[3] = {t.mass_mjup, t.a_au, t.ecc};
-    double OrbitDraw::*const field[3] = {&OrbitDraw::mass_mjup, &OrbitDraw::a_au, &OrbitDraw::ecc};
+    InjectedFollowUp sys;
+    Rng noise(0);
+    if (!injected_follow_up(sm, i, long_arc ? 8.0 : 2.0, 78, sys, noise)) continue;
+    const FitModel m(sys.file, sys.row.result, o);
+    const TruthInIntervals in = truth_in_intervals(posterior_draws(m, run_fit(m, o, sys.file.star.id)), sys.truth);
     for (int k = 0; k < 3; ++k) {
-      in68[k] += in_interval(draws, field[k], truth[k], 0.16, 0.84);
-      in95[k] += in_interval(draws, field[k], truth[k], 0.025, 0.975);
+      in68[k] += in.in68[k];
+      in95[k] += in.in95[k];
     }
     ++used;
   }

@@ -8,6 +8,8 @@
 #include <cstdint>
 
 #include "heft/curve.hpp"
+#include "heft/rng.hpp"
+#include "heft/screen.hpp"
 #include "heft/simulate.hpp"
 
 namespace heft {
@@ -44,5 +46,25 @@ Reliability p_real_reliability(const SurveyModel& survey, const CurveOptions& op
 /// curve_coverage must give nominal coverage.
 SurveyModel coverage_survey(const CurveOptions& opt, double a_lo_au, double a_hi_au,
                             std::uint64_t seed);
+
+/// The deep fit's coverage population (docs/performance.md, "Deep fit";
+/// tests/fit_test.cpp and bench/fit_bench): companions drawn from the prior
+/// the study gives the fit (mass log-uniform 5-100 MJup, a log-uniform
+/// 3-30 AU, e uniform 0-0.95, isotropic) around hosts at 20-60 pc with 5 %
+/// mass errors.
+SurveyModel fit_coverage_survey(std::uint64_t seed);
+
+/// One system of that study: star `index` of `survey`, screened, with three
+/// imaging epochs of its companion over `arc_yr` from 2025.0 (2 mas,
+/// 0.3 deg) whose noise comes from `noise`, the stream (noise_seed, star
+/// id), left where the imaging noise ended for the caller's further draws.
+/// False (and `out` partly filled) when the star does not screen.
+struct InjectedFollowUp {
+  SimTruth truth;
+  ScreenRow row;
+  StarFile file;
+};
+bool injected_follow_up(const SurveyModel& survey, long index, double arc_yr, std::uint64_t noise_seed,
+                        InjectedFollowUp& out, Rng& noise);
 
 }  // namespace heft

@@ -16,6 +16,7 @@
 #include <string>
 #include <vector>
 
+#include "heft/calibration.hpp"
 #include "heft/fit_model.hpp"
 #include "heft/fit_optimize.hpp"
 #include "heft/fit_profile.hpp"
@@ -67,10 +68,17 @@ std::vector<OrbitDraw> posterior_draws(const FitModel& model, const FitResult& r
 /// mass gets q68 and q95 only.
 nlohmann::ordered_json posterior_quantiles(const FitResult& r, const std::vector<OrbitDraw>& draws);
 
-/// Whether `value` lies between the weighted quantiles p_lo and p_hi (e.g.
-/// 0.16 and 0.84) of the draws' `field`: the check of a coverage study
-/// against an injected truth.
-bool in_interval(const std::vector<OrbitDraw>& draws, double OrbitDraw::*field, double value, double p_lo, double p_hi);
+/// Whether an injected truth's mass, a and e (in that order) lie inside
+/// the draws' central 68 % and 95 % weighted intervals: the check of a
+/// coverage study.
+struct TruthInIntervals {
+  bool in68[3], in95[3];
+};
+TruthInIntervals truth_in_intervals(const std::vector<OrbitDraw>& draws, const SimTruth& truth);
+
+/// The fit's options for the systems of fit_coverage_survey: its mass, a
+/// and e priors are the survey's distributions; the rest default.
+FitOptions fit_coverage_options(const SurveyModel& survey);
 
 /// The priors of a run, with their values (the JSON "priors" object).
 nlohmann::ordered_json fit_priors_json(const FitModel& model, const StarFile& f);
