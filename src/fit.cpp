@@ -221,6 +221,7 @@ ojson fit_json(const FitModel& model, const StarFile& f, const ScreenRow& row, c
     post["thin"] = fopt.sampler.thin;
     post["kept"] = c.samples.rows();
     post["acceptance"] = c.acceptance;
+    if (!c.beta.empty()) post["tempering"] = {{"beta", c.beta}, {"swap_acceptance", c.swap_acceptance}};
     ojson modes = ojson::array();
     for (const auto& md : r.modes)
       modes.push_back({{"m2lnpost", md.m2lnpost}, {"weight", md.weight}, {"walkers", md.walkers},

@@ -137,6 +137,16 @@ std::vector<EnsembleStart> mode_starts(const FitModel& m, const std::vector<FitM
 
 namespace {
 
+// ln posterior and, for the tempered levels, ln L (the data and the
+// Gaussian host-mass and parallax constraints, as FitModel::neg_log_post's
+// -2 ln L).
+double log_posterior(const FitModel& m, const double* p, double& log_like) {
+  double m2lnl = 0.0;
+  const double lp = -m.neg_log_post(p, &m2lnl);
+  log_like = -0.5 * m2lnl;
+  return lp;
+}
+
 // Every chain samples every mode: walker k of a chain of nw comes from the
 // mode in which (k + 1/2) / nw falls on the modes' cumulative weights.
 Eigen::MatrixXd stratified_walkers(const std::vector<EnsembleStart>& starts, int chains) {
@@ -163,7 +173,8 @@ PooledChain sample_modes(const FitModel& m, std::vector<EnsembleStart> starts, c
     // Walkers from heft curve's draws already follow the posterior over the
     // whole circle in Omega and lambda: no rescue, no walls.
     eo.rescue = false;
-    res.chain = run_ensemble([&m](const double* p) { return -m.neg_log_post(p); }, starts.front().walkers, eo, progress);
+    res.chain = run_ensemble(
+        [&m](const double* p, double& log_like) { return log_posterior(m, p, log_like); }, starts.front().walkers, eo, progress);
     res.sample_weight.assign(res.chain.samples.rows(), 1.0 / res.chain.samples.rows());
     res.modes.push_back(starts.front().mode);
     return res;
@@ -177,10 +188,10 @@ PooledChain sample_modes(const FitModel& m, std::vector<EnsembleStart> starts, c
   for (Eigen::Index k = 0; k < w.cols(); ++k) u.col(k) = observables_from_params(m, w.col(k));
   const int n = m.n_params();
   EnsembleChain c = run_ensemble(
-      [&m](const double* x) {
+      [&m](const double* x, double& log_like) {
         double p[kMaxFitParams], log_jac = 0.0;
         if (!params_from_observables(m, x, p, log_jac)) return -kInf;
-        return -m.neg_log_post(p) + log_jac;
+        return log_posterior(m, p, log_like) + log_jac;
       },
       u, eo, progress);
   // Without RVs the mirror orbit (omega + pi, Omega + pi) has the same

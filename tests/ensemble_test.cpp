@@ -3,6 +3,7 @@
 
 #include <catch2/catch.hpp>
 #include <cmath>
+#include <limits>
 
 #include "heft/ensemble.hpp"
 #include "heft/rng.hpp"
@@ -138,4 +139,64 @@ TEST_CASE("ensemble: a two-mode mixture gets its mode weights, and R-hat sees ch
   const EnsembleChain d = run_ensemble(log_prob, start, stuck);
   INFO("stuck R-hat " << d.rhat[0]);
   CHECK(d.rhat[0] > 2.0);
+}
+
+TEST_CASE("ensemble: tempering gives a mode no walker started in its weight", "[ensemble]") {
+  // Prior uniform on the box [-20, 20]^2, likelihood 0.3 N((-10, 0), I) +
+  // 0.7 N((10, 0), 0.2^2 I) (normalised Gaussians): the posterior weight
+  // right of x1 = 0 is 0.7 (definition of the mixture; the box holds both
+  // modes to e^-50). All walkers start in the left mode, so no walker
+  // difference spans the gap and neither move alone can reach the right
+  // mode; the hot levels (likelihood^(1/100): the gap's density e^-0.5 of
+  // the peaks') cross it and swaps bring walkers down.
+  auto log_density = [](const double* x, double& log_like) {
+    if (std::abs(x[0]) > 20.0 || std::abs(x[1]) > 20.0) return -std::numeric_limits<double>::infinity();
+    auto g = [&](double c, double s) {
+      return std::exp(-0.5 * ((x[0] - c) * (x[0] - c) + x[1] * x[1]) / (s * s)) / (s * s);
+    };
+    log_like = std::log(0.3 * g(-10.0, 1.0) + 0.7 * g(10.0, 0.2));
+    return log_like;
+  };
+  Rng rng = Rng::for_star(6, "tempered");
+  const Eigen::MatrixXd start = ball({-10.0, 0.0}, 0.5, 64, rng);
+  EnsembleOptions opt;
+  opt.steps = 10000;
+  opt.burn = 2000;
+  opt.thin = 10;
+  opt.seed = 14;
+  opt.rescue = false;
+  opt.temperatures = 8;
+  opt.t_max = 100.0;
+  auto right_share = [](const EnsembleChain& c) {
+    double right = 0.0;
+    for (Eigen::Index k = 0; k < c.samples.rows(); ++k) right += c.samples(k, 0) > 0.0;
+    return right / static_cast<double>(c.samples.rows());
+  };
+  const EnsembleChain c = run_ensemble(log_density, start, opt);
+  const double n_eff = n_eff_of(c, opt.steps);
+  INFO("weight right " << right_share(c) << ", n_eff " << n_eff << ", R-hat " << c.rhat[0] << ", swaps "
+                       << c.swap_acceptance[0] << " ... " << c.swap_acceptance.back());
+  REQUIRE(c.beta.size() == 8);
+  CHECK(c.beta.back() == Approx(0.01));
+  CHECK(n_eff > 200);
+  // Tolerance: the walkers of an ensemble are not independent, and the
+  // share's scatter over 16 seeds of this set-up was 0.006 (measured; the
+  // autocorrelation time alone would say 0.0016); 0.03 is five of those.
+  CHECK(right_share(c) == Approx(0.7).margin(0.03));
+  // Within the right mode the width is the narrow Gaussian's (sd 0.2 in
+  // x2); 5 % is about four standard errors with the scatter above.
+  double s2 = 0.0, n = 0.0;
+  for (Eigen::Index k = 0; k < c.samples.rows(); ++k)
+    if (c.samples(k, 0) > 0.0) {
+      s2 += c.samples(k, 1) * c.samples(k, 1);
+      ++n;
+    }
+  CHECK(std::sqrt(s2 / n) == Approx(0.2).epsilon(0.05));
+
+  // The same start without tempering never finds the right mode.
+  EnsembleOptions flat = opt;
+  flat.temperatures = 1;
+  const EnsembleChain d = run_ensemble(log_density, start, flat);
+  CHECK(right_share(d) == 0.0);
+  CHECK(d.beta.empty());
 }

@@ -151,6 +151,11 @@ void setup_fit(CLI::App& app, Runner& run) {
       ->check(CLI::Range(0, 100000))->capture_default_str();
   sub->add_option("--chains", f.sampler.chains, "independent chains (ensembles), for R-hat; run in parallel")
       ->check(CLI::Range(1, 64))->capture_default_str();
+  sub->add_option("--temperatures", f.sampler.temperatures,
+                  "levels of the parallel-tempering ladder per chain (1 = none); hotter levels let walkers cross between modes")
+      ->check(CLI::Range(1, 64))->capture_default_str();
+  sub->add_option("--t-max", f.sampler.t_max, "temperature of the hottest level (likelihood^(1/T_max)); levels geometric in between")
+      ->check(CLI::Range(1.0, 1e12))->capture_default_str();
   sub->add_option("--steps", f.sampler.steps, "ensemble steps per chain after burn-in")
       ->check(CLI::Range(10, 100000000))->capture_default_str();
   sub->add_option("--burn", f.sampler.burn, "ensemble steps discarded as burn-in")
