@@ -123,10 +123,11 @@ std::vector<std::pair<double, double>> weighted_values(const std::vector<OrbitDr
 }  // namespace
 
 TruthInIntervals truth_in_intervals(const std::vector<OrbitDraw>& draws, const SimTruth& truth) {
-  const double value[3] = {truth.mass_mjup, truth.a_au, truth.ecc};
-  double OrbitDraw::*const field[3] = {&OrbitDraw::mass_mjup, &OrbitDraw::a_au, &OrbitDraw::ecc};
+  const double value[TruthInIntervals::kQuantities] = {truth.mass_mjup, truth.a_au, truth.ecc, truth.host_mass_msun};
+  double OrbitDraw::*const field[TruthInIntervals::kQuantities] = {&OrbitDraw::mass_mjup, &OrbitDraw::a_au,
+                                                                   &OrbitDraw::ecc, &OrbitDraw::host_mass_msun};
   TruthInIntervals r{};
-  for (int k = 0; k < 3; ++k) {
+  for (int k = 0; k < TruthInIntervals::kQuantities; ++k) {
     const auto v = weighted_values(draws, field[k]);
     auto inside = [&](double p_lo, double p_hi) {
       return value[k] >= weighted_quantile(v, 1.0, p_lo) && value[k] <= weighted_quantile(v, 1.0, p_hi);

@@ -147,6 +147,25 @@ double log_posterior(const FitModel& m, const double* p, double& log_like) {
   return lp;
 }
 
+// Without imaging the sampler sees Omega and lambda as points (c, s) of the
+// plane, angle = atan2(s, c), with the auxiliary density N(0, I) of the
+// point (its angle uniform, as the prior's; its radius Rayleigh and
+// independent): a periodic coordinate on the real line has no normalisable
+// density, and the ensemble's affine moves spread such walkers without
+// bound (to 1e51 rad, measured), where nothing mixes. Coordinates n and
+// n + 1 hold the two sines; returns ln N(c, s) without its constant.
+constexpr int kPlanarAngles[2] = {kNode, kLambda};
+double params_from_planar(const double* x, int n, double* p) {
+  std::copy(x, x + n, p);
+  double log_aux = 0.0;
+  for (int j = 0; j < 2; ++j) {
+    const double c = x[kPlanarAngles[j]], s = x[n + j];
+    p[kPlanarAngles[j]] = wrap_2pi(std::atan2(s, c));
+    log_aux -= 0.5 * (c * c + s * s);
+  }
+  return log_aux;
+}
+
 // Every chain samples every mode: walker k of a chain of nw comes from the
 // mode in which (k + 1/2) / nw falls on the modes' cumulative weights.
 Eigen::MatrixXd stratified_walkers(const std::vector<EnsembleStart>& starts, int chains) {
@@ -169,12 +188,43 @@ PooledChain sample_modes(const FitModel& m, std::vector<EnsembleStart> starts, c
   PooledChain res;
   EnsembleOptions eo = opt;
   eo.seed = srng.next();
+  const int n = m.n_params();
   if (!m.has_relative()) {
-    // Walkers from heft curve's draws already follow the posterior over the
-    // whole circle in Omega and lambda: no rescue, no walls.
+    // Walkers from heft curve's draws already follow the posterior: no
+    // rescue. Omega and lambda move as points of the plane (planar_angles).
     eo.rescue = false;
-    res.chain = run_ensemble(
-        [&m](const double* p, double& log_like) { return log_posterior(m, p, log_like); }, starts.front().walkers, eo, progress);
+    const Eigen::MatrixXd& w = starts.front().walkers;
+    Eigen::MatrixXd u(n + 2, w.cols());
+    for (Eigen::Index k = 0; k < w.cols(); ++k) {
+      u.col(k).head(n) = w.col(k);
+      for (int j = 0; j < 2; ++j) {
+        const double r = std::sqrt(-2.0 * std::log(srng.uniform_open())), angle = w(kPlanarAngles[j], k);
+        u(kPlanarAngles[j], k) = r * std::cos(angle);
+        u(n + j, k) = r * std::sin(angle);
+      }
+    }
+    EnsembleChain c = run_ensemble(
+        [&m, n](const double* x, double& log_like) {
+          double p[kMaxFitParams];
+          const double log_aux = params_from_planar(x, n, p);
+          return log_posterior(m, p, log_like) + log_aux;
+        },
+        u, eo, progress);
+    Eigen::MatrixXd samples(c.samples.rows(), n);
+    for (Eigen::Index k = 0; k < c.samples.rows(); ++k) {
+      double p[kMaxFitParams];
+      params_from_planar(c.samples.row(k).data(), n, p);
+      samples.row(k) = Eigen::Map<const Eigen::RowVectorXd>(p, n);
+    }
+    c.samples = std::move(samples);
+    c.dim = n;
+    // Each angle's diagnostics: the worse of its two planar coordinates.
+    for (std::vector<double>* v : {&c.iat_steps, &c.rhat}) {
+      if (v->empty()) continue;
+      for (int j = 0; j < 2; ++j) (*v)[kPlanarAngles[j]] = std::max((*v)[kPlanarAngles[j]], (*v)[n + j]);
+      v->resize(n);
+    }
+    res.chain = std::move(c);
     res.sample_weight.assign(res.chain.samples.rows(), 1.0 / res.chain.samples.rows());
     res.modes.push_back(starts.front().mode);
     return res;
@@ -186,7 +236,6 @@ PooledChain sample_modes(const FitModel& m, std::vector<EnsembleStart> starts, c
   const Eigen::MatrixXd w = stratified_walkers(starts, std::max(1, opt.chains));
   Eigen::MatrixXd u(w.rows(), w.cols());
   for (Eigen::Index k = 0; k < w.cols(); ++k) u.col(k) = observables_from_params(m, w.col(k));
-  const int n = m.n_params();
   EnsembleChain c = run_ensemble(
       [&m](const double* x, double& log_like) {
         double p[kMaxFitParams], log_jac = 0.0;

@@ -68,11 +68,12 @@ std::vector<OrbitDraw> posterior_draws(const FitModel& model, const FitResult& r
 /// mass gets q68 and q95 only.
 nlohmann::ordered_json posterior_quantiles(const FitResult& r, const std::vector<OrbitDraw>& draws);
 
-/// Whether an injected truth's mass, a and e (in that order) lie inside
-/// the draws' central 68 % and 95 % weighted intervals: the check of a
-/// coverage study.
+/// Whether an injected truth's mass, a, e and host mass (in that order)
+/// lie inside the draws' central 68 % and 95 % weighted intervals: the
+/// check of a coverage study.
 struct TruthInIntervals {
-  bool in68[3], in95[3];
+  static constexpr int kQuantities = 4;
+  bool in68[kQuantities], in95[kQuantities];
 };
 TruthInIntervals truth_in_intervals(const std::vector<OrbitDraw>& draws, const SimTruth& truth);
 
