@@ -27,6 +27,22 @@ TEST_CASE("heft fit: same output for -j 1 and -j 2, errors name the JSON path", 
   CHECK(j["priors"]["mass_floor_mjup"].get<double>() == 0.1);
   CHECK(j["run"]["units"]["a_au"] == "AU");
   CHECK(test::read_table(sa).rows.size() % (20u * 64u) == 0);  // 20 kept steps x 64 walkers per mode
+  CHECK_FALSE(j["posterior"].contains("tempering"));
+  // Tempered: still independent of the thread count; the ladder is reported
+  // (geometric from 1 to 1 / t_max: 1, 1/sqrt(40), 1/40) with rates in [0, 1].
+  const std::string tempered = opts + " --temperatures 3 --t-max 40";
+  REQUIRE(test::run_heft("fit " + star + tempered + " -j 1 -o " + a) == 0);
+  REQUIRE(test::run_heft("fit " + star + tempered + " -j 2 -o " + b) == 0);
+  CHECK(test::read_text(a) == test::read_text(b));
+  const nlohmann::json t = nlohmann::json::parse(test::read_text(a))["posterior"]["tempering"];
+  REQUIRE(t["beta"].size() == 3);
+  CHECK(t["beta"][1].get<double>() == Approx(1.0 / std::sqrt(40.0)));
+  CHECK(t["beta"][2].get<double>() == Approx(1.0 / 40.0));
+  REQUIRE(t["swap_acceptance"].size() == 2);
+  for (const auto& r : t["swap_acceptance"]) {
+    CHECK(r.get<double>() > 0.0);
+    CHECK(r.get<double>() <= 1.0);
+  }
   std::string err;
   const std::string bad = test::tmp_path("fit_bad.json");
   test::write_text(bad, "{\"id\": \"X\", \"star\": {}, \"colour\": 1}");
