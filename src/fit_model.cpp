@@ -1,6 +1,7 @@
 #include "heft/fit_model.hpp"
 
 #include <Eigen/Cholesky>
+#include <Eigen/LU>
 #include <algorithm>
 #include <cmath>
 #include <limits>
@@ -385,9 +386,8 @@ int walkers_per_chain(const FitModel& m, const FitOptions& opt) {
   return n + n % 2;
 }
 
-Eigen::VectorXd FitModel::observable_draw(Rng& rng) const {
-  // The imaged positions (x north, y east; mas) with an isotropic error each.
-  std::vector<double> t, x, y, s2;
+void FitModel::imaged_positions(std::vector<double>& t, std::vector<double>& x, std::vector<double>& y,
+                                std::vector<double>& s2) const {
   for (const auto& e : rel_) {
     const double pa = units::deg_to_rad(e.v2);
     t.push_back(e.epoch_yr - phase_epoch_yr_);
@@ -396,6 +396,71 @@ Eigen::VectorXd FitModel::observable_draw(Rng& rng) const {
     const double s = e.polar ? std::max(e.e1, e.v1 * units::deg_to_rad(e.e2)) : std::max(e.e1, e.e2);
     s2.push_back(s * s);
   }
+}
+
+Eigen::VectorXd FitModel::thiele_innes_draw(Rng& rng) const {
+  std::vector<double> t, x, y, s2;
+  imaged_positions(t, x, y, s2);
+  if (t.size() < 2) return prior_draw(rng);
+  // Of kCandidates draws of (a, e, M, masses) the one whose Thiele-Innes
+  // fit leaves the smallest chi^2 (positions only; no model evaluation).
+  constexpr int kCandidates = 32;
+  Eigen::VectorXd best;
+  double best_chi2 = std::numeric_limits<double>::infinity();
+  for (int c = 0; c < kCandidates; ++c) {
+    Eigen::VectorXd p = prior_draw(rng);
+    const double e = p[kSqrtECos] * p[kSqrtECos] + p[kSqrtESin] * p[kSqrtESin], b = std::sqrt(1.0 - e * e);
+    const double m_total = p[kHostMass] + std::exp(p[kLnMass]) / units::kMjupPerMsun;
+    const double mean_anom = units::kTwoPi * rng.uniform();
+    double a_au = std::exp(p[kLnA]), chi2 = 0.0;
+    SkyElements<double> sky{};
+    bool ok = false;
+    // Refit until the period that a implies no longer moves a (a fixed
+    // point; a few passes where the arc constrains a, else the last one).
+    for (int pass = 0; pass < 8; ++pass) {
+      // Weighted least squares of x = A X + F Y and y = B X + G Y.
+      const double period = period_from_a(a_au, m_total);
+      std::vector<Eigen::Vector2d> f(t.size());
+      Eigen::Matrix2d n = Eigen::Matrix2d::Zero();
+      Eigen::Vector2d rx = Eigen::Vector2d::Zero(), ry = Eigen::Vector2d::Zero();
+      for (std::size_t k = 0; k < t.size(); ++k) {
+        const KeplerSolution ks = kepler_solution(mean_anom + units::kTwoPi * t[k] / period, e);
+        f[k] = Eigen::Vector2d(ks.cos_E - e, b * ks.sin_E);
+        n += f[k] * f[k].transpose() / s2[k];
+        rx += f[k] * x[k] / s2[k];
+        ry += f[k] * y[k] / s2[k];
+      }
+      const Eigen::FullPivLU<Eigen::Matrix2d> lu(n);
+      ok = lu.isInvertible();
+      if (!ok) break;
+      const Eigen::Vector2d af = lu.solve(rx), bg = lu.solve(ry);
+      chi2 = 0.0;
+      for (std::size_t k = 0; k < t.size(); ++k)
+        chi2 += (std::pow(x[k] - af.dot(f[k]), 2) + std::pow(y[k] - bg.dot(f[k]), 2)) / s2[k];
+      sky = sky_elements_from_thiele_innes(af[0], bg[0], af[1], bg[1]);
+      const double a_before = a_au;
+      a_au = sky.a / p[kParallax];
+      ok = std::isfinite(a_au) && a_au > 0;
+      if (!ok || std::abs(a_au - a_before) < 1e-4 * a_au) break;
+    }
+    if (!ok || !(std::log(a_au) > ln_a_lo_ && std::log(a_au) < ln_a_hi_) || !(chi2 < best_chi2)) continue;
+    const double root_e = std::sqrt(e);
+    p[kLnA] = std::log(a_au);
+    p[kSqrtECos] = root_e * std::cos(sky.arg_peri_rad);
+    p[kSqrtESin] = root_e * std::sin(sky.arg_peri_rad);
+    p[kCosInc] = std::cos(sky.inc_rad);
+    p[kNode] = sky.node_rad;
+    p[kLambda] = wrap_2pi(mean_anom + sky.arg_peri_rad + sky.node_rad);
+    if (!std::isfinite(neg_log_post(p.data()))) continue;
+    best = p;
+    best_chi2 = chi2;
+  }
+  return best.size() > 0 ? best : prior_draw(rng);
+}
+
+Eigen::VectorXd FitModel::observable_draw(Rng& rng) const {
+  std::vector<double> t, x, y, s2;
+  imaged_positions(t, x, y, s2);
   // Weighted straight line through them, position at the phase epoch and
   // velocity, each drawn from its least-squares error; one epoch (or one
   // date) leaves the velocity to the bound below.

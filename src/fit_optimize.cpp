@@ -217,9 +217,16 @@ std::vector<FitMinimum> find_minima(const FitModel& m, const Pinned& pinned,
 
 std::vector<Eigen::VectorXd> draw_starts(const FitModel& m, int n, Rng& rng) {
   std::vector<Eigen::VectorXd> s;
-  // With imaging, every second start from the observables: they find the
-  // basin of short arcs; the prior's starts keep the rest of the space.
-  for (int k = 0; k < n; ++k) s.push_back(m.has_relative() && k % 2 == 0 ? m.observable_draw(rng) : m.prior_draw(rng));
+  // With imaging, a third of the starts from the observables (they find the
+  // basins of short arcs), a third through the imaged positions by
+  // Thiele-Innes constants (curved arcs), a third from the prior (the rest
+  // of the space).
+  for (int k = 0; k < n; ++k) {
+    if (!m.has_relative() || k % 3 == 2)
+      s.push_back(m.prior_draw(rng));
+    else
+      s.push_back(k % 3 == 0 ? m.observable_draw(rng) : m.thiele_innes_draw(rng));
+  }
   return s;
 }
 

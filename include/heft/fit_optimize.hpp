@@ -34,9 +34,10 @@ struct FitMinimum {
 /// Names of FitMinimum::derived.
 const std::vector<std::string>& derived_names();
 
-/// `n` optimiser starts: with relative astrometry every second one drawn
-/// from the observables (FitModel::observable_draw), the others (and all
-/// without imaging) from the prior.
+/// `n` optimiser starts: with relative astrometry a third each from the
+/// observables (FitModel::observable_draw), through the imaged positions
+/// (FitModel::thiele_innes_draw) and from the prior; all from the prior
+/// without imaging.
 std::vector<Eigen::VectorXd> draw_starts(const FitModel& m, int n, Rng& rng);
 
 /// Minimises from every start (in parallel; the result does not depend on

@@ -18,6 +18,7 @@
 
 #include <ceres/jet.h>
 
+#include <algorithm>
 #include <cmath>
 #include <vector>
 
@@ -129,6 +130,28 @@ ThieleInnes<T> thiele_innes(const T& a, const T& inc_rad, const T& arg_peri_rad,
   return {a * (cw * cn - sw * sn * ci),  a * (cw * sn + sw * cn * ci),
           a * (-sw * cn - cw * sn * ci), a * (-sw * sn + cw * cn * ci),
           a * sw * si,                   a * cw * si};
+}
+
+/// The inverse on the sky: a, i, omega and Omega from A, B, F, G (the
+/// classical visual-binary inversion, e.g. Heintz 1978, Double Stars;
+/// Wright & Howard 2009, ApJS 182, 205, Sect. 2): omega + Omega =
+/// atan2(B - F, A + G), omega - Omega = atan2(-B - F, A - G), a^2 = k +
+/// sqrt(k^2 - j^2) with k = (A^2 + B^2 + F^2 + G^2) / 2 and j = AG - BF =
+/// a^2 cos i. Without C and H, (omega, Omega) and (omega + pi, Omega + pi)
+/// are the same on the sky; this returns Omega in [0, pi).
+template <typename T>
+struct SkyElements {
+  T a, inc_rad, arg_peri_rad, node_rad;
+};
+inline SkyElements<double> sky_elements_from_thiele_innes(double A, double B, double F, double G) {
+  const double k = 0.5 * (A * A + B * B + F * F + G * G), j = A * G - B * F;
+  const double a2 = k + std::sqrt(std::max(0.0, k * k - j * j));
+  const double sum = std::atan2(B - F, A + G), diff = std::atan2(-B - F, A - G);
+  double w = 0.5 * (sum + diff), node = 0.5 * (sum - diff);
+  node = std::fmod(node + 4.0 * units::kPi, units::kPi);
+  w = std::fmod(sum - node + 4.0 * units::kPi, units::kTwoPi);
+  const double a = std::sqrt(a2);
+  return {a, std::acos(std::clamp(j / a2, -1.0, 1.0)), w, node};
 }
 
 /// Campbell elements of the companion's orbit relative to the host.
