@@ -374,7 +374,7 @@ TEST_CASE("fit: 68 % and 95 % intervals hold the truth as often as they claim (c
   // interval in 68 % of systems (definition of a credible interval under
   // the prior it was drawn from; common practice, no source). Tolerance:
   // two binomial standard errors for 40 systems (68 +- 15 %, and at least
-  // 88 % for the 95 % interval); the full study with 200 systems and its
+  // 88 % for the 95 % interval); the full study with 800 systems and its
   // regimes is bench/fit_bench (docs/performance.md).
   const SurveyModel sm = fit_coverage_survey(97);
   FitOptions o = fit_coverage_options(sm);
