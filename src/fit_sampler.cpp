@@ -191,7 +191,7 @@ PooledChain sample_modes(const FitModel& m, std::vector<EnsembleStart> starts, c
   const int n = m.n_params();
   if (!m.has_relative()) {
     // Walkers from heft curve's draws already follow the posterior: no
-    // rescue. Omega and lambda move as points of the plane (planar_angles).
+    // rescue. Omega and lambda move as points of the plane (params_from_planar).
     eo.rescue = false;
     const Eigen::MatrixXd& w = starts.front().walkers;
     Eigen::MatrixXd u(n + 2, w.cols());
@@ -212,8 +212,9 @@ PooledChain sample_modes(const FitModel& m, std::vector<EnsembleStart> starts, c
         u, eo, progress);
     Eigen::MatrixXd samples(c.samples.rows(), n);
     for (Eigen::Index k = 0; k < c.samples.rows(); ++k) {
+      const Eigen::VectorXd x = c.samples.row(k).transpose();  // a row is not contiguous
       double p[kMaxFitParams];
-      params_from_planar(c.samples.row(k).data(), n, p);
+      params_from_planar(x.data(), n, p);
       samples.row(k) = Eigen::Map<const Eigen::RowVectorXd>(p, n);
     }
     c.samples = std::move(samples);

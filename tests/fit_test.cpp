@@ -168,6 +168,29 @@ TEST_CASE("fit: no signal, no imaging gives an upper limit that ignores m_min", 
   CHECK(t.upper95(10.0) == Approx(t.upper95(0.1)).epsilon(0.05));
 }
 
+TEST_CASE("fit: no imaging, the samples carry every parameter (parallax as its catalogue)", "[fit]") {
+  // Without a signal the data say nothing about the parallax beyond the
+  // late catalogue's value, so its posterior is that Gaussian (definition of
+  // the prior; common practice, no source); the angles come back on the
+  // circle. Tolerances: 0.3 sigma on the mean and 25 % on the width, several
+  // Monte Carlo errors of 76,800 correlated samples.
+  const NoSignalFit t;
+  const FitModel m(t.f, t.row.result, t.opt);
+  const FitResult r = run_fit(m, t.opt, t.star.id);
+  const Eigen::MatrixXd& s = r.chain.samples;
+  REQUIRE(s.cols() == m.n_params());
+  const Eigen::VectorXd plx = s.col(kParallax);
+  const double mean = plx.mean(), sd = std::sqrt((plx.array() - mean).square().mean());
+  INFO("parallax " << mean << " +- " << sd << " against " << t.star.late.parallax_mas << " +- "
+                   << t.star.late.parallax_error_mas);
+  CHECK(std::abs(mean - t.star.late.parallax_mas) < 0.3 * t.star.late.parallax_error_mas);
+  CHECK(sd == Approx(t.star.late.parallax_error_mas).epsilon(0.25));
+  CHECK(s.col(kNode).minCoeff() >= 0.0);
+  CHECK(s.col(kNode).maxCoeff() < units::kTwoPi);
+  CHECK(s.col(kLambda).minCoeff() >= 0.0);
+  CHECK(s.col(kLambda).maxCoeff() < units::kTwoPi);
+}
+
 // Known to fail (issue 14): the fit's sampler does not converge on this
 // posterior's heavy mass tail. With the angles moved in the plane its 95 %
 // upper limit moves between 43 and 75 MJup over seeds 1-6 at 6,000 steps
