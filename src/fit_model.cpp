@@ -413,7 +413,7 @@ Eigen::VectorXd FitModel::thiele_innes_draw(Rng& rng) const {
     const double m_total = p[kHostMass] + std::exp(p[kLnMass]) / units::kMjupPerMsun;
     const double mean_anom = units::kTwoPi * rng.uniform();
     double a_au = std::exp(p[kLnA]), chi2 = 0.0;
-    SkyElements<double> sky{};
+    SkyElements sky{};
     bool ok = false;
     // Refit until the period that a implies no longer moves a (a fixed
     // point; a few passes where the arc constrains a, else the last one).

@@ -209,7 +209,7 @@ TEST_CASE("Thiele-Innes constants invert to a, i, omega and Omega on the sky", "
     const double a = 0.1 + 100.0 * u(gen), inc = std::acos(u(gen) * 2.0 - 1.0);
     const double w = units::kTwoPi * u(gen), node = units::kTwoPi * u(gen);
     const ThieleInnes<double> ti = thiele_innes(a, inc, w, node);
-    const SkyElements<double> sky = sky_elements_from_thiele_innes(ti.A, ti.B, ti.F, ti.G);
+    const SkyElements sky = sky_elements_from_thiele_innes(ti.A, ti.B, ti.F, ti.G);
     const ThieleInnes<double> back = thiele_innes(sky.a, sky.inc_rad, sky.arg_peri_rad, sky.node_rad);
     worst = std::max({worst, std::abs(back.A - ti.A) / a, std::abs(back.B - ti.B) / a, std::abs(back.F - ti.F) / a,
                       std::abs(back.G - ti.G) / a});

@@ -139,19 +139,16 @@ ThieleInnes<T> thiele_innes(const T& a, const T& inc_rad, const T& arg_peri_rad,
 /// sqrt(k^2 - j^2) with k = (A^2 + B^2 + F^2 + G^2) / 2 and j = AG - BF =
 /// a^2 cos i. Without C and H, (omega, Omega) and (omega + pi, Omega + pi)
 /// are the same on the sky; this returns Omega in [0, pi).
-template <typename T>
 struct SkyElements {
-  T a, inc_rad, arg_peri_rad, node_rad;
+  double a, inc_rad, arg_peri_rad, node_rad;
 };
-inline SkyElements<double> sky_elements_from_thiele_innes(double A, double B, double F, double G) {
+inline SkyElements sky_elements_from_thiele_innes(double A, double B, double F, double G) {
   const double k = 0.5 * (A * A + B * B + F * F + G * G), j = A * G - B * F;
   const double a2 = k + std::sqrt(std::max(0.0, k * k - j * j));
   const double sum = std::atan2(B - F, A + G), diff = std::atan2(-B - F, A - G);
-  double w = 0.5 * (sum + diff), node = 0.5 * (sum - diff);
-  node = std::fmod(node + 4.0 * units::kPi, units::kPi);
-  w = std::fmod(sum - node + 4.0 * units::kPi, units::kTwoPi);
-  const double a = std::sqrt(a2);
-  return {a, std::acos(std::clamp(j / a2, -1.0, 1.0)), w, node};
+  const double node = std::fmod(0.5 * (sum - diff) + 4.0 * units::kPi, units::kPi);
+  const double w = std::fmod(sum - node + 4.0 * units::kPi, units::kTwoPi);
+  return {std::sqrt(a2), std::acos(std::clamp(j / a2, -1.0, 1.0)), w, node};
 }
 
 /// Campbell elements of the companion's orbit relative to the host.
