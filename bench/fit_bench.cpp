@@ -9,8 +9,14 @@
 //     and how
 //     often the optimiser's best minimum is within 1 of -2 ln L at the
 //     truth (or better).
+//  3. (`fit_bench demo N`) One system, many noise realisations: the demo
+//     follow-up star's truth and catalogue covariances with N fresh draws of
+//     the catalogue, host-mass and imaging noise, each fitted at the
+//     defaults; where the truth falls in each posterior (docs/performance.md,
+//     "The demo star").
 //
-// Usage: fit_bench [systems per arc=50] [steps=20000]
+// Usage: fit_bench [systems per arc=50] [steps=20000] [survey seed=4242]
+//        fit_bench demo [realisations=40]
 
 #include <glog/logging.h>
 #include <omp.h>
@@ -21,6 +27,7 @@
 #include <cstdlib>
 #include <fstream>
 #include <functional>
+#include <string>
 
 #include "heft/fit.hpp"
 #include "heft/kepler.hpp"
@@ -34,16 +41,97 @@ double seconds_since(std::chrono::steady_clock::time_point t0) {
   return std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
 }
 
+StarFile demo_star_file() {
+  std::ifstream in(std::string(HEFT_SOURCE_DIR) + "/demo/followup/KMG-00754.json");
+  return read_star_file(in, "KMG-00754.json");
+}
+
+// The survey of demo/make_survey.sh (keep the two in step).
+SurveyModel demo_survey() {
+  SurveyModel m;
+  m.n_stars = 2000;
+  m.seed = 20261201;
+  m.id_prefix = "KMG-";
+  m.sky_ra_deg = 210.0;
+  m.sky_dec_deg = -38.0;
+  m.sky_radius_deg = 8.0;
+  m.distance_pc = {Distribution::Kind::kUniform, 100.0, 140.0};
+  m.v_east_km_s = -10.0;
+  m.v_north_km_s = -18.0;
+  m.v_radial_km_s = 5.0;
+  m.v_sigma_km_s = 1.5;
+  m.host_mass_msun = {Distribution::Kind::kLogUniform, 0.3, 2.0};
+  m.rv_fraction = 0.4;
+  m.age_myr = 25.0;
+  m.companion_fraction = 0.02;
+  m.companion_mass_mjup = {Distribution::Kind::kLogUniform, 1.0, 80.0};
+  m.a_au = {Distribution::Kind::kLogUniform, 2.0, 200.0};
+  m.ecc = {Distribution::Kind::kUniform, 0.0, 0.6};
+  return m;
+}
+
+// The demo star's truth under `n` noise realisations (streams 1000 + k for
+// the catalogues and host mass, 2000 + k for the imaging), fitted at the
+// defaults with the demo's imaging epochs and errors.
+void demo_truth_study(int n) {
+  const StarFile demo = demo_star_file();
+  std::vector<double> epochs;
+  for (const RelativeEpoch& e : demo.relative) epochs.push_back(e.epoch_yr);
+  const SurveyModel sm = demo_survey();
+  constexpr long kIndex = 753;  // KMG-00754
+  int in95_both = 0, in95[2] = {}, in68[2] = {};
+  double mean_q[2] = {};
+  std::printf("demo star, same truth, %d noise realisations (%zu imaging epochs %.2f-%.2f):\n", n, epochs.size(),
+              epochs.front(), epochs.back());
+  for (int k = 0; k < n; ++k) {
+    StarRecord star;
+    SimTruth t;
+    simulate_star(sm, kIndex, star, t, 1000 + k);
+    const ScreenRow row = screen_star(star, "", ScreenOptions{});
+    Rng noise = Rng::for_star(2000 + k, star.id);
+    const StarFile f = follow_up_star_file(star, t, epochs, demo.relative.front().e1, demo.relative.front().e2, noise);
+    const FitOptions o;
+    const FitModel m(f, row.result, o);
+    const std::vector<OrbitDraw> d = posterior_draws(m, run_fit(m, o, f.star.id));
+    double q[2] = {}, sw = 0.0;
+    for (const OrbitDraw& x : d) {
+      sw += x.weight;
+      q[0] += x.weight * (x.mass_mjup < t.mass_mjup);
+      q[1] += x.weight * (x.a_au < t.a_au);
+    }
+    bool both = true;
+    for (int j = 0; j < 2; ++j) {
+      q[j] /= sw;
+      mean_q[j] += q[j] / n;
+      const bool inside = q[j] >= 0.025 && q[j] <= 0.975;
+      in95[j] += inside;
+      in68[j] += q[j] >= 0.16 && q[j] <= 0.84;
+      both = both && inside;
+    }
+    in95_both += both;
+    std::printf("  %2d: sig_joint %.1f, truth (%.1f MJup, %.2f AU) at quantile %.3f of mass, %.3f of a\n", k,
+                row.result.sig_joint, t.mass_mjup, t.a_au, q[0], q[1]);
+    std::fflush(stdout);
+  }
+  std::printf("inside the 95 %% interval: mass %d, a %d, both %d of %d; inside the 68 %%: mass %d, a %d; "
+              "mean quantile: mass %.2f, a %.2f\n",
+              in95[0], in95[1], in95_both, n, in68[0], in68[1], mean_q[0], mean_q[1]);
+}
+
 }  // namespace
 
 int main(int argc, char** argv) {
   FLAGS_minloglevel = google::GLOG_FATAL;  // Ceres' covariance notes; flags report them
+  if (argc > 1 && std::string(argv[1]) == "demo") {
+    demo_truth_study(argc > 2 ? std::atoi(argv[2]) : 40);
+    return 0;
+  }
   const int n_sys = argc > 1 ? std::atoi(argv[1]) : 50;
   const int steps = argc > 2 ? std::atoi(argv[2]) : 20000;
+  const std::uint64_t survey_seed = argc > 3 ? std::strtoull(argv[3], nullptr, 10) : 4242;
 
   {
-    std::ifstream in(std::string(HEFT_SOURCE_DIR) + "/demo/followup/KMG-00754.json");
-    const StarFile f = read_star_file(in, "KMG-00754.json");
+    const StarFile f = demo_star_file();
     const ScreenRow row = screen_star(f.star, "", ScreenOptions{});
     FitOptions o;  // the defaults of heft fit
     omp_set_num_threads(1);
@@ -62,7 +150,7 @@ int main(int argc, char** argv) {
   }
 
   omp_set_num_threads(omp_get_num_procs());
-  const SurveyModel sm = fit_coverage_survey(4242);
+  const SurveyModel sm = fit_coverage_survey(survey_seed);
   FitOptions o = fit_coverage_options(sm);
   o.sampler.steps = steps;
   o.sampler.burn = std::min(o.sampler.burn, steps / 2);
@@ -140,8 +228,8 @@ int main(int argc, char** argv) {
     std::printf(" host by its prior alone %3.0f/%3.0f %%; optimiser in the truth's basin %3.0f %%\n",
                 100.0 * prior68 / n, 100.0 * prior95 / n, 100.0 * basin / n);
   };
-  std::printf("sampler coverage (68 %% / 95 %% intervals; 3 epochs, %d steps per chain, %.0f s):\n", steps,
-              seconds_since(t0));
+  std::printf("sampler coverage (68 %% / 95 %% intervals; 3 epochs, %d steps per chain, survey seed %llu, %.0f s):\n",
+              steps, static_cast<unsigned long long>(survey_seed), seconds_since(t0));
   report("all", [](const System&) { return true; });
   report("arc 2 yr", [](const System& s) { return s.arc == 2.0; });
   report("arc 8 yr", [](const System& s) { return s.arc == 8.0; });

@@ -110,7 +110,8 @@ Astrometry catalogue_entry(const SkyState<double>& bary_late, const CatalogueMod
 }
 }  // namespace
 
-void simulate_star(const SurveyModel& m, long index, StarRecord& star, SimTruth& t) {
+void simulate_star(const SurveyModel& m, long index, StarRecord& star, SimTruth& t,
+                   std::optional<std::uint64_t> noise_seed) {
   star = StarRecord{};
   star.id = simulated_id(m, index);
   Rng rng = Rng::for_star(m.seed, star.id);
@@ -164,16 +165,18 @@ void simulate_star(const SurveyModel& m, long index, StarRecord& star, SimTruth&
   t.dpm_late_dec = r.dpm_late_mas_yr.y();
   t.dpm_early_ra = r.dpm_early_mas_yr.x();
   t.dpm_early_dec = r.dpm_early_mas_yr.y();
-  add_noise(star.early, rng);
-  add_noise(star.late, rng);
+  Rng other = noise_seed ? Rng::for_star(*noise_seed, star.id) : Rng(0);
+  Rng& noise = noise_seed ? other : rng;
+  add_noise(star.early, noise);
+  add_noise(star.late, noise);
   // Star-level columns.
-  star.mass_msun = t.host_mass_msun * (1.0 + m.host_mass_rel_error * rng.normal());
+  star.mass_msun = t.host_mass_msun * (1.0 + m.host_mass_rel_error * noise.normal());
   star.mass_msun = std::max(star.mass_msun, 0.05 * t.host_mass_msun);
   star.mass_error_msun = m.host_mass_rel_error * t.host_mass_msun;
-  if (rng.uniform() < m.rv_fraction) {
+  if (noise.uniform() < m.rv_fraction) {
     const double reflex_rv =
         t.companion ? host_reflex(orbit, t.a_au, q, t.parallax_mas, m.late.epoch_yr).rv_km_s : 0.0;
-    star.rv_km_s = t.rv_km_s + reflex_rv + m.rv_error_km_s * rng.normal();
+    star.rv_km_s = t.rv_km_s + reflex_rv + m.rv_error_km_s * noise.normal();
     star.rv_error_km_s = m.rv_error_km_s;
   }
   // Crude main-sequence magnitude, M = 4.83 - 10 log10(m / Msun) (L ~ m^4):

@@ -5,6 +5,7 @@
 
 #include <Eigen/Core>
 #include <cstdint>
+#include <optional>
 #include <string>
 #include <vector>
 
@@ -85,7 +86,13 @@ struct SimTruth {
 
 /// Simulates star number `index` of the survey from its own random stream
 /// (seed, id), so results do not depend on order, threads or shards.
-void simulate_star(const SurveyModel& model, long index, StarRecord& star, SimTruth& truth);
+/// With `noise_seed`, what is measured after the catalogue covariances are
+/// drawn (the catalogue values' noise, the tabulated host mass, whether and
+/// what RV was measured) comes from the stream (noise_seed, id) instead:
+/// the same star, truth and covariances under another realisation of the
+/// noise, for studies of one system.
+void simulate_star(const SurveyModel& model, long index, StarRecord& star, SimTruth& truth,
+                   std::optional<std::uint64_t> noise_seed = std::nullopt);
 
 /// The injected companion's relative orbit (reference epoch: the late
 /// catalogue epoch `late_epoch_yr`); t.companion must be true.
