@@ -40,7 +40,7 @@ for id in $(awk -F, 'NR > 2 && NR <= 5 { print $1 }' "$out/ranked.csv"); do
 done
 
 echo
-echo "== 4. deep fit of KMG-00754 (catalogues + three Halcyon epochs of its companion)"
+echo "== 4. deep fit of KMG-00754 (catalogues + its companion's discovery image and three Halcyon epochs)"
 "$heft" fit "$demo/followup/KMG-00754.json" -o "$out/fit_KMG-00754.json" --samples "$out/fit_KMG-00754_samples.csv" 2>&1 |
   sed 's/^heft fit: /  /'
 awk -F, 'NR == 1 { for (k = 1; k <= NF; k++) c[$k] = k } $1 == "KMG-00754" {

@@ -15,7 +15,7 @@
 using namespace heft;
 
 TEST_CASE("fit: one residual block per observation, adding up to the model's posterior", "[fit]") {
-  // The demo follow-up star (three imaging epochs) with two invented RVs of
+  // The demo follow-up star (four imaging epochs) with two invented RVs of
   // one instrument, so that every observation type has its block.
   std::ifstream in(std::string(HEFT_SOURCE_DIR) + "/demo/followup/KMG-00754.json");
   StarFile f = read_star_file(in, "KMG-00754.json");
@@ -35,7 +35,7 @@ TEST_CASE("fit: one residual block per observation, adding up to the model's pos
     ceres::Problem problem;
     const Pinned none;
     add_residual_blocks(problem, m, none, p);
-    CHECK(problem.NumResidualBlocks() == 1 + 3 + 2 + 1);  // anomaly, 3 epochs, 2 RVs, priors
+    CHECK(problem.NumResidualBlocks() == 1 + 4 + 2 + 1);  // anomaly, 4 epochs, 2 RVs, priors
     CHECK(problem.NumResiduals() == m.n_residuals());
     double cost = 0.0;
     REQUIRE(problem.Evaluate(ceres::Problem::EvaluateOptions(), &cost, nullptr, nullptr, nullptr));
