@@ -191,12 +191,13 @@ TEST_CASE("fit: no imaging, the samples carry every parameter (parallax as its c
   CHECK(s.col(kLambda).maxCoeff() < units::kTwoPi);
 }
 
-// Known to fail (issue 14): the fit's sampler does not converge on this
-// posterior's heavy mass tail. With the angles moved in the plane its 95 %
-// upper limit moves between 43 and 75 MJup over seeds 1-6 at 6,000 steps
-// (43-81 at 20,000; R-hat 1.01-1.02, flagged), while the curve's is 60-64
-// MJup and plain importance sampling from the prior (3 million draws,
-// effective size 10,000) gives 62. Kept visible, not counted, until the
+// Known to fail: the fit's sampler does not converge on this posterior's
+// heavy mass tail (fits without imaging; docs/performance.md). With the
+// angles moved in the plane its 95 % upper limit moves between 43 and 75
+// MJup over seeds 1-6 at 6,000 steps (43-81 at 20,000; R-hat 1.01-1.02,
+// flagged), while the curve's is 54-65 MJup over seeds and plain importance
+// sampling from the prior gives 58.5 and 58.8 (two runs of 20 million
+// draws, effective size 65,000 each). Kept visible, not counted, until the
 // sampler reaches such tails.
 TEST_CASE("fit: no signal, no imaging gives an upper limit that matches heft curve", "[fit][!mayfail]") {
   // Consistency with the Monte Carlo curve (same anomaly model and prior,
