@@ -165,8 +165,9 @@ void simulate_star(const SurveyModel& m, long index, StarRecord& star, SimTruth&
   t.dpm_late_dec = r.dpm_late_mas_yr.y();
   t.dpm_early_ra = r.dpm_early_mas_yr.x();
   t.dpm_early_dec = r.dpm_early_mas_yr.y();
-  Rng other = noise_seed ? Rng::for_star(*noise_seed, star.id) : Rng(0);
-  Rng& noise = noise_seed ? other : rng;
+  std::optional<Rng> other;
+  if (noise_seed) other = Rng::for_star(*noise_seed, star.id);
+  Rng& noise = other ? *other : rng;
   add_noise(star.early, noise);
   add_noise(star.late, noise);
   // Star-level columns.
