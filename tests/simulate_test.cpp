@@ -1,4 +1,5 @@
 #include <catch2/catch.hpp>
+#include <cmath>
 
 #include "heft/screen.hpp"
 #include "heft/simulate.hpp"
