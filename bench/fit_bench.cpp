@@ -16,6 +16,7 @@
 //     "The demo star").
 //
 // Usage: fit_bench [systems per arc=50] [steps=20000] [survey seed=4242]
+//                  [tempered levels=1] [t_max=50]
 //        fit_bench demo [realisations=40]
 
 #include <glog/logging.h>
@@ -154,6 +155,8 @@ int main(int argc, char** argv) {
   FitOptions o = fit_coverage_options(sm);
   o.sampler.steps = steps;
   o.sampler.burn = std::min(o.sampler.burn, steps / 2);
+  if (argc > 4) o.sampler.temperatures = std::atoi(argv[4]);
+  if (argc > 5) o.sampler.t_max = std::atof(argv[5]);
   // Per system: inside the 68 % and 95 % intervals (mass, a, e), the regime
   // and whether the optimiser's best is within 1 of -2 ln L at the truth
   // (the orbit pinned there, the nuisances optimised).
@@ -228,8 +231,10 @@ int main(int argc, char** argv) {
     std::printf(" host by its prior alone %3.0f/%3.0f %%; optimiser in the truth's basin %3.0f %%\n",
                 100.0 * prior68 / n, 100.0 * prior95 / n, 100.0 * basin / n);
   };
-  std::printf("sampler coverage (68 %% / 95 %% intervals; 3 epochs, %d steps per chain, survey seed %llu, %.0f s):\n",
-              steps, static_cast<unsigned long long>(survey_seed), seconds_since(t0));
+  std::printf("sampler coverage (68 %% / 95 %% intervals; 3 epochs, %d steps per chain, %d tempered levels to T = %g, "
+              "survey seed %llu, %.0f s):\n",
+              steps, o.sampler.temperatures, o.sampler.t_max, static_cast<unsigned long long>(survey_seed),
+              seconds_since(t0));
   report("all", [](const System&) { return true; });
   report("arc 2 yr", [](const System& s) { return s.arc == 2.0; });
   report("arc 8 yr", [](const System& s) { return s.arc == 8.0; });
