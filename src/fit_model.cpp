@@ -405,6 +405,7 @@ Eigen::VectorXd FitModel::thiele_innes_draw(Rng& rng) const {
   // Of kCandidates draws of (a, e, M, masses) the one whose Thiele-Innes
   // fit leaves the smallest chi^2 (positions only; no model evaluation).
   constexpr int kCandidates = 32;
+  std::vector<Eigen::Vector2d> f(t.size());  // (X, Y) of each epoch
   Eigen::VectorXd best;
   double best_chi2 = std::numeric_limits<double>::infinity();
   for (int c = 0; c < kCandidates; ++c) {
@@ -420,7 +421,6 @@ Eigen::VectorXd FitModel::thiele_innes_draw(Rng& rng) const {
     for (int pass = 0; pass < 8; ++pass) {
       // Weighted least squares of x = A X + F Y and y = B X + G Y.
       const double period = period_from_a(a_au, m_total);
-      std::vector<Eigen::Vector2d> f(t.size());
       Eigen::Matrix2d n = Eigen::Matrix2d::Zero();
       Eigen::Vector2d rx = Eigen::Vector2d::Zero(), ry = Eigen::Vector2d::Zero();
       for (std::size_t k = 0; k < t.size(); ++k) {

@@ -144,9 +144,9 @@ class FitModel {
   /// constants that fit the positions by weighted least squares at those
   /// (P, e, M) (the positions are linear in A, B, F, G; e.g. Heintz 1978,
   /// Double Stars), with the period refitted to the new a until a settles
-  /// (at most eight fits); of 32 such
-  /// candidates the one with the smallest chi^2 of the positions. These
-  /// reach the basins of curved arcs, where a straight line does not.
+  /// (at most eight fits); of 32 such candidates the one with the smallest
+  /// chi^2 of the positions. These reach the basins of curved arcs, where a
+  /// straight line does not.
   /// Falls back to prior_draw.
   Eigen::VectorXd thiele_innes_draw(Rng& rng) const;
 
