@@ -4,6 +4,7 @@
 #include <Eigen/Eigenvalues>
 #include <algorithm>
 #include <numeric>
+#include <optional>
 
 #include "heft/angles.hpp"
 #include "heft/error.hpp"
@@ -399,16 +400,16 @@ double log_prior_coords(const Coords& c, const Distribution& ecc) {
   return -std::log(2.0) - 2.0 * std::log(units::kTwoPi) + ecc.log_pdf(c(3));
 }
 
-// Weights exp(log_w - max) of the samples, their sum and sum of squares.
+// Weights exp(log_w - max) of the first n samples, their sum and sum of squares.
 struct Weights {
   std::vector<double> w;
   double max_log_w, sum, sum2;
 };
-Weights weights_of(const std::vector<Sample>& ss) {
-  Weights r{std::vector<double>(ss.size(), 0.0), -std::numeric_limits<double>::infinity(), 0.0, 0.0};
-  for (const auto& s : ss) r.max_log_w = std::max(r.max_log_w, s.log_w);
+Weights weights_of(const std::vector<Sample>& ss, std::size_t n) {
+  Weights r{std::vector<double>(n, 0.0), -std::numeric_limits<double>::infinity(), 0.0, 0.0};
+  for (std::size_t i = 0; i < n; ++i) r.max_log_w = std::max(r.max_log_w, ss[i].log_w);
   if (!std::isfinite(r.max_log_w)) return r;
-  for (std::size_t i = 0; i < ss.size(); ++i) {
+  for (std::size_t i = 0; i < n; ++i) {
     // exp underflows to zero below -745.2 (and takes libm's slow path there).
     const double t = ss[i].log_w - r.max_log_w;
     r.w[i] = t > -746.0 ? std::exp(t) : 0.0;
@@ -417,6 +418,31 @@ Weights weights_of(const std::vector<Sample>& ss) {
   }
   return r;
 }
+
+// The sums of Weights over a sample that grows block by block: rescaled
+// when a block raises the maximum log weight.
+struct WeightSums {
+  double max_log_w = -std::numeric_limits<double>::infinity(), sum = 0.0, sum2 = 0.0;
+  void add(const Sample* ss, std::size_t n) {
+    double block_max = -std::numeric_limits<double>::infinity();
+    for (std::size_t i = 0; i < n; ++i) block_max = std::max(block_max, ss[i].log_w);
+    if (!std::isfinite(block_max)) return;
+    if (block_max > max_log_w) {
+      const double t = max_log_w - block_max;  // -inf on the first finite block
+      const double f = t > -746.0 ? std::exp(t) : 0.0;
+      sum *= f;
+      sum2 *= f * f;
+      max_log_w = block_max;
+    }
+    for (std::size_t i = 0; i < n; ++i) {
+      const double t = ss[i].log_w - max_log_w;
+      const double w = t > -746.0 ? std::exp(t) : 0.0;
+      sum += w;
+      sum2 += w * w;
+    }
+  }
+  double ess() const { return effective_sample_size(sum, sum2); }
+};
 
 // Gaussian kernels in the orbit-angle coordinates around ancestors, with
 // per-axis widths; angles (in [0, 2 pi)) wrap. The mixture's log density skips kernels
@@ -470,7 +496,7 @@ struct Proposal {
 // Ancestors by systematic resampling of weighted draws, and kernel widths
 // from their spread.
 Proposal proposal_from(const std::vector<Draw>& src, const Weights& wts, int nz, const Distribution& ecc) {
-  const std::size_t n = src.size();
+  const std::size_t n = wts.w.size() / nz;
   std::vector<double> cw(n);
   double acc = 0;
   for (std::size_t k = 0; k < n; ++k) {
@@ -500,23 +526,22 @@ Proposal proposal_from(const std::vector<Draw>& src, const Weights& wts, int nz,
   return p;
 }
 
-// Draws from the proposal (the second set of draws, moved onto the kernels
-// by the shared deviates) into `next`, weighed into `samples`. Returns the
-// number of window-model evaluations.
-long weigh_proposal(const Problem& pb, const DrawSet& ds, const Proposal& prop, std::vector<Draw>& next,
-                    std::vector<Sample>& samples) {
+// Draws j in [begin, end) of the proposal (the second set of draws, moved
+// onto the kernels by the shared deviates) into `next`, weighed into
+// `samples`. Returns the number of window-model evaluations.
+long weigh_proposal(const Problem& pb, const DrawSet& ds, const Proposal& prop, const KernelMixture& mixture,
+                    std::vector<Draw>& next, std::vector<Sample>& samples, std::size_t begin, std::size_t end) {
   const CurveOptions& opt = pb.opt;
   const int nz = opt.z_samples;
   const std::size_t n = ds.second.size(), n_anc = prop.anc.size();
-  const KernelMixture mixture(prop.anc, prop.width);
-  next = ds.second;
-  std::vector<double> log_extra(n);
+  long evaluations = 0;
 #pragma omp parallel
   {
     std::vector<double> scratch;
-#pragma omp for schedule(static)
-    for (std::size_t j = 0; j < n; ++j) {
+#pragma omp for schedule(static) reduction(+ : evaluations)
+    for (std::size_t j = begin; j < end; ++j) {
       Draw& dr = next[j];
+      dr = ds.second[j];
       if (ds.pick[j] >= 0.5) {  // kernel component
         const Coords& a = prop.anc[static_cast<std::size_t>(ds.pick[j + n] * n_anc) % n_anc];
         Coords c = a + prop.width.cwiseProduct(ds.kernel[j]);
@@ -531,22 +556,61 @@ long weigh_proposal(const Problem& pb, const DrawSet& ds, const Proposal& prop, 
       }
       const Coords c = coords_of(dr);
       const double lp = log_prior_coords(c, opt.prior.ecc);
-      // Mixture density 0.5 prior + 0.5 kernels.
-      const double lk = mixture.log_density(c, scratch);
-      const double mix = std::isfinite(lp) ? log_add_exp(lp, lk) - std::log(2.0) : lk;
-      log_extra[j] = std::isfinite(lp) ? lp - mix : -std::numeric_limits<double>::infinity();
-    }
-  }
-  long evaluations = 0;
-#pragma omp parallel for schedule(static) reduction(+ : evaluations)
-  for (std::size_t j = 0; j < n; ++j) {
-    if (std::isfinite(log_extra[j])) {
-      evaluations += weigh_draw(pb, next[j], &ds.dev[next[j].dev], log_extra[j], &samples[j * nz]);
-    } else {  // outside the prior's support: no weight
-      for (int s = 0; s < nz; ++s) samples[j * nz + s] = {-std::numeric_limits<double>::infinity(), 0.0, 0.0, 0.0};
+      if (std::isfinite(lp)) {
+        // Mixture density 0.5 prior + 0.5 kernels.
+        const double mix = log_add_exp(lp, mixture.log_density(c, scratch)) - std::log(2.0);
+        evaluations += weigh_draw(pb, dr, &ds.dev[dr.dev], lp - mix, &samples[j * nz]);
+      } else {  // outside the prior's support: no weight
+        for (int s = 0; s < nz; ++s) samples[j * nz + s] = {-std::numeric_limits<double>::infinity(), 0.0, 0.0, 0.0};
+      }
     }
   }
   return evaluations;
+}
+
+// Effective sample size a separation aims for: enough for percentiles to
+// ~2 % of the band.
+constexpr double kTargetEss = 1000.0;
+// A round weighs its draws in this many blocks and stops at the first block
+// boundary where the target is met, or, when a later round can take over,
+// where the target is out of reach even with every block (the effective
+// sample size grows about in proportion to the draws).
+constexpr int kBlocks = 4;
+
+struct RoundResult {
+  std::size_t used = 0;  ///< draws weighed (a prefix of the round's draws)
+  long evaluations = 0;
+  double ess = 0.0;
+};
+
+// One round of importance sampling: the prior draws (`prop` null) or draws
+// from `prop` into `drawn`, in blocks.
+RoundResult run_round(const Problem& pb, const DrawSet& ds, const Proposal* prop, std::vector<Draw>& drawn,
+                      std::vector<Sample>& samples, bool may_stop_short) {
+  const int nz = pb.opt.z_samples;
+  const std::size_t n = ds.first.size(), block = (n + kBlocks - 1) / kBlocks;
+  std::optional<KernelMixture> mixture;
+  if (prop) mixture.emplace(prop->anc, prop->width);
+  RoundResult r;
+  WeightSums sums;
+  for (std::size_t begin = 0; begin < n; begin += block) {
+    const std::size_t end = std::min(n, begin + block);
+    if (prop) {
+      r.evaluations += weigh_proposal(pb, ds, *prop, *mixture, drawn, samples, begin, end);
+    } else {
+      long evaluations = 0;
+#pragma omp parallel for schedule(static) reduction(+ : evaluations)
+      for (std::size_t k = begin; k < end; ++k)
+        evaluations += weigh_draw(pb, ds.first[k], &ds.dev[ds.first[k].dev], 0.0, &samples[k * nz]);
+      r.evaluations += evaluations;
+    }
+    sums.add(&samples[begin * nz], (end - begin) * nz);
+    r.used = end;
+    r.ess = sums.ess();
+    if (r.ess >= kTargetEss) break;
+    if (may_stop_short && r.ess * static_cast<double>(n) / static_cast<double>(end) < kTargetEss) break;
+  }
+  return r;
 }
 
 struct PointResult {
@@ -561,52 +625,58 @@ struct PointResult {
 // One separation. `seed`: the final proposal of a neighbouring separation
 // that needed the adaptive stage (the posterior of the orbit angles changes
 // slowly with a), or null to start from the prior.
+// Buffers of a separation, reused by the next one (no page faults per point).
+struct Scratch {
+  std::vector<Sample> samples;
+  std::vector<Draw> adapted, next;
+};
+
 PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const DrawSet& ds,
-                       const ZPlanePrior& prior, bool upper, double a_au, const Proposal* seed) {
+                       const ZPlanePrior& prior, bool upper, double a_au, const Proposal* seed,
+                       Scratch& scratch) {
   Eigen::LLT<Eigen::Matrix4d> cllt(d.cov);
   const double chi2_data = d.dpm.dot(cllt.solve(d.dpm));
   const Problem pb{d, opt, prior, cllt.solve(Eigen::Matrix4d::Identity()), chi2_data, a_au,
                    d.late.ref_epoch_yr - d.early.ref_epoch_yr, std::sqrt(chi2_data)};
   const int nz = opt.z_samples;
   const std::size_t n = ds.first.size();
-  std::vector<Sample> samples(n * nz);
+  std::vector<Sample>& samples = scratch.samples;
+  samples.resize(n * nz);
   PointResult r;
-  long evaluations = 0;
-  std::vector<Draw> adapted;
-  const std::vector<Draw>* used = &ds.first;
-  if (seed) {
-    evaluations += weigh_proposal(pb, ds, *seed, adapted, samples);
-    used = &adapted;
-    r.proposal = *seed;
-  } else {
-#pragma omp parallel for schedule(static) reduction(+ : evaluations)
-    for (std::size_t k = 0; k < n; ++k)
-      evaluations += weigh_draw(pb, ds.first[k], &ds.dev[ds.first[k].dev], 0.0, &samples[k * nz]);
-  }
-  r.draws_weighed += static_cast<long>(n);
-  Weights wts = weights_of(samples);
-  // Adaptive stage when the draws degenerate (high S/N): up to three
-  // rounds, each proposing around the previous round's weighted draws, with
-  // the same deviates for every a. Effective sample size below which it
-  // runs: enough for percentiles to ~2 % of the band.
-  constexpr double kAdaptEss = 1000.0;
-  std::vector<Draw> next;
+  // The draws of the latest round: the prior draws, or draws from a proposal.
+  std::vector<Draw>&adapted = scratch.adapted, &next = scratch.next;
+  adapted.resize(n);
+  next.resize(n);
+  const std::vector<Draw>* used = seed ? &adapted : &ds.first;
+  if (seed) r.proposal = *seed;
+  // Up to three adaptive rounds when the draws degenerate (high S/N), each
+  // proposing around the previous round's weighted draws, with the same
+  // deviates for every a. The first round runs in full unless it meets the
+  // target (its draws seed the proposal); an adaptive round may stop short
+  // while another can follow (measured: more rounds for the same draws give
+  // fewer separations below 100 effective samples).
+  constexpr int kMaxRounds = 3;
+  RoundResult round = run_round(pb, ds, seed, adapted, samples, false);
+  long evaluations = round.evaluations;
+  r.draws_weighed += static_cast<long>(round.used);
   int rounds = 0;
-  for (; rounds < 3 && effective_sample_size(wts.sum, wts.sum2) < kAdaptEss; ++rounds) {
-    r.proposal = proposal_from(*used, wts, nz, opt.prior.ecc);
-    evaluations += weigh_proposal(pb, ds, r.proposal, next, samples);
-    r.draws_weighed += static_cast<long>(n);
-    wts = weights_of(samples);
+  while (rounds < kMaxRounds && round.ess < kTargetEss) {
+    r.proposal = proposal_from(*used, weights_of(samples, round.used * nz), nz, opt.prior.ecc);
+    round = run_round(pb, ds, &r.proposal, next, samples, ++rounds < kMaxRounds);
+    evaluations += round.evaluations;
+    r.draws_weighed += static_cast<long>(round.used);
     adapted.swap(next);
     used = &adapted;
   }
+  const std::size_t n_samples = round.used * nz;
+  const Weights wts = weights_of(samples, n_samples);
   // A neighbour's proposal is passed on only while the posterior stays
   // where its kernels are: when the kernels' draws hold less than half the
   // weight here, the posterior is broad again, and the next separation
   // starts from the prior draws.
   if (seed && rounds == 0 && wts.sum > 0) {
     double kernel_w = 0.0;
-    for (std::size_t j = 0; j < n; ++j)
+    for (std::size_t j = 0; j < round.used; ++j)
       if (ds.pick[j] >= 0.5)
         for (int s = 0; s < nz; ++s) kernel_w += wts.w[j * nz + s];
     if (kernel_w < 0.5 * wts.sum) r.proposal.anc.clear();
@@ -623,15 +693,15 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const Draw
   p.ess = effective_sample_size(wts.sum, wts.sum2);
   // The mean weight estimates the marginal likelihood; its relative
   // variance is 1 / ESS - 1 / N.
-  r.evidence_rel_var = sw > 0 ? std::max(0.0, 1.0 / p.ess - 1.0 / static_cast<double>(samples.size())) : 0.0;
+  r.evidence_rel_var = sw > 0 ? std::max(0.0, 1.0 / p.ess - 1.0 / static_cast<double>(n_samples)) : 0.0;
   r.log_evidence = std::isfinite(wts.max_log_w) && sw > 0
-                       ? wts.max_log_w + std::log(sw) - std::log(static_cast<double>(samples.size()))
+                       ? wts.max_log_w + std::log(sw) - std::log(static_cast<double>(n_samples))
                        : -std::numeric_limits<double>::infinity();
   p.mass_lo95 = p.mass_lo68 = p.mass_med = p.mass_hi68 = p.mass_hi95 = kAbsent;
   if (sw > 0) {
     std::vector<std::pair<double, double>> pairs;
-    pairs.reserve(samples.size());
-    for (std::size_t i = 0; i < samples.size(); ++i)
+    pairs.reserve(n_samples);
+    for (std::size_t i = 0; i < n_samples; ++i)
       if (wts.w[i] > 0) pairs.emplace_back(samples[i].m2_mjup, wts.w[i]);
     if (upper) {
       const std::vector<double> q = weighted_quantiles(pairs, sw, {0.68, 0.95});
@@ -650,7 +720,7 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const Draw
     // Systematic resampling to at most 256 equal-weight draws per separation.
     const std::size_t keep = 256;
     double acc = 0, next = 0.5 * sw / keep;
-    for (std::size_t i = 0; i < samples.size() && r.draws.size() < keep; ++i) {
+    for (std::size_t i = 0; i < n_samples && r.draws.size() < keep; ++i) {
       acc += wts.w[i];
       while (acc >= next && r.draws.size() < keep) {
         const Draw& dr = fin[i / nz];
@@ -754,13 +824,14 @@ Curve montecarlo_curve(const AnomalyData& d, const CurveOptions& opt, const std:
   c.upper_limit = opt.prior.upper_limit(d.sig_joint);
   const ZPlanePrior prior(opt.prior.mass_prior(c.upper_limit));
   const DrawSet draws = make_draws(d, opt, prior, rng_id);
+  Scratch scratch;
   std::vector<PointResult> pts;
   // Each separation starts from its left neighbour's proposal when that one
   // needed the adaptive stage (in grid order, so results do not depend on
   // threads).
   auto seed_of = [](const PointResult& p) { return p.proposal.anc.empty() ? nullptr : &p.proposal; };
   for (double a : opt.a_au)
-    pts.push_back(evaluate_a(d, opt, draws, prior, c.upper_limit, a, pts.empty() ? nullptr : seed_of(pts.back())));
+    pts.push_back(evaluate_a(d, opt, draws, prior, c.upper_limit, a, pts.empty() ? nullptr : seed_of(pts.back()), scratch));
   // Adaptive refinement where neighbouring bands do not overlap or the
   // posterior weight jumps by more than a factor 3.
   for (int round = 0; round < opt.refine_rounds; ++round) {
@@ -775,7 +846,7 @@ Curve montecarlo_curve(const AnomalyData& d, const CurveOptions& opt, const std:
       const bool jump = wmax > 1e-3 && wmin < wmax / 3.0;
       if (bands_disjoint(p, q) || jump) {
         const Proposal* seed = seed_of(pts[k]) ? seed_of(pts[k]) : seed_of(pts[k + 1]);
-        refined.push_back(evaluate_a(d, opt, draws, prior, c.upper_limit, std::sqrt(p.a_au * q.a_au), seed));
+        refined.push_back(evaluate_a(d, opt, draws, prior, c.upper_limit, std::sqrt(p.a_au * q.a_au), seed, scratch));
         changed = true;
       }
     }
