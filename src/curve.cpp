@@ -738,8 +738,12 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const Draw
   return r;
 }
 
+// Whether two neighbouring 68 % bands do not overlap; a band from fewer than
+// kLowEss effective samples is noise, and its mismatch is no feature to
+// resolve.
 bool bands_disjoint(const CurvePoint& a, const CurvePoint& b) {
   if (!present(a.mass_lo68) || !present(b.mass_lo68)) return false;
+  if (a.ess < kLowEss || b.ess < kLowEss) return false;
   return a.mass_hi68 < b.mass_lo68 || b.mass_hi68 < a.mass_lo68;
 }
 

@@ -85,6 +85,10 @@ struct Curve {
   double log10_bayes_error = std::numeric_limits<double>::quiet_NaN();
 };
 
+/// Effective sample size below which a Monte Carlo point's band is
+/// unreliable: `heft curve` warns, and the grid is not refined for it.
+inline constexpr double kLowEss = 100.0;
+
 /// Forward-model Monte Carlo curve (docs/method.md, Sect. 8).
 /// The model anomalies are linear in z = q (cos Omega, sin Omega), so each
 /// draw of (i, omega, e, phase, host mass, parallax) is marginalised over z

@@ -140,7 +140,7 @@ int run_curve(CurveCliOptions o) {
         for (const auto& dr : c.draws) append_draw_row(dbuf, star.id, dr);
         draws->write(dbuf);
       }
-      const bool low_ess = o.method == "montecarlo" && c.min_ess < 100.0;
+      const bool low_ess = o.method == "montecarlo" && c.min_ess < kLowEss;
       if (low_ess && !o.quiet)  // printed after the progress bar is gone
         warnings.push_back("warning: star " + star.id + ": effective sample size " +
                            format_double(std::round(c.min_ess)) + " < 100 at some separation; raise --draws");
