@@ -572,9 +572,9 @@ long weigh_proposal(const Problem& pb, const DrawSet& ds, const Proposal& prop, 
 // ~2 % of the band.
 constexpr double kTargetEss = 1000.0;
 // A round weighs its draws in this many blocks and stops at the first block
-// boundary where the target is met, or, when a later round can take over,
-// where the target is out of reach even with every block (the effective
-// sample size grows about in proportion to the draws).
+// boundary where the target is met, or where the effective sample size
+// projected to every block (it grows about in proportion to the draws)
+// falls short of the round's threshold.
 constexpr int kBlocks = 4;
 
 struct RoundResult {
@@ -584,9 +584,9 @@ struct RoundResult {
 };
 
 // One round of importance sampling: the prior draws (`prop` null) or draws
-// from `prop` into `drawn`, in blocks.
+// from `prop` into `drawn`, in blocks, stopping short below `min_projected_ess`.
 RoundResult run_round(const Problem& pb, const DrawSet& ds, const Proposal* prop, std::vector<Draw>& drawn,
-                      std::vector<Sample>& samples, bool may_stop_short) {
+                      std::vector<Sample>& samples, double min_projected_ess) {
   const int nz = pb.opt.z_samples;
   const std::size_t n = ds.first.size(), block = (n + kBlocks - 1) / kBlocks;
   std::optional<KernelMixture> mixture;
@@ -608,7 +608,7 @@ RoundResult run_round(const Problem& pb, const DrawSet& ds, const Proposal* prop
     r.used = end;
     r.ess = sums.ess();
     if (r.ess >= kTargetEss) break;
-    if (may_stop_short && r.ess * static_cast<double>(n) / static_cast<double>(end) < kTargetEss) break;
+    if (r.ess * static_cast<double>(n) / static_cast<double>(end) < min_projected_ess) break;
   }
   return r;
 }
@@ -652,17 +652,18 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const Draw
   // Up to three adaptive rounds when the draws degenerate (high S/N), each
   // proposing around the previous round's weighted draws, with the same
   // deviates for every a. The first round runs in full unless it meets the
-  // target (its draws seed the proposal); an adaptive round may stop short
-  // while another can follow (measured: more rounds for the same draws give
-  // fewer separations below 100 effective samples).
+  // target (its draws seed the proposal); an adaptive round stops short when
+  // the target is out of reach and another round can follow (measured: more
+  // rounds for the same draws give fewer separations below kLowEss), the
+  // last one when even kLowEss is (the band is flagged either way).
   constexpr int kMaxRounds = 3;
-  RoundResult round = run_round(pb, ds, seed, adapted, samples, false);
+  RoundResult round = run_round(pb, ds, seed, adapted, samples, 0.0);
   long evaluations = round.evaluations;
   r.draws_weighed += static_cast<long>(round.used);
   int rounds = 0;
   while (rounds < kMaxRounds && round.ess < kTargetEss) {
     r.proposal = proposal_from(*used, weights_of(samples, round.used * nz), nz, opt.prior.ecc);
-    round = run_round(pb, ds, &r.proposal, next, samples, ++rounds < kMaxRounds);
+    round = run_round(pb, ds, &r.proposal, next, samples, ++rounds < kMaxRounds ? kTargetEss : kLowEss);
     evaluations += round.evaluations;
     r.draws_weighed += static_cast<long>(round.used);
     adapted.swap(next);
