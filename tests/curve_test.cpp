@@ -124,6 +124,42 @@ TEST_CASE("upper limits are finite and do not depend on the lower mass bound", "
   CHECK(total == Approx(1.0).epsilon(1e-12));
 }
 
+TEST_CASE("curve rounds: draws are weighed in blocks until 1,000 effective samples", "[curve]") {
+  // The engine's own contract (docs/method.md, Sect. 8; no outside source):
+  // a round adds a quarter of --draws at a time and stops once the effective
+  // sample size reaches 1,000. Without signal the posterior is close to the
+  // prior, so the first block (1,024 draws x 8 z samples) suffices; at high
+  // S/N the first round cannot, and the adaptive rounds follow.
+  AnomalyData d = data_for(Orbit<double>{10, 0, 0, 0, 0, 0, 2016}, 5.0, 0.0, 1.0, 20.0, 0.03, 0.5,
+                           kEarly, kLate);
+  d.dpm << 0.02, -0.01, 0.3, 0.2;
+  d.sig_joint = 1.0;
+  CurveOptions opt;
+  opt.a_au = {1.0, 10.0, 100.0};
+  opt.refine_rounds = 0;
+  const Curve quiet = montecarlo_curve(d, opt, "single");
+  CHECK(quiet.draws_weighed == 3 * 1024);
+  for (const auto& p : quiet.points) CHECK(p.ess >= 1000.0);
+
+  // A detection at S/N 15 (noiseless data of 10 MJup at 5 AU) reaches the
+  // target within the first round's blocks and its band holds the mass; at
+  // S/N 76 the first round runs in full and the adaptive rounds follow.
+  const double P = period_from_a(5.0, 1.0);
+  const Orbit<double> o{P, 0.3, 1.0, 2.0, 0.5, 1.0, 2016.0};
+  opt.a_au = {5.0};
+  const AnomalyData mid = data_for(o, 5.0, 10.0, 1.0, 50.0, 0.05, 0.3, kEarly, kLate);
+  const Curve c = montecarlo_curve(mid, opt, "mid");
+  INFO("draws weighed " << c.draws_weighed << ", ess " << c.points[0].ess);
+  CHECK(c.draws_weighed < 4096);
+  CHECK(c.points[0].ess >= 1000.0);
+  CHECK(c.points[0].mass_lo95 <= 10.0);
+  CHECK(c.points[0].mass_hi95 >= 10.0);
+  const AnomalyData loud = data_for(o, 5.0, 10.0, 1.0, 50.0, 0.01, 0.05, kEarly, kLate);
+  const Curve h = montecarlo_curve(loud, opt, "loud");
+  CHECK(h.draws_weighed > 4096);       // the first round in full, then adaptive rounds
+  CHECK(h.draws_weighed <= 4 * 4096);  // at most three of them
+}
+
 TEST_CASE("single stars: false-detection rate matches the chosen sigma", "[curve]") {
   // A star is a detection when sig_joint >= --detect-sigma (3): for single
   // stars the rate is 2 Phi(-3) = 0.27 % (chi2(4) converted to a two-sided
