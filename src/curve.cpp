@@ -836,7 +836,8 @@ Curve montecarlo_curve(const AnomalyData& d, const CurveOptions& opt, const std:
   // threads).
   auto seed_of = [](const PointResult& p) { return p.proposal.anc.empty() ? nullptr : &p.proposal; };
   for (double a : opt.a_au)
-    pts.push_back(evaluate_a(d, opt, draws, prior, c.upper_limit, a, pts.empty() ? nullptr : seed_of(pts.back()), scratch));
+    pts.push_back(evaluate_a(d, opt, draws, prior, c.upper_limit, a, pts.empty() ? nullptr : seed_of(pts.back()),
+                             scratch));
   // Adaptive refinement where neighbouring bands do not overlap or the
   // posterior weight jumps by more than a factor 3.
   for (int round = 0; round < opt.refine_rounds; ++round) {
@@ -851,7 +852,8 @@ Curve montecarlo_curve(const AnomalyData& d, const CurveOptions& opt, const std:
       const bool jump = wmax > 1e-3 && wmin < wmax / 3.0;
       if (bands_disjoint(p, q) || jump) {
         const Proposal* seed = seed_of(pts[k]) ? seed_of(pts[k]) : seed_of(pts[k + 1]);
-        refined.push_back(evaluate_a(d, opt, draws, prior, c.upper_limit, std::sqrt(p.a_au * q.a_au), seed, scratch));
+        refined.push_back(
+            evaluate_a(d, opt, draws, prior, c.upper_limit, std::sqrt(p.a_au * q.a_au), seed, scratch));
         changed = true;
       }
     }

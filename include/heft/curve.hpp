@@ -46,7 +46,10 @@ AnomalyData anomaly_data(const StarRecord& star, const AnomalyResult& r, double 
 /// Options of a curve (units in the names).
 struct CurveOptions {
   std::vector<double> a_au;     ///< trial semi-major axes (sorted ascending)
-  int draws = 4096;             ///< orbit draws per separation (common random numbers)
+  /// Orbit draws per separation and round, at most (common random numbers):
+  /// a round weighs a quarter at a time until the effective sample size
+  /// reaches 1,000 (docs/method.md, Sect. 8).
+  int draws = 4096;
   int z_samples = 8;            ///< samples of z per draw
   PriorOptions prior;           ///< mass and eccentricity priors, detect_sigma
   int refine_rounds = 2;        ///< adaptive refinement of the a grid

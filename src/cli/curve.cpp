@@ -227,7 +227,9 @@ void setup_curve(CLI::App& app, Runner& run) {
   sub->add_option("--a-list", o->a_list, "explicit trial semi-major axes A1,A2,... (AU)")
       ->delimiter(',')
       ->check(CLI::PositiveNumber);
-  sub->add_option("--draws", c.draws, "orbit draws per separation")
+  sub->add_option("--draws", c.draws,
+                  "orbit draws per separation and round, at most (weighed a quarter at a time until 1,000 "
+                  "effective samples)")
       ->check(CLI::Range(16, 10000000))->capture_default_str();
   add_prior_options(sub, c.prior, o->ecc, "below this sig_joint the curve is an upper limit (prior uniform in mass)");
   sub->add_option("--starts", o->starts, "optimiser starts per separation (profile method)")
