@@ -195,7 +195,7 @@ TEST_CASE("fit: no imaging, the samples carry every parameter (parallax as its c
 // heavy mass tail (fits without imaging; docs/performance.md). With the
 // angles moved in the plane its 95 % upper limit moves between 43 and 75
 // MJup over seeds 1-6 at 6,000 steps (43-81 at 20,000; R-hat 1.01-1.02,
-// flagged), while the curve's is 54-65 MJup over seeds and plain importance
+// flagged), while the curve's is 53-68 MJup over seeds 1-8 and plain importance
 // sampling from the prior gives 58.5 and 58.8 (two runs of 20 million
 // draws, effective size 65,000 each). Kept visible, not counted, until the
 // sampler reaches such tails.
