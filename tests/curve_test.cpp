@@ -29,6 +29,21 @@ AnomalyData data_for(const Orbit<double>& o, double a_au, double m2_mjup, double
   return d;
 }
 const Window kEarly{1989.85, 1993.21, 1991.25, {}, {}}, kLate{2014.57, 2017.41, 2016.0, {}, {}};
+
+// A star with no significant anomaly (sig_joint 1) at 20 mas.
+AnomalyData no_signal_data() {
+  AnomalyData d = data_for(Orbit<double>{10, 0, 0, 0, 0, 0, 2016}, 5.0, 0.0, 1.0, 20.0, 0.03, 0.5,
+                           kEarly, kLate);
+  d.dpm << 0.02, -0.01, 0.3, 0.2;
+  d.sig_joint = 1.0;
+  return d;
+}
+
+// Its curve at 1, 10 and 100 AU.
+Curve no_signal_curve(CurveOptions opt) {
+  opt.a_au = {1.0, 10.0, 100.0};
+  return montecarlo_curve(no_signal_data(), opt, "single");
+}
 }  // namespace
 
 TEST_CASE("Jupiter-Sun analogue: the curve at 5.2 AU brackets 1 MJup", "[curve]") {
@@ -101,16 +116,11 @@ TEST_CASE("curve limits: sqrt(a) law and the turn-up at both ends", "[curve]") {
 
 TEST_CASE("upper limits are finite and do not depend on the lower mass bound", "[curve]") {
   // A star with no significant anomaly: prior uniform in mass on [0, m_max].
-  AnomalyData d = data_for(Orbit<double>{10, 0, 0, 0, 0, 0, 2016}, 5.0, 0.0, 1.0, 20.0, 0.03, 0.5,
-                           kEarly, kLate);
-  d.dpm << 0.02, -0.01, 0.3, 0.2;
-  d.sig_joint = 1.0;
   CurveOptions opt;
-  opt.a_au = {1.0, 10.0, 100.0};
   opt.draws = 1024;
-  const Curve a = montecarlo_curve(d, opt, "single");
+  const Curve a = no_signal_curve(opt);
   opt.prior.m_min_mjup = 5.0;
-  const Curve b = montecarlo_curve(d, opt, "single");
+  const Curve b = no_signal_curve(opt);
   REQUIRE(a.upper_limit);
   for (std::size_t k = 0; k < a.points.size(); ++k) {
     CHECK(std::isfinite(a.points[k].mass_hi95));
@@ -130,14 +140,9 @@ TEST_CASE("curve rounds: draws are weighed in blocks until 1,000 effective sampl
   // sample size reaches 1,000. Without signal the posterior is close to the
   // prior, so the first block (1,024 draws x 8 z samples) suffices; at high
   // S/N the first round cannot, and the adaptive rounds follow.
-  AnomalyData d = data_for(Orbit<double>{10, 0, 0, 0, 0, 0, 2016}, 5.0, 0.0, 1.0, 20.0, 0.03, 0.5,
-                           kEarly, kLate);
-  d.dpm << 0.02, -0.01, 0.3, 0.2;
-  d.sig_joint = 1.0;
   CurveOptions opt;
-  opt.a_au = {1.0, 10.0, 100.0};
   opt.refine_rounds = 0;
-  const Curve quiet = montecarlo_curve(d, opt, "single");
+  const Curve quiet = no_signal_curve(opt);
   CHECK(quiet.draws_weighed == 3 * 1024);
   for (const auto& p : quiet.points) CHECK(p.ess >= 1000.0);
 
