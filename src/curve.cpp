@@ -622,15 +622,15 @@ struct PointResult {
   Proposal proposal;  ///< the last proposal used (empty without the adaptive stage)
 };
 
-// One separation. `seed`: the final proposal of a neighbouring separation
-// that needed the adaptive stage (the posterior of the orbit angles changes
-// slowly with a), or null to start from the prior.
 // Buffers of a separation, reused by the next one (no page faults per point).
 struct Scratch {
   std::vector<Sample> samples;
   std::vector<Draw> adapted, next;
 };
 
+// One separation. `seed`: the final proposal of a neighbouring separation
+// that needed the adaptive stage (the posterior of the orbit angles changes
+// slowly with a), or null to start from the prior.
 PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const DrawSet& ds,
                        const ZPlanePrior& prior, bool upper, double a_au, const Proposal* seed,
                        Scratch& scratch) {
