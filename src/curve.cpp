@@ -624,8 +624,8 @@ struct PointResult {
 
 // Buffers of a separation, reused by the next one (no page faults per point).
 struct Scratch {
-  std::vector<Sample> samples;
-  std::vector<Draw> adapted, next;
+  std::vector<Sample> samples, best_samples;
+  std::vector<Draw> draws, best_draws;
 };
 
 // One separation. `seed`: the final proposal of a neighbouring separation
@@ -640,14 +640,13 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const Draw
                    d.late.ref_epoch_yr - d.early.ref_epoch_yr, std::sqrt(chi2_data)};
   const int nz = opt.z_samples;
   const std::size_t n = ds.first.size();
-  std::vector<Sample>& samples = scratch.samples;
-  samples.resize(n * nz);
+  // Each round writes into the `samples` and `draws` buffers; the round
+  // with the largest effective sample size is kept in the `best_` ones.
+  std::vector<Sample>&samples = scratch.samples, &best_samples = scratch.best_samples;
+  std::vector<Draw>&draws = scratch.draws, &best_draws = scratch.best_draws;
+  for (auto* v : {&samples, &best_samples}) v->resize(n * nz);
+  for (auto* v : {&draws, &best_draws}) v->resize(n);
   PointResult r;
-  // The draws of the latest round: the prior draws, or draws from a proposal.
-  std::vector<Draw>&adapted = scratch.adapted, &next = scratch.next;
-  adapted.resize(n);
-  next.resize(n);
-  const std::vector<Draw>* used = seed ? &adapted : &ds.first;
   if (seed) r.proposal = *seed;
   // Up to three adaptive rounds when the draws degenerate (high S/N), each
   // proposing around the previous round's weighted draws, with the same
@@ -655,34 +654,53 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const Draw
   // target (its draws seed the proposal); an adaptive round stops short when
   // the target is out of reach and another round can follow (measured: more
   // rounds for the same draws give fewer separations below kLowEss), the
-  // last one when even kLowEss is (the band is flagged either way).
+  // last one when even kLowEss is (the band is flagged either way). A short
+  // round can fall below an earlier one: the best round gives the results.
   constexpr int kMaxRounds = 3;
-  RoundResult round = run_round(pb, ds, seed, adapted, samples, 0.0);
-  long evaluations = round.evaluations;
-  r.draws_weighed += static_cast<long>(round.used);
+  RoundResult best = run_round(pb, ds, seed, draws, samples, 0.0);
+  samples.swap(best_samples);
+  draws.swap(best_draws);
+  long evaluations = best.evaluations;
+  r.draws_weighed += static_cast<long>(best.used);
+  // The draws of the best round: the prior draws, or draws from a proposal.
+  const std::vector<Draw>* best_used = seed ? &best_draws : &ds.first;
+  // The latest round, which the next proposal starts from.
+  const std::vector<Draw>* latest_draws = best_used;
+  const std::vector<Sample>* latest_samples = &best_samples;
+  std::size_t latest_used = best.used;
   int rounds = 0;
-  while (rounds < kMaxRounds && round.ess < kTargetEss) {
-    r.proposal = proposal_from(*used, weights_of(samples, round.used * nz), nz, opt.prior.ecc);
-    round = run_round(pb, ds, &r.proposal, next, samples, ++rounds < kMaxRounds ? kTargetEss : kLowEss);
+  while (rounds < kMaxRounds && best.ess < kTargetEss) {
+    r.proposal = proposal_from(*latest_draws, weights_of(*latest_samples, latest_used * nz), nz, opt.prior.ecc);
+    const RoundResult round =
+        run_round(pb, ds, &r.proposal, draws, samples, ++rounds < kMaxRounds ? kTargetEss : kLowEss);
     evaluations += round.evaluations;
     r.draws_weighed += static_cast<long>(round.used);
-    adapted.swap(next);
-    used = &adapted;
+    latest_used = round.used;
+    if (round.ess > best.ess) {
+      best = round;
+      samples.swap(best_samples);
+      draws.swap(best_draws);
+      best_used = latest_draws = &best_draws;
+      latest_samples = &best_samples;
+    } else {
+      latest_draws = &draws;
+      latest_samples = &samples;
+    }
   }
-  const std::size_t n_samples = round.used * nz;
-  const Weights wts = weights_of(samples, n_samples);
+  const std::size_t n_samples = best.used * nz;
+  const Weights wts = weights_of(best_samples, n_samples);
   // A neighbour's proposal is passed on only while the posterior stays
   // where its kernels are: when the kernels' draws hold less than half the
   // weight here, the posterior is broad again, and the next separation
   // starts from the prior draws.
   if (seed && rounds == 0 && wts.sum > 0) {
     double kernel_w = 0.0;
-    for (std::size_t j = 0; j < round.used; ++j)
+    for (std::size_t j = 0; j < best.used; ++j)
       if (ds.pick[j] >= 0.5)
         for (int s = 0; s < nz; ++s) kernel_w += wts.w[j * nz + s];
     if (kernel_w < 0.5 * wts.sum) r.proposal.anc.clear();
   }
-  const std::vector<Draw>& fin = *used;
+  const std::vector<Draw>& fin = *best_used;
   r.window_evaluations = evaluations;
 
   // Reduce in a fixed order: results do not depend on the thread count.
@@ -703,7 +721,7 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const Draw
     std::vector<std::pair<double, double>> pairs;
     pairs.reserve(n_samples);
     for (std::size_t i = 0; i < n_samples; ++i)
-      if (wts.w[i] > 0) pairs.emplace_back(samples[i].m2_mjup, wts.w[i]);
+      if (wts.w[i] > 0) pairs.emplace_back(best_samples[i].m2_mjup, wts.w[i]);
     if (upper) {
       const std::vector<double> q = weighted_quantiles(pairs, sw, {0.68, 0.95});
       p.mass_hi68 = q[0];
@@ -725,7 +743,7 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const Draw
       acc += wts.w[i];
       while (acc >= next && r.draws.size() < keep) {
         const Draw& dr = fin[i / nz];
-        const Sample& s = samples[i];
+        const Sample& s = best_samples[i];
         const double m2_msun = s.m2_mjup / units::kMjupPerMsun;
         r.draws.push_back({a_au, s.m2_mjup, dr.ecc, units::rad_to_deg(dr.inc),
                            units::rad_to_deg(dr.omega),
