@@ -400,6 +400,10 @@ double log_prior_coords(const Coords& c, const Distribution& ecc) {
   return -std::log(2.0) - 2.0 * std::log(units::kTwoPi) + ecc.log_pdf(c(3));
 }
 
+// exp(t) for t <= 0, zero where it underflows (below -745.2, where libm
+// also takes its slow path).
+double exp_or_zero(double t) { return t > -746.0 ? std::exp(t) : 0.0; }
+
 // Weights exp(log_w - max) of the first n samples, their sum and sum of squares.
 struct Weights {
   std::vector<double> w;
@@ -410,9 +414,7 @@ Weights weights_of(const std::vector<Sample>& ss, std::size_t n) {
   for (std::size_t i = 0; i < n; ++i) r.max_log_w = std::max(r.max_log_w, ss[i].log_w);
   if (!std::isfinite(r.max_log_w)) return r;
   for (std::size_t i = 0; i < n; ++i) {
-    // exp underflows to zero below -745.2 (and takes libm's slow path there).
-    const double t = ss[i].log_w - r.max_log_w;
-    r.w[i] = t > -746.0 ? std::exp(t) : 0.0;
+    r.w[i] = exp_or_zero(ss[i].log_w - r.max_log_w);
     r.sum += r.w[i];
     r.sum2 += r.w[i] * r.w[i];
   }
@@ -428,15 +430,13 @@ struct WeightSums {
     for (std::size_t i = 0; i < n; ++i) block_max = std::max(block_max, ss[i].log_w);
     if (!std::isfinite(block_max)) return;
     if (block_max > max_log_w) {
-      const double t = max_log_w - block_max;  // -inf on the first finite block
-      const double f = t > -746.0 ? std::exp(t) : 0.0;
+      const double f = exp_or_zero(max_log_w - block_max);  // 0 on the first finite block
       sum *= f;
       sum2 *= f * f;
       max_log_w = block_max;
     }
     for (std::size_t i = 0; i < n; ++i) {
-      const double t = ss[i].log_w - max_log_w;
-      const double w = t > -746.0 ? std::exp(t) : 0.0;
+      const double w = exp_or_zero(ss[i].log_w - max_log_w);
       sum += w;
       sum2 += w * w;
     }

@@ -114,6 +114,13 @@ void add_prior_options(CLI::App* app, PriorOptions& prior, std::string& ecc_text
   app->add_option("--detect-sigma", prior.detect_sigma, detect_help)->capture_default_str();
 }
 
+void add_draws_option(CLI::App* app, int& draws) {
+  app->add_option("--draws", draws,
+                  "orbit draws per separation and round, at most (weighed a quarter at a time until 1,000 "
+                  "effective samples)")
+      ->check(CLI::Range(16, 10000000))->capture_default_str();
+}
+
 void resolve_prior_options(PriorOptions& prior, const std::string& ecc_text) {
   prior.ecc = Distribution::parse(ecc_text, "--ecc");
   prior.validate();

@@ -68,6 +68,8 @@ ScreenOptions resolve_screen_options(const ScreenOptions& screen, const std::str
 /// --ecc (as text into `ecc_text`) and --detect-sigma (`detect_help` says
 /// what it does in that command).
 void add_prior_options(CLI::App* app, PriorOptions& prior, std::string& ecc_text, const std::string& detect_help);
+/// Adds --draws, the Monte Carlo curve's orbit draws (curve and rank).
+void add_draws_option(CLI::App* app, int& draws);
 /// Parses --ecc into `prior` and validates the priors (UsageError, exit 1).
 void resolve_prior_options(PriorOptions& prior, const std::string& ecc_text);
 

@@ -143,7 +143,8 @@ int run_curve(CurveCliOptions o) {
       const bool low_ess = o.method == "montecarlo" && c.min_ess < kLowEss;
       if (low_ess && !o.quiet)  // printed after the progress bar is gone
         warnings.push_back("warning: star " + star.id + ": effective sample size " +
-                           format_double(std::round(c.min_ess)) + " < 100 at some separation; raise --draws");
+                           format_double(std::round(c.min_ess)) + " < " + format_double(kLowEss) +
+                           " at some separation; raise --draws");
       j["method"] = o.method;
       j["mode"] = c.upper_limit ? "upper_limit" : "detection";
       j["dark_companion_assumed"] = true;
@@ -227,10 +228,7 @@ void setup_curve(CLI::App& app, Runner& run) {
   sub->add_option("--a-list", o->a_list, "explicit trial semi-major axes A1,A2,... (AU)")
       ->delimiter(',')
       ->check(CLI::PositiveNumber);
-  sub->add_option("--draws", c.draws,
-                  "orbit draws per separation and round, at most (weighed a quarter at a time until 1,000 "
-                  "effective samples)")
-      ->check(CLI::Range(16, 10000000))->capture_default_str();
+  add_draws_option(sub, c.draws);
   add_prior_options(sub, c.prior, o->ecc, "below this sig_joint the curve is an upper limit (prior uniform in mass)");
   sub->add_option("--starts", o->starts, "optimiser starts per separation (profile method)")
       ->check(CLI::Range(1, 10000))->capture_default_str();

@@ -148,9 +148,7 @@ void setup_rank(CLI::App& app, Runner& run) {
   sub->add_option("--a-max", o->survey.a_max_au, "largest trial semi-major axis (AU)")->check(CLI::PositiveNumber)->capture_default_str();
   sub->add_option("--n-a", o->survey.n_a, "points of the log grid in a (refined where needed)")
       ->check(CLI::Range(2, 100000))->capture_default_str();
-  sub->add_option("--draws", c.draws,
-                  "orbit draws per separation and round, at most (weighed a quarter at a time until 1,000 "
-                  "effective samples)")->check(CLI::Range(16, 10000000))->capture_default_str();
+  add_draws_option(sub, c.draws);
   add_prior_options(sub, c.prior, o->ecc, "curves for stars with sig_joint at or above this (below: not scored)");
   sub->add_option("--seed", c.seed, "random seed (one stream per star id)")->capture_default_str();
   sub->add_option("--shard", o->shard, "process slice K of N (rows K, K+N, K+2N, ...; 1-based); join with heft merge")
