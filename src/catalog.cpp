@@ -234,21 +234,14 @@ bool StarTableReader::next_raw(RawStarRow& row) {
                            std::to_string(n_fields_));
   } while (keep_ && !keep_(csv_.fields()[field_of_column_[0]]));
   row.line = csv_.line();
-  row.text.clear();
-  row.ends.clear();
-  row.columns.clear();
-  for (std::size_t i = 0; i < csv_.fields().size(); ++i) {
-    row.text += csv_.fields()[i];
-    row.ends.push_back(row.text.size());
-    row.columns.push_back(csv_.column(i));
-  }
+  csv_.take_record(row.text, row.spans, row.columns);
   return true;
 }
 
 void StarTableReader::parse(const RawStarRow& row, StarRecord& star, std::string& bad_reason) const {
   auto field = [&](int i) {
-    const std::size_t lo = i == 0 ? 0 : row.ends[i - 1];
-    return std::string_view(row.text).substr(lo, row.ends[i] - lo);
+    const auto [begin, end] = row.spans[i];
+    return std::string_view(row.text).substr(begin, end - begin);
   };
   star = StarRecord{};
   star.id = field(field_of_column_[0]);

@@ -26,7 +26,7 @@ CsvReader::CsvReader(std::istream& in, std::string name, long first_line)
 bool CsvReader::next() {
   fields_.clear();
   columns_.clear();
-  ends_.clear();
+  spans_.clear();
   storage_.clear();
   for (;;) {
     if (!std::getline(in_, buf_)) return false;
@@ -48,62 +48,78 @@ bool CsvReader::next() {
     }
     break;
   }
-  std::size_t i = 0;
-  for (;;) {
-    // One field starting at i, appended to storage_.
+  // Without quotes (nearly every row) the fields are spans of the line
+  // itself, which becomes the storage; else they are copied, unescaped.
+  const bool quotes = buf_.find('"') != std::string::npos;
+  for (std::size_t i = 0;;) {
     while (i < buf_.size() && (buf_[i] == ' ' || buf_[i] == '\t')) ++i;
     columns_.push_back(static_cast<long>(i) + 1);
-    if (i < buf_.size() && buf_[i] == '"') {
-      ++i;
-      for (;;) {
-        if (i >= buf_.size()) {
-          // A quoted field continues on the next physical line.
-          std::string more;
-          if (!std::getline(in_, more))
-            throw InputError(name_, line_, columns_.back(), "unterminated quoted field");
-          ++next_line_;
-          if (!more.empty() && more.back() == '\r') more.pop_back();
-          storage_ += '\n';
-          buf_ += '\n';
-          i = buf_.size();
-          buf_ += more;
-          continue;
-        }
-        const char c = buf_[i];
-        if (c == '"' && i + 1 < buf_.size() && buf_[i + 1] == '"') {
-          storage_ += '"';
-          i += 2;
-        } else if (c == '"') {
-          ++i;
-          break;
-        } else {
-          storage_ += c;
-          ++i;
-        }
-      }
-      while (i < buf_.size() && buf_[i] != ',') ++i;  // ignore junk after the quote
+    if (quotes && i < buf_.size() && buf_[i] == '"') {
+      const std::size_t begin = storage_.size();
+      read_quoted(i);
+      spans_.emplace_back(begin, storage_.size());
     } else {
-      const std::size_t start = i;
-      const std::size_t comma = buf_.find(',', i);
+      const std::size_t start = i, comma = buf_.find(',', i);
       i = comma == std::string::npos ? buf_.size() : comma;
       std::size_t end = i;
       while (end > start && (buf_[end - 1] == ' ' || buf_[end - 1] == '\t')) --end;
-      storage_.append(buf_, start, end - start);
+      if (quotes) {
+        spans_.emplace_back(storage_.size(), storage_.size() + (end - start));
+        storage_.append(buf_, start, end - start);
+      } else {
+        spans_.emplace_back(start, end);
+      }
     }
-    ends_.push_back(storage_.size());
-    if (i >= buf_.size()) break;
-    ++i;  // skip the comma
+    if (i++ >= buf_.size()) break;  // past the comma
   }
-  std::size_t begin = 0;
-  for (std::size_t e : ends_) {
-    fields_.emplace_back(storage_.data() + begin, e - begin);
-    begin = e;
-  }
-  // Plain ASCII rows (nearly all) need no per-field check.
-  if (!std::all_of(storage_.begin(), storage_.end(), [](char c) { return static_cast<unsigned char>(c) < 0x80; }))
+  if (!quotes) storage_.swap(buf_);
+  for (const auto& [b, e] : spans_) fields_.emplace_back(storage_.data() + b, e - b);
+  // Plain ASCII rows (nearly all) need no per-field check; the OR over
+  // all bytes has no early exit, so that it vectorises.
+  unsigned char high = 0;
+  for (char c : storage_) high |= static_cast<unsigned char>(c);
+  if (high & 0x80)
     for (std::size_t f = 0; f < fields_.size(); ++f)
       if (!valid_utf8(fields_[f])) throw InputError(name_, line_, columns_[f], "field is not valid UTF-8 text");
   return true;
+}
+
+void CsvReader::read_quoted(std::size_t& i) {
+  ++i;
+  for (;;) {
+    if (i >= buf_.size()) {
+      // A quoted field continues on the next physical line.
+      std::string more;
+      if (!std::getline(in_, more)) throw InputError(name_, line_, columns_.back(), "unterminated quoted field");
+      ++next_line_;
+      if (!more.empty() && more.back() == '\r') more.pop_back();
+      storage_ += '\n';
+      buf_ += '\n';
+      i = buf_.size();
+      buf_ += more;
+      continue;
+    }
+    const char c = buf_[i];
+    if (c == '"' && i + 1 < buf_.size() && buf_[i + 1] == '"') {
+      storage_ += '"';
+      i += 2;
+    } else if (c == '"') {
+      ++i;
+      break;
+    } else {
+      storage_ += c;
+      ++i;
+    }
+  }
+  while (i < buf_.size() && buf_[i] != ',') ++i;  // ignore junk after the quote
+}
+
+void CsvReader::take_record(std::string& text, std::vector<std::pair<std::size_t, std::size_t>>& spans,
+                            std::vector<long>& columns) {
+  fields_.clear();
+  text.swap(storage_);
+  spans.swap(spans_);
+  columns.swap(columns_);
 }
 
 bool valid_utf8(std::string_view t) {

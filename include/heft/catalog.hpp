@@ -70,12 +70,12 @@ struct WindowDefaults {
 };
 
 /// One data row of the star table as read, before its numbers are parsed:
-/// the fields back to back in `text` (field i ends at ends[i]) with the
+/// field i is text[spans[i].first, spans[i].second) (CsvReader::take_record), with the
 /// line and the column where each starts, for messages.
 struct RawStarRow {
   long line = 0;
   std::string text;
-  std::vector<std::size_t> ends;
+  std::vector<std::pair<std::size_t, std::size_t>> spans;
   std::vector<long> columns;
 };
 

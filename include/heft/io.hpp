@@ -11,6 +11,7 @@
 #include <nlohmann/json.hpp>
 #include <string>
 #include <string_view>
+#include <utility>
 #include <vector>
 
 namespace heft {
@@ -47,15 +48,25 @@ class CsvReader {
   long line() const { return line_; }
   /// 1-based character column where field `i` of the current record starts.
   long column(std::size_t i) const { return columns_.at(i); }
+  /// Moves the current record out without copying: field i is
+  /// text[spans[i].first, spans[i].second), starting at character column
+  /// columns[i] of the line. The buffers are swapped (their old capacity is
+  /// reused by the next record); fields() is empty afterwards.
+  void take_record(std::string& text, std::vector<std::pair<std::size_t, std::size_t>>& spans,
+                   std::vector<long>& columns);
   const std::string& name() const { return name_; }
 
  private:
   std::istream& in_;
   std::string name_;
   std::string buf_;
-  std::string storage_;  // field contents, back to back
+  // Appends the quoted field starting at buf_[i] to storage_, unescaped
+  // (reading on over line breaks); i moves to the comma after it or the end.
+  void read_quoted(std::size_t& i);
+
+  std::string storage_;  // the line, or the fields unescaped when it has quotes
   std::vector<std::string_view> fields_;
-  std::vector<std::size_t> ends_;
+  std::vector<std::pair<std::size_t, std::size_t>> spans_;  // fields in storage_
   std::vector<long> columns_;
   long line_ = 0;
   long next_line_ = 1;
