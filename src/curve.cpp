@@ -80,6 +80,11 @@ struct Draw {
   std::size_t dev;  ///< first of its z-sample deviates in DrawSet::dev
   Projection proj;  ///< from inc and omega
   double q_lo, q_hi, log_prior_c;  ///< the mass prior in q for this host mass
+  /// Where the period's fixed point ended the last time this draw (or its
+  /// kernel's ancestor) was weighed, at a neighbouring separation or in an
+  /// earlier round: the next fixed point starts there. Only the number of
+  /// window-model evaluations depends on it, within kDriftTolerance.
+  mutable double x_start = 0.0;
 };
 
 // The random numbers of a star's curve, drawn once and shared by every
@@ -236,7 +241,7 @@ DesignNode design_node(const Problem& pb, const Draw& dr, double p0, double x) {
 // period of the best z and other periods are evaluated exactly.
 class PeriodModel {
  public:
-  PeriodModel(const Problem& pb, const Draw& dr, double p0, double x_min)
+  PeriodModel(const Problem& pb, const Draw& dr, double p0, double x_min, double x_start)
       : pb_(pb), dr_(dr), p0_(p0), x_min_(x_min) {
     // Next to periastron the orbit moves faster by up to 1 / (1 - e).
     const double speed_up = 1.0 / (1.0 - dr.ecc);
@@ -247,7 +252,7 @@ class PeriodModel {
     const double h_max = std::pow(384.0 * kDriftTolerance / std::max(pb.snr, 1e-3), 0.25) / w;
     const double intervals = std::ceil(-x_min / h_max);
     hermite_intervals_ = intervals <= kMaxHermiteIntervals ? std::max(1, static_cast<int>(intervals)) : 0;
-    nodes_[0] = design_node(pb, dr, p0, 0.0);
+    nodes_[0] = design_node(pb, dr, p0, x_start);
   }
   int evaluations() const { return n_nodes_ + exact_; }
   // Whether a change of x by dx changes chi2 by less than the tolerance.
@@ -326,9 +331,9 @@ int weigh_draw(const Problem& pb, const Draw& dr, const double* dev, double log_
   const ZPlanePrior& prior = pb.prior;
   const double p0 = period_from_a(pb.a_au, dr.m1);
   const double x_min = x_of(std::log1p(-dr.q_hi));
-  PeriodModel model(pb, dr, p0, x_min);
   // Fixed point of the period on m1 + m2 (m2 from the best z).
-  double x = 0.0;
+  double x = std::clamp(dr.x_start, x_min, 0.0);
+  PeriodModel model(pb, dr, p0, x_min, x);
   Mat42 kmat;
   Eigen::Matrix2d fisher;
   Eigen::Vector2d z_hat;
@@ -344,6 +349,7 @@ int weigh_draw(const Problem& pb, const Draw& dr, const double* dev, double log_
     x = x_new;
     model.centre(x);
   }
+  dr.x_start = x;
   const double chi2_min = pb.chi2_data - z_hat.dot(fisher * z_hat);
   Eigen::SelfAdjointEigenSolver<Eigen::Matrix2d> es;
   es.computeDirect(fisher);
@@ -490,7 +496,8 @@ class KernelMixture {
 // sampling, e.g. Cappe et al. 2004, J. Comput. Graph. Stat. 13, 907).
 struct Proposal {
   std::vector<Coords> anc;
-  Coords width;
+  std::vector<double> anc_x;  ///< the ancestors' Draw::x_start
+  Coords width = Coords::Zero();
 };
 
 // Ancestors by systematic resampling of weighted draws, and kernel widths
@@ -509,6 +516,7 @@ Proposal proposal_from(const std::vector<Draw>& src, const Weights& wts, int nz,
     const double u = (j + 0.5) / n_anc * acc;
     const std::size_t k = std::lower_bound(cw.begin(), cw.end(), u) - cw.begin();
     p.anc.push_back(coords_of(src[std::min(k, n - 1)]));
+    p.anc_x.push_back(src[std::min(k, n - 1)].x_start);
   }
   Coords mean = Coords::Zero(), var = Coords::Zero();
   for (const auto& c : p.anc) mean += c;
@@ -543,7 +551,9 @@ long weigh_proposal(const Problem& pb, const DrawSet& ds, const Proposal& prop, 
       Draw& dr = next[j];
       dr = ds.second[j];
       if (ds.pick[j] >= 0.5) {  // kernel component
-        const Coords& a = prop.anc[static_cast<std::size_t>(ds.pick[j + n] * n_anc) % n_anc];
+        const std::size_t m = static_cast<std::size_t>(ds.pick[j + n] * n_anc) % n_anc;
+        const Coords& a = prop.anc[m];
+        dr.x_start = prop.anc_x[m];
         Coords c = a + prop.width.cwiseProduct(ds.kernel[j]);
         c(1) = wrap_2pi(c(1));
         c(2) = wrap_2pi(c(2));
@@ -560,6 +570,7 @@ long weigh_proposal(const Problem& pb, const DrawSet& ds, const Proposal& prop, 
         // Mixture density 0.5 prior + 0.5 kernels.
         const double mix = log_add_exp(lp, mixture.log_density(c, scratch)) - std::log(2.0);
         evaluations += weigh_draw(pb, dr, &ds.dev[dr.dev], lp - mix, &samples[j * nz]);
+        if (ds.pick[j] < 0.5) ds.second[j].x_start = dr.x_start;  // the prior draw's own warm start
       } else {  // outside the prior's support: no weight
         for (int s = 0; s < nz; ++s) samples[j * nz + s] = {-std::numeric_limits<double>::infinity(), 0.0, 0.0, 0.0};
       }
@@ -698,7 +709,7 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const Draw
     for (std::size_t j = 0; j < best.used; ++j)
       if (ds.pick[j] >= 0.5)
         for (int s = 0; s < nz; ++s) kernel_w += wts.w[j * nz + s];
-    if (kernel_w < 0.5 * wts.sum) r.proposal.anc.clear();
+    if (kernel_w < 0.5 * wts.sum) r.proposal = Proposal{};
   }
   const std::vector<Draw>& fin = *best_used;
   r.window_evaluations = evaluations;
