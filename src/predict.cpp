@@ -40,14 +40,36 @@ std::vector<SkyOffset> sky_offsets(const std::vector<OrbitDraw>& draws, double d
   return out;
 }
 
-std::vector<double> sky_separations(const std::vector<OrbitDraw>& draws, double date_yr) {
-  std::vector<double> out;
-  out.reserve(draws.size());
+SkyTracks::SkyTracks(const std::vector<OrbitDraw>& draws) {
+  tracks_.reserve(draws.size());
   for (const auto& d : draws) {
-    const OrbitPoint<double> p = draw_point(d, date_yr);
-    out.push_back(d.a_au * d.parallax_mas * std::hypot(p.x, p.y));
+    const ThieleInnes<double> ti = thiele_innes(d.a_au * d.parallax_mas, units::deg_to_rad(d.inc_deg),
+                                                units::deg_to_rad(d.arg_peri_deg), units::deg_to_rad(d.node_deg));
+    tracks_.push_back({ti.A, ti.B, ti.F, ti.G, d.ecc, std::sqrt(1.0 - d.ecc * d.ecc),
+                       units::deg_to_rad(d.mean_anom_deg), units::kTwoPi / d.period_yr, d.ref_epoch_yr});
   }
-  return out;
+}
+
+void SkyTracks::separations(double date_yr, std::vector<double>& sep_mas) const {
+  const std::size_t n = tracks_.size();
+  sep_mas.resize(n);
+  for (std::size_t k0 = 0; k0 < n; k0 += 4) {
+    const std::size_t lanes = std::min<std::size_t>(4, n - k0);
+    double m[4] = {0.0, 0.0, 0.0, 0.0}, e[4] = {0.0, 0.0, 0.0, 0.0};
+    for (std::size_t i = 0; i < lanes; ++i) {
+      const Track& t = tracks_[k0 + i];
+      m[i] = t.mean_anom_ref_rad + t.mean_motion_rad_yr * (date_yr - t.ref_epoch_yr);
+      e[i] = t.ecc;
+    }
+    KeplerSolution ks[4];
+    kepler_solutions4(m, e, ks);
+    for (std::size_t i = 0; i < lanes; ++i) {
+      const Track& t = tracks_[k0 + i];
+      const double X = ks[i].cos_E - t.ecc, Y = t.root_1me2 * ks[i].sin_E;
+      const double x = t.A * X + t.F * Y, y = t.B * X + t.G * Y;
+      sep_mas[k0 + i] = std::sqrt(x * x + y * y);  // mas: far from overflow
+    }
+  }
 }
 
 const std::vector<ColumnUnit>& prediction_column_units() {
@@ -183,8 +205,11 @@ BestDate best_date(const std::vector<OrbitDraw>& draws, const std::vector<double
                    const std::function<double(const std::vector<double>&)>& value) {
   const double nan = std::numeric_limits<double>::quiet_NaN();
   BestDate b{nan, nan, nan};
+  const SkyTracks tracks(draws);
+  std::vector<double> sep_mas;
   for (std::size_t k = 0; k < dates_yr.size(); ++k) {
-    const double v = value(sky_separations(draws, dates_yr[k]));
+    tracks.separations(dates_yr[k], sep_mas);
+    const double v = value(sep_mas);
     if (k == 0) b.first_value = v;
     if (k == 0 || v > b.value) b = {dates_yr[k], v, b.first_value};
   }

@@ -172,6 +172,31 @@ TEST_CASE("best date: flat for a face-on circular orbit, at greatest elongation 
   CHECK(edge.first_value < 0.01);  // 2030: 45 deg past elongation, 141 mas
 }
 
+TEST_CASE("sky tracks: separations at many dates match sky_offsets draw by draw", "[predict]") {
+  // Two paths of heft itself, no outside source: the date grid's prepared
+  // tracks (Kepler four draws at a time) against the per-draw orbit_point
+  // path, for 1,001 draws (a last batch of one) with e up to 0.95, over
+  // dates decades from the draws' epoch.
+  Rng rng(11);
+  std::vector<OrbitDraw> draws;
+  for (int k = 0; k < 1001; ++k) {
+    const double a = 0.5 * std::pow(1000.0, rng.uniform());
+    draws.push_back({a, 10.0, 0.95 * rng.uniform(), units::rad_to_deg(std::acos(rng.uniform(-1.0, 1.0))),
+                     360.0 * rng.uniform(), 360.0 * rng.uniform(), 360.0 * rng.uniform(), 2016.0,
+                     period_from_a(a, 1.0), 5.0 + 20.0 * rng.uniform(), 1.0, 1.0});
+  }
+  const SkyTracks tracks(draws);
+  std::vector<double> sep;
+  double worst = 0.0;
+  for (double date : {1991.25, 2016.0, 2027.5, 2061.0}) {
+    tracks.separations(date, sep);
+    const std::vector<SkyOffset> off = sky_offsets(draws, date);
+    REQUIRE(sep.size() == draws.size());
+    for (std::size_t k = 0; k < sep.size(); ++k) worst = std::max(worst, std::abs(sep[k] / off[k].sep_mas - 1.0));
+  }
+  CHECK(worst < 1e-12);
+}
+
 TEST_CASE("plot sky: the 68 % credible contour of a circular Gaussian", "[predict][plot]") {
   // A circular 2-D Gaussian of width s holds 68 % within r = s sqrt(-2 ln 0.32)
   // = 1.51 s (the Rayleigh distribution; common practice, no source). The

@@ -75,8 +75,24 @@ SkyPrediction predict_sky(const std::vector<OrbitDraw>& draws, double date_yr, c
 /// The same from offsets already computed by sky_offsets at date_yr.
 SkyPrediction summarize_sky(const std::vector<SkyOffset>& offsets, double date_yr, const PredictOptions& opt);
 
-/// The separations alone (mas), as sky_offsets without the position angle.
-std::vector<double> sky_separations(const std::vector<OrbitDraw>& draws, double date_yr);
+/// The draws' separations at many dates: what does not depend on the date
+/// (Thiele-Innes constants in mas, mean motion) is prepared once per draw,
+/// and each date solves Kepler's equation four draws at a time
+/// (kepler_solutions4).
+class SkyTracks {
+ public:
+  explicit SkyTracks(const std::vector<OrbitDraw>& draws);
+  /// The separations (mas) at date_yr, in the draws' order, into `sep_mas`:
+  /// sky_offsets' sep_mas without the position angle.
+  void separations(double date_yr, std::vector<double>& sep_mas) const;
+
+ private:
+  struct Track {
+    double A, B, F, G;  ///< Thiele-Innes constants times a x parallax (mas)
+    double ecc, root_1me2, mean_anom_ref_rad, mean_motion_rad_yr, ref_epoch_yr;
+  };
+  std::vector<Track> tracks_;
+};
 
 /// The best of a grid of dates for a quantity of the draws' separations
 /// (mas, in the draws' order; each draw on its own orbit at every date): the date of the largest value (the
