@@ -43,6 +43,10 @@ struct AnomalyData {
 AnomalyData anomaly_data(const StarRecord& star, const AnomalyResult& r, double host_mass_msun,
                          double host_mass_error_msun, bool& ok);
 
+/// Points of the default log grid of trial separations (`--n-a` of heft
+/// curve and heft rank), refined where needed.
+constexpr int kDefaultSeparations = 64;
+
 /// Options of a curve (units in the names).
 struct CurveOptions {
   std::vector<double> a_au;     ///< trial semi-major axes (sorted ascending)

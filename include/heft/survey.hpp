@@ -22,7 +22,7 @@ struct SurveyOptions {
   ScreenOptions screen;
   WindowDefaults windows;
   double a_min_au = 0.5, a_max_au = 500.0;  ///< log grid of trial separations (refined by curve)
-  int n_a = 24;
+  int n_a = kDefaultSeparations;
   long shard_k = 1, shard_n = 1;     ///< this run takes rows k-1, k-1+n, ... (0-based)
   long max_curves = 0;               ///< 0 = a curve for every star above detect_sigma
   std::string contrast_name = "none", mass_mag_name = "none";  ///< for the metadata

@@ -24,7 +24,7 @@ struct CurveCliOptions {
   CurveOptions curve;
   double host_mass_msun = kAbsent, host_mass_error_msun = kAbsent;
   double a_min_au = 0.5, a_max_au = 500.0;
-  int n_a = 64;
+  int n_a = kDefaultSeparations;
   std::vector<double> a_list;
   int threads = 0, starts = 16;
   bool quiet = false, all = false;
