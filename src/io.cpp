@@ -120,6 +120,9 @@ void CsvReader::take_record(std::string& text, std::vector<std::pair<std::size_t
   text.swap(storage_);
   spans.swap(spans_);
   columns.swap(columns_);
+  storage_.clear();  // the caller's old buffers: nothing of them is read again
+  spans_.clear();
+  columns_.clear();
 }
 
 bool valid_utf8(std::string_view t) {

@@ -51,7 +51,7 @@ class CsvReader {
   /// Moves the current record out without copying: field i is
   /// text[spans[i].first, spans[i].second), starting at character column
   /// columns[i] of the line. The buffers are swapped (their old capacity is
-  /// reused by the next record); fields() is empty afterwards.
+  /// reused by the next record); fields() and column() are empty afterwards.
   void take_record(std::string& text, std::vector<std::pair<std::size_t, std::size_t>>& spans,
                    std::vector<long>& columns);
   const std::string& name() const { return name_; }
