@@ -515,8 +515,9 @@ Proposal proposal_from(const std::vector<Draw>& src, const Weights& wts, int nz,
   for (int j = 0; j < n_anc; ++j) {
     const double u = (j + 0.5) / n_anc * acc;
     const std::size_t k = std::lower_bound(cw.begin(), cw.end(), u) - cw.begin();
-    p.anc.push_back(coords_of(src[std::min(k, n - 1)]));
-    p.anc_x.push_back(src[std::min(k, n - 1)].x_start);
+    const Draw& ancestor = src[std::min(k, n - 1)];
+    p.anc.push_back(coords_of(ancestor));
+    p.anc_x.push_back(ancestor.x_start);
   }
   Coords mean = Coords::Zero(), var = Coords::Zero();
   for (const auto& c : p.anc) mean += c;
@@ -550,7 +551,8 @@ long weigh_proposal(const Problem& pb, const DrawSet& ds, const Proposal& prop, 
     for (std::size_t j = begin; j < end; ++j) {
       Draw& dr = next[j];
       dr = ds.second[j];
-      if (ds.pick[j] >= 0.5) {  // kernel component
+      const bool from_kernel = ds.pick[j] >= 0.5;  // else the prior component
+      if (from_kernel) {
         const std::size_t m = static_cast<std::size_t>(ds.pick[j + n] * n_anc) % n_anc;
         const Coords& a = prop.anc[m];
         dr.x_start = prop.anc_x[m];
@@ -570,7 +572,7 @@ long weigh_proposal(const Problem& pb, const DrawSet& ds, const Proposal& prop, 
         // Mixture density 0.5 prior + 0.5 kernels.
         const double mix = log_add_exp(lp, mixture.log_density(c, scratch)) - std::log(2.0);
         evaluations += weigh_draw(pb, dr, &ds.dev[dr.dev], lp - mix, &samples[j * nz]);
-        if (ds.pick[j] < 0.5) ds.second[j].x_start = dr.x_start;  // the prior draw's own warm start
+        if (!from_kernel) ds.second[j].x_start = dr.x_start;  // the prior draw's own warm start
       } else {  // outside the prior's support: no weight
         for (int s = 0; s < nz; ++s) samples[j * nz + s] = {-std::numeric_limits<double>::infinity(), 0.0, 0.0, 0.0};
       }
