@@ -42,10 +42,8 @@ struct Projection {
 // (north, east) reflex anomaly vectors per unit s = q a parallax at node 0:
 // column 0 late, column 1 early.
 template <typename T>
-Eigen::Matrix<T, 2, 2> unit_anomalies(const Projection& pr, const Orbit<T>& o, const Window& early,
-                                      const Window& late) {
-  WindowBasis<T> be, bl;
-  window_basis_pair(o, early, late, be, bl);
+Eigen::Matrix<T, 2, 2> unit_anomalies(const Projection& pr, const WindowBasis<T>& be, const WindowBasis<T>& bl,
+                                      const Window& early, const Window& late) {
   auto host = [&](const T& x, const T& y) {  // host side of the relative orbit
     return Eigen::Matrix<T, 2, 1>(-(pr.A * x + pr.F * y), -(pr.B * x + pr.G * y));
   };
@@ -56,6 +54,14 @@ Eigen::Matrix<T, 2, 2> unit_anomalies(const Projection& pr, const Orbit<T>& o, c
   v.col(0) = host(bl.xs, bl.ys) - pml;
   v.col(1) = host(be.xs, be.ys) - pml;
   return v;
+}
+
+template <typename T>
+Eigen::Matrix<T, 2, 2> unit_anomalies(const Projection& pr, const Orbit<T>& o, const Window& early,
+                                      const Window& late) {
+  WindowBasis<T> be, bl;
+  window_basis_pair(o, early, late, be, bl);
+  return unit_anomalies(pr, be, bl, early, late);
 }
 
 // Design matrix per unit scale: observed (late ra, late dec, early ra,
@@ -271,11 +277,30 @@ class PeriodModel {
   }
   // K at x: interpolated where accurate, else evaluated exactly.
   Mat42 k_at(double x) {
+    Mat42 k;
+    if (!interpolated(x, k)) exact(&x, 1, &k);
+    return k;
+  }
+  // K at x into k when the model is accurate there (the interpolant is
+  // built if that makes it so); false where x needs an exact evaluation.
+  bool interpolated(double x, Mat42& k) {
     if (!accurate(x) && hermite_intervals_ > 0) build_hermite();
-    if (accurate(x)) return at(x);
-    const Orbit<double> o{p0_ * std::exp(x), dr_.ecc, dr_.inc, dr_.omega, 0.0, dr_.m0, pb_.d.late.ref_epoch_yr};
-    ++exact_;
-    return pb_.a_au * dr_.plx * design(unit_anomalies(dr_.proj, o, pb_.d.early, pb_.d.late));
+    if (!accurate(x)) return false;
+    k = at(x);
+    return true;
+  }
+  // K at n <= kMaxBatch values of x, evaluated exactly as one batch
+  // (window_basis_pairs).
+  static constexpr int kMaxBatch = 8;
+  void exact(const double* x, int n, Mat42* k) {
+    std::array<Orbit<double>, kMaxBatch> o{};
+    std::array<WindowBasis<double>, kMaxBatch> be, bl;
+    for (int i = 0; i < n; ++i)
+      o[i] = {p0_ * std::exp(x[i]), dr_.ecc, dr_.inc, dr_.omega, 0.0, dr_.m0, pb_.d.late.ref_epoch_yr};
+    window_basis_pairs(o.data(), n, pb_.d.early, pb_.d.late, be.data(), bl.data());
+    for (int i = 0; i < n; ++i)
+      k[i] = pb_.a_au * dr_.plx * design(unit_anomalies(dr_.proj, be[i], bl[i], pb_.d.early, pb_.d.late));
+    exact_ += n;
   }
 
  private:
@@ -321,6 +346,14 @@ double log_add_exp(double a, double b) {
   return hi + std::log1p(std::exp(lo - hi));
 }
 
+// The Gaussian in z used the model at the period of the best z (kmat);
+// a sample's own period gives k_s: the log ratio of the exact likelihood
+// to the Gaussian one.
+double period_correction(const Problem& pb, const Mat42& kmat, const Mat42& k_s, const Eigen::Vector2d& z) {
+  const Eigen::Vector4d r_hat = pb.d.dpm - kmat * z, r_s = pb.d.dpm - k_s * z;
+  return -0.5 * r_s.dot(pb.cinv * r_s) + 0.5 * r_hat.dot(pb.cinv * r_hat);
+}
+
 // Weighted z samples of one draw of (i, omega, e, M0, m1, parallax):
 // z = q (cos Omega, sin Omega) is marginalised through its exact Gaussian
 // likelihood and importance-sampled against the mass prior. `log_extra` is
@@ -357,7 +390,24 @@ int weigh_draw(const Problem& pb, const Draw& dr, const double* dev, double log_
   const double log_gauss_norm = std::log(units::kTwoPi) - 0.5 * std::log(lam(0) * lam(1));
   // Gaussian extent of z versus the prior range decides the proposal.
   const bool gaussian = 1.0 / std::sqrt(lam.minCoeff()) < 0.3 * dr.q_hi;
-  for (int s = 0; s < pb.opt.z_samples; ++s) {
+  // Period corrections that need exact evaluations of the model (half of
+  // all evaluations, short periods) run in batches (PeriodModel::exact),
+  // so that their Kepler solves overlap; the results are the same.
+  constexpr int kBatch = PeriodModel::kMaxBatch;
+  std::array<double, kBatch> x_exact{};
+  std::array<int, kBatch> s_exact;
+  std::array<Mat42, kBatch> k_exact;
+  int n_exact = 0;
+  auto correct_batch = [&] {
+    model.exact(x_exact.data(), n_exact, k_exact.data());
+    for (int j = 0; j < n_exact; ++j) {
+      Sample& o = out[s_exact[j]];
+      o.log_w += period_correction(pb, kmat, k_exact[j], Eigen::Vector2d(o.z1, o.z2));
+    }
+    n_exact = 0;
+  };
+  const int nz = pb.opt.z_samples;
+  for (int s = 0; s < nz; ++s) {
     const double* u = dev + 4 * s;
     Eigen::Vector2d z;
     double log_w;
@@ -380,17 +430,27 @@ int weigh_draw(const Problem& pb, const Draw& dr, const double* dev, double log_
     // The Gaussian used the period of the best z; where this sample's own
     // m1 + m2 moves the period, correct by the exact / Gaussian likelihood.
     const double x_s = x_of(log_1mq);
-    if (std::isfinite(log_w) && !model.negligible(x_s - x)) {
-      const Mat42 k_s = model.k_at(x_s);
-      const Eigen::Vector4d r_hat = d.dpm - kmat * z, r_s = d.dpm - k_s * z;
-      log_w += -0.5 * r_s.dot(pb.cinv * r_s) + 0.5 * r_hat.dot(pb.cinv * r_hat);
-    }
-    log_w += log_extra;
     Sample& o = out[s];
-    o.log_w = std::isfinite(log_w) ? log_w : -std::numeric_limits<double>::infinity();
+    o.log_w = log_w;
     o.m2_mjup = dr.m1 * q / (1.0 - std::min(q, 0.999999)) * units::kMjupPerMsun;
     o.z1 = z.x();
     o.z2 = z.y();
+    if (std::isfinite(log_w) && !model.negligible(x_s - x)) {
+      Mat42 k_s;
+      if (model.interpolated(x_s, k_s)) {
+        o.log_w += period_correction(pb, kmat, k_s, z);
+      } else {
+        x_exact[n_exact] = x_s;
+        s_exact[n_exact++] = s;
+        if (n_exact == kBatch) correct_batch();
+      }
+    }
+  }
+  correct_batch();
+  for (int s = 0; s < nz; ++s) {
+    Sample& o = out[s];
+    o.log_w += log_extra;
+    if (!std::isfinite(o.log_w)) o.log_w = -std::numeric_limits<double>::infinity();
   }
   return model.evaluations();
 }

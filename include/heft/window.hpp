@@ -169,6 +169,14 @@ void window_basis_pair(const Orbit<T>& o, const Window& w1, const Window& w2, Wi
   b2 = detail::continuous_window_basis(o, w2, m[2], k[2], k[3]);
 }
 
+/// window_basis_pair for n orbits at once (plain doubles): the windows' end
+/// anomalies of all n orbits first, then their Kepler solves, then the fits.
+/// Each solve is a long chain of dependent steps; issued back to back, the
+/// independent chains overlap in the processor. Equal to n window_basis_pair
+/// calls bit for bit (tests/window_test.cpp).
+void window_basis_pairs(const Orbit<double>* o, std::size_t n, const Window& w1, const Window& w2,
+                        WindowBasis<double>* b1, WindowBasis<double>* b2);
+
 /// The catalogue-reported reflex of the host for a companion of mass ratio
 /// q = m2 / (m1 + m2) on relative orbit o with semi-major axis a_au, seen
 /// at parallax_mas.
