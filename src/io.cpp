@@ -23,13 +23,38 @@ namespace heft {
 CsvReader::CsvReader(std::istream& in, std::string name, long first_line)
     : in_(in), name_(std::move(name)), next_line_(first_line) {}
 
+bool CsvReader::read_line(std::string& line) {
+  line.clear();
+  bool got = false;
+  for (;;) {
+    if (block_pos_ < block_end_) {
+      got = true;
+      const char* begin = block_.data() + block_pos_;
+      const auto* nl = static_cast<const char*>(std::memchr(begin, '\n', block_end_ - block_pos_));
+      if (nl) {
+        line.append(begin, nl);
+        block_pos_ += static_cast<std::size_t>(nl - begin) + 1;
+        return true;
+      }
+      line.append(begin, block_end_ - block_pos_);
+    }
+    // Blocks grow from 4 KiB to 256 KiB: small tables (and one-row
+    // streams) stay cheap, large ones are read in few calls.
+    block_.resize(std::clamp<std::size_t>(2 * block_.size(), 4096, 262144));
+    in_.read(block_.data(), static_cast<std::streamsize>(block_.size()));
+    block_pos_ = 0;
+    block_end_ = static_cast<std::size_t>(in_.gcount());
+    if (block_end_ == 0) return got;
+  }
+}
+
 bool CsvReader::next() {
   fields_.clear();
   columns_.clear();
   spans_.clear();
   storage_.clear();
   for (;;) {
-    if (!std::getline(in_, buf_)) return false;
+    if (!read_line(buf_)) return false;
     line_ = next_line_++;
     if (first_) {
       first_ = false;
@@ -90,7 +115,7 @@ void CsvReader::read_quoted(std::size_t& i) {
     if (i >= buf_.size()) {
       // A quoted field continues on the next physical line.
       std::string more;
-      if (!std::getline(in_, more)) throw InputError(name_, line_, columns_.back(), "unterminated quoted field");
+      if (!read_line(more)) throw InputError(name_, line_, columns_.back(), "unterminated quoted field");
       ++next_line_;
       if (!more.empty() && more.back() == '\r') more.pop_back();
       storage_ += '\n';
