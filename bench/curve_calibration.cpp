@@ -2,11 +2,16 @@
 // systems drawn from the curve's own prior, selected on observed S/N > 6, and
 // the time of one star's curve at the defaults.
 //
-// Usage: curve_calibration [systems=400] [draws=2048]
+// With --full-grid each curve runs on the default grid (64 separations,
+// 0.5-500 AU) with the true a inserted and refined, as a whole curve does,
+// so that the rounds at the true a start from the neighbours' proposals.
+//
+// Usage: curve_calibration [systems=400] [draws=2048] [--full-grid]
 
 #include <chrono>
 #include <cstdio>
 #include <cstdlib>
+#include <cstring>
 
 #include <Eigen/LU>
 
@@ -17,6 +22,8 @@
 using namespace heft;
 
 int main(int argc, char** argv) {
+  const bool full_grid = argc > 1 && std::strcmp(argv[argc - 1], "--full-grid") == 0;
+  if (full_grid) --argc;
   const int n_sys = argc > 1 ? std::atoi(argv[1]) : 400;
   const int draws = argc > 2 ? std::atoi(argv[2]) : 2048;
   CurveOptions o;
@@ -24,9 +31,11 @@ int main(int argc, char** argv) {
   o.prior.m_min_mjup = 1;
   o.prior.m_max_mjup = 200;
   SurveyModel m = coverage_survey(o, 1.0, 50.0, 99);
-  const Coverage cov = curve_coverage(m, o, n_sys, 6.0);
-  std::printf("%d systems (S/N 6 to %.0f), %d draws: 68 %% band covers %.1f %%, 95 %% band %.1f %%\n",
-              cov.systems, cov.max_sig, draws, 100.0 * cov.in68, 100.0 * cov.in95);
+  const Coverage cov =
+      curve_coverage(m, o, n_sys, 6.0, full_grid ? log_grid(0.5, 500, kDefaultSeparations) : std::vector<double>{});
+  std::printf("%d systems (S/N 6 to %.0f), %d draws%s: 68 %% band covers %.1f %%, 95 %% band %.1f %%\n",
+              cov.systems, cov.max_sig, draws, full_grid ? ", whole curves" : "", 100.0 * cov.in68,
+              100.0 * cov.in95);
 
   // One star's curve at the defaults (64 separations x 4096 draws).
   StarRecord s;

@@ -1,13 +1,14 @@
 #include "heft/calibration.hpp"
 
 #include <algorithm>
+#include <stdexcept>
 
 #include "heft/screen.hpp"
 
 namespace heft {
 
 Coverage curve_coverage(const SurveyModel& survey, const CurveOptions& opt, int n_systems,
-                        double min_sig) {
+                        double min_sig, const std::vector<double>& grid) {
   Coverage cov;
   int in68 = 0, in95 = 0;
   for (long i = 0; cov.systems < n_systems; ++i) {
@@ -21,8 +22,17 @@ Coverage curve_coverage(const SurveyModel& survey, const CurveOptions& opt, int 
     const AnomalyData d = anomaly_data(s, r, kAbsent, kAbsent, ok);
     CurveOptions o = opt;
     o.a_au = {t.a_au};
-    o.refine_rounds = 0;
-    const CurvePoint p = montecarlo_curve(d, o, s.id).points.at(0);
+    if (grid.empty()) {
+      o.refine_rounds = 0;
+    } else {
+      o.a_au.insert(o.a_au.end(), grid.begin(), grid.end());
+      std::sort(o.a_au.begin(), o.a_au.end());
+    }
+    const Curve c = montecarlo_curve(d, o, s.id);
+    const auto at_truth = std::find_if(c.points.begin(), c.points.end(),
+                                       [&](const CurvePoint& p) { return p.a_au == t.a_au; });
+    if (at_truth == c.points.end()) throw std::logic_error("curve_coverage: the true a is not among the curve's points");
+    const CurvePoint& p = *at_truth;
     in68 += t.mass_mjup >= p.mass_lo68 && t.mass_mjup <= p.mass_hi68;
     in95 += t.mass_mjup >= p.mass_lo95 && t.mass_mjup <= p.mass_hi95;
     cov.max_sig = std::max(cov.max_sig, r.sig_joint);

@@ -16,14 +16,17 @@ namespace heft {
 
 /// Coverage of the Monte Carlo bands on injected systems (a sensitivity and
 /// calibration study): companions drawn by `survey`, kept when their observed
-/// sig_joint >= min_sig, each curve evaluated at its true a only.
+/// sig_joint >= min_sig, each curve evaluated at its true a only; or, with
+/// `grid` given, on that grid with the true a inserted (refined as
+/// opt.refine_rounds says) and read at the true a, so that its rounds start
+/// from the neighbouring separations' proposals as in a whole curve.
 struct Coverage {
   int systems = 0;
   double in68 = 0.0, in95 = 0.0;  ///< fractions with the true mass inside the band
   double max_sig = 0.0;
 };
 Coverage curve_coverage(const SurveyModel& survey, const CurveOptions& opt, int n_systems,
-                        double min_sig);
+                        double min_sig, const std::vector<double>& grid = {});
 
 /// Reliability of p_real (docs/method.md, Sect. 10): stars of `survey`
 /// (whose companion fraction is the occurrence) with sig_joint >= min_sig,
