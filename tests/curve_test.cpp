@@ -136,14 +136,19 @@ TEST_CASE("upper limits are finite and do not depend on the lower mass bound", "
 
 TEST_CASE("curve rounds: draws are weighed in blocks until 1,000 effective samples", "[curve]") {
   // The engine's own contract (docs/method.md, Sect. 8; no outside source):
-  // a round adds a quarter of --draws at a time and stops once the effective
-  // sample size reaches 1,000. Without signal the posterior is close to the
-  // prior, so the first block (1,024 draws x 8 z samples) suffices; at high
+  // a round of prior draws adds an eighth of --draws at a time (a round from
+  // a proposal a quarter) and stops once the effective sample size reaches
+  // 1,000. Without signal the posterior is close to the prior, so each of
+  // the three separations stops after one or two blocks of 512 draws x 8 z
+  // samples (with quarters it would be one block of 1,024 each); at high
   // S/N the first round cannot, and the adaptive rounds follow.
   CurveOptions opt;
   opt.refine_rounds = 0;
   const Curve quiet = no_signal_curve(opt);
-  CHECK(quiet.draws_weighed == 3 * 1024);
+  INFO("draws weighed without signal " << quiet.draws_weighed);
+  CHECK(quiet.draws_weighed % 512 == 0);
+  CHECK(quiet.draws_weighed >= 3 * 512);
+  CHECK(quiet.draws_weighed < 3 * 1024);
   for (const auto& p : quiet.points) CHECK(p.ess >= 1000.0);
 
   // A detection at S/N 15 (noiseless data of 10 MJup at 5 AU) reaches the

@@ -51,8 +51,9 @@ constexpr int kDefaultSeparations = 64;
 struct CurveOptions {
   std::vector<double> a_au;     ///< trial semi-major axes (sorted ascending)
   /// Orbit draws per separation and round, at most (common random numbers):
-  /// a round weighs a quarter at a time until the effective sample size
-  /// reaches 1,000 (docs/method.md, Sect. 8).
+  /// a round weighs them in blocks (eighths of prior draws, quarters from a
+  /// proposal) until the effective sample size reaches 1,000
+  /// (docs/method.md, Sect. 8).
   int draws = 4096;
   int z_samples = 8;            ///< samples of z per draw
   PriorOptions prior;           ///< mass and eccentricity priors, detect_sigma
