@@ -736,9 +736,9 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const Draw
   // the target is out of reach and another round can follow (measured: more
   // rounds for the same draws give fewer separations below kLowEss, and a
   // neighbour's proposal run in full cost 11-27 % more draws at S/N >= 10
-  // for no fewer), the last one when even kLowEss is (the band is flagged
-  // either way). A short round can fall below an earlier one: the best
-  // round gives the results.
+  // and left no less posterior weight below kLowEss), the last one when
+  // even kLowEss is (the band is flagged either way). A short round can
+  // fall below an earlier one: the best round gives the results.
   constexpr int kMaxRounds = 3;
   RoundResult best = run_round(pb, ds, seed, draws, samples, seed ? kTargetEss : 0.0);
   samples.swap(best_samples);
