@@ -30,7 +30,7 @@ TEST_CASE("CSV tokenizer: quotes, escapes, line breaks, comments", "[catalog]") 
 }
 
 TEST_CASE("CSV tokenizer: rows that straddle the reader's blocks", "[catalog]") {
-  // RFC 4180 rules as above, over an input of 1.2 MB: the reader takes the
+  // RFC 4180 rules as above, over an input of 0.8 MB: the reader takes the
   // stream in blocks of 4 KiB growing to 256 KiB, so rows, CRLF pairs and
   // quoted line breaks fall across block boundaries; the last row has no
   // line break. Every field and line number must be as written (no
