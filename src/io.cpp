@@ -26,26 +26,26 @@ CsvReader::CsvReader(std::istream& in, std::string name, long first_line)
 bool CsvReader::read_line(std::string& line) {
   line.clear();
   bool got = false;
-  for (;;) {
-    if (block_pos_ < block_end_) {
-      got = true;
-      const char* begin = block_.data() + block_pos_;
-      const auto* nl = static_cast<const char*>(std::memchr(begin, '\n', block_end_ - block_pos_));
-      if (nl) {
-        line.append(begin, nl);
-        block_pos_ += static_cast<std::size_t>(nl - begin) + 1;
-        return true;
-      }
-      line.append(begin, block_end_ - block_pos_);
+  for (bool ended = false; !ended;) {
+    if (block_pos_ == block_end_) {
+      // Blocks grow from 4 KiB to 256 KiB: small tables (and one-row
+      // streams) stay cheap, large ones are read in few calls.
+      block_.resize(std::clamp<std::size_t>(2 * block_.size(), 4096, 262144));
+      in_.read(block_.data(), static_cast<std::streamsize>(block_.size()));
+      block_pos_ = 0;
+      block_end_ = static_cast<std::size_t>(in_.gcount());
+      if (block_end_ == 0) break;
     }
-    // Blocks grow from 4 KiB to 256 KiB: small tables (and one-row
-    // streams) stay cheap, large ones are read in few calls.
-    block_.resize(std::clamp<std::size_t>(2 * block_.size(), 4096, 262144));
-    in_.read(block_.data(), static_cast<std::streamsize>(block_.size()));
-    block_pos_ = 0;
-    block_end_ = static_cast<std::size_t>(in_.gcount());
-    if (block_end_ == 0) return got;
+    got = true;
+    const char* begin = block_.data() + block_pos_;
+    const auto* nl = static_cast<const char*>(std::memchr(begin, '\n', block_end_ - block_pos_));
+    ended = nl != nullptr;
+    const char* end = ended ? nl : block_.data() + block_end_;
+    line.append(begin, end);
+    block_pos_ = static_cast<std::size_t>(end - block_.data()) + (ended ? 1 : 0);
   }
+  if (!line.empty() && line.back() == '\r') line.pop_back();
+  return got;
 }
 
 bool CsvReader::next() {
@@ -60,7 +60,6 @@ bool CsvReader::next() {
       first_ = false;
       if (buf_.size() >= 3 && buf_.compare(0, 3, "\xEF\xBB\xBF") == 0) buf_.erase(0, 3);
     }
-    if (!buf_.empty() && buf_.back() == '\r') buf_.pop_back();
     std::size_t k = 0;
     while (k < buf_.size() && (buf_[k] == ' ' || buf_[k] == '\t')) ++k;
     if (k == buf_.size()) continue;
@@ -117,7 +116,6 @@ void CsvReader::read_quoted(std::size_t& i) {
       std::string more;
       if (!read_line(more)) throw InputError(name_, line_, columns_.back(), "unterminated quoted field");
       ++next_line_;
-      if (!more.empty() && more.back() == '\r') more.pop_back();
       storage_ += '\n';
       buf_ += '\n';
       i = buf_.size();

@@ -63,10 +63,10 @@ class CsvReader {
   // Appends the quoted field starting at buf_[i] to storage_, unescaped
   // (reading on over line breaks); i moves to the comma after it or the end.
   void read_quoted(std::size_t& i);
-  // The next physical line into `line`, without its '\n'; false at the end
-  // of input (std::getline's rules). The stream is read a block at a time
-  // and lines are found in the block (std::getline costs about as much as
-  // the rest of the reader on a large table).
+  // The next physical line into `line`, without its '\n' or '\r\n'; false
+  // at the end of input (std::getline's rules). The stream is read a block
+  // at a time and lines are found in the block (std::getline costs about as
+  // much as the rest of the reader on a large table).
   bool read_line(std::string& line);
   std::string block_;  // input read ahead; [block_pos_, block_end_) not yet consumed
   std::size_t block_pos_ = 0, block_end_ = 0;
