@@ -511,42 +511,55 @@ struct WeightSums {
 };
 
 // Gaussian kernels in the orbit-angle coordinates around ancestors, with
-// per-axis widths; angles (in [0, 2 pi)) wrap. The mixture's log density skips kernels
-// whose exponent is more than kKernelCut below the nearest one (their
-// share is below exp(-kKernelCut)).
+// per-axis widths; angles (in [0, 2 pi)) wrap. An ancestor drawn several
+// times (systematic resampling of a peaked posterior) is one kernel with
+// its count. The mixture's log density skips kernels whose exponent is more
+// than kKernelCut below the nearest one (their share is below
+// exp(-kKernelCut)).
 class KernelMixture {
  public:
-  KernelMixture(std::vector<Coords> anc, const Coords& width) : anc_(std::move(anc)) {
-    log_norm_ = std::log(static_cast<double>(anc_.size()));
+  KernelMixture(const std::vector<Coords>& anc, const Coords& width) {
+    log_norm_ = std::log(static_cast<double>(anc.size()));
     inv_w2_.setZero();
     for (int i = 0; i < 4; ++i)
       if (width(i) > 0.0) {
         inv_w2_(i) = 1.0 / (width(i) * width(i));
         log_norm_ += std::log(width(i) * std::sqrt(units::kTwoPi));
       }
+    // Resampling puts copies of an ancestor next to each other.
+    for (std::size_t m = 0; m < anc.size(); ++m) {
+      if (m > 0 && anc[m] == anc[m - 1]) {
+        count_.back() += 1.0;
+        continue;
+      }
+      for (int i = 0; i < 4; ++i) centre_[i].push_back(anc[m](i));
+      count_.push_back(1.0);
+    }
   }
   double log_density(const Coords& c, std::vector<double>& q) const {
-    q.resize(anc_.size());
-    double q_min = std::numeric_limits<double>::infinity();
-    for (std::size_t m = 0; m < anc_.size(); ++m) {
-      double acc = 0;
-      for (int i = 0; i < 4; ++i) {
-        double dx = c(i) - anc_[m](i);
-        if (i == 1 || i == 2) dx = dx > units::kPi ? dx - units::kTwoPi : (dx < -units::kPi ? dx + units::kTwoPi : dx);
-        acc += dx * dx * inv_w2_(i);
+    const std::size_t n = count_.size();
+    q.assign(n, 0.0);
+    for (int i = 0; i < 4; ++i) {
+      const double ci = c(i), w = inv_w2_(i);
+      const double* a = centre_[i].data();
+      const bool angle = i == 1 || i == 2;
+      for (std::size_t m = 0; m < n; ++m) {
+        double dx = ci - a[m];
+        if (angle) dx = dx > units::kPi ? dx - units::kTwoPi : (dx < -units::kPi ? dx + units::kTwoPi : dx);
+        q[m] += 0.5 * (dx * dx * w);
       }
-      q[m] = 0.5 * acc;
-      q_min = std::min(q_min, q[m]);
     }
+    const double q_min = *std::min_element(q.begin(), q.end());
     double s = 0;
-    for (double v : q)
-      if (v - q_min < kKernelCut) s += std::exp(q_min - v);
+    for (std::size_t m = 0; m < n; ++m)
+      if (q[m] - q_min < kKernelCut) s += count_[m] * std::exp(q_min - q[m]);
     return -q_min + std::log(s) - log_norm_;
   }
 
  private:
   static constexpr double kKernelCut = 40.0;
-  std::vector<Coords> anc_;
+  std::array<std::vector<double>, 4> centre_;  ///< distinct ancestors, one array per coordinate
+  std::vector<double> count_;                  ///< how often each was drawn
   Coords inv_w2_;
   double log_norm_;
 };
