@@ -7,13 +7,16 @@
 // of an older build: give its binary with --reference BIN and the table of
 // the bench's stars is written and timed through both binaries.
 //
-// Usage: curve_bench [--reference HEFT_BINARY]
+// Usage: curve_bench [--draws N] [--sigma S] [--reference HEFT_BINARY]
+// (--draws: the draws per separation, 4096 by default as in `heft curve`;
+// `heft rank` uses 256. --sigma: time only the star nearest to S of the four.)
 
 #include <sys/resource.h>
 #include <sys/wait.h>
 
 #include <cmath>
 #include <cstdio>
+#include <cstdlib>
 #include <cstring>
 #include <fstream>
 #include <string>
@@ -44,10 +47,17 @@ double child_seconds(const std::string& cmd) {
 
 int main(int argc, char** argv) {
   std::string reference;
-  for (int i = 1; i + 1 < argc; ++i)
-    if (std::strcmp(argv[i], "--reference") == 0) reference = argv[i + 1];
-
   CurveOptions opt;
+  double only_sigma = 0.0;
+  for (int i = 1; i + 1 < argc; ++i) {
+    if (std::strcmp(argv[i], "--reference") == 0) reference = argv[i + 1];
+    if (std::strcmp(argv[i], "--draws") == 0) opt.draws = std::atoi(argv[i + 1]);
+    if (std::strcmp(argv[i], "--sigma") == 0) only_sigma = std::atof(argv[i + 1]);
+  }
+  if (opt.draws < 64) {
+    std::fprintf(stderr, "curve_bench: --draws must be at least 64\n");
+    return 2;
+  }
   opt.a_au = log_grid(0.5, 500.0, 64);
   const SurveyModel model = coverage_survey(opt, 1.0, 50.0, 2026);
   const double targets[4] = {3, 10, 50, 270};
@@ -76,6 +86,7 @@ int main(int argc, char** argv) {
   std::printf("%10s %8s %6s %10s %12s %12s %10s %12s %8s\n", "star", "sig", "points", "CPU s",
               "draws", "window evals", "evals/draw", "reference s", "ratio");
   for (int k = 0; k < 4; ++k) {
+    if (only_sigma > 0 && std::abs(std::log(only_sigma / targets[k])) > 0.1) continue;
     const double t0 = cpu_seconds(RUSAGE_SELF);
     const Curve c = montecarlo_curve(data[k], opt, picked[k].id);
     const double secs = cpu_seconds(RUSAGE_SELF) - t0;
@@ -85,7 +96,8 @@ int main(int argc, char** argv) {
       std::string text = star_table_header();
       append_star_row(text, picked[k]);
       std::ofstream(table) << text;
-      ref_s = child_seconds(reference + " curve -q " + table + " --id " + picked[k].id + " -o /tmp/curve_bench_ref.csv");
+      ref_s = child_seconds(reference + " curve -q " + table + " --id " + picked[k].id + " --draws " +
+                            std::to_string(opt.draws) + " -o /tmp/curve_bench_ref.csv");
     }
     std::printf("%10s %8.1f %6zu %10.3f %12ld %12ld %10.2f %12.3f %8.1f\n", picked[k].id.c_str(), sig[k],
                 c.points.size(), secs, c.draws_weighed, c.window_evaluations,

@@ -6,12 +6,15 @@
 // 0.5-500 AU) with the true a inserted and refined, as a whole curve does,
 // so that the rounds at the true a start from the neighbours' proposals.
 //
-// Usage: curve_calibration [systems=400] [draws=2048] [--full-grid]
+// Usage: curve_calibration [systems=400] [draws=2048] [--full-grid] [--seed N]
+// (--seed: the curves' Monte Carlo seed, as `heft curve --seed`; the systems
+// stay the same.)
 
 #include <chrono>
 #include <cstdio>
 #include <cstdlib>
 #include <cstring>
+#include <vector>
 
 #include <Eigen/LU>
 
@@ -22,11 +25,20 @@
 using namespace heft;
 
 int main(int argc, char** argv) {
-  const bool full_grid = argc > 1 && std::strcmp(argv[argc - 1], "--full-grid") == 0;
-  if (full_grid) --argc;
-  const int n_sys = argc > 1 ? std::atoi(argv[1]) : 400;
-  const int draws = argc > 2 ? std::atoi(argv[2]) : 2048;
+  bool full_grid = false;
+  std::vector<const char*> pos;
   CurveOptions o;
+  for (int i = 1; i < argc; ++i) {
+    if (std::strcmp(argv[i], "--full-grid") == 0) {
+      full_grid = true;
+    } else if (std::strcmp(argv[i], "--seed") == 0 && i + 1 < argc) {
+      o.seed = std::strtoull(argv[++i], nullptr, 10);
+    } else {
+      pos.push_back(argv[i]);
+    }
+  }
+  const int n_sys = pos.size() > 0 ? std::atoi(pos[0]) : 400;
+  const int draws = pos.size() > 1 ? std::atoi(pos[1]) : 2048;
   o.draws = draws;
   o.prior.m_min_mjup = 1;
   o.prior.m_max_mjup = 200;
