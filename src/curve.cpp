@@ -93,14 +93,30 @@ struct Draw {
   mutable double x_start = 0.0;
 };
 
-// The random numbers of a star's curve, drawn once and shared by every
-// separation (common random numbers): first-stage prior draws, a second set
-// for the prior half of the adaptive stage, kernel deviates and picks.
-struct DrawSet {
-  std::vector<Draw> first, second;
-  std::vector<double> dev;  // per draw and z sample: n1, n2, u1, u2
+// Rounds of importance sampling at one separation: a first round (prior
+// draws, or draws from a neighbour's proposal) and up to three adaptive ones.
+constexpr int kMaxAdaptiveRounds = 3, kMaxRounds = kMaxAdaptiveRounds + 1;
+
+// The random numbers of one round that draws from a proposal: prior draws
+// for its prior half, kernel deviates, and picks (component, then kernel).
+struct ProposalDeviates {
+  std::vector<Draw> prior;
   std::vector<Eigen::Vector4d> kernel;  // (cos i, omega, M0, e) deviates
   std::vector<double> pick;
+};
+
+// The random numbers of a star's curve, drawn once and shared by every
+// separation (common random numbers): prior draws for a first round, and
+// fresh deviates for each round that draws from a proposal, so that every
+// round's draws are independent of the others' and all can be pooled. The
+// proposal rounds' deviates are drawn from the same stream when a
+// separation first needs them, always in the same order, so they do not
+// depend on when (a star without signal never needs them).
+struct DrawSet {
+  std::vector<Draw> first;
+  std::vector<ProposalDeviates> proposal;  ///< for the 1st, 2nd ... round from a proposal
+  std::vector<double> dev;  // per draw and z sample: n1, n2, u1, u2
+  Rng rng;                  ///< the stream, after the deviates drawn so far
 };
 
 // heft's mass prior (prior.hpp) as a density in the z plane (normalised).
@@ -161,15 +177,26 @@ Draw prior_draw(const AnomalyData& d, const CurveOptions& opt, const ZPlanePrior
 
 DrawSet make_draws(const AnomalyData& d, const CurveOptions& opt, const ZPlanePrior& prior,
                    const std::string& id) {
-  Rng rng = Rng::for_star(opt.seed, id);
-  DrawSet ds;
-  ds.dev.reserve(8 * static_cast<std::size_t>(opt.draws) * opt.z_samples);
-  for (int k = 0; k < opt.draws; ++k) ds.first.push_back(prior_draw(d, opt, prior, rng, ds.dev));
-  for (int k = 0; k < opt.draws; ++k) ds.second.push_back(prior_draw(d, opt, prior, rng, ds.dev));
-  for (int k = 0; k < opt.draws; ++k)
-    ds.kernel.emplace_back(rng.normal(), rng.normal(), rng.normal(), rng.normal());
-  for (int k = 0; k < 2 * opt.draws; ++k) ds.pick.push_back(rng.uniform());
+  DrawSet ds{{}, {}, {}, Rng::for_star(opt.seed, id)};
+  ds.proposal.reserve(kMaxRounds);
+  // Room for every round's deviates: no reallocation while a round reads them.
+  ds.dev.reserve(static_cast<std::size_t>(kMaxRounds + 1) * opt.draws * opt.z_samples * 4);
+  for (int k = 0; k < opt.draws; ++k) ds.first.push_back(prior_draw(d, opt, prior, ds.rng, ds.dev));
   return ds;
+}
+
+// The deviates of the k-th round from a proposal (k < kMaxRounds), drawn
+// with those before it if not yet drawn.
+const ProposalDeviates& proposal_deviates(DrawSet& ds, std::size_t k, const AnomalyData& d,
+                                          const CurveOptions& opt, const ZPlanePrior& prior) {
+  while (ds.proposal.size() <= k) {
+    ProposalDeviates& pd = ds.proposal.emplace_back();
+    for (int j = 0; j < opt.draws; ++j) pd.prior.push_back(prior_draw(d, opt, prior, ds.rng, ds.dev));
+    for (int j = 0; j < opt.draws; ++j)
+      pd.kernel.emplace_back(ds.rng.normal(), ds.rng.normal(), ds.rng.normal(), ds.rng.normal());
+    for (int j = 0; j < 2 * opt.draws; ++j) pd.pick.push_back(ds.rng.uniform());
+  }
+  return ds.proposal[k];
 }
 
 struct Sample {
@@ -182,6 +209,7 @@ struct Problem {
   const AnomalyData& d;
   const CurveOptions& opt;
   const ZPlanePrior& prior;
+  const DrawSet& ds;
   Eigen::Matrix4d cinv;
   double chi2_data;
   double a_au;
@@ -470,46 +498,6 @@ double log_prior_coords(const Coords& c, const Distribution& ecc) {
 // also takes its slow path).
 double exp_or_zero(double t) { return t > -746.0 ? std::exp(t) : 0.0; }
 
-// Weights exp(log_w - max) of the first n samples, their sum and sum of squares.
-struct Weights {
-  std::vector<double> w;
-  double max_log_w, sum, sum2;
-};
-Weights weights_of(const std::vector<Sample>& ss, std::size_t n) {
-  Weights r{std::vector<double>(n, 0.0), -std::numeric_limits<double>::infinity(), 0.0, 0.0};
-  for (std::size_t i = 0; i < n; ++i) r.max_log_w = std::max(r.max_log_w, ss[i].log_w);
-  if (!std::isfinite(r.max_log_w)) return r;
-  for (std::size_t i = 0; i < n; ++i) {
-    r.w[i] = exp_or_zero(ss[i].log_w - r.max_log_w);
-    r.sum += r.w[i];
-    r.sum2 += r.w[i] * r.w[i];
-  }
-  return r;
-}
-
-// The sums of Weights over a sample that grows block by block: rescaled
-// when a block raises the maximum log weight.
-struct WeightSums {
-  double max_log_w = -std::numeric_limits<double>::infinity(), sum = 0.0, sum2 = 0.0;
-  void add(const Sample* ss, std::size_t n) {
-    double block_max = -std::numeric_limits<double>::infinity();
-    for (std::size_t i = 0; i < n; ++i) block_max = std::max(block_max, ss[i].log_w);
-    if (!std::isfinite(block_max)) return;
-    if (block_max > max_log_w) {
-      const double f = exp_or_zero(max_log_w - block_max);  // 0 on the first finite block
-      sum *= f;
-      sum2 *= f * f;
-      max_log_w = block_max;
-    }
-    for (std::size_t i = 0; i < n; ++i) {
-      const double w = exp_or_zero(ss[i].log_w - max_log_w);
-      sum += w;
-      sum2 += w * w;
-    }
-  }
-  double ess() const { return effective_sample_size(sum, sum2); }
-};
-
 // Gaussian kernels in the orbit-angle coordinates around ancestors, with
 // per-axis widths; angles (in [0, 2 pi)) wrap. An ancestor drawn several
 // times (systematic resampling of a peaked posterior) is one kernel with
@@ -573,14 +561,13 @@ struct Proposal {
   Coords width = Coords::Zero();
 };
 
-// Ancestors by systematic resampling of weighted draws, and kernel widths
-// from their spread.
-Proposal proposal_from(const std::vector<Draw>& src, const Weights& wts, int nz, const Distribution& ecc) {
-  const std::size_t n = wts.w.size() / nz;
+// Ancestors by systematic resampling of n weighted draws (nz weights w
+// each, one per z sample), and kernel widths from their spread.
+Proposal proposal_from(const Draw* src, const double* w, std::size_t n, int nz, const Distribution& ecc) {
   std::vector<double> cw(n);
   double acc = 0;
   for (std::size_t k = 0; k < n; ++k) {
-    for (int s = 0; s < nz; ++s) acc += wts.w[k * nz + s];
+    for (int s = 0; s < nz; ++s) acc += w[k * nz + s];
     cw[k] = acc;
   }
   constexpr int n_anc = 64;
@@ -608,28 +595,89 @@ Proposal proposal_from(const std::vector<Draw>& src, const Weights& wts, int nz,
   return p;
 }
 
-// Draws j in [begin, end) of the proposal (the second set of draws, moved
-// onto the kernels by the shared deviates) into `next`, weighed into
-// `samples`. Returns the number of window-model evaluations.
-long weigh_proposal(const Problem& pb, const DrawSet& ds, const Proposal& prop, const KernelMixture& mixture,
-                    std::vector<Draw>& next, std::vector<Sample>& samples, std::size_t begin, std::size_t end) {
+// Every draw weighed at one separation, round after round, pooled: each
+// keeps its weight against its own round's proposal. Each round's weighted
+// draws estimate the posterior and the evidence without bias on their own
+// and the rounds' random numbers are independent, so the pooled sum does
+// too; since every proposal is at least half the prior, no weight exceeds
+// twice the likelihood (the defensive mixture's bound; Hesterberg 1995,
+// Technometrics 37, 185). No round is dropped: a round that found a narrow
+// mode keeps it (docs/method.md, "Rounds pooled"). The buffers are reused
+// by the next separation (no page faults per point).
+struct Pool {
+  std::vector<Draw> draws;
+  /// z samples, nz per draw, weighed against the proposal of the draw's own round.
+  std::vector<Sample> samples;
+  /// Per sample exp(log_w - max_log_w), max_log_w the largest log weight so
+  /// far, with their sums over all rounds and over the latest round.
+  std::vector<double> w;
+  double max_log_w, sum, sum2, round_sum, round_sum2;
+  std::size_t size = 0;
+  void reserve(std::size_t draws_per_round, int nz) {
+    const std::size_t cap = kMaxRounds * draws_per_round;
+    if (draws.size() >= cap) return;
+    draws.resize(cap);
+    samples.resize(cap * nz);
+    w.resize(cap * nz);
+  }
+  void clear() {
+    size = 0;
+    max_log_w = -std::numeric_limits<double>::infinity();
+    sum = sum2 = round_sum = round_sum2 = 0.0;
+  }
+  void start_round() { round_sum = round_sum2 = 0.0; }
+  // Weighs the samples of draws [begin, end), the latest round's newest:
+  // the earlier weights are rescaled when these raise the maximum.
+  void add_weights(std::size_t begin, std::size_t end, int nz) {
+    double block_max = -std::numeric_limits<double>::infinity();
+    for (std::size_t i = begin * nz; i < end * nz; ++i) block_max = std::max(block_max, samples[i].log_w);
+    if (block_max > max_log_w) {
+      const double f = exp_or_zero(max_log_w - block_max);  // 0 on the first finite block
+      for (std::size_t i = 0; i < begin * nz; ++i) w[i] *= f;
+      sum *= f;
+      sum2 *= f * f;
+      round_sum *= f;
+      round_sum2 *= f * f;
+      max_log_w = block_max;
+    }
+    for (std::size_t i = begin * nz; i < end * nz; ++i) {
+      const double wi = std::isfinite(max_log_w) ? exp_or_zero(samples[i].log_w - max_log_w) : 0.0;
+      w[i] = wi;
+      sum += wi;
+      sum2 += wi * wi;
+      round_sum += wi;
+      round_sum2 += wi * wi;
+    }
+  }
+  double ess() const { return effective_sample_size(sum, sum2); }
+  double round_ess() const { return effective_sample_size(round_sum, round_sum2); }
+};
+
+// Draws j in [begin, end) of a round from the proposal (prior draws of `pd`
+// moved onto the kernels by its deviates) into the pool after its first
+// `offset` draws, weighed against the proposal. Returns the number of
+// window-model evaluations.
+long weigh_proposal(const Problem& pb, const ProposalDeviates& pd, const Proposal& prop,
+                    const KernelMixture& mixture, Pool& pool, std::size_t offset, std::size_t begin,
+                    std::size_t end) {
   const CurveOptions& opt = pb.opt;
   const int nz = opt.z_samples;
-  const std::size_t n = ds.second.size(), n_anc = prop.anc.size();
+  const std::size_t n = pd.prior.size(), n_anc = prop.anc.size();
   long evaluations = 0;
 #pragma omp parallel
   {
     std::vector<double> scratch;
 #pragma omp for schedule(static) reduction(+ : evaluations)
     for (std::size_t j = begin; j < end; ++j) {
-      Draw& dr = next[j];
-      dr = ds.second[j];
-      const bool from_kernel = ds.pick[j] >= 0.5;  // else the prior component
+      const std::size_t i = offset + j;
+      Draw& dr = pool.draws[i];
+      dr = pd.prior[j];
+      const bool from_kernel = pd.pick[j] >= 0.5;  // else the prior component
       if (from_kernel) {
-        const std::size_t m = static_cast<std::size_t>(ds.pick[j + n] * n_anc) % n_anc;
+        const std::size_t m = static_cast<std::size_t>(pd.pick[j + n] * n_anc) % n_anc;
         const Coords& a = prop.anc[m];
         dr.x_start = prop.anc_x[m];
-        Coords c = a + prop.width.cwiseProduct(ds.kernel[j]);
+        Coords c = a + prop.width.cwiseProduct(pd.kernel[j]);
         c(1) = wrap_2pi(c(1));
         c(2) = wrap_2pi(c(2));
         if (opt.prior.ecc.kind == Distribution::Kind::kFixed) c(3) = dr.ecc;
@@ -644,10 +692,10 @@ long weigh_proposal(const Problem& pb, const DrawSet& ds, const Proposal& prop, 
       if (std::isfinite(lp)) {
         // Mixture density 0.5 prior + 0.5 kernels.
         const double mix = log_add_exp(lp, mixture.log_density(c, scratch)) - std::log(2.0);
-        evaluations += weigh_draw(pb, dr, &ds.dev[dr.dev], lp - mix, &samples[j * nz]);
-        if (!from_kernel) ds.second[j].x_start = dr.x_start;  // the prior draw's own warm start
+        evaluations += weigh_draw(pb, dr, &pb.ds.dev[dr.dev], lp - mix, &pool.samples[i * nz]);
+        if (!from_kernel) pd.prior[j].x_start = dr.x_start;  // the prior draw's own warm start
       } else {  // outside the prior's support: no weight
-        for (int s = 0; s < nz; ++s) samples[j * nz + s] = {-std::numeric_limits<double>::infinity(), 0.0, 0.0, 0.0};
+        for (int s = 0; s < nz; ++s) pool.samples[i * nz + s] = {-std::numeric_limits<double>::infinity(), 0.0, 0.0, 0.0};
       }
     }
   }
@@ -658,50 +706,56 @@ long weigh_proposal(const Problem& pb, const DrawSet& ds, const Proposal& prop, 
 // ~2 % of the band.
 constexpr double kTargetEss = 1000.0;
 // A round weighs its draws in blocks and stops at the first block boundary
-// where the target is met, or where the effective sample size projected to
-// every block (it grows about in proportion to the draws) falls short of
-// the round's threshold. Rounds from a proposal take four blocks; rounds of
-// prior draws eight, since at low S/N 512 prior draws often meet the target
-// (measured: 5 % fewer draws and 8 % less CPU over 20 stars at S/N >= 3,
-// -21 % on the bench's sigma = 3 star, the same low-ESS separations, and
-// coverage unchanged). Eight blocks for the proposal rounds too stopped
-// them on noisier projections: 3x the posterior weight below kLowEss at
-// S/N >= 30.
+// where the pooled draws of all rounds meet the target, or where the pool's
+// size before the round plus the round's own projected to every block (it
+// grows about in proportion to the draws) falls short of the round's
+// threshold. Rounds from a proposal take
+// four blocks; rounds of prior draws eight, since at low S/N 512 prior
+// draws often meet the target (measured: 5 % fewer draws and 8 % less CPU
+// over 20 stars at S/N >= 3, -21 % on the bench's sigma = 3 star, the same
+// low-ESS separations, and coverage unchanged). Eight blocks for the
+// proposal rounds too stopped them on noisier projections: 3x the
+// posterior weight below kLowEss at S/N >= 30.
 constexpr int kProposalBlocks = 4, kPriorBlocks = 8;
 
 struct RoundResult {
   std::size_t used = 0;  ///< draws weighed (a prefix of the round's draws)
   long evaluations = 0;
-  double ess = 0.0;
 };
 
-// One round of importance sampling: the prior draws (`prop` null) or draws
-// from `prop` into `drawn`, in blocks, stopping short below `min_projected_ess`.
-RoundResult run_round(const Problem& pb, const DrawSet& ds, const Proposal* prop, std::vector<Draw>& drawn,
-                      std::vector<Sample>& samples, double min_projected_ess) {
+// One round of importance sampling into the pool: the prior draws (`prop`
+// null) or draws from `prop` with the deviates `pd`, in blocks, stopping
+// short where `ess_before` (the pool's before this round) plus the round's
+// own projected size falls below `min_projected_ess`.
+RoundResult run_round(const Problem& pb, const Proposal* prop, const ProposalDeviates* pd, Pool& pool,
+                      double ess_before, double min_projected_ess) {
   const int nz = pb.opt.z_samples;
+  const std::vector<Draw>& first = pb.ds.first;
   const std::size_t blocks = prop ? kProposalBlocks : kPriorBlocks;
-  const std::size_t n = ds.first.size(), block = (n + blocks - 1) / blocks;
+  const std::size_t n = first.size(), block = (n + blocks - 1) / blocks, offset = pool.size;
   std::optional<KernelMixture> mixture;
   if (prop) mixture.emplace(prop->anc, prop->width);
   RoundResult r;
-  WeightSums sums;
+  pool.start_round();
   for (std::size_t begin = 0; begin < n; begin += block) {
     const std::size_t end = std::min(n, begin + block);
     if (prop) {
-      r.evaluations += weigh_proposal(pb, ds, *prop, *mixture, drawn, samples, begin, end);
+      r.evaluations += weigh_proposal(pb, *pd, *prop, *mixture, pool, offset, begin, end);
     } else {
       long evaluations = 0;
 #pragma omp parallel for schedule(static) reduction(+ : evaluations)
-      for (std::size_t k = begin; k < end; ++k)
-        evaluations += weigh_draw(pb, ds.first[k], &ds.dev[ds.first[k].dev], 0.0, &samples[k * nz]);
+      for (std::size_t k = begin; k < end; ++k) {
+        const std::size_t i = offset + k;
+        evaluations += weigh_draw(pb, first[k], &pb.ds.dev[first[k].dev], 0.0, &pool.samples[i * nz]);
+        pool.draws[i] = first[k];  // with the warm start just left in it
+      }
       r.evaluations += evaluations;
     }
-    sums.add(&samples[begin * nz], (end - begin) * nz);
+    pool.add_weights(offset + begin, offset + end, nz);
     r.used = end;
-    r.ess = sums.ess();
-    if (r.ess >= kTargetEss) break;
-    if (r.ess * static_cast<double>(n) / static_cast<double>(end) < min_projected_ess) break;
+    pool.size = offset + end;
+    if (pool.ess() >= kTargetEss) break;
+    if (ess_before + pool.round_ess() * static_cast<double>(n) / static_cast<double>(end) < min_projected_ess) break;
   }
   return r;
 }
@@ -715,34 +769,22 @@ struct PointResult {
   Proposal proposal;  ///< the last proposal used (empty without the adaptive stage)
 };
 
-// Buffers of a separation, reused by the next one (no page faults per point).
-struct Scratch {
-  std::vector<Sample> samples, best_samples;
-  std::vector<Draw> draws, best_draws;
-};
-
 // One separation. `seed`: the final proposal of a neighbouring separation
 // that needed the adaptive stage (the posterior of the orbit angles changes
 // slowly with a), or null to start from the prior.
-PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const DrawSet& ds,
-                       const ZPlanePrior& prior, bool upper, double a_au, const Proposal* seed,
-                       Scratch& scratch) {
+PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, DrawSet& ds,
+                       const ZPlanePrior& prior, bool upper, double a_au, const Proposal* seed, Pool& pool) {
   Eigen::LLT<Eigen::Matrix4d> cllt(d.cov);
   const double chi2_data = d.dpm.dot(cllt.solve(d.dpm));
-  const Problem pb{d, opt, prior, cllt.solve(Eigen::Matrix4d::Identity()), chi2_data, a_au,
+  const Problem pb{d, opt, prior, ds, cllt.solve(Eigen::Matrix4d::Identity()), chi2_data, a_au,
                    d.late.ref_epoch_yr - d.early.ref_epoch_yr, std::sqrt(chi2_data)};
   const int nz = opt.z_samples;
-  const std::size_t n = ds.first.size();
-  // Each round writes into the `samples` and `draws` buffers; the round
-  // with the largest effective sample size is kept in the `best_` ones.
-  std::vector<Sample>&samples = scratch.samples, &best_samples = scratch.best_samples;
-  std::vector<Draw>&draws = scratch.draws, &best_draws = scratch.best_draws;
-  for (auto* v : {&samples, &best_samples}) v->resize(n * nz);
-  for (auto* v : {&draws, &best_draws}) v->resize(n);
+  pool.reserve(ds.first.size(), nz);
+  pool.clear();
   PointResult r;
   if (seed) r.proposal = *seed;
   // Up to three adaptive rounds when the draws degenerate (high S/N), each
-  // proposing around the previous round's weighted draws, with the same
+  // proposing around the weighted draws of all rounds so far, with the same
   // deviates for every a. A first round of prior draws runs in full unless
   // it meets the target (its draws seed the proposal). A round that draws
   // from a proposal (a neighbour's, or an adaptive one) stops short when
@@ -750,86 +792,75 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const Draw
   // rounds for the same draws give fewer separations below kLowEss, and a
   // neighbour's proposal run in full cost 11-27 % more draws at S/N >= 10
   // and left no less posterior weight below kLowEss), the last one when
-  // even kLowEss is (the band is flagged either way). A short round can
-  // fall below an earlier one: the best round gives the results.
-  constexpr int kMaxRounds = 3;
-  RoundResult best = run_round(pb, ds, seed, draws, samples, seed ? kTargetEss : 0.0);
-  samples.swap(best_samples);
-  draws.swap(best_draws);
-  long evaluations = best.evaluations;
-  r.draws_weighed += static_cast<long>(best.used);
-  // The draws of the best round: the prior draws, or draws from a proposal.
-  const std::vector<Draw>* best_used = seed ? &best_draws : &ds.first;
-  // The latest round, which the next proposal starts from.
-  const std::vector<Draw>* latest_draws = best_used;
-  const std::vector<Sample>* latest_samples = &best_samples;
-  std::size_t latest_used = best.used;
-  int rounds = 0;
+  // even kLowEss is (the band is flagged either way). All rounds are pooled.
+  int proposal_rounds = 0;  // rounds so far that drew from a proposal
+  long evaluations = 0;
+  double ess = 0.0;
+  auto run = [&](const Proposal* prop, double min_projected_ess) {
+    const ProposalDeviates* pd = prop ? &proposal_deviates(ds, proposal_rounds++, d, opt, prior) : nullptr;
+    const RoundResult round = run_round(pb, prop, pd, pool, ess, min_projected_ess);
+    evaluations += round.evaluations;
+    r.draws_weighed += static_cast<long>(round.used);
+    ess = pool.ess();
+  };
+  run(seed, seed ? kTargetEss : 0.0);
   // Where one sample still holds nearly all the weight after an adaptive
   // round, the kernels around it found nothing better, and the later
   // rounds did not either (40 stars at S/N >= 3 and >= 30: the same
   // separations ended below kLowEss with the same posterior weight, and
   // 4-6 % fewer draws were weighed): the rounds end there.
   constexpr double kDegenerateEss = 1.5;
-  while (rounds < kMaxRounds && best.ess < kTargetEss && !(rounds >= 1 && best.ess < kDegenerateEss)) {
-    r.proposal = proposal_from(*latest_draws, weights_of(*latest_samples, latest_used * nz), nz, opt.prior.ecc);
-    const RoundResult round =
-        run_round(pb, ds, &r.proposal, draws, samples, ++rounds < kMaxRounds ? kTargetEss : kLowEss);
-    evaluations += round.evaluations;
-    r.draws_weighed += static_cast<long>(round.used);
-    latest_used = round.used;
-    if (round.ess > best.ess) {
-      best = round;
-      samples.swap(best_samples);
-      draws.swap(best_draws);
-      best_used = latest_draws = &best_draws;
-      latest_samples = &best_samples;
-    } else {
-      latest_draws = &draws;
-      latest_samples = &samples;
-    }
+  int rounds = 0;
+  while (rounds < kMaxAdaptiveRounds && ess < kTargetEss && !(rounds >= 1 && ess < kDegenerateEss)) {
+    r.proposal = proposal_from(pool.draws.data(), pool.w.data(), pool.size, nz, opt.prior.ecc);
+    run(&r.proposal, ++rounds < kMaxAdaptiveRounds ? kTargetEss : kLowEss);
   }
-  const std::size_t n_samples = best.used * nz;
-  const Weights wts = weights_of(best_samples, n_samples);
+  const std::size_t n_samples = pool.size * nz;
   // A neighbour's proposal is passed on only while the posterior stays
   // where its kernels are: when the kernels' draws hold less than half the
   // weight here, the posterior is broad again, and the next separation
   // starts from the prior draws.
-  if (seed && rounds == 0 && wts.sum > 0) {
+  if (seed && rounds == 0 && pool.sum > 0) {
     double kernel_w = 0.0;
-    for (std::size_t j = 0; j < best.used; ++j)
-      if (ds.pick[j] >= 0.5)
-        for (int s = 0; s < nz; ++s) kernel_w += wts.w[j * nz + s];
-    if (kernel_w < 0.5 * wts.sum) r.proposal = Proposal{};
+    for (std::size_t j = 0; j < pool.size; ++j)
+      if (ds.proposal[0].pick[j] >= 0.5)
+        for (int s = 0; s < nz; ++s) kernel_w += pool.w[j * nz + s];
+    if (kernel_w < 0.5 * pool.sum) r.proposal = Proposal{};
   }
-  const std::vector<Draw>& fin = *best_used;
   r.window_evaluations = evaluations;
 
   // Reduce in a fixed order: results do not depend on the thread count.
-  const double sw = wts.sum;
+  const double sw = pool.sum;
   CurvePoint& p = r.point;
   p.a_au = a_au;
   p.sep_mas = a_au * d.parallax_mas;
   p.period_yr = period_from_a(a_au, d.host_mass_msun);
-  p.ess = effective_sample_size(wts.sum, wts.sum2);
+  p.ess = pool.ess();
   // The mean weight estimates the marginal likelihood; its relative
   // variance is 1 / ESS - 1 / N.
   r.evidence_rel_var = sw > 0 ? std::max(0.0, 1.0 / p.ess - 1.0 / static_cast<double>(n_samples)) : 0.0;
-  r.log_evidence = std::isfinite(wts.max_log_w) && sw > 0
-                       ? wts.max_log_w + std::log(sw) - std::log(static_cast<double>(n_samples))
+  r.log_evidence = std::isfinite(pool.max_log_w) && sw > 0
+                       ? pool.max_log_w + std::log(sw) - std::log(static_cast<double>(n_samples))
                        : -std::numeric_limits<double>::infinity();
   p.mass_lo95 = p.mass_lo68 = p.mass_med = p.mass_hi68 = p.mass_hi95 = kAbsent;
   if (sw > 0) {
+    // Samples below 1e-12 of the largest weight hold at most 1.3e-7 of the
+    // total together (131,072 samples at most): left out of the selection.
+    constexpr double kNegligibleWeight = 1e-12;
     std::vector<std::pair<double, double>> pairs;
     pairs.reserve(n_samples);
+    double kept = 0.0;
     for (std::size_t i = 0; i < n_samples; ++i)
-      if (wts.w[i] > 0) pairs.emplace_back(best_samples[i].m2_mjup, wts.w[i]);
+      if (pool.w[i] > kNegligibleWeight) {
+        pairs.emplace_back(pool.samples[i].m2_mjup, pool.w[i]);
+        kept += pool.w[i];
+      }
     if (upper) {
-      const std::vector<double> q = weighted_quantiles(pairs, sw, {0.68, 0.95});
+      const std::vector<double> q = weighted_quantiles(pairs, kept, {0.68, 0.95});
       p.mass_hi68 = q[0];
       p.mass_hi95 = q[1];
     } else {
-      const std::vector<double> q = weighted_quantiles(pairs, sw, {0.025, 0.16, 0.5, 0.84, 0.975});
+      const std::vector<double> q = weighted_quantiles(pairs, kept, {0.025, 0.16, 0.5, 0.84, 0.975});
       p.mass_lo95 = q[0];
       p.mass_lo68 = q[1];
       p.mass_med = q[2];
@@ -842,10 +873,10 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, const Draw
     const std::size_t keep = 256;
     double acc = 0, next = 0.5 * sw / keep;
     for (std::size_t i = 0; i < n_samples && r.draws.size() < keep; ++i) {
-      acc += wts.w[i];
+      acc += pool.w[i];
       while (acc >= next && r.draws.size() < keep) {
-        const Draw& dr = fin[i / nz];
-        const Sample& s = best_samples[i];
+        const Draw& dr = pool.draws[i / nz];
+        const Sample& s = pool.samples[i];
         const double m2_msun = s.m2_mjup / units::kMjupPerMsun;
         r.draws.push_back({a_au, s.m2_mjup, dr.ecc, units::rad_to_deg(dr.inc),
                            units::rad_to_deg(dr.omega),
@@ -948,8 +979,8 @@ Curve montecarlo_curve(const AnomalyData& d, const CurveOptions& opt, const std:
   Curve c;
   c.upper_limit = opt.prior.upper_limit(d.sig_joint);
   const ZPlanePrior prior(opt.prior.mass_prior(c.upper_limit));
-  const DrawSet draws = make_draws(d, opt, prior, rng_id);
-  Scratch scratch;
+  DrawSet draws = make_draws(d, opt, prior, rng_id);
+  Pool pool;
   std::vector<PointResult> pts;
   // Each separation starts from its left neighbour's proposal when that one
   // needed the adaptive stage (in grid order, so results do not depend on
@@ -957,7 +988,7 @@ Curve montecarlo_curve(const AnomalyData& d, const CurveOptions& opt, const std:
   auto seed_of = [](const PointResult& p) { return p.proposal.anc.empty() ? nullptr : &p.proposal; };
   for (double a : opt.a_au)
     pts.push_back(evaluate_a(d, opt, draws, prior, c.upper_limit, a, pts.empty() ? nullptr : seed_of(pts.back()),
-                             scratch));
+                             pool));
   // Adaptive refinement where neighbouring bands do not overlap or the
   // posterior weight jumps by more than a factor 3.
   for (int round = 0; round < opt.refine_rounds; ++round) {
@@ -973,7 +1004,7 @@ Curve montecarlo_curve(const AnomalyData& d, const CurveOptions& opt, const std:
       if (bands_disjoint(p, q) || jump) {
         const Proposal* seed = seed_of(pts[k]) ? seed_of(pts[k]) : seed_of(pts[k + 1]);
         refined.push_back(
-            evaluate_a(d, opt, draws, prior, c.upper_limit, std::sqrt(p.a_au * q.a_au), seed, scratch));
+            evaluate_a(d, opt, draws, prior, c.upper_limit, std::sqrt(p.a_au * q.a_au), seed, pool));
         changed = true;
       }
     }
