@@ -611,7 +611,7 @@ struct Pool {
   /// Per sample exp(log_w - max_log_w), max_log_w the largest log weight so
   /// far, with their sums over all rounds and over the latest round.
   std::vector<double> w;
-  double max_log_w, sum, sum2, round_sum, round_sum2;
+  double max_log_w = -std::numeric_limits<double>::infinity(), sum = 0.0, sum2 = 0.0, round_sum = 0.0, round_sum2 = 0.0;
   std::size_t size = 0;
   void reserve(std::size_t draws_per_round, int nz) {
     const std::size_t cap = kMaxRounds * draws_per_round;
