@@ -611,7 +611,8 @@ struct Pool {
   /// Per sample exp(log_w - max_log_w), max_log_w the largest log weight so
   /// far, with their sums over all rounds and over the latest round.
   std::vector<double> w;
-  double max_log_w = -std::numeric_limits<double>::infinity(), sum = 0.0, sum2 = 0.0, round_sum = 0.0, round_sum2 = 0.0;
+  double max_log_w = -std::numeric_limits<double>::infinity();
+  double sum = 0.0, sum2 = 0.0, round_sum = 0.0, round_sum2 = 0.0;
   std::size_t size = 0;
   void reserve(std::size_t draws_per_round, int nz) {
     const std::size_t cap = kMaxRounds * draws_per_round;
@@ -709,13 +710,13 @@ constexpr double kTargetEss = 1000.0;
 // where the pooled draws of all rounds meet the target, or where the pool's
 // size before the round plus the round's own projected to every block (it
 // grows about in proportion to the draws) falls short of the round's
-// threshold. Rounds from a proposal take
-// four blocks; rounds of prior draws eight, since at low S/N 512 prior
-// draws often meet the target (measured: 5 % fewer draws and 8 % less CPU
-// over 20 stars at S/N >= 3, -21 % on the bench's sigma = 3 star, the same
-// low-ESS separations, and coverage unchanged). Eight blocks for the
-// proposal rounds too stopped them on noisier projections: 3x the
-// posterior weight below kLowEss at S/N >= 30.
+// threshold. Rounds from a proposal take four blocks; rounds of prior
+// draws eight, since at low S/N 512 prior draws often meet the target
+// (measured: 5 % fewer draws and 8 % less CPU over 20 stars at S/N >= 3,
+// -21 % on the bench's sigma = 3 star, the same low-ESS separations, and
+// coverage unchanged). Eight blocks for the proposal rounds too stopped
+// them on noisier projections: 3x the posterior weight below kLowEss at
+// S/N >= 30.
 constexpr int kProposalBlocks = 4, kPriorBlocks = 8;
 
 struct RoundResult {
@@ -725,10 +726,10 @@ struct RoundResult {
 
 // One round of importance sampling into the pool: the prior draws (`prop`
 // null) or draws from `prop` with the deviates `pd`, in blocks, stopping
-// short where `ess_before` (the pool's before this round) plus the round's
-// own projected size falls below `min_projected_ess`.
+// short where the pool's size before this round plus the round's own
+// projected size falls below `min_projected_ess`.
 RoundResult run_round(const Problem& pb, const Proposal* prop, const ProposalDeviates* pd, Pool& pool,
-                      double ess_before, double min_projected_ess) {
+                      double min_projected_ess) {
   const int nz = pb.opt.z_samples;
   const std::vector<Draw>& first = pb.ds.first;
   const std::size_t blocks = prop ? kProposalBlocks : kPriorBlocks;
@@ -736,6 +737,7 @@ RoundResult run_round(const Problem& pb, const Proposal* prop, const ProposalDev
   std::optional<KernelMixture> mixture;
   if (prop) mixture.emplace(prop->anc, prop->width);
   RoundResult r;
+  const double ess_before = pool.ess();
   pool.start_round();
   for (std::size_t begin = 0; begin < n; begin += block) {
     const std::size_t end = std::min(n, begin + block);
@@ -795,13 +797,11 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, DrawSet& d
   // even kLowEss is (the band is flagged either way). All rounds are pooled.
   int proposal_rounds = 0;  // rounds so far that drew from a proposal
   long evaluations = 0;
-  double ess = 0.0;
   auto run = [&](const Proposal* prop, double min_projected_ess) {
     const ProposalDeviates* pd = prop ? &proposal_deviates(ds, proposal_rounds++, d, opt, prior) : nullptr;
-    const RoundResult round = run_round(pb, prop, pd, pool, ess, min_projected_ess);
+    const RoundResult round = run_round(pb, prop, pd, pool, min_projected_ess);
     evaluations += round.evaluations;
     r.draws_weighed += static_cast<long>(round.used);
-    ess = pool.ess();
   };
   run(seed, seed ? kTargetEss : 0.0);
   // Where one sample still holds nearly all the weight after an adaptive
@@ -811,7 +811,7 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, DrawSet& d
   // 4-6 % fewer draws were weighed): the rounds end there.
   constexpr double kDegenerateEss = 1.5;
   int rounds = 0;
-  while (rounds < kMaxAdaptiveRounds && ess < kTargetEss && !(rounds >= 1 && ess < kDegenerateEss)) {
+  while (rounds < kMaxAdaptiveRounds && pool.ess() < kTargetEss && !(rounds >= 1 && pool.ess() < kDegenerateEss)) {
     r.proposal = proposal_from(pool.draws.data(), pool.w.data(), pool.size, nz, opt.prior.ecc);
     run(&r.proposal, ++rounds < kMaxAdaptiveRounds ? kTargetEss : kLowEss);
   }
