@@ -83,7 +83,7 @@ using Mat42 = Eigen::Matrix<double, 4, 2>;
 
 struct Draw {
   double inc, omega, ecc, m0, m1, plx;
-  std::size_t dev;  ///< first of its z-sample deviates in DrawSet::dev
+  std::size_t dev;  ///< first of its z samples' deviates in DrawSet::dev
   Projection proj;  ///< from inc and omega
   double q_lo, q_hi, log_prior_c;  ///< the mass prior in q for this host mass
   /// Where the period's fixed point ended the last time this draw (or its
@@ -91,6 +91,21 @@ struct Draw {
   /// earlier round: the next fixed point starts there. Only the number of
   /// window-model evaluations depends on it, within kDriftTolerance.
   mutable double x_start = 0.0;
+};
+
+// log(1 - |z|), -inf where |z| >= 1.
+double log1m_norm(const Eigen::Vector2d& z) {
+  const double q = z.norm();
+  return q < 1.0 ? std::log1p(-q) : -std::numeric_limits<double>::infinity();
+}
+
+// The random numbers of one z sample of a draw: standard normal deviates
+// for a Gaussian proposal about the best z, and a draw of z from the mass
+// prior with its log(1 - |z|). The prior's z depends only on the draw's
+// host mass, so it is drawn once for every separation.
+struct ZDeviates {
+  double n1, n2;
+  double z1, z2, log_1mq;
 };
 
 // Rounds of importance sampling at one separation: a first round (prior
@@ -115,7 +130,7 @@ struct ProposalDeviates {
 struct DrawSet {
   std::vector<Draw> first;
   std::vector<ProposalDeviates> proposal;  ///< for the 1st, 2nd ... round from a proposal
-  std::vector<double> dev;  // per draw and z sample: n1, n2, u1, u2
+  std::vector<ZDeviates> dev;  ///< per draw, z_samples each
   Rng rng;                  ///< the stream, after the deviates drawn so far
 };
 
@@ -158,7 +173,7 @@ void prepare_draw(Draw& dr, const ZPlanePrior& prior) {
 }
 
 Draw prior_draw(const AnomalyData& d, const CurveOptions& opt, const ZPlanePrior& prior, Rng& rng,
-                std::vector<double>& dev) {
+                std::vector<ZDeviates>& dev) {
   Draw dr;
   dr.inc = std::acos(rng.uniform(-1.0, 1.0));
   dr.omega = units::kTwoPi * rng.uniform();
@@ -169,7 +184,9 @@ Draw prior_draw(const AnomalyData& d, const CurveOptions& opt, const ZPlanePrior
   dr.dev = dev.size();
   for (int s = 0; s < opt.z_samples; ++s) {
     const double n1 = rng.normal(), n2 = rng.normal(), u1 = rng.uniform_open(), u2 = rng.uniform();
-    dev.insert(dev.end(), {n1, n2, u1, u2});
+    const double q = prior.draw_q(u1, dr.m1), om = units::kTwoPi * u2;
+    const Eigen::Vector2d z(q * std::cos(om), q * std::sin(om));
+    dev.push_back({n1, n2, z.x(), z.y(), log1m_norm(z)});
   }
   prepare_draw(dr, prior);
   return dr;
@@ -180,7 +197,7 @@ DrawSet make_draws(const AnomalyData& d, const CurveOptions& opt, const ZPlanePr
   DrawSet ds{{}, {}, {}, Rng::for_star(opt.seed, id)};
   ds.proposal.reserve(kMaxRounds);
   // Room for every round's deviates: no reallocation while a round reads them.
-  ds.dev.reserve(static_cast<std::size_t>(kMaxRounds + 1) * opt.draws * opt.z_samples * 4);
+  ds.dev.reserve(static_cast<std::size_t>(kMaxRounds + 1) * opt.draws * opt.z_samples);
   for (int k = 0; k < opt.draws; ++k) ds.first.push_back(prior_draw(d, opt, prior, ds.rng, ds.dev));
   return ds;
 }
@@ -387,7 +404,7 @@ double period_correction(const Problem& pb, const Mat42& kmat, const Mat42& k_s,
 // likelihood and importance-sampled against the mass prior. `log_extra` is
 // added to every weight (prior / proposal of the draw itself). Returns the
 // number of window-model evaluations.
-int weigh_draw(const Problem& pb, const Draw& dr, const double* dev, double log_extra, Sample* out) {
+int weigh_draw(const Problem& pb, const Draw& dr, const ZDeviates* dev, double log_extra, Sample* out) {
   const AnomalyData& d = pb.d;
   const ZPlanePrior& prior = pb.prior;
   const double p0 = period_from_a(pb.a_au, dr.m1);
@@ -436,22 +453,20 @@ int weigh_draw(const Problem& pb, const Draw& dr, const double* dev, double log_
   };
   const int nz = pb.opt.z_samples;
   for (int s = 0; s < nz; ++s) {
-    const double* u = dev + 4 * s;
+    const ZDeviates& u = dev[s];
     Eigen::Vector2d z;
-    double log_w;
+    double q, log_1mq, log_w;
     if (gaussian) {
       // z ~ N(z_hat, F^-1): weight = prior(z) exp(-chi2_min/2) 2 pi sqrt(det F^-1).
-      z = z_hat + es.eigenvectors() * Eigen::Vector2d(u[0] / std::sqrt(lam(0)), u[1] / std::sqrt(lam(1)));
-    } else {
-      // z from the prior: weight = likelihood.
-      const double q = prior.draw_q(u[2], dr.m1), om = units::kTwoPi * u[3];
-      z << q * std::cos(om), q * std::sin(om);
-    }
-    const double q = z.norm();
-    const double log_1mq = q < 1.0 ? std::log1p(-q) : -std::numeric_limits<double>::infinity();
-    if (gaussian) {
+      z = z_hat + es.eigenvectors() * Eigen::Vector2d(u.n1 / std::sqrt(lam(0)), u.n2 / std::sqrt(lam(1)));
+      q = z.norm();
+      log_1mq = log1m_norm(z);
       log_w = prior.log_density(dr, q, std::log(q), log_1mq) - 0.5 * chi2_min + log_gauss_norm;
     } else {
+      // z from the prior: weight = likelihood.
+      z << u.z1, u.z2;
+      q = z.norm();
+      log_1mq = u.log_1mq;
       const Eigen::Vector2d dz = z - z_hat;
       log_w = -0.5 * chi2_min - 0.5 * dz.dot(fisher * dz);
     }
