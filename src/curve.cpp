@@ -108,6 +108,9 @@ struct ZDeviates {
   double z1, z2, log_1mq;
 };
 
+// The host-mass prior is normal, truncated below this mass (Msun).
+constexpr double kMinHostMsun = 0.01;
+
 // Rounds of importance sampling at one separation: a first round (prior
 // draws, or draws from a neighbour's proposal) and up to three adaptive ones.
 constexpr int kMaxAdaptiveRounds = 3, kMaxRounds = kMaxAdaptiveRounds + 1;
@@ -139,9 +142,11 @@ struct ZPlanePrior {
   explicit ZPlanePrior(const MassPrior& p)
       : log_uniform(!p.upper_limit()),
         m_lo_msun(p.m_min_mjup * (1.0 / units::kMjupPerMsun)),
-        m_hi_msun(p.m_max_mjup * (1.0 / units::kMjupPerMsun)) {}
+        m_hi_msun(p.m_max_mjup * (1.0 / units::kMjupPerMsun)),
+        log_log_range(log_uniform ? std::log(std::log(m_hi_msun / m_lo_msun)) : 0.0) {}
   bool log_uniform;
   double m_lo_msun, m_hi_msun;
+  double log_log_range;  ///< log ln(m_hi / m_lo), the log-uniform prior's normalisation
   // The support and the constant of the density for a host of mass m1.
   // Log-uniform m2 with uniform Omega: p(q) = 1 / (q (1 - q) Z); uniform
   // m2: p(q) = m1 / ((1 - q)^2 m_hi); p(z) = p(q) / (2 pi q).
@@ -156,6 +161,17 @@ struct ZPlanePrior {
   double log_density(const Draw& dr, double q, double log_q, double log_1mq) const {
     if (!(q > dr.q_lo && q < dr.q_hi)) return -std::numeric_limits<double>::infinity();
     return dr.log_prior_c + (log_uniform ? -2.0 * log_q - log_1mq : -log_q - 2.0 * log_1mq);
+  }
+  // log of (1 - q) p(z | m1) at |z| = q for a host m1 = m_total (1 - q):
+  // the prior of z in the coordinates (m_total, z), where m2 = m_total q,
+  // with the Jacobian dm1/dm_total = 1 - q. It is p(m2) m_total / (2 pi q):
+  // 1 / (2 pi q^2 ln(m_hi / m_lo)) log-uniform, m_total / (2 pi q m_hi)
+  // uniform.
+  double log_density_total(double q, double m_total) const {
+    const double m2 = m_total * q;
+    if (!(m2 > m_lo_msun && m2 < m_hi_msun && q < 1.0)) return -std::numeric_limits<double>::infinity();
+    return log_uniform ? -std::log(units::kTwoPi) - 2.0 * std::log(q) - log_log_range
+                       : std::log(m_total / (units::kTwoPi * q * m_hi_msun));
   }
   // A draw of q from the prior itself, from a uniform deviate.
   double draw_q(double u, double m1) const {
@@ -179,7 +195,7 @@ Draw prior_draw(const AnomalyData& d, const CurveOptions& opt, const ZPlanePrior
   dr.omega = units::kTwoPi * rng.uniform();
   dr.ecc = std::clamp(opt.prior.ecc.draw(rng), 0.0, 0.99);
   dr.m0 = units::kTwoPi * rng.uniform();
-  do dr.m1 = d.host_mass_msun + d.host_mass_error_msun * rng.normal(); while (!(dr.m1 > 0.01));
+  do dr.m1 = d.host_mass_msun + d.host_mass_error_msun * rng.normal(); while (!(dr.m1 > kMinHostMsun));
   do dr.plx = d.parallax_mas + d.parallax_error_mas * rng.normal(); while (!(dr.plx > 0));
   dr.dev = dev.size();
   for (int s = 0; s < opt.z_samples; ++s) {
@@ -218,6 +234,7 @@ const ProposalDeviates& proposal_deviates(DrawSet& ds, std::size_t k, const Anom
 
 struct Sample {
   double log_w, m2_mjup, z1, z2;
+  double m1_msun;  ///< the sample's host mass
 };
 
 
@@ -232,6 +249,9 @@ struct Problem {
   double a_au;
   double baseline_yr;
   double snr;  ///< sqrt(chi2_data)
+  /// The period at q = 0 for the nominal host mass, and x at the prior's
+  /// largest q there (x_of).
+  double p0_nominal_yr, x_min_nominal;
 };
 
 // The model's period dependence. A relative change of the period by
@@ -280,6 +300,21 @@ DesignNode design_node(const Problem& pb, const Draw& dr, double p0, double x) {
   return n;
 }
 
+constexpr int kMaxHermiteIntervals = 2;
+
+// The Hermite intervals over x in [x_min, 0] that keep PeriodModel's
+// interpolant within the tolerance, (w h)^4 / 384 x S/N with
+// w = (2 pi baseline / P + 2) / (1 - e); 0 where more than
+// kMaxHermiteIntervals would be needed (the model is then evaluated exactly
+// at each sample's period).
+int hermite_intervals(const Problem& pb, double ecc, double p0, double x_min) {
+  // Next to periastron the orbit moves faster by up to 1 / (1 - e).
+  const double w = (units::kTwoPi * pb.baseline_yr / p0 + 2.0) * (1.0 / (1.0 - ecc));
+  const double h_max = std::pow(384.0 * kDriftTolerance / std::max(pb.snr, 1e-3), 0.25) / w;
+  const double intervals = std::ceil(-x_min / h_max);
+  return intervals <= kMaxHermiteIntervals ? std::max(1, static_cast<int>(intervals)) : 0;
+}
+
 // K(x) of one draw between full evaluations: one node and the linear
 // model about it, whose error is about (drift / (1 - e))^2 / 2. Where that is not
 // enough and the model is smooth in x over the prior's whole range of q
@@ -294,15 +329,9 @@ class PeriodModel {
  public:
   PeriodModel(const Problem& pb, const Draw& dr, double p0, double x_min, double x_start)
       : pb_(pb), dr_(dr), p0_(p0), x_min_(x_min) {
-    // Next to periastron the orbit moves faster by up to 1 / (1 - e).
-    const double speed_up = 1.0 / (1.0 - dr.ecc);
-    const double w = (units::kTwoPi * pb.baseline_yr / p0 + 2.0) * speed_up;
     drift_rate_ = units::kTwoPi * (pb.baseline_yr / p0 + 1.0) * pb.snr;
-    curvature_rate_ = drift_rate_ * speed_up;
-    // Hermite intervals needed for (w h)^4 / 384 x S/N < tolerance.
-    const double h_max = std::pow(384.0 * kDriftTolerance / std::max(pb.snr, 1e-3), 0.25) / w;
-    const double intervals = std::ceil(-x_min / h_max);
-    hermite_intervals_ = intervals <= kMaxHermiteIntervals ? std::max(1, static_cast<int>(intervals)) : 0;
+    curvature_rate_ = drift_rate_ * (1.0 / (1.0 - dr.ecc));
+    hermite_intervals_ = hermite_intervals(pb, dr.ecc, p0, x_min);
     nodes_[0] = design_node(pb, dr, p0, x_start);
   }
   int evaluations() const { return n_nodes_ + exact_; }
@@ -349,7 +378,6 @@ class PeriodModel {
   }
 
  private:
-  static constexpr int kMaxHermiteIntervals = 2;
   static constexpr int kMaxMoves = 3;
   bool accurate(double x) const {
     if (n_nodes_ > 1) return x >= nodes_[n_nodes_ - 1].x && x <= nodes_[0].x;
@@ -399,12 +427,101 @@ double period_correction(const Problem& pb, const Mat42& kmat, const Mat42& k_s,
   return -0.5 * r_s.dot(pb.cinv * r_s) + 0.5 * r_hat.dot(pb.cinv * r_hat);
 }
 
+// The design matrix K of one draw at period p_yr, from one plain evaluation
+// of the window model.
+Mat42 design_at(const Problem& pb, const Draw& dr, double p_yr) {
+  const Orbit<double> o{p_yr, dr.ecc, dr.inc, dr.omega, 0.0, dr.m0, pb.d.late.ref_epoch_yr};
+  WindowBasis<double> be, bl;
+  window_basis_pair(o, pb.d.early, pb.d.late, be, bl);
+  return pb.a_au * dr.plx * design(unit_anomalies(dr.proj, be, bl, pb.d.early, pb.d.late));
+}
+
+// Log of the host-mass prior's density at m1_msun, up to its constant.
+double log_host_density(const AnomalyData& d, double m1_msun) {
+  const double t = (m1_msun - d.host_mass_msun) / d.host_mass_error_msun;
+  return m1_msun > kMinHostMsun ? -0.5 * t * t : -std::numeric_limits<double>::infinity();
+}
+
+// Whether a draw is weighed with its total mass fixed (weigh_draw_total):
+// where the period model would need an exact evaluation at every sample's
+// own period (hermite_intervals 0 at the nominal host mass: short periods
+// or high S/N), and the host mass has a spread to trade against the
+// companion's. A function of the draw's orbit angles alone, so that
+// either weighing is a valid estimate of the same integral.
+bool total_mass_fixed(const Problem& pb, const Draw& dr) {
+  return pb.d.host_mass_error_msun > 0.0 && hermite_intervals(pb, dr.ecc, pb.p0_nominal_yr, pb.x_min_nominal) == 0;
+}
+
+// weigh_draw in the coordinates (m_total, z) instead of (m1, z), with
+// m1 = m_total (1 - |z|): the period, which depends on m_total alone, is
+// the same for all of the draw's z samples, the model is linear in z, and
+// the likelihood is exactly Gaussian in z after one evaluation. The density
+// of the target gains the Jacobian dm1/dm_total = 1 - q; the draw's host
+// mass m1' (drawn from its prior) sets m_total = m1' / (1 - q_ref), with
+// q_ref the best |z| of the model at the nominal host mass (a function of
+// the orbit angles only), so m_total has the density
+// p_host(m_total (1 - q_ref)) (1 - q_ref). Each sample's weight then holds
+// p_host(m_total (1 - q)) / that density: near 1 where q is near q_ref,
+// and never a bias, only variance, where it is not (docs/method.md,
+// "Total mass per draw"). Two window-model evaluations per draw.
+int weigh_draw_total(const Problem& pb, const Draw& dr, const ZDeviates* dev, double log_extra, Sample* out) {
+  const AnomalyData& d = pb.d;
+  const ZPlanePrior& prior = pb.prior;
+  Eigen::Matrix2d fisher;
+  Eigen::Vector2d z_hat;
+  auto fit = [&](const Mat42& k) {
+    const Eigen::Matrix<double, 2, 4> kc = k.transpose() * pb.cinv;
+    fisher = kc * k;
+    z_hat = fisher.inverse() * (kc * d.dpm);
+  };
+  fit(design_at(pb, dr, pb.p0_nominal_yr));
+  const double q_ref = std::min(z_hat.norm(), prior.m_hi_msun / (d.host_mass_msun + prior.m_hi_msun));
+  const double m_total = dr.m1 / (1.0 - q_ref);
+  const double log_proposal = log_host_density(d, dr.m1) + std::log1p(-q_ref);
+  fit(design_at(pb, dr, period_from_a(pb.a_au, m_total)));
+  dr.x_start = x_of(std::log1p(-q_ref));  // the period used, for a later weigh_draw of this draw
+  const double chi2_min = pb.chi2_data - z_hat.dot(fisher * z_hat);
+  Eigen::SelfAdjointEigenSolver<Eigen::Matrix2d> es;
+  es.computeDirect(fisher);
+  const Eigen::Vector2d lam = es.eigenvalues().cwiseMax(1e-300);
+  const double log_gauss_norm = std::log(units::kTwoPi) - 0.5 * std::log(lam(0) * lam(1));
+  const bool gaussian = 1.0 / std::sqrt(lam.minCoeff()) < 0.3 * prior.m_hi_msun / m_total;
+  for (int s = 0; s < pb.opt.z_samples; ++s) {
+    const ZDeviates& u = dev[s];
+    Eigen::Vector2d z;
+    double log_w;
+    if (gaussian) {
+      // z ~ N(z_hat, F^-1), the likelihood itself: weight = prior x evidence.
+      z = z_hat + es.eigenvectors() * Eigen::Vector2d(u.n1 / std::sqrt(lam(0)), u.n2 / std::sqrt(lam(1)));
+      log_w = prior.log_density_total(z.norm(), m_total) - 0.5 * chi2_min + log_gauss_norm;
+    } else {
+      // m2 from its prior (the draw's prior z, drawn for its own m1) and
+      // q = m2 / m_total: the z density is then the prior's, weight = likelihood.
+      const double q_dev = std::hypot(u.z1, u.z2);
+      const double f = dr.m1 / ((1.0 - q_dev) * m_total);  // q / q_dev
+      z << f * u.z1, f * u.z2;
+      const Eigen::Vector2d dz = z - z_hat;
+      log_w = z.norm() < 1.0 ? -0.5 * chi2_min - 0.5 * dz.dot(fisher * dz) : -std::numeric_limits<double>::infinity();
+    }
+    const double q = z.norm();
+    Sample& o = out[s];
+    o.log_w = log_w + log_host_density(d, m_total * (1.0 - q)) - log_proposal + log_extra;
+    if (!std::isfinite(o.log_w)) o.log_w = -std::numeric_limits<double>::infinity();
+    o.m2_mjup = m_total * q * units::kMjupPerMsun;
+    o.m1_msun = m_total * (1.0 - q);
+    o.z1 = z.x();
+    o.z2 = z.y();
+  }
+  return 2;
+}
+
 // Weighted z samples of one draw of (i, omega, e, M0, m1, parallax):
 // z = q (cos Omega, sin Omega) is marginalised through its exact Gaussian
 // likelihood and importance-sampled against the mass prior. `log_extra` is
 // added to every weight (prior / proposal of the draw itself). Returns the
 // number of window-model evaluations.
 int weigh_draw(const Problem& pb, const Draw& dr, const ZDeviates* dev, double log_extra, Sample* out) {
+  if (total_mass_fixed(pb, dr)) return weigh_draw_total(pb, dr, dev, log_extra, out);
   const AnomalyData& d = pb.d;
   const ZPlanePrior& prior = pb.prior;
   const double p0 = period_from_a(pb.a_au, dr.m1);
@@ -476,6 +593,7 @@ int weigh_draw(const Problem& pb, const Draw& dr, const ZDeviates* dev, double l
     Sample& o = out[s];
     o.log_w = log_w;
     o.m2_mjup = dr.m1 * q / (1.0 - std::min(q, 0.999999)) * units::kMjupPerMsun;
+    o.m1_msun = dr.m1;
     o.z1 = z.x();
     o.z2 = z.y();
     if (std::isfinite(log_w) && !model.negligible(x_s - x)) {
@@ -711,7 +829,7 @@ long weigh_proposal(const Problem& pb, const ProposalDeviates& pd, const Proposa
         evaluations += weigh_draw(pb, dr, &pb.ds.dev[dr.dev], lp - mix, &pool.samples[i * nz]);
         if (!from_kernel) pd.prior[j].x_start = dr.x_start;  // the prior draw's own warm start
       } else {  // outside the prior's support: no weight
-        for (int s = 0; s < nz; ++s) pool.samples[i * nz + s] = {-std::numeric_limits<double>::infinity(), 0.0, 0.0, 0.0};
+        for (int s = 0; s < nz; ++s) pool.samples[i * nz + s] = {-std::numeric_limits<double>::infinity(), 0.0, 0.0, 0.0, 0.0};
       }
     }
   }
@@ -793,8 +911,18 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, DrawSet& d
                        const ZPlanePrior& prior, bool upper, double a_au, const Proposal* seed, Pool& pool) {
   Eigen::LLT<Eigen::Matrix4d> cllt(d.cov);
   const double chi2_data = d.dpm.dot(cllt.solve(d.dpm));
-  const Problem pb{d, opt, prior, ds, cllt.solve(Eigen::Matrix4d::Identity()), chi2_data, a_au,
-                   d.late.ref_epoch_yr - d.early.ref_epoch_yr, std::sqrt(chi2_data)};
+  const double q_hi_nominal = prior.m_hi_msun / (d.host_mass_msun + prior.m_hi_msun);
+  const Problem pb{d,
+                   opt,
+                   prior,
+                   ds,
+                   cllt.solve(Eigen::Matrix4d::Identity()),
+                   chi2_data,
+                   a_au,
+                   d.late.ref_epoch_yr - d.early.ref_epoch_yr,
+                   std::sqrt(chi2_data),
+                   period_from_a(a_au, d.host_mass_msun),
+                   x_of(std::log1p(-q_hi_nominal))};
   const int nz = opt.z_samples;
   pool.reserve(ds.first.size(), nz);
   pool.clear();
@@ -897,7 +1025,7 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, DrawSet& d
                            units::rad_to_deg(dr.omega),
                            units::rad_to_deg(wrap_2pi(std::atan2(s.z2, s.z1))),
                            units::rad_to_deg(dr.m0), d.late.ref_epoch_yr,
-                           period_from_a(a_au, dr.m1 + m2_msun), dr.plx, dr.m1, 1.0});
+                           period_from_a(a_au, s.m1_msun + m2_msun), dr.plx, s.m1_msun, 1.0});
         next += sw / keep;
       }
     }
