@@ -99,7 +99,9 @@ void setup_rank(CLI::App& app, Runner& run) {
   auto o = std::make_shared<RankCliOptions>();
   RankOptions& r = o->survey.rank;
   CurveOptions& c = r.curve;
-  c.draws = 256;
+  // Fewer draws than heft curve's 4,096, so that a 10^5-star survey with 1,000
+  // curves takes under a minute on two cores (41 s; docs/performance.md).
+  c.draws = 512;
   CLI::App* sub = app.add_subcommand(
       "rank",
       "Rank imaging candidates: screen every star, compute curves above --detect-sigma, predict the "
