@@ -254,6 +254,11 @@ struct Problem {
   double p0_nominal_yr, x_min_nominal;
 };
 
+// The design matrix K of a draw from the window fits of its orbit.
+Mat42 scaled_design(const Problem& pb, const Draw& dr, const WindowBasis<double>& be, const WindowBasis<double>& bl) {
+  return pb.a_au * dr.plx * design(unit_anomalies(dr.proj, be, bl, pb.d.early, pb.d.late));
+}
+
 // The model's period dependence. A relative change of the period by
 // d ln P moves the model by about the phase drift over the baseline,
 // 2 pi (baseline / P + 1) |d ln P|, and chi2 by about drift x S/N. Changes
@@ -372,8 +377,7 @@ class PeriodModel {
     for (int i = 0; i < n; ++i)
       o[i] = {p0_ * std::exp(x[i]), dr_.ecc, dr_.inc, dr_.omega, 0.0, dr_.m0, pb_.d.late.ref_epoch_yr};
     window_basis_pairs(o.data(), n, pb_.d.early, pb_.d.late, be.data(), bl.data());
-    for (int i = 0; i < n; ++i)
-      k[i] = pb_.a_au * dr_.plx * design(unit_anomalies(dr_.proj, be[i], bl[i], pb_.d.early, pb_.d.late));
+    for (int i = 0; i < n; ++i) k[i] = scaled_design(pb_, dr_, be[i], bl[i]);
     exact_ += n;
   }
 
@@ -427,15 +431,6 @@ double period_correction(const Problem& pb, const Mat42& kmat, const Mat42& k_s,
   return -0.5 * r_s.dot(pb.cinv * r_s) + 0.5 * r_hat.dot(pb.cinv * r_hat);
 }
 
-// The design matrix K of one draw at period p_yr, from one plain evaluation
-// of the window model.
-Mat42 design_at(const Problem& pb, const Draw& dr, double p_yr) {
-  const Orbit<double> o{p_yr, dr.ecc, dr.inc, dr.omega, 0.0, dr.m0, pb.d.late.ref_epoch_yr};
-  WindowBasis<double> be, bl;
-  window_basis_pair(o, pb.d.early, pb.d.late, be, bl);
-  return pb.a_au * dr.plx * design(unit_anomalies(dr.proj, be, bl, pb.d.early, pb.d.late));
-}
-
 // Log of the host-mass prior's density at m1_msun, up to its constant.
 double log_host_density(const AnomalyData& d, double m1_msun) {
   const double t = (m1_msun - d.host_mass_msun) / d.host_mass_error_msun;
@@ -452,40 +447,44 @@ bool total_mass_fixed(const Problem& pb, const Draw& dr) {
   return pb.d.host_mass_error_msun > 0.0 && hermite_intervals(pb, dr.ecc, pb.p0_nominal_yr, pb.x_min_nominal) == 0;
 }
 
-// weigh_draw in the coordinates (m_total, z) instead of (m1, z), with
-// m1 = m_total (1 - |z|): the period, which depends on m_total alone, is
-// the same for all of the draw's z samples, the model is linear in z, and
-// the likelihood is exactly Gaussian in z after one evaluation. The density
-// of the target gains the Jacobian dm1/dm_total = 1 - q; the draw's host
-// mass m1' (drawn from its prior) sets m_total = m1' / (1 - q_ref), with
-// q_ref the best |z| of the model at the nominal host mass (a function of
-// the orbit angles only), so m_total has the density
-// p_host(m_total (1 - q_ref)) (1 - q_ref). Each sample's weight then holds
-// p_host(m_total (1 - q)) / that density: near 1 where q is near q_ref,
-// and never a bias, only variance, where it is not (docs/method.md,
-// "Total mass per draw"). Two window-model evaluations per draw.
-int weigh_draw_total(const Problem& pb, const Draw& dr, const ZDeviates* dev, double log_extra, Sample* out) {
-  const AnomalyData& d = pb.d;
-  const ZPlanePrior& prior = pb.prior;
+// The exact Gaussian likelihood of z for a design matrix K:
+// F = K^T C^-1 K and the best z.
+struct GaussianZ {
   Eigen::Matrix2d fisher;
   Eigen::Vector2d z_hat;
-  auto fit = [&](const Mat42& k) {
-    const Eigen::Matrix<double, 2, 4> kc = k.transpose() * pb.cinv;
-    fisher = kc * k;
-    z_hat = fisher.inverse() * (kc * d.dpm);
-  };
-  fit(design_at(pb, dr, pb.p0_nominal_yr));
-  const double q_ref = std::min(z_hat.norm(), prior.m_hi_msun / (d.host_mass_msun + prior.m_hi_msun));
-  const double m_total = dr.m1 / (1.0 - q_ref);
-  const double log_proposal = log_host_density(d, dr.m1) + std::log1p(-q_ref);
-  fit(design_at(pb, dr, period_from_a(pb.a_au, m_total)));
-  dr.x_start = x_of(std::log1p(-q_ref));  // the period used, for a later weigh_draw of this draw
+};
+GaussianZ gaussian_z(const Problem& pb, const Mat42& k) {
+  const Eigen::Matrix<double, 2, 4> kc = k.transpose() * pb.cinv;
+  GaussianZ g{kc * k, {}};
+  g.z_hat = g.fisher.inverse() * (kc * pb.d.dpm);
+  return g;
+}
+
+// A draw waiting to be weighed: the log weight added to each of its samples
+// (prior / proposal of the draw itself) and where the samples go.
+struct PendingDraw {
+  const Draw* dr;
+  double log_extra;
+  Sample* out;
+};
+
+// The z samples of a draw weighed with total mass m_total, from its design
+// matrix K at P(m_total) (weigh_total_batch).
+void weigh_samples_total(const Problem& pb, const PendingDraw& pd, const Mat42& k, double m_total,
+                         double log_proposal) {
+  const AnomalyData& d = pb.d;
+  const ZPlanePrior& prior = pb.prior;
+  const Draw& dr = *pd.dr;
+  const GaussianZ g = gaussian_z(pb, k);
+  const Eigen::Matrix2d& fisher = g.fisher;
+  const Eigen::Vector2d& z_hat = g.z_hat;
   const double chi2_min = pb.chi2_data - z_hat.dot(fisher * z_hat);
   Eigen::SelfAdjointEigenSolver<Eigen::Matrix2d> es;
   es.computeDirect(fisher);
   const Eigen::Vector2d lam = es.eigenvalues().cwiseMax(1e-300);
   const double log_gauss_norm = std::log(units::kTwoPi) - 0.5 * std::log(lam(0) * lam(1));
   const bool gaussian = 1.0 / std::sqrt(lam.minCoeff()) < 0.3 * prior.m_hi_msun / m_total;
+  const ZDeviates* dev = &pb.ds.dev[dr.dev];
   for (int s = 0; s < pb.opt.z_samples; ++s) {
     const ZDeviates& u = dev[s];
     Eigen::Vector2d z;
@@ -504,15 +503,58 @@ int weigh_draw_total(const Problem& pb, const Draw& dr, const ZDeviates* dev, do
       log_w = z.norm() < 1.0 ? -0.5 * chi2_min - 0.5 * dz.dot(fisher * dz) : -std::numeric_limits<double>::infinity();
     }
     const double q = z.norm();
-    Sample& o = out[s];
-    o.log_w = log_w + log_host_density(d, m_total * (1.0 - q)) - log_proposal + log_extra;
+    Sample& o = pd.out[s];
+    o.log_w = log_w + log_host_density(d, m_total * (1.0 - q)) - log_proposal + pd.log_extra;
     if (!std::isfinite(o.log_w)) o.log_w = -std::numeric_limits<double>::infinity();
     o.m2_mjup = m_total * q * units::kMjupPerMsun;
     o.m1_msun = m_total * (1.0 - q);
     o.z1 = z.x();
     o.z2 = z.y();
   }
-  return 2;
+}
+
+// Draws weighed with total mass fixed at once, at most.
+constexpr int kDrawBatch = 8;
+
+// weigh_draw in the coordinates (m_total, z) instead of (m1, z), with
+// m1 = m_total (1 - |z|): the period, which depends on m_total alone, is
+// the same for all of the draw's z samples, the model is linear in z, and
+// the likelihood is exactly Gaussian in z after one evaluation. The density
+// of the target gains the Jacobian dm1/dm_total = 1 - q; the draw's host
+// mass m1' (drawn from its prior) sets m_total = m1' / (1 - q_ref), with
+// q_ref the best |z| of the model at the nominal host mass (a function of
+// the orbit angles only), so m_total has the density
+// p_host(m_total (1 - q_ref)) (1 - q_ref). Each sample's weight then holds
+// p_host(m_total (1 - q)) / that density: near 1 where q is near q_ref,
+// and never a bias, only variance, where it is not (docs/method.md,
+// "Total mass per draw"). Two window-model evaluations per draw, for
+// n <= kDrawBatch draws at once: all their fits at the nominal period, then
+// all at their total masses (window_basis_pairs), so that the draws'
+// Kepler solves overlap; each draw's result is the same as alone. Returns
+// the number of window-model evaluations.
+long weigh_total_batch(const Problem& pb, const PendingDraw* p, int n) {
+  const AnomalyData& d = pb.d;
+  const double q_cap = pb.prior.m_hi_msun / (d.host_mass_msun + pb.prior.m_hi_msun);
+  std::array<Orbit<double>, kDrawBatch> o{};
+  std::array<WindowBasis<double>, kDrawBatch> be, bl;
+  std::array<double, kDrawBatch> m_total, log_proposal;
+  for (int i = 0; i < n; ++i) {
+    const Draw& dr = *p[i].dr;
+    o[i] = {pb.p0_nominal_yr, dr.ecc, dr.inc, dr.omega, 0.0, dr.m0, d.late.ref_epoch_yr};
+  }
+  window_basis_pairs(o.data(), n, d.early, d.late, be.data(), bl.data());
+  for (int i = 0; i < n; ++i) {
+    const Draw& dr = *p[i].dr;
+    const double q_ref = std::min(gaussian_z(pb, scaled_design(pb, dr, be[i], bl[i])).z_hat.norm(), q_cap);
+    m_total[i] = dr.m1 / (1.0 - q_ref);
+    log_proposal[i] = log_host_density(d, dr.m1) + std::log1p(-q_ref);
+    dr.x_start = x_of(std::log1p(-q_ref));  // the period used, for a later weigh_draw of this draw
+    o[i].period_yr = period_from_a(pb.a_au, m_total[i]);
+  }
+  window_basis_pairs(o.data(), n, d.early, d.late, be.data(), bl.data());
+  for (int i = 0; i < n; ++i)
+    weigh_samples_total(pb, p[i], scaled_design(pb, *p[i].dr, be[i], bl[i]), m_total[i], log_proposal[i]);
+  return 2L * n;
 }
 
 // Weighted z samples of one draw of (i, omega, e, M0, m1, parallax):
@@ -520,8 +562,7 @@ int weigh_draw_total(const Problem& pb, const Draw& dr, const ZDeviates* dev, do
 // likelihood and importance-sampled against the mass prior. `log_extra` is
 // added to every weight (prior / proposal of the draw itself). Returns the
 // number of window-model evaluations.
-int weigh_draw(const Problem& pb, const Draw& dr, const ZDeviates* dev, double log_extra, Sample* out) {
-  if (total_mass_fixed(pb, dr)) return weigh_draw_total(pb, dr, dev, log_extra, out);
+int weigh_draw_periods(const Problem& pb, const Draw& dr, const ZDeviates* dev, double log_extra, Sample* out) {
   const AnomalyData& d = pb.d;
   const ZPlanePrior& prior = pb.prior;
   const double p0 = period_from_a(pb.a_au, dr.m1);
@@ -615,6 +656,33 @@ int weigh_draw(const Problem& pb, const Draw& dr, const ZDeviates* dev, double l
   }
   return model.evaluations();
 }
+
+// Weighs draws one at a time by periods (weigh_draw_periods), or, for those
+// whose total mass is fixed, in batches of up to kDrawBatch
+// (weigh_total_batch) held until flush().
+class DrawWeigher {
+ public:
+  explicit DrawWeigher(const Problem& pb) : pb_(pb) {}
+  void add(const Draw& dr, double log_extra, Sample* out) {
+    if (!total_mass_fixed(pb_, dr)) {
+      evaluations_ += weigh_draw_periods(pb_, dr, &pb_.ds.dev[dr.dev], log_extra, out);
+      return;
+    }
+    pending_[n_++] = {&dr, log_extra, out};
+    if (n_ == kDrawBatch) flush();
+  }
+  void flush() {
+    evaluations_ += weigh_total_batch(pb_, pending_.data(), n_);
+    n_ = 0;
+  }
+  long evaluations() const { return evaluations_; }
+
+ private:
+  const Problem& pb_;
+  std::array<PendingDraw, kDrawBatch> pending_;
+  int n_ = 0;
+  long evaluations_ = 0;
+};
 
 // The orbit-angle part of a draw in sampling coordinates:
 // (cos i, omega, M0, e); angles are periodic.
@@ -802,35 +870,44 @@ long weigh_proposal(const Problem& pb, const ProposalDeviates& pd, const Proposa
   {
     std::vector<double> scratch;
 #pragma omp for schedule(static) reduction(+ : evaluations)
-    for (std::size_t j = begin; j < end; ++j) {
-      const std::size_t i = offset + j;
-      Draw& dr = pool.draws[i];
-      dr = pd.prior[j];
-      const bool from_kernel = pd.pick[j] >= 0.5;  // else the prior component
-      if (from_kernel) {
-        const std::size_t m = static_cast<std::size_t>(pd.pick[j + n] * n_anc) % n_anc;
-        const Coords& a = prop.anc[m];
-        dr.x_start = prop.anc_x[m];
-        Coords c = a + prop.width.cwiseProduct(pd.kernel[j]);
-        c(1) = wrap_2pi(c(1));
-        c(2) = wrap_2pi(c(2));
-        if (opt.prior.ecc.kind == Distribution::Kind::kFixed) c(3) = dr.ecc;
-        dr.inc = std::acos(std::clamp(c(0), -1.0, 1.0));
-        dr.omega = c(1);
-        dr.m0 = c(2);
-        dr.ecc = c(3);
-        prepare_draw(dr, pb.prior);
+    for (std::size_t c = begin; c < end; c += kDrawBatch) {
+      // A chunk of draws: those with total mass fixed are weighed together.
+      const std::size_t c_end = std::min(end, c + kDrawBatch);
+      DrawWeigher weigher(pb);
+      for (std::size_t j = c; j < c_end; ++j) {
+        const std::size_t i = offset + j;
+        Draw& dr = pool.draws[i];
+        dr = pd.prior[j];
+        if (pd.pick[j] >= 0.5) {  // from a kernel, else from the prior component
+          const std::size_t m = static_cast<std::size_t>(pd.pick[j + n] * n_anc) % n_anc;
+          const Coords& a = prop.anc[m];
+          dr.x_start = prop.anc_x[m];
+          Coords cc = a + prop.width.cwiseProduct(pd.kernel[j]);
+          cc(1) = wrap_2pi(cc(1));
+          cc(2) = wrap_2pi(cc(2));
+          if (opt.prior.ecc.kind == Distribution::Kind::kFixed) cc(3) = dr.ecc;
+          dr.inc = std::acos(std::clamp(cc(0), -1.0, 1.0));
+          dr.omega = cc(1);
+          dr.m0 = cc(2);
+          dr.ecc = cc(3);
+          prepare_draw(dr, pb.prior);
+        }
+        const Coords cd = coords_of(dr);
+        const double lp = log_prior_coords(cd, opt.prior.ecc);
+        if (std::isfinite(lp)) {
+          // Mixture density 0.5 prior + 0.5 kernels.
+          const double mix = log_add_exp(lp, mixture.log_density(cd, scratch)) - std::log(2.0);
+          weigher.add(dr, lp - mix, &pool.samples[i * nz]);
+        } else {  // outside the prior's support: no weight
+          for (int s = 0; s < nz; ++s)
+            pool.samples[i * nz + s] = {-std::numeric_limits<double>::infinity(), 0.0, 0.0, 0.0, 0.0};
+        }
       }
-      const Coords c = coords_of(dr);
-      const double lp = log_prior_coords(c, opt.prior.ecc);
-      if (std::isfinite(lp)) {
-        // Mixture density 0.5 prior + 0.5 kernels.
-        const double mix = log_add_exp(lp, mixture.log_density(c, scratch)) - std::log(2.0);
-        evaluations += weigh_draw(pb, dr, &pb.ds.dev[dr.dev], lp - mix, &pool.samples[i * nz]);
-        if (!from_kernel) pd.prior[j].x_start = dr.x_start;  // the prior draw's own warm start
-      } else {  // outside the prior's support: no weight
-        for (int s = 0; s < nz; ++s) pool.samples[i * nz + s] = {-std::numeric_limits<double>::infinity(), 0.0, 0.0, 0.0, 0.0};
-      }
+      weigher.flush();
+      // A prior draw keeps its own warm start.
+      for (std::size_t j = c; j < c_end; ++j)
+        if (pd.pick[j] < 0.5) pd.prior[j].x_start = pool.draws[offset + j].x_start;
+      evaluations += weigher.evaluations();
     }
   }
   return evaluations;
@@ -879,10 +956,13 @@ RoundResult run_round(const Problem& pb, const Proposal* prop, const ProposalDev
     } else {
       long evaluations = 0;
 #pragma omp parallel for schedule(static) reduction(+ : evaluations)
-      for (std::size_t k = begin; k < end; ++k) {
-        const std::size_t i = offset + k;
-        evaluations += weigh_draw(pb, first[k], &pb.ds.dev[first[k].dev], 0.0, &pool.samples[i * nz]);
-        pool.draws[i] = first[k];  // with the warm start just left in it
+      for (std::size_t c = begin; c < end; c += kDrawBatch) {
+        const std::size_t c_end = std::min(end, c + kDrawBatch);
+        DrawWeigher weigher(pb);
+        for (std::size_t k = c; k < c_end; ++k) weigher.add(first[k], 0.0, &pool.samples[(offset + k) * nz]);
+        weigher.flush();
+        for (std::size_t k = c; k < c_end; ++k) pool.draws[offset + k] = first[k];  // with their warm starts
+        evaluations += weigher.evaluations();
       }
       r.evaluations += evaluations;
     }
