@@ -249,9 +249,9 @@ struct Problem {
   double a_au;
   double baseline_yr;
   double snr;  ///< sqrt(chi2_data)
-  /// The period at q = 0 for the nominal host mass, and x at the prior's
-  /// largest q there (x_of).
-  double p0_nominal_yr, x_min_nominal;
+  /// For the nominal host mass: the period at q = 0, the prior's largest q
+  /// and x there (x_of).
+  double p0_nominal_yr, q_hi_nominal, x_min_nominal;
 };
 
 // The design matrix K of a draw from the window fits of its orbit.
@@ -437,7 +437,7 @@ double log_host_density(const AnomalyData& d, double m1_msun) {
   return m1_msun > kMinHostMsun ? -0.5 * t * t : -std::numeric_limits<double>::infinity();
 }
 
-// Whether a draw is weighed with its total mass fixed (weigh_draw_total):
+// Whether a draw is weighed with its total mass fixed (weigh_total_batch):
 // where the period model would need an exact evaluation at every sample's
 // own period (hermite_intervals 0 at the nominal host mass: short periods
 // or high S/N), and the host mass has a spread to trade against the
@@ -516,9 +516,9 @@ void weigh_samples_total(const Problem& pb, const PendingDraw& pd, const Mat42& 
 // Draws weighed with total mass fixed at once, at most.
 constexpr int kDrawBatch = 8;
 
-// weigh_draw in the coordinates (m_total, z) instead of (m1, z), with
+// Draws weighed in the coordinates (m_total, z) instead of (m1, z), with
 // m1 = m_total (1 - |z|): the period, which depends on m_total alone, is
-// the same for all of the draw's z samples, the model is linear in z, and
+// the same for all of a draw's z samples, the model is linear in z, and
 // the likelihood is exactly Gaussian in z after one evaluation. The density
 // of the target gains the Jacobian dm1/dm_total = 1 - q; the draw's host
 // mass m1' (drawn from its prior) sets m_total = m1' / (1 - q_ref), with
@@ -534,7 +534,6 @@ constexpr int kDrawBatch = 8;
 // the number of window-model evaluations.
 long weigh_total_batch(const Problem& pb, const PendingDraw* p, int n) {
   const AnomalyData& d = pb.d;
-  const double q_cap = pb.prior.m_hi_msun / (d.host_mass_msun + pb.prior.m_hi_msun);
   std::array<Orbit<double>, kDrawBatch> o{};
   std::array<WindowBasis<double>, kDrawBatch> be, bl;
   std::array<double, kDrawBatch> m_total, log_proposal;
@@ -545,10 +544,10 @@ long weigh_total_batch(const Problem& pb, const PendingDraw* p, int n) {
   window_basis_pairs(o.data(), n, d.early, d.late, be.data(), bl.data());
   for (int i = 0; i < n; ++i) {
     const Draw& dr = *p[i].dr;
-    const double q_ref = std::min(gaussian_z(pb, scaled_design(pb, dr, be[i], bl[i])).z_hat.norm(), q_cap);
+    const double q_ref = std::min(gaussian_z(pb, scaled_design(pb, dr, be[i], bl[i])).z_hat.norm(), pb.q_hi_nominal);
     m_total[i] = dr.m1 / (1.0 - q_ref);
     log_proposal[i] = log_host_density(d, dr.m1) + std::log1p(-q_ref);
-    dr.x_start = x_of(std::log1p(-q_ref));  // the period used, for a later weigh_draw of this draw
+    dr.x_start = x_of(std::log1p(-q_ref));  // the period used, for a later weigh_draw_periods
     o[i].period_yr = period_from_a(pb.a_au, m_total[i]);
   }
   window_basis_pairs(o.data(), n, d.early, d.late, be.data(), bl.data());
@@ -557,8 +556,8 @@ long weigh_total_batch(const Problem& pb, const PendingDraw* p, int n) {
   return 2L * n;
 }
 
-// Weighted z samples of one draw of (i, omega, e, M0, m1, parallax):
-// z = q (cos Omega, sin Omega) is marginalised through its exact Gaussian
+// Weighted z samples of one draw of (i, omega, e, M0, m1, parallax), each
+// at its own period: z = q (cos Omega, sin Omega) is marginalised through its exact Gaussian
 // likelihood and importance-sampled against the mass prior. `log_extra` is
 // added to every weight (prior / proposal of the draw itself). Returns the
 // number of window-model evaluations.
@@ -1002,6 +1001,7 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, DrawSet& d
                    d.late.ref_epoch_yr - d.early.ref_epoch_yr,
                    std::sqrt(chi2_data),
                    period_from_a(a_au, d.host_mass_msun),
+                   q_hi_nominal,
                    x_of(std::log1p(-q_hi_nominal))};
   const int nz = opt.z_samples;
   pool.reserve(ds.first.size(), nz);
