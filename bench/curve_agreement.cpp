@@ -1,4 +1,4 @@
-// curve_agreement: how far curves at few draws (heft rank's 256) stray from
+// curve_agreement: how far curves at few draws (heft rank's 512) stray from
 // the same curves at the `heft curve` default of 4,096 draws, on simulated
 // stars of the coverage survey (seed 777) selected on sig_joint. Only the
 // separations of the default grid are compared (refinement inserts points
