@@ -9,7 +9,7 @@
 //
 // Usage: curve_bench [--draws N] [--sigma S] [--reference HEFT_BINARY]
 // (--draws: the draws per separation, 4096 by default as in `heft curve`;
-// `heft rank` uses 256. --sigma: time only the star nearest to S of the four.)
+// `heft rank` uses 512. --sigma: time only the star nearest to S of the four.)
 
 #include <sys/resource.h>
 #include <sys/wait.h>
