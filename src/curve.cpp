@@ -249,6 +249,9 @@ struct Problem {
   double a_au;
   double baseline_yr;
   double snr;  ///< sqrt(chi2_data)
+  /// (384 kDriftTolerance / S/N)^(1/4): the Hermite interpolant's largest
+  /// node spacing times its rate w (hermite_intervals).
+  double hermite_wh_max;
   /// For the nominal host mass: the period at q = 0, the prior's largest q
   /// and x there (x_of).
   double p0_nominal_yr, q_hi_nominal, x_min_nominal;
@@ -315,7 +318,7 @@ constexpr int kMaxHermiteIntervals = 2;
 int hermite_intervals(const Problem& pb, double ecc, double p0, double x_min) {
   // Next to periastron the orbit moves faster by up to 1 / (1 - e).
   const double w = (units::kTwoPi * pb.baseline_yr / p0 + 2.0) * (1.0 / (1.0 - ecc));
-  const double h_max = std::pow(384.0 * kDriftTolerance / std::max(pb.snr, 1e-3), 0.25) / w;
+  const double h_max = pb.hermite_wh_max / w;
   const double intervals = std::ceil(-x_min / h_max);
   return intervals <= kMaxHermiteIntervals ? std::max(1, static_cast<int>(intervals)) : 0;
 }
@@ -472,6 +475,31 @@ GaussianZ gaussian_z(const Problem& pb, const Mat42& k) {
   return g;
 }
 
+// What weighing z samples with that likelihood needs: chi2 at the best z,
+// F's eigen decomposition to draw z ~ N(z_hat, F^-1), and the log of the
+// likelihood's integral over z relative to its peak, 2 pi / sqrt(det F).
+struct ZSampler {
+  ZSampler(const Problem& pb, const GaussianZ& g) : g(g), chi2_min(pb.chi2_data - g.z_hat.dot(g.fisher * g.z_hat)) {
+    es.computeDirect(g.fisher);
+    lam = es.eigenvalues().cwiseMax(1e-300);
+    log_gauss_norm = std::log(units::kTwoPi) - 0.5 * std::log(lam(0) * lam(1));
+  }
+  // Whether the Gaussian is narrow against the prior's range of q (up to
+  // q_hi): then z is drawn from it, else from the prior.
+  bool narrow(double q_hi) const { return 1.0 / std::sqrt(lam.minCoeff()) < 0.3 * q_hi; }
+  Eigen::Vector2d draw(const ZDeviates& u) const {
+    return g.z_hat + es.eigenvectors() * Eigen::Vector2d(u.n1 / std::sqrt(lam(0)), u.n2 / std::sqrt(lam(1)));
+  }
+  double log_likelihood(const Eigen::Vector2d& z) const {
+    const Eigen::Vector2d dz = z - g.z_hat;
+    return -0.5 * chi2_min - 0.5 * dz.dot(g.fisher * dz);
+  }
+  const GaussianZ& g;
+  double chi2_min, log_gauss_norm = 0.0;
+  Eigen::SelfAdjointEigenSolver<Eigen::Matrix2d> es;
+  Eigen::Vector2d lam;
+};
+
 // A draw waiting to be weighed: the log weight added to each of its samples
 // (prior / proposal of the draw itself) and where the samples go.
 struct PendingDraw {
@@ -488,14 +516,8 @@ void weigh_samples_total(const Problem& pb, const PendingDraw& pd, const Mat42& 
   const ZPlanePrior& prior = pb.prior;
   const Draw& dr = *pd.dr;
   const GaussianZ g = gaussian_z(pb, k);
-  const Eigen::Matrix2d& fisher = g.fisher;
-  const Eigen::Vector2d& z_hat = g.z_hat;
-  const double chi2_min = pb.chi2_data - z_hat.dot(fisher * z_hat);
-  Eigen::SelfAdjointEigenSolver<Eigen::Matrix2d> es;
-  es.computeDirect(fisher);
-  const Eigen::Vector2d lam = es.eigenvalues().cwiseMax(1e-300);
-  const double log_gauss_norm = std::log(units::kTwoPi) - 0.5 * std::log(lam(0) * lam(1));
-  const bool gaussian = 1.0 / std::sqrt(lam.minCoeff()) < 0.3 * prior.m_hi_msun / m_total;
+  const ZSampler zs(pb, g);
+  const bool gaussian = zs.narrow(prior.m_hi_msun / m_total);
   const ZDeviates* dev = &pb.ds.dev[dr.dev];
   for (int s = 0; s < pb.opt.z_samples; ++s) {
     const ZDeviates& u = dev[s];
@@ -503,16 +525,15 @@ void weigh_samples_total(const Problem& pb, const PendingDraw& pd, const Mat42& 
     double log_w;
     if (gaussian) {
       // z ~ N(z_hat, F^-1), the likelihood itself: weight = prior x evidence.
-      z = z_hat + es.eigenvectors() * Eigen::Vector2d(u.n1 / std::sqrt(lam(0)), u.n2 / std::sqrt(lam(1)));
-      log_w = prior.log_density_total(z.norm(), m_total) - 0.5 * chi2_min + log_gauss_norm;
+      z = zs.draw(u);
+      log_w = prior.log_density_total(z.norm(), m_total) - 0.5 * zs.chi2_min + zs.log_gauss_norm;
     } else {
       // m2 from its prior (the draw's prior z, drawn for its own m1) and
       // q = m2 / m_total: the z density is then the prior's, weight = likelihood.
       const double q_dev = std::hypot(u.z1, u.z2);
       const double f = dr.m1 / ((1.0 - q_dev) * m_total);  // q / q_dev
       z << f * u.z1, f * u.z2;
-      const Eigen::Vector2d dz = z - z_hat;
-      log_w = z.norm() < 1.0 ? -0.5 * chi2_min - 0.5 * dz.dot(fisher * dz) : -std::numeric_limits<double>::infinity();
+      log_w = z.norm() < 1.0 ? zs.log_likelihood(z) : -std::numeric_limits<double>::infinity();
     }
     const double q = z.norm();
     Sample& o = pd.out[s];
@@ -574,7 +595,6 @@ long weigh_total_batch(const Problem& pb, const PendingDraw* p, int n) {
 // added to every weight (prior / proposal of the draw itself). Returns the
 // number of window-model evaluations.
 int weigh_draw_periods(const Problem& pb, const Draw& dr, const ZDeviates* dev, double log_extra, Sample* out) {
-  const AnomalyData& d = pb.d;
   const ZPlanePrior& prior = pb.prior;
   const double p0 = period_from_a(pb.a_au, dr.m1);
   const double x_min = x_of(std::log1p(-dr.q_hi));
@@ -582,28 +602,20 @@ int weigh_draw_periods(const Problem& pb, const Draw& dr, const ZDeviates* dev, 
   double x = std::clamp(dr.x_start, x_min, 0.0);
   PeriodModel model(pb, dr, p0, x_min, x);
   Mat42 kmat;
-  Eigen::Matrix2d fisher;
-  Eigen::Vector2d z_hat;
+  GaussianZ g;
   for (int it = 0; it < 8; ++it) {
     kmat = model.k_at(x);
-    const Eigen::Matrix<double, 2, 4> kc = kmat.transpose() * pb.cinv;
-    fisher = kc * kmat;
-    z_hat = fisher.inverse() * (kc * d.dpm);
+    g = gaussian_z(pb, kmat);
     // Beyond the prior's largest q no sample has weight: the period there
     // is the one at that q.
-    const double x_new = std::max(x_of(std::log1p(-std::min(z_hat.norm(), 0.999))), x_min);
+    const double x_new = std::max(x_of(std::log1p(-std::min(g.z_hat.norm(), 0.999))), x_min);
     if (model.negligible(x_new - x)) break;
     x = x_new;
     model.centre(x);
   }
   dr.x_start = x;
-  const double chi2_min = pb.chi2_data - z_hat.dot(fisher * z_hat);
-  Eigen::SelfAdjointEigenSolver<Eigen::Matrix2d> es;
-  es.computeDirect(fisher);
-  const Eigen::Vector2d lam = es.eigenvalues().cwiseMax(1e-300);
-  const double log_gauss_norm = std::log(units::kTwoPi) - 0.5 * std::log(lam(0) * lam(1));
-  // Gaussian extent of z versus the prior range decides the proposal.
-  const bool gaussian = 1.0 / std::sqrt(lam.minCoeff()) < 0.3 * dr.q_hi;
+  const ZSampler zs(pb, g);
+  const bool gaussian = zs.narrow(dr.q_hi);
   // Period corrections that need exact evaluations of the model (half of
   // all evaluations, short periods) run in batches (PeriodModel::exact),
   // so that their Kepler solves overlap; the results are the same.
@@ -627,17 +639,16 @@ int weigh_draw_periods(const Problem& pb, const Draw& dr, const ZDeviates* dev, 
     double q, log_1mq, log_w;
     if (gaussian) {
       // z ~ N(z_hat, F^-1): weight = prior(z) exp(-chi2_min/2) 2 pi sqrt(det F^-1).
-      z = z_hat + es.eigenvectors() * Eigen::Vector2d(u.n1 / std::sqrt(lam(0)), u.n2 / std::sqrt(lam(1)));
+      z = zs.draw(u);
       q = z.norm();
       log_1mq = log1m_norm(z);
-      log_w = prior.log_density(dr, q, std::log(q), log_1mq) - 0.5 * chi2_min + log_gauss_norm;
+      log_w = prior.log_density(dr, q, std::log(q), log_1mq) - 0.5 * zs.chi2_min + zs.log_gauss_norm;
     } else {
       // z from the prior: weight = likelihood.
       z << u.z1, u.z2;
       q = z.norm();
       log_1mq = u.log_1mq;
-      const Eigen::Vector2d dz = z - z_hat;
-      log_w = -0.5 * chi2_min - 0.5 * dz.dot(fisher * dz);
+      log_w = zs.log_likelihood(z);
     }
     // The Gaussian used the period of the best z; where this sample's own
     // m1 + m2 moves the period, correct by the exact / Gaussian likelihood.
@@ -1012,6 +1023,7 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, DrawSet& d
                    a_au,
                    d.late.ref_epoch_yr - d.early.ref_epoch_yr,
                    std::sqrt(chi2_data),
+                   std::pow(384.0 * kDriftTolerance / std::max(std::sqrt(chi2_data), 1e-3), 0.25),
                    period_from_a(a_au, d.host_mass_msun),
                    q_hi_nominal,
                    x_of(std::log1p(-q_hi_nominal))};
