@@ -124,51 +124,55 @@ double weighted_quantile(const std::vector<std::pair<double, double>>& sorted, d
   return sorted.empty() ? std::numeric_limits<double>::quiet_NaN() : sorted.back().first;
 }
 
-std::vector<double> weighted_quantiles(std::vector<std::pair<double, double>>& pairs, double total,
-                                       const std::vector<double>& ps) {
-  std::vector<double> out;
-  // [lo, hi) holds the answer; `below` is the weight of the pairs before lo
-  // (all ordered below it). Quantiles ascend, so each search starts where
-  // the previous one ended.
-  std::size_t lo = 0;
-  double below = 0.0;
-  for (const double p : ps) {
-    if (pairs.empty()) {
-      out.push_back(std::numeric_limits<double>::quiet_NaN());
-      continue;
-    }
-    const double target = p * total;
-    std::size_t hi = pairs.size();
-    while (hi - lo > 64) {
-      const auto mid = pairs.begin() + static_cast<std::ptrdiff_t>(lo + (hi - lo) / 2);
-      std::nth_element(pairs.begin() + static_cast<std::ptrdiff_t>(lo), mid,
-                       pairs.begin() + static_cast<std::ptrdiff_t>(hi));
-      double left = below;
-      for (auto it = pairs.begin() + static_cast<std::ptrdiff_t>(lo); it != mid; ++it) left += it->second;
-      if (left >= target) {
-        hi = static_cast<std::size_t>(mid - pairs.begin());
-      } else {
-        lo = static_cast<std::size_t>(mid - pairs.begin());
-        below = left;
-      }
-    }
-    std::sort(pairs.begin() + static_cast<std::ptrdiff_t>(lo), pairs.begin() + static_cast<std::ptrdiff_t>(hi));
+namespace {
+using Pairs = std::vector<std::pair<double, double>>;
+
+// The quantiles targets[t0, t1) (cumulative weights, ascending) whose
+// answers lie in pairs[lo, hi), `below` the weight of the pairs before lo
+// (all ordered below them). Each split by selection sends every target to
+// the side that holds it, so the work is about linear for few targets.
+void select_quantiles(Pairs& pairs, std::size_t lo, std::size_t hi, double below, const double* targets,
+                      double* out, std::size_t t0, std::size_t t1) {
+  const auto at = [&](std::size_t k) { return pairs.begin() + static_cast<std::ptrdiff_t>(k); };
+  while (t0 < t1 && hi - lo > 64) {
+    const std::size_t mid = lo + (hi - lo) / 2;
+    std::nth_element(at(lo), at(mid), at(hi));
+    double left = below;
+    for (std::size_t k = lo; k < mid; ++k) left += pairs[k].second;
+    std::size_t split = t0;  // targets [t0, split) lie left of mid
+    while (split < t1 && left >= targets[split]) ++split;
+    select_quantiles(pairs, lo, mid, below, targets, out, t0, split);
+    lo = mid;
+    below = left;
+    t0 = split;
+  }
+  if (t0 == t1) return;
+  std::sort(at(lo), at(hi));
+  double acc = below;
+  std::size_t k = lo;
+  for (std::size_t t = t0; t < t1; ++t) {
     // Not reached within [lo, hi) only by rounding: then the answer is the
     // pair at hi (the smallest beyond), or the largest of all.
-    double acc = below, v = hi < pairs.size() ? pairs[hi].first : pairs[hi - 1].first;
-    std::size_t k = lo;
+    double v = hi < pairs.size() ? pairs[hi].first : pairs[hi - 1].first;
     for (; k < hi; ++k) {
-      acc += pairs[k].second;
-      if (acc >= target) {
+      if (acc + pairs[k].second >= targets[t]) {
         v = pairs[k].first;
         break;
       }
+      acc += pairs[k].second;
     }
-    out.push_back(v);
-    // The next quantile lies at k or beyond: the pairs before k are below.
-    for (std::size_t j = lo; j < k && j < hi; ++j) below += pairs[j].second;
-    lo = std::min(k, hi);
+    out[t] = v;
   }
+}
+}  // namespace
+
+std::vector<double> weighted_quantiles(std::vector<std::pair<double, double>>& pairs, double total,
+                                       const std::vector<double>& ps) {
+  std::vector<double> out(ps.size(), std::numeric_limits<double>::quiet_NaN());
+  if (pairs.empty()) return out;
+  std::vector<double> targets(ps.size());
+  for (std::size_t t = 0; t < ps.size(); ++t) targets[t] = ps[t] * total;
+  select_quantiles(pairs, 0, pairs.size(), 0.0, targets.data(), out.data(), 0, ps.size());
   return out;
 }
 
