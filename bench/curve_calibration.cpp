@@ -43,11 +43,19 @@ int main(int argc, char** argv) {
   o.prior.m_min_mjup = 1;
   o.prior.m_max_mjup = 200;
   SurveyModel m = coverage_survey(o, 1.0, 50.0, 99);
-  const Coverage cov =
-      curve_coverage(m, o, n_sys, 6.0, full_grid ? log_grid(0.5, 500, kDefaultSeparations) : std::vector<double>{});
+  const std::vector<double> grid = full_grid ? log_grid(0.5, 500, kDefaultSeparations) : std::vector<double>{};
+  const Coverage cov = curve_coverage(m, o, n_sys, 6.0, grid);
   std::printf("%d systems (S/N 6 to %.0f), %d draws%s: 68 %% band covers %.1f %%, 95 %% band %.1f %%\n",
               cov.systems, cov.max_sig, draws, full_grid ? ", whole curves" : "", 100.0 * cov.in68,
               100.0 * cov.in95);
+  // Upper limits: masses from their own prior (uniform in [0, m_max]),
+  // systems below --detect-sigma.
+  const Coverage up = curve_coverage(coverage_survey(o, 1.0, 50.0, 99, true), o, n_sys, 0.0, grid,
+                                     o.prior.detect_sigma);
+  std::printf("%d upper limits (S/N below %.0f), %d draws%s: the 68 %% limit holds the truth in %.1f %%, the "
+              "95 %% limit in %.1f %%\n",
+              up.systems, o.prior.detect_sigma, draws, full_grid ? ", whole curves" : "", 100.0 * up.in68,
+              100.0 * up.in95);
 
   // One star's curve at the defaults (64 separations x 4096 draws).
   StarRecord s;

@@ -8,7 +8,7 @@
 namespace heft {
 
 Coverage curve_coverage(const SurveyModel& survey, const CurveOptions& opt, int n_systems,
-                        double min_sig, const std::vector<double>& grid) {
+                        double min_sig, const std::vector<double>& grid, double max_sig) {
   Coverage cov;
   int in68 = 0, in95 = 0;
   for (long i = 0; cov.systems < n_systems; ++i) {
@@ -16,7 +16,7 @@ Coverage curve_coverage(const SurveyModel& survey, const CurveOptions& opt, int 
     SimTruth t;
     simulate_star(survey, i, s, t);
     const ScreenRow row = screen_star(s, validate_star(s), ScreenOptions{});
-    if (!row.ok() || !t.companion || !(row.result.sig_joint >= min_sig)) continue;
+    if (!row.ok() || !t.companion || !(row.result.sig_joint >= min_sig && row.result.sig_joint < max_sig)) continue;
     const AnomalyResult& r = row.result;
     bool ok = false;
     const AnomalyData d = anomaly_data(s, r, kAbsent, kAbsent, ok);
@@ -33,8 +33,9 @@ Coverage curve_coverage(const SurveyModel& survey, const CurveOptions& opt, int 
                                        [&](const CurvePoint& p) { return p.a_au == t.a_au; });
     if (at_truth == c.points.end()) throw std::logic_error("curve_coverage: the true a is not among the curve's points");
     const CurvePoint& p = *at_truth;
-    in68 += t.mass_mjup >= p.mass_lo68 && t.mass_mjup <= p.mass_hi68;
-    in95 += t.mass_mjup >= p.mass_lo95 && t.mass_mjup <= p.mass_hi95;
+    const bool upper = c.upper_limit;
+    in68 += (upper || t.mass_mjup >= p.mass_lo68) && t.mass_mjup <= p.mass_hi68;
+    in95 += (upper || t.mass_mjup >= p.mass_lo95) && t.mass_mjup <= p.mass_hi95;
     cov.max_sig = std::max(cov.max_sig, r.sig_joint);
     ++cov.systems;
   }
@@ -72,11 +73,13 @@ Reliability p_real_reliability(const SurveyModel& survey, const CurveOptions& op
 }
 
 SurveyModel coverage_survey(const CurveOptions& opt, double a_lo_au, double a_hi_au,
-                            std::uint64_t seed) {
+                            std::uint64_t seed, bool upper_limit) {
   SurveyModel m;
   m.seed = seed;
   m.companion_fraction = 1.0;
-  m.companion_mass_mjup = {Distribution::Kind::kLogUniform, opt.prior.m_min_mjup, opt.prior.m_max_mjup};
+  m.companion_mass_mjup = upper_limit
+                              ? Distribution{Distribution::Kind::kUniform, 0.0, opt.prior.m_max_mjup}
+                              : Distribution{Distribution::Kind::kLogUniform, opt.prior.m_min_mjup, opt.prior.m_max_mjup};
   m.a_au = {Distribution::Kind::kLogUniform, a_lo_au, a_hi_au};
   m.ecc = opt.prior.ecc;
   m.distance_pc = {Distribution::Kind::kUniform, 10, 60};

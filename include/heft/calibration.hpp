@@ -6,6 +6,7 @@
 /// suite and bench/curve_calibration).
 
 #include <cstdint>
+#include <limits>
 
 #include "heft/curve.hpp"
 #include "heft/rng.hpp"
@@ -16,17 +17,19 @@ namespace heft {
 
 /// Coverage of the Monte Carlo bands on injected systems (a sensitivity and
 /// calibration study): companions drawn by `survey`, kept when their observed
-/// sig_joint >= min_sig, each curve evaluated at its true a only; or, with
-/// `grid` given, on that grid with the true a inserted (refined as
-/// opt.refine_rounds says) and read at the true a, so that its rounds start
-/// from the neighbouring separations' proposals as in a whole curve.
+/// sig_joint is in [min_sig, max_sig), each curve evaluated at its true a
+/// only; or, with `grid` given, on that grid with the true a inserted
+/// (refined as opt.refine_rounds says) and read at the true a, so that its
+/// rounds start from the neighbouring separations' proposals as in a whole
+/// curve. An upper limit's bands are [0, mass_hi68] and [0, mass_hi95].
 struct Coverage {
   int systems = 0;
   double in68 = 0.0, in95 = 0.0;  ///< fractions with the true mass inside the band
   double max_sig = 0.0;
 };
 Coverage curve_coverage(const SurveyModel& survey, const CurveOptions& opt, int n_systems,
-                        double min_sig, const std::vector<double>& grid = {});
+                        double min_sig, const std::vector<double>& grid = {},
+                        double max_sig = std::numeric_limits<double>::infinity());
 
 /// Reliability of p_real (docs/method.md, Sect. 10): stars of `survey`
 /// (whose companion fraction is the occurrence) with sig_joint >= min_sig,
@@ -44,11 +47,12 @@ Reliability p_real_reliability(const SurveyModel& survey, const CurveOptions& op
                                double min_sig);
 
 /// A survey of companions drawn from the prior of `opt` (log-uniform mass in
-/// [m_min, m_max], e from opt.ecc, isotropic) with a log-uniform in [a_lo, a_hi],
+/// [m_min, m_max], or with `upper_limit` the upper limits' uniform mass in
+/// [0, m_max]; e from opt.ecc, isotropic) with a log-uniform in [a_lo, a_hi],
 /// hosts at 10-60 pc with 5 % mass errors and RVs: the population for which
 /// curve_coverage must give nominal coverage.
 SurveyModel coverage_survey(const CurveOptions& opt, double a_lo_au, double a_hi_au,
-                            std::uint64_t seed);
+                            std::uint64_t seed, bool upper_limit = false);
 
 /// The deep fit's coverage population (docs/performance.md, "Deep fit";
 /// tests/fit_test.cpp and bench/fit_bench): companions drawn from the prior
