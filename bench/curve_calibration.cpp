@@ -1,6 +1,8 @@
 // curve_calibration: coverage of the Monte Carlo curve's bands on injected
-// systems drawn from the curve's own prior, selected on observed S/N > 6, and
-// the time of one star's curve at the defaults.
+// systems drawn from the curve's own prior, selected on observed S/N > 6; of
+// the upper limits on systems drawn from theirs (mass uniform in 0-200
+// MJup), selected on S/N below --detect-sigma; and the time of one star's
+// curve at the defaults.
 //
 // With --full-grid each curve runs on the default grid (64 separations,
 // 0.5-500 AU) with the true a inserted and refined, as a whole curve does,
