@@ -456,7 +456,10 @@ constexpr double kMinHostSpread = 0.12;
 // own period (hermite_intervals 0 at the nominal host mass: short periods
 // or high S/N), and the host mass has a spread to trade against the
 // companion's (kMinHostSpread). A function of the draw's orbit angles alone, so that
-// either weighing is a valid estimate of the same integral.
+// either weighing is a valid estimate of the same integral. Never for upper
+// limits: m_total is drawn about the best q at the nominal period, and
+// heavy companions near a zero of the window averaging (defensive_z_samples)
+// lie four host-mass errors away from it.
 bool total_mass_fixed(const Problem& pb, const Draw& dr) {
   return pb.prior.log_uniform && pb.d.host_mass_error_msun >= kMinHostSpread * pb.q_hi_nominal * pb.d.host_mass_msun &&
          hermite_intervals(pb, dr.ecc, pb.p0_nominal_yr, pb.x_min_nominal) == 0;
@@ -1240,9 +1243,9 @@ void set_weights(std::vector<PointResult>& pts) {
 // (the Gaussian normalisation is common to both).
 //
 // The separations share their random numbers (the same prior draws and
-// deviates at every a), so their errors are correlated: summed in
-// quadrature they gave 2-2.5x less than the scatter between seeds at
-// S/N 10-30, summed linearly 2-4x more. The estimate sum_k term_k is a
+// deviates at every a), so their errors are correlated: the draws' errors
+// summed in quadrature gave 1.1-2.5x less than the scatter between seeds,
+// summed linearly 2-4x more. The estimate sum_k term_k is a
 // sum over keys i of T_i = sum_k term_k share_ki, independent between
 // keys; its variance is estimated as sum_i (T_i - E T_i)^2 with
 // E share_ki = 1 / N_k (N_k the draws at separation k). For one
