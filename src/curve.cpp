@@ -471,7 +471,7 @@ bool total_mass_fixed(const Problem& pb, const Draw& dr) {
 // onto a zero of the window averaging (short periods), a mode of heavy
 // companions that the data allow lies far from the Gaussian. Without
 // these samples such modes were never proposed, and 95 % upper limits held
-// the truth in 90 % of systems at P < 2 yr (docs/performance.md). Under
+// the truth in 91 % of systems at periods below 5 yr (docs/performance.md). Under
 // the detections' log-uniform prior heavy companions weigh less and the
 // bands' coverage holds without them.
 int defensive_z_samples(const Problem& pb) { return pb.prior.log_uniform ? 0 : std::max(1, pb.opt.z_samples / 4); }
