@@ -164,14 +164,13 @@ struct ZPlanePrior {
   }
   // log of (1 - q) p(z | m1) at |z| = q for a host m1 = m_total (1 - q):
   // the prior of z in the coordinates (m_total, z), where m2 = m_total q,
-  // with the Jacobian dm1/dm_total = 1 - q. It is p(m2) m_total / (2 pi q):
-  // 1 / (2 pi q^2 ln(m_hi / m_lo)) log-uniform, m_total / (2 pi q m_hi)
-  // uniform.
+  // with the Jacobian dm1/dm_total = 1 - q. It is p(m2) m_total / (2 pi q),
+  // for the log-uniform prior 1 / (2 pi q^2 ln(m_hi / m_lo)) (upper limits
+  // are never weighed with total mass fixed: total_mass_fixed).
   double log_density_total(double q, double m_total) const {
     const double m2 = m_total * q;
     if (!(m2 > m_lo_msun && m2 < m_hi_msun && q < 1.0)) return -std::numeric_limits<double>::infinity();
-    return log_uniform ? -std::log(units::kTwoPi) - 2.0 * std::log(q) - log_log_range
-                       : std::log(m_total / (units::kTwoPi * q * m_hi_msun));
+    return -std::log(units::kTwoPi) - 2.0 * std::log(q) - log_log_range;
   }
   // A draw of q from the prior itself, from a uniform deviate.
   double draw_q(double u, double m1) const {
@@ -504,10 +503,12 @@ struct ZSampler {
   Eigen::Vector2d draw(const ZDeviates& u) const {
     return g.z_hat + es.eigenvectors() * Eigen::Vector2d(u.n1 / std::sqrt(lam(0)), u.n2 / std::sqrt(lam(1)));
   }
-  double log_likelihood(const Eigen::Vector2d& z) const {
+  // (z - z_hat)^T F (z - z_hat) / 2
+  double half_dist2(const Eigen::Vector2d& z) const {
     const Eigen::Vector2d dz = z - g.z_hat;
-    return -0.5 * chi2_min - 0.5 * dz.dot(g.fisher * dz);
+    return 0.5 * dz.dot(g.fisher * dz);
   }
+  double log_likelihood(const Eigen::Vector2d& z) const { return -0.5 * chi2_min - half_dist2(z); }
   const GaussianZ& g;
   double chi2_min, log_gauss_norm = 0.0;
   Eigen::SelfAdjointEigenSolver<Eigen::Matrix2d> es;
@@ -652,38 +653,34 @@ int weigh_draw_periods(const Problem& pb, const Draw& dr, const ZDeviates* dev, 
                log_frac_prior = std::log(1.0 - static_cast<double>(n_gauss) / nz);
   for (int s = 0; s < nz; ++s) {
     const ZDeviates& u = dev[s];
+    // The first n_gauss samples z ~ N(z_hat, F^-1), the rest from the prior.
     Eigen::Vector2d z;
-    double q, log_1mq, log_w;
-    if (gaussian) {
-      // The first n_gauss samples z ~ N(z_hat, F^-1), the rest from the
-      // prior; each weighed against the mixture of both (defensive mixture).
-      if (s < n_gauss) {
-        z = zs.draw(u);
-        q = z.norm();
-        log_1mq = log1m_norm(z);
-      } else {
-        z << u.z1, u.z2;
-        q = z.norm();
-        log_1mq = u.log_1mq;
-      }
+    double log_1mq;
+    if (s < n_gauss) {
+      z = zs.draw(u);
+      log_1mq = log1m_norm(z);
+    } else {
+      z << u.z1, u.z2;
+      log_1mq = u.log_1mq;
+    }
+    const double q = z.norm();
+    double log_w;
+    if (!gaussian) {
+      // z from the prior: weight = likelihood.
+      log_w = zs.log_likelihood(z);
+    } else {
       const double log_p = prior.log_density(dr, q, std::log(q), log_1mq);
       if (n_gauss == nz) {
         // weight = prior(z) exp(-chi2_min/2) 2 pi sqrt(det F^-1)
         log_w = log_p - 0.5 * zs.chi2_min + zs.log_gauss_norm;
       } else {
-        const Eigen::Vector2d dz = z - g.z_hat;
-        const double half_d2 = 0.5 * dz.dot(g.fisher * dz);
+        // each sample weighed against the mixture of both (defensive mixture)
+        const double half_d2 = zs.half_dist2(z);
         log_w = std::isfinite(log_p) ? log_p - 0.5 * zs.chi2_min - half_d2 -
                                            log_add_exp(log_frac_gauss - zs.log_gauss_norm - half_d2,
                                                        log_frac_prior + log_p)
                                      : -std::numeric_limits<double>::infinity();
       }
-    } else {
-      // z from the prior: weight = likelihood.
-      z << u.z1, u.z2;
-      q = z.norm();
-      log_1mq = u.log_1mq;
-      log_w = zs.log_likelihood(z);
     }
     // The Gaussian used the period of the best z; where this sample's own
     // m1 + m2 moves the period, correct by the exact / Gaussian likelihood.
