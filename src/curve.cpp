@@ -3,6 +3,8 @@
 #include <Eigen/Cholesky>
 #include <Eigen/Eigenvalues>
 #include <algorithm>
+#include <cmath>
+#include <numbers>
 #include <numeric>
 #include <optional>
 
@@ -164,13 +166,14 @@ struct ZPlanePrior {
   }
   // log of (1 - q) p(z | m1) at |z| = q for a host m1 = m_total (1 - q):
   // the prior of z in the coordinates (m_total, z), where m2 = m_total q,
-  // with the Jacobian dm1/dm_total = 1 - q. It is p(m2) m_total / (2 pi q),
-  // for the log-uniform prior 1 / (2 pi q^2 ln(m_hi / m_lo)) (upper limits
-  // are never weighed with total mass fixed: total_mass_fixed).
+  // with the Jacobian dm1/dm_total = 1 - q. It is p(m2) m_total / (2 pi q):
+  // for the log-uniform prior 1 / (2 pi q^2 ln(m_hi / m_lo)), for the
+  // uniform one m_total / (2 pi q m_hi).
   double log_density_total(double q, double m_total) const {
     const double m2 = m_total * q;
     if (!(m2 > m_lo_msun && m2 < m_hi_msun && q < 1.0)) return -std::numeric_limits<double>::infinity();
-    return -std::log(units::kTwoPi) - 2.0 * std::log(q) - log_log_range;
+    return log_uniform ? -std::log(units::kTwoPi) - 2.0 * std::log(q) - log_log_range
+                       : std::log(m_total / (units::kTwoPi * q * m_hi_msun));
   }
   // A draw of q from the prior itself, from a uniform deviate.
   double draw_q(double u, double m1) const {
@@ -455,12 +458,9 @@ constexpr double kMinHostSpread = 0.12;
 // own period (hermite_intervals 0 at the nominal host mass: short periods
 // or high S/N), and the host mass has a spread to trade against the
 // companion's (kMinHostSpread). A function of the draw's orbit angles alone, so that
-// either weighing is a valid estimate of the same integral. Never for upper
-// limits: m_total is drawn about the best q at the nominal period, and
-// heavy companions near a zero of the window averaging (defensive_z_samples)
-// lie four host-mass errors away from it.
+// either weighing is a valid estimate of the same integral.
 bool total_mass_fixed(const Problem& pb, const Draw& dr) {
-  return pb.prior.log_uniform && pb.d.host_mass_error_msun >= kMinHostSpread * pb.q_hi_nominal * pb.d.host_mass_msun &&
+  return pb.d.host_mass_error_msun >= kMinHostSpread * pb.q_hi_nominal * pb.d.host_mass_msun &&
          hermite_intervals(pb, dr.ecc, pb.p0_nominal_yr, pb.x_min_nominal) == 0;
 }
 
@@ -523,10 +523,34 @@ struct PendingDraw {
   Sample* out;
 };
 
-// The z samples of a draw weighed with total mass m_total, from its design
-// matrix K at P(m_total) (weigh_total_batch).
+// For upper limits, a draw weighed with its total mass fixed also weighs
+// each of its last defensive_z_samples samples at its own total mass: z is
+// the sample's prior z for the draw's host mass m1' and m_total =
+// m1' / (1 - |z|), a draw of (m_total, z) from the prior itself. Every
+// sample, in either stratum, is weighed against the mixture of the two
+// proposals in the proportions of their samples (the balance heuristic of
+// multiple importance sampling; Veach & Guibas 1995). Heavy companions
+// near a zero of the window averaging need a total mass four host-mass
+// errors above m1' / (1 - q_ref), which the first stratum never proposes;
+// the prior's samples do, each at its exact period.
+struct TotalMassMixture {
+  double log_frac_ref, log_frac_prior;  ///< the strata's shares of the samples
+  double log_1mq_ref;                   ///< of the draw's reference total mass
+  // log of the mixture's density at (m_total, z) for a sample with
+  // log_r_ref the log density of z given m_total in the first stratum and
+  // log_prior the joint prior's, log p_host(m1) + log_density_total.
+  double log_density(const AnomalyData& d, double m_total, double log_r_ref, double log_prior) const {
+    return log_add_exp(log_frac_ref + log_host_density(d, m_total * std::exp(log_1mq_ref)) + log_1mq_ref + log_r_ref,
+                       log_frac_prior + log_prior);
+  }
+};
+
+// The first z samples [0, s_end) of a draw weighed with total mass m_total,
+// from its design matrix K at P(m_total); log_proposal is the log density
+// m_total was drawn from (weigh_total_batch), mix the mixture for upper
+// limits (null for detections).
 void weigh_samples_total(const Problem& pb, const PendingDraw& pd, const Mat42& k, double m_total,
-                         double log_proposal) {
+                         double log_proposal, int s_end, const TotalMassMixture* mix) {
   const AnomalyData& d = pb.d;
   const ZPlanePrior& prior = pb.prior;
   const Draw& dr = *pd.dr;
@@ -534,7 +558,7 @@ void weigh_samples_total(const Problem& pb, const PendingDraw& pd, const Mat42& 
   const ZSampler zs(pb, g);
   const bool gaussian = zs.narrow(prior.m_hi_msun / m_total);
   const ZDeviates* dev = &pb.ds.dev[dr.dev];
-  for (int s = 0; s < pb.opt.z_samples; ++s) {
+  for (int s = 0; s < s_end; ++s) {
     const ZDeviates& u = dev[s];
     Eigen::Vector2d z;
     double log_w;
@@ -551,14 +575,48 @@ void weigh_samples_total(const Problem& pb, const PendingDraw& pd, const Mat42& 
       log_w = z.norm() < 1.0 ? zs.log_likelihood(z) : -std::numeric_limits<double>::infinity();
     }
     const double q = z.norm();
+    const double log_host = log_host_density(d, m_total * (1.0 - q));
     Sample& o = pd.out[s];
-    o.log_w = log_w + log_host_density(d, m_total * (1.0 - q)) - log_proposal + pd.log_extra;
+    if (!mix) {
+      o.log_w = log_w + log_host - log_proposal;
+    } else {
+      const double log_prior_z = prior.log_density_total(q, m_total);
+      const double log_r_ref = gaussian ? -zs.half_dist2(z) - zs.log_gauss_norm : log_prior_z;
+      o.log_w = log_host + log_prior_z + zs.log_likelihood(z) -
+                mix->log_density(d, m_total, log_r_ref, log_host + log_prior_z);
+    }
+    o.log_w += pd.log_extra;
     if (!std::isfinite(o.log_w)) o.log_w = -std::numeric_limits<double>::infinity();
     o.m2_mjup = m_total * q * units::kMjupPerMsun;
     o.m1_msun = m_total * (1.0 - q);
     o.z1 = z.x();
     o.z2 = z.y();
   }
+}
+
+// The prior stratum's sample s of a draw (TotalMassMixture), from its
+// design matrix K at its own total mass.
+void weigh_prior_sample_total(const Problem& pb, const PendingDraw& pd, int s, const Mat42& k, double m_total,
+                              const TotalMassMixture& mix) {
+  const AnomalyData& d = pb.d;
+  const ZDeviates& u = pb.ds.dev[pd.dr->dev + s];
+  const Eigen::Vector2d z(u.z1, u.z2);
+  const double q = z.norm();
+  const GaussianZ g = gaussian_z(pb, k);
+  const ZSampler zs(pb, g);
+  const double log_host = log_host_density(d, pd.dr->m1);
+  const double log_prior_z = pb.prior.log_density_total(q, m_total);
+  // the first stratum's density of this z at this total mass
+  const double log_r_ref =
+      zs.narrow(pb.prior.m_hi_msun / m_total) ? -zs.half_dist2(z) - zs.log_gauss_norm : log_prior_z;
+  Sample& o = pd.out[s];
+  o.log_w = log_host + log_prior_z + zs.log_likelihood(z) -
+            mix.log_density(d, m_total, log_r_ref, log_host + log_prior_z) + pd.log_extra;
+  if (!std::isfinite(o.log_w)) o.log_w = -std::numeric_limits<double>::infinity();
+  o.m2_mjup = m_total * q * units::kMjupPerMsun;
+  o.m1_msun = pd.dr->m1;
+  o.z1 = z.x();
+  o.z2 = z.y();
 }
 
 // Draws weighed with total mass fixed at once, at most.
@@ -575,16 +633,21 @@ constexpr int kDrawBatch = 8;
 // p_host(m_total (1 - q_ref)) (1 - q_ref). Each sample's weight then holds
 // p_host(m_total (1 - q)) / that density: near 1 where q is near q_ref,
 // and never a bias, only variance, where it is not (docs/method.md,
-// "Total mass per draw"). Two window-model evaluations per draw, for
-// n <= kDrawBatch draws at once: all their fits at the nominal period, then
-// all at their total masses (window_basis_pairs), so that the draws'
+// "Total mass per draw"). Upper limits add samples of the prior
+// (TotalMassMixture).
+//
+// Two window-model evaluations per draw (and one per prior sample), for
+// n <= kDrawBatch draws at once: all their fits at the nominal period,
+// then all at their total masses (window_basis_pairs), so that the draws'
 // Kepler solves overlap; each draw's result is the same as alone. Returns
 // the number of window-model evaluations.
 long weigh_total_batch(const Problem& pb, const PendingDraw* p, int n) {
   const AnomalyData& d = pb.d;
+  const int nz = pb.opt.z_samples, n_prior = defensive_z_samples(pb);
   std::array<Orbit<double>, kDrawBatch> o{};
   std::array<WindowBasis<double>, kDrawBatch> be, bl;
   std::array<double, kDrawBatch> m_total, log_proposal;
+  std::array<TotalMassMixture, kDrawBatch> mix;
   for (int i = 0; i < n; ++i) {
     const Draw& dr = *p[i].dr;
     o[i] = {pb.p0_nominal_yr, dr.ecc, dr.inc, dr.omega, 0.0, dr.m0, d.late.ref_epoch_yr};
@@ -593,15 +656,37 @@ long weigh_total_batch(const Problem& pb, const PendingDraw* p, int n) {
   for (int i = 0; i < n; ++i) {
     const Draw& dr = *p[i].dr;
     const double q_ref = std::min(gaussian_z(pb, scaled_design(pb, dr, be[i], bl[i])).z_hat.norm(), pb.q_hi_nominal);
+    const double log_1mq_ref = std::log1p(-q_ref);
     m_total[i] = dr.m1 / (1.0 - q_ref);
-    log_proposal[i] = log_host_density(d, dr.m1) + std::log1p(-q_ref);
-    dr.x_start = x_of(std::log1p(-q_ref));  // the period used, for a later weigh_draw_periods
+    log_proposal[i] = log_host_density(d, dr.m1) + log_1mq_ref;
+    mix[i] = {std::log(static_cast<double>(nz - n_prior) / nz), std::log(static_cast<double>(n_prior) / nz),
+              log_1mq_ref};
+    dr.x_start = x_of(log_1mq_ref);  // the period used, for a later weigh_draw_periods
     o[i].period_yr = period_from_a(pb.a_au, m_total[i]);
   }
   window_basis_pairs(o.data(), n, d.early, d.late, be.data(), bl.data());
   for (int i = 0; i < n; ++i)
-    weigh_samples_total(pb, p[i], scaled_design(pb, *p[i].dr, be[i], bl[i]), m_total[i], log_proposal[i]);
-  return 2L * n;
+    weigh_samples_total(pb, p[i], scaled_design(pb, *p[i].dr, be[i], bl[i]), m_total[i], log_proposal[i],
+                        nz - n_prior, n_prior > 0 ? &mix[i] : nullptr);
+  // the prior samples, kDrawBatch orbits at a time
+  const int n_orbits = n * n_prior;
+  for (int begin = 0; begin < n_orbits; begin += kDrawBatch) {
+    const int end = std::min(n_orbits, begin + kDrawBatch);
+    for (int j = begin; j < end; ++j) {
+      const Draw& dr = *p[j / n_prior].dr;
+      const ZDeviates& u = pb.ds.dev[dr.dev + nz - n_prior + j % n_prior];
+      m_total[j - begin] = dr.m1 / std::exp(u.log_1mq);
+      o[j - begin] = {period_from_a(pb.a_au, m_total[j - begin]), dr.ecc, dr.inc, dr.omega, 0.0, dr.m0,
+                      d.late.ref_epoch_yr};
+    }
+    window_basis_pairs(o.data(), end - begin, d.early, d.late, be.data(), bl.data());
+    for (int j = begin; j < end; ++j) {
+      const int i = j / n_prior;
+      weigh_prior_sample_total(pb, p[i], nz - n_prior + j % n_prior,
+                               scaled_design(pb, *p[i].dr, be[j - begin], bl[j - begin]), m_total[j - begin], mix[i]);
+    }
+  }
+  return 2L * n + n_orbits;
 }
 
 // Weighted z samples of one draw of (i, omega, e, M0, m1, parallax), each

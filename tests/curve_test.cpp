@@ -487,11 +487,11 @@ TEST_CASE("total mass per draw: curves agree with plain prior sampling", "[curve
   // separation. The evidence agrees within 4 combined standard errors; the
   // mass quantiles within 8 % (over curve seeds 1-4 and reference seeds
   // 2027-2030 the largest gap was 6 %, the engine without the total-mass
-  // weighing's 4 %); for the upper limit (never weighed with its total mass
-  // fixed, see "upper limit at a short period"), the evidence alone. At 1.3 AU
+  // weighing's 4 %); for the upper limit (whose tails are checked in "upper
+  // limit at a short period"), the evidence alone. At 1.3 AU
   // (P = 1.5 yr against a 25-yr baseline) every draw is weighed with its
-  // total mass fixed, unless the host mass is known to 0.6 % (then by
-  // periods throughout); at 5 AU the draws are shared between the two
+  // total mass fixed (an upper limit's at two total masses), unless the host
+  // mass is known to 0.6 % (then by periods throughout); at 5 AU the draws are shared between the two
   // weighings by their eccentricity, which a wrong constant in either would
   // bias (a factor of 263 on one side moved log10 B there by 0.16 and the
   // 84 % quantile by 15 %).
@@ -508,13 +508,14 @@ TEST_CASE("total mass per draw: curves agree with plain prior sampling", "[curve
     return d;
   };
   // all_total: every draw weighed with its total mass fixed (two window
-  // evaluations each); none: every draw by periods (more than two).
+  // evaluations each, four for an upper limit: one per prior sample); none:
+  // every draw by periods (more than three).
   enum class Weighing { all_total, shared, none_total };
   auto compare = [&](const AnomalyData& d, double a_au, Weighing weighing) {
     opt.a_au = {a_au};
     const Curve c = montecarlo_curve(d, opt, "total-mass");
     REQUIRE(c.points.size() == 1);
-    if (weighing == Weighing::all_total) CHECK(c.window_evaluations == 2 * c.draws_weighed);
+    if (weighing == Weighing::all_total) CHECK(c.window_evaluations == (c.upper_limit ? 4 : 2) * c.draws_weighed);
     if (weighing == Weighing::none_total) CHECK(c.window_evaluations > 3 * c.draws_weighed);
     const CurvePoint& p = c.points[0];
     const PlainSampling ref =
@@ -544,11 +545,11 @@ TEST_CASE("total mass per draw: curves agree with plain prior sampling", "[curve
     d.dpm += Eigen::Vector4d(0.02, -0.03, 0.3, -0.2);
     compare(d, 5.0, Weighing::shared);
   }
-  SECTION("short period, an upper limit (uniform mass prior): weighed by periods") {
+  SECTION("short period, an upper limit (uniform mass prior)") {
     AnomalyData d = data(1.3, 0.0);
     d.dpm << 0.04, -0.02, 0.4, 0.3;
     d.sig_joint = 1.5;
-    compare(d, 1.3, Weighing::none_total);
+    compare(d, 1.3, Weighing::all_total);
   }
 }
 
