@@ -453,8 +453,10 @@ TEST_CASE("upper limit at a short period: the heavy companions the data allow ar
   // period (m1 0.73 Msun) towards a zero of the late window's averaging and
   // hold half the posterior, far from the Gaussian likelihood in z at the
   // period of the best z: drawing every z sample from that Gaussian gave
-  // 68 % and 95 % limits of 35 and 128 MJup against 143 and 191. Measured
-  // with the defensive z samples: 144 and 195.
+  // 68 % and 95 % limits of 35 and 128 MJup against 143 and 191, and
+  // weighing every draw at one total mass about the best z 26 and 98.
+  // Measured with the prior's samples (by periods: 144 and 195; each at its
+  // own total mass, as now: 143 and 195).
   CurveOptions opt;
   opt.prior.m_min_mjup = 1;
   opt.prior.m_max_mjup = 200;
