@@ -7,7 +7,9 @@
 // of an older build: give its binary with --reference BIN and the table of
 // the bench's stars is written and timed through both binaries.
 //
-// Usage: curve_bench [--draws N] [--sigma S] [--reference HEFT_BINARY]
+// Usage: curve_bench [--draws N] [--sigma S] [--reference HEFT_BINARY] [--quantile-errors]
+// (--quantile-errors: also the mass quantiles' Monte Carlo errors, as `heft curve
+// --json`.)
 // (--draws: the draws per separation, 4096 by default as in `heft curve`;
 // `heft rank` uses 512. --sigma: time only the star nearest to S of the four.)
 
@@ -48,7 +50,9 @@ double child_seconds(const std::string& cmd) {
 int main(int argc, char** argv) {
   std::string reference;
   CurveOptions opt;
+  opt.quantile_errors = false;  // as `heft curve` without --json
   double only_sigma = 0.0;
+  for (int i = 1; i < argc; ++i) if (std::strcmp(argv[i], "--quantile-errors") == 0) opt.quantile_errors = true;
   for (int i = 1; i + 1 < argc; ++i) {
     if (std::strcmp(argv[i], "--reference") == 0) reference = argv[i + 1];
     if (std::strcmp(argv[i], "--draws") == 0) opt.draws = std::atoi(argv[i + 1]);

@@ -1133,6 +1133,45 @@ struct PointResult {
   Proposal proposal;  ///< the last proposal used (empty without the adaptive stage)
 };
 
+// Monte Carlo standard errors of weighted quantiles x of the samples'
+// masses at probabilities ps (Woodruff 1952, J. Am. Stat. Assoc. 47, 635):
+// the standard error of the weighted distribution function at each x,
+// with the z samples of a draw summed since they share its orbit angles,
+// mapped to mass through the quantiles at p -+ that error, half their
+// distance. `pairs` (the samples' masses and weights, `kept` their total
+// weight) is reordered.
+std::vector<double> quantile_errors(const Pool& pool, int nz, const std::vector<double>& ps,
+                                    const std::vector<double>& x, std::vector<std::pair<double, double>>& pairs,
+                                    double kept) {
+  const std::size_t nq = ps.size();
+  std::vector<double> var(nq, 0.0), dev(nq);
+  for (std::size_t j = 0; j < pool.size; ++j) {
+    std::fill(dev.begin(), dev.end(), 0.0);
+    for (int s = 0; s < nz; ++s) {
+      const double w = pool.w[j * nz + s], m = pool.samples[j * nz + s].m2_mjup;
+      for (std::size_t k = 0; k < nq; ++k) dev[k] += w * ((m <= x[k] ? 1.0 : 0.0) - ps[k]);
+    }
+    for (std::size_t k = 0; k < nq; ++k) var[k] += dev[k] * dev[k];
+  }
+  std::vector<double> band;
+  for (std::size_t k = 0; k < nq; ++k) {
+    const double se_f = std::sqrt(var[k]) / pool.sum;
+    band.push_back(std::max(ps[k] - se_f, 0.0));
+    band.push_back(std::min(ps[k] + se_f, 1.0));
+  }
+  std::vector<std::size_t> order(band.size());
+  std::iota(order.begin(), order.end(), 0);
+  std::sort(order.begin(), order.end(), [&](std::size_t a, std::size_t b) { return band[a] < band[b]; });
+  std::vector<double> sorted_p(band.size());
+  for (std::size_t i = 0; i < order.size(); ++i) sorted_p[i] = band[order[i]];
+  const std::vector<double> sorted_x = weighted_quantiles(pairs, kept, sorted_p);
+  std::vector<double> at(band.size());
+  for (std::size_t i = 0; i < order.size(); ++i) at[order[i]] = sorted_x[i];
+  std::vector<double> err(nq);
+  for (std::size_t k = 0; k < nq; ++k) err[k] = 0.5 * (at[2 * k + 1] - at[2 * k]);
+  return err;
+}
+
 // One separation. `seed`: the final proposal of a neighbouring separation
 // that needed the adaptive stage (the posterior of the orbit angles changes
 // slowly with a), or null to start from the prior.
@@ -1239,17 +1278,15 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, DrawSet& d
         pairs.emplace_back(pool.samples[i].m2_mjup, pool.w[i]);
         kept += pool.w[i];
       }
-    if (upper) {
-      const std::vector<double> q = weighted_quantiles(pairs, kept, {0.68, 0.95});
-      p.mass_hi68 = q[0];
-      p.mass_hi95 = q[1];
-    } else {
-      const std::vector<double> q = weighted_quantiles(pairs, kept, {0.025, 0.16, 0.5, 0.84, 0.975});
-      p.mass_lo95 = q[0];
-      p.mass_lo68 = q[1];
-      p.mass_med = q[2];
-      p.mass_hi68 = q[3];
-      p.mass_hi95 = q[4];
+    const std::vector<double> ps = upper ? std::vector<double>{0.68, 0.95}
+                                         : std::vector<double>{0.025, 0.16, 0.5, 0.84, 0.975};
+    const std::vector<double> q = weighted_quantiles(pairs, kept, ps);
+    const std::size_t first = upper ? 3 : 0;  // upper limits fill hi68 and hi95
+    double* column[5] = {&p.mass_lo95, &p.mass_lo68, &p.mass_med, &p.mass_hi68, &p.mass_hi95};
+    for (std::size_t k = 0; k < ps.size(); ++k) *column[first + k] = q[k];
+    if (opt.quantile_errors) {
+      const std::vector<double> e = quantile_errors(pool, nz, ps, q, pairs, kept);
+      std::copy(e.begin(), e.end(), p.mass_error.begin() + first);
     }
   }
   if (opt.keep_draws && sw > 0) {
@@ -1597,13 +1634,18 @@ nlohmann::ordered_json curve_point_json(const CurvePoint& p, bool upper_limit) {
   // The columns lo95 ... hi95 are the 2.5 ... 97.5 % quantiles; an upper
   // limit fills only hi68 and hi95, its 68 % and 95 % quantiles.
   static const double kPercent[5] = {2.5, 16, 50, 84, 97.5};
-  const double v[5] = {p.mass_lo95, p.mass_lo68, p.mass_med, p.mass_hi68, p.mass_hi95};
-  nlohmann::ordered_json mass =
-      upper_limit ? quantiles_json({{68, v[3]}, {95, v[4]}})
-                  : quantiles_json({{2.5, v[0]}, {16, v[1]}, {50, v[2]}, {84, v[3]}, {97.5, v[4]}});
-  nlohmann::ordered_json j = {{"a_au", p.a_au},      {"sep_mas", p.sep_mas},        {"period_yr", p.period_yr},
-                              {"weight", json_number(p.weight)},  {"mass_mjup", mass},           {"ess", json_number(p.ess)},
-                              {"notes", p.notes}};
+  auto by_quantile = [&](const std::array<double, 5>& v) {
+    return upper_limit ? quantiles_json({{68, v[3]}, {95, v[4]}})
+                       : quantiles_json({{2.5, v[0]}, {16, v[1]}, {50, v[2]}, {84, v[3]}, {97.5, v[4]}});
+  };
+  nlohmann::ordered_json j = {{"a_au", p.a_au},
+                              {"sep_mas", p.sep_mas},
+                              {"period_yr", p.period_yr},
+                              {"weight", json_number(p.weight)}};
+  j["mass_mjup"] = by_quantile({p.mass_lo95, p.mass_lo68, p.mass_med, p.mass_hi68, p.mass_hi95});
+  if (present(p.mass_error[4])) j["mass_mjup_error"] = by_quantile(p.mass_error);
+  j["ess"] = json_number(p.ess);
+  j["notes"] = p.notes;
   if (has_note(p.notes, "multiple_solutions")) {
     nlohmann::ordered_json roots;
     for (int k = 0; k < 5; ++k) roots["q" + format_double(kPercent[k])] = p.roots_mjup[k];

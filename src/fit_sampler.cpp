@@ -29,6 +29,7 @@ Eigen::MatrixXd walkers_from_curve(const FitModel& m, int walkers, Rng& rng, con
   co.refine_rounds = 1;
   co.seed = rng.next();
   co.keep_draws = true;
+  co.quantile_errors = false;  // only the draws are used
   std::vector<Eigen::VectorXd> xs;
   std::vector<double> lw;
   for (const OrbitDraw& d : montecarlo_curve(m.anomaly(), co, rng_id).draws) {

@@ -95,6 +95,7 @@ RankRecord rank_star(const StarRecord& star, const ScreenRow& row, const RankOpt
   }
   CurveOptions co = opt.curve;
   co.keep_draws = true;
+  co.quantile_errors = false;  // the ranked table has no use for them
   Curve c;
   const auto t0 = std::chrono::steady_clock::now();
   try {

@@ -60,6 +60,10 @@ struct CurveOptions {
   int refine_rounds = 2;        ///< adaptive refinement of the a grid
   std::uint64_t seed = 1;
   bool keep_draws = false;
+  /// Whether the mass quantiles' Monte Carlo errors are computed
+  /// (CurvePoint::mass_error): one more selection over the samples of each
+  /// separation.
+  bool quantile_errors = true;
 };
 
 /// One separation of a curve. Masses in Jupiter masses; NaN where not given.
@@ -74,6 +78,10 @@ struct CurvePoint {
   /// Analytic curves: every root (MJup, ascending) of the columns lo95, lo68,
   /// med, hi68, hi95 (empty for Monte Carlo curves).
   std::array<std::vector<double>, 5> roots_mjup;
+  /// Monte Carlo curves: the standard errors of mass_lo95 ... mass_hi95
+  /// (MJup; kAbsent where the column is), from the weighted samples alone
+  /// (docs/method.md, "Errors of the mass quantiles").
+  std::array<double, 5> mass_error{kAbsent, kAbsent, kAbsent, kAbsent, kAbsent};
 };
 
 struct Curve {

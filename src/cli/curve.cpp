@@ -44,6 +44,7 @@ int run_curve(CurveCliOptions o) {
     copt.a_au = log_grid(o.a_min_au, o.a_max_au, o.n_a);
   }
   copt.keep_draws = !o.keep_draws.empty();
+  copt.quantile_errors = !o.json.empty();  // written only there
   if (o.method != "montecarlo") copt.refine_rounds = 0;
   if (o.threads > 0) omp_set_num_threads(o.threads);
 
@@ -207,7 +208,8 @@ void setup_curve(CLI::App& app, Runner& run) {
   sub->add_flag("--all", o->all, "every star of the table (seconds each; a progress bar on a terminal)");
   sub->add_option("-o,--output", o->output, "curve table (CSV, ECSV or FITS); default stdout");
   add_format_option(sub, o->format);
-  sub->add_option("--json", o->json, "also write the curves as JSON (mode, ESS, priors)");
+  sub->add_option("--json", o->json,
+                  "also write the curves as JSON (mode, ESS, the mass quantiles' Monte Carlo errors, priors)");
   sub->add_option("--keep-draws", o->keep_draws,
                   "write weighted posterior orbit draws (CSV, docs/formats.md) for heft predict");
   sub->add_option("--method", o->method,
