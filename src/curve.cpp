@@ -1072,6 +1072,87 @@ constexpr double kTargetEss = 1000.0;
 // S/N >= 30.
 constexpr int kProposalBlocks = 4, kPriorBlocks = 8;
 
+// Monte Carlo standard errors of weighted quantiles x of the samples'
+// masses at probabilities ps (Woodruff 1952, J. Am. Stat. Assoc. 47, 635):
+// the standard error of the weighted distribution function at each x,
+// with the z samples of a draw summed since they share its orbit angles,
+// mapped to mass through the quantiles at p -+ that error, half their
+// distance. `pairs` (the samples' masses and weights, `kept` their total
+// weight) is reordered.
+std::vector<double> quantile_errors(const Pool& pool, int nz, const std::vector<double>& ps,
+                                    const std::vector<double>& x, std::vector<std::pair<double, double>>& pairs,
+                                    double kept) {
+  const std::size_t nq = ps.size();
+  std::vector<double> var(nq, 0.0), dev(nq);
+  for (std::size_t j = 0; j < pool.size; ++j) {
+    std::fill(dev.begin(), dev.end(), 0.0);
+    for (int s = 0; s < nz; ++s) {
+      const double w = pool.w[j * nz + s], m = pool.samples[j * nz + s].m2_mjup;
+      for (std::size_t k = 0; k < nq; ++k) dev[k] += w * ((m <= x[k] ? 1.0 : 0.0) - ps[k]);
+    }
+    for (std::size_t k = 0; k < nq; ++k) var[k] += dev[k] * dev[k];
+  }
+  std::vector<double> band;
+  for (std::size_t k = 0; k < nq; ++k) {
+    const double se_f = std::sqrt(var[k]) / pool.sum;
+    band.push_back(std::max(ps[k] - se_f, 0.0));
+    band.push_back(std::min(ps[k] + se_f, 1.0));
+  }
+  std::vector<std::size_t> order(band.size());
+  std::iota(order.begin(), order.end(), 0);
+  std::sort(order.begin(), order.end(), [&](std::size_t a, std::size_t b) { return band[a] < band[b]; });
+  std::vector<double> sorted_p(band.size());
+  for (std::size_t i = 0; i < order.size(); ++i) sorted_p[i] = band[order[i]];
+  const std::vector<double> sorted_x = weighted_quantiles(pairs, kept, sorted_p);
+  std::vector<double> at(band.size());
+  for (std::size_t i = 0; i < order.size(); ++i) at[order[i]] = sorted_x[i];
+  std::vector<double> err(nq);
+  for (std::size_t k = 0; k < nq; ++k) err[k] = 0.5 * (at[2 * k + 1] - at[2 * k]);
+  return err;
+}
+
+// The samples' masses and weights for the quantiles: those below 1e-12 of
+// the largest weight hold at most 1.3e-7 of the total together (131,072
+// samples at most) and are left out.
+struct MassSamples {
+  std::vector<std::pair<double, double>> pairs;
+  double kept = 0.0;  ///< their total weight
+};
+MassSamples mass_samples(const Pool& pool, int nz) {
+  constexpr double kNegligibleWeight = 1e-12;
+  MassSamples m;
+  const std::size_t n = pool.size * nz;
+  m.pairs.reserve(n);
+  for (std::size_t i = 0; i < n; ++i)
+    if (pool.w[i] > kNegligibleWeight) {
+      m.pairs.emplace_back(pool.samples[i].m2_mjup, pool.w[i]);
+      m.kept += pool.w[i];
+    }
+  return m;
+}
+
+// Whether the outermost quantiles of a point (an upper limit's 95 %, a
+// detection's 2.5 and 97.5 %) have Monte Carlo errors of at most `tol` of
+// their values (CurveOptions::quantile_tolerance).
+bool quantiles_precise(const Pool& pool, int nz, bool upper, double tol) {
+  if (!(pool.sum > 0)) return false;
+  MassSamples m = mass_samples(pool, nz);
+  const std::vector<double> ps = upper ? std::vector<double>{0.95} : std::vector<double>{0.025, 0.975};
+  const std::vector<double> q = weighted_quantiles(m.pairs, m.kept, ps);
+  const std::vector<double> e = quantile_errors(pool, nz, ps, q, m.pairs, m.kept);
+  for (std::size_t k = 0; k < ps.size(); ++k)
+    if (!(e[k] <= tol * q[k])) return false;
+  return true;
+}
+
+// Whether a point has what it needs: the target effective sample size and,
+// where asked for, precise outermost quantiles.
+bool point_done(const Pool& pool, const Problem& pb) {
+  if (pool.ess() < kTargetEss) return false;
+  return pb.opt.quantile_tolerance <= 0.0 || quantiles_precise(pool, pb.opt.z_samples, !pb.prior.log_uniform,
+                                                               pb.opt.quantile_tolerance);
+}
+
 struct RoundResult {
   std::size_t used = 0;  ///< draws weighed (a prefix of the round's draws)
   long evaluations = 0;
@@ -1113,7 +1194,7 @@ RoundResult run_round(const Problem& pb, const Proposal* prop, const ProposalDev
     pool.add_weights(offset + begin, offset + end, nz);
     r.used = end;
     pool.size = offset + end;
-    if (pool.ess() >= kTargetEss) break;
+    if (point_done(pool, pb)) break;
     if (ess_before + pool.round_ess() * static_cast<double>(n) / static_cast<double>(end) < min_projected_ess) break;
   }
   return r;
@@ -1132,45 +1213,6 @@ struct PointResult {
   long draws_weighed = 0, window_evaluations = 0;
   Proposal proposal;  ///< the last proposal used (empty without the adaptive stage)
 };
-
-// Monte Carlo standard errors of weighted quantiles x of the samples'
-// masses at probabilities ps (Woodruff 1952, J. Am. Stat. Assoc. 47, 635):
-// the standard error of the weighted distribution function at each x,
-// with the z samples of a draw summed since they share its orbit angles,
-// mapped to mass through the quantiles at p -+ that error, half their
-// distance. `pairs` (the samples' masses and weights, `kept` their total
-// weight) is reordered.
-std::vector<double> quantile_errors(const Pool& pool, int nz, const std::vector<double>& ps,
-                                    const std::vector<double>& x, std::vector<std::pair<double, double>>& pairs,
-                                    double kept) {
-  const std::size_t nq = ps.size();
-  std::vector<double> var(nq, 0.0), dev(nq);
-  for (std::size_t j = 0; j < pool.size; ++j) {
-    std::fill(dev.begin(), dev.end(), 0.0);
-    for (int s = 0; s < nz; ++s) {
-      const double w = pool.w[j * nz + s], m = pool.samples[j * nz + s].m2_mjup;
-      for (std::size_t k = 0; k < nq; ++k) dev[k] += w * ((m <= x[k] ? 1.0 : 0.0) - ps[k]);
-    }
-    for (std::size_t k = 0; k < nq; ++k) var[k] += dev[k] * dev[k];
-  }
-  std::vector<double> band;
-  for (std::size_t k = 0; k < nq; ++k) {
-    const double se_f = std::sqrt(var[k]) / pool.sum;
-    band.push_back(std::max(ps[k] - se_f, 0.0));
-    band.push_back(std::min(ps[k] + se_f, 1.0));
-  }
-  std::vector<std::size_t> order(band.size());
-  std::iota(order.begin(), order.end(), 0);
-  std::sort(order.begin(), order.end(), [&](std::size_t a, std::size_t b) { return band[a] < band[b]; });
-  std::vector<double> sorted_p(band.size());
-  for (std::size_t i = 0; i < order.size(); ++i) sorted_p[i] = band[order[i]];
-  const std::vector<double> sorted_x = weighted_quantiles(pairs, kept, sorted_p);
-  std::vector<double> at(band.size());
-  for (std::size_t i = 0; i < order.size(); ++i) at[order[i]] = sorted_x[i];
-  std::vector<double> err(nq);
-  for (std::size_t k = 0; k < nq; ++k) err[k] = 0.5 * (at[2 * k + 1] - at[2 * k]);
-  return err;
-}
 
 // One separation. `seed`: the final proposal of a neighbouring separation
 // that needed the adaptive stage (the posterior of the orbit angles changes
@@ -1227,7 +1269,7 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, DrawSet& d
   // 4-6 % fewer draws were weighed): the rounds end there.
   constexpr double kDegenerateEss = 1.5;
   int rounds = 0;
-  while (rounds < kMaxAdaptiveRounds && pool.ess() < kTargetEss && !(rounds >= 1 && pool.ess() < kDegenerateEss)) {
+  while (rounds < kMaxAdaptiveRounds && !point_done(pool, pb) && !(rounds >= 1 && pool.ess() < kDegenerateEss)) {
     r.proposal = proposal_from(pool.draws.data(), pool.w.data(), pool.size, nz, opt.prior.ecc);
     run(&r.proposal, ++rounds < kMaxAdaptiveRounds ? kTargetEss : kLowEss);
   }
@@ -1267,25 +1309,15 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, DrawSet& d
                        : -std::numeric_limits<double>::infinity();
   p.mass_lo95 = p.mass_lo68 = p.mass_med = p.mass_hi68 = p.mass_hi95 = kAbsent;
   if (sw > 0) {
-    // Samples below 1e-12 of the largest weight hold at most 1.3e-7 of the
-    // total together (131,072 samples at most): left out of the selection.
-    constexpr double kNegligibleWeight = 1e-12;
-    std::vector<std::pair<double, double>> pairs;
-    pairs.reserve(n_samples);
-    double kept = 0.0;
-    for (std::size_t i = 0; i < n_samples; ++i)
-      if (pool.w[i] > kNegligibleWeight) {
-        pairs.emplace_back(pool.samples[i].m2_mjup, pool.w[i]);
-        kept += pool.w[i];
-      }
+    MassSamples m = mass_samples(pool, nz);
     const std::vector<double> ps = upper ? std::vector<double>{0.68, 0.95}
                                          : std::vector<double>{0.025, 0.16, 0.5, 0.84, 0.975};
-    const std::vector<double> q = weighted_quantiles(pairs, kept, ps);
+    const std::vector<double> q = weighted_quantiles(m.pairs, m.kept, ps);
     const std::size_t first = upper ? 3 : 0;  // upper limits fill hi68 and hi95
     double* column[5] = {&p.mass_lo95, &p.mass_lo68, &p.mass_med, &p.mass_hi68, &p.mass_hi95};
     for (std::size_t k = 0; k < ps.size(); ++k) *column[first + k] = q[k];
     if (opt.quantile_errors) {
-      const std::vector<double> e = quantile_errors(pool, nz, ps, q, pairs, kept);
+      const std::vector<double> e = quantile_errors(pool, nz, ps, q, m.pairs, m.kept);
       std::copy(e.begin(), e.end(), p.mass_error.begin() + first);
     }
   }

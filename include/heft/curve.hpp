@@ -64,6 +64,11 @@ struct CurveOptions {
   /// (CurvePoint::mass_error): one more selection over the samples of each
   /// separation.
   bool quantile_errors = true;
+  /// Where positive, a separation's rounds go on past the effective-size
+  /// target (within their four rounds of `draws`) until the Monte Carlo
+  /// error of its outermost quantiles (an upper limit's 95 %, a detection's
+  /// 2.5 and 97.5 %) is at most this fraction of their value.
+  double quantile_tolerance = 0.0;
 };
 
 /// One separation of a curve. Masses in Jupiter masses; NaN where not given.

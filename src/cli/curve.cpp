@@ -174,6 +174,7 @@ int run_curve(CurveCliOptions o) {
     nlohmann::ordered_json run = counter.run_json("curve", in.name());
     run["method"] = o.method;
     run["draws"] = copt.draws;
+    run["quantile_tolerance"] = copt.quantile_tolerance;
     run["ecc_prior"] = copt.prior.ecc.str();
     run["mass_prior"] = {{"detection", copt.prior.mass_prior(false).describe()},
                          {"upper_limit", copt.prior.mass_prior(true).describe()},
@@ -231,6 +232,12 @@ void setup_curve(CLI::App& app, Runner& run) {
       ->delimiter(',')
       ->check(CLI::PositiveNumber);
   add_draws_option(sub, c.draws);
+  sub->add_option("--quantile-tolerance", c.quantile_tolerance,
+                  "keep drawing (up to four rounds of --draws per separation) until the Monte Carlo error of the "
+                  "95 % upper limit, or of a detection's 2.5 and 97.5 % quantiles, is at most this fraction of "
+                  "their value (0: off; e.g. 0.05)")
+      ->check(CLI::Range(0.0, 1.0))
+      ->capture_default_str();
   add_prior_options(sub, c.prior, o->ecc, "below this sig_joint the curve is an upper limit (prior uniform in mass)");
   sub->add_option("--starts", o->starts, "optimiser starts per separation (profile method)")
       ->check(CLI::Range(1, 10000))->capture_default_str();
