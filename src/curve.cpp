@@ -1077,8 +1077,8 @@ constexpr int kProposalBlocks = 4, kPriorBlocks = 8;
 // the standard error of the weighted distribution function at each x,
 // with the z samples of a draw summed since they share its orbit angles,
 // mapped to mass through the quantiles at p -+ that error, half their
-// distance. `pairs` (the samples' masses and weights, `kept` their total
-// weight) is reordered.
+// distance (absent where that is zero). `pairs` (the samples' masses and
+// weights, `kept` their total weight) is reordered.
 std::vector<double> quantile_errors(const Pool& pool, int nz, const std::vector<double>& ps,
                                     const std::vector<double>& x, std::vector<std::pair<double, double>>& pairs,
                                     double kept) {
@@ -1106,8 +1106,10 @@ std::vector<double> quantile_errors(const Pool& pool, int nz, const std::vector<
   const std::vector<double> sorted_x = weighted_quantiles(pairs, kept, sorted_p);
   std::vector<double> at(band.size());
   for (std::size_t i = 0; i < order.size(); ++i) at[order[i]] = sorted_x[i];
+  // Where one sample holds more weight than that error the two quantiles
+  // are the same sample, and the samples cannot tell the error: absent.
   std::vector<double> err(nq);
-  for (std::size_t k = 0; k < nq; ++k) err[k] = 0.5 * (at[2 * k + 1] - at[2 * k]);
+  for (std::size_t k = 0; k < nq; ++k) err[k] = at[2 * k + 1] > at[2 * k] ? 0.5 * (at[2 * k + 1] - at[2 * k]) : kAbsent;
   return err;
 }
 
@@ -1316,7 +1318,7 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, DrawSet& d
     const std::size_t first = upper ? 3 : 0;  // upper limits fill hi68 and hi95
     double* column[5] = {&p.mass_lo95, &p.mass_lo68, &p.mass_med, &p.mass_hi68, &p.mass_hi95};
     for (std::size_t k = 0; k < ps.size(); ++k) *column[first + k] = q[k];
-    if (opt.quantile_errors) {
+    if (opt.quantile_errors && p.ess >= kLowEss) {  // below it the band itself is noise
       const std::vector<double> e = quantile_errors(pool, nz, ps, q, m.pairs, m.kept);
       std::copy(e.begin(), e.end(), p.mass_error.begin() + first);
     }
@@ -1662,7 +1664,7 @@ void append_curve_rows(std::string& out, const std::string& id, const Curve& c) 
   }
 }
 
-nlohmann::ordered_json curve_point_json(const CurvePoint& p, bool upper_limit) {
+nlohmann::ordered_json curve_point_json(const CurvePoint& p, bool upper_limit, bool errors) {
   // The columns lo95 ... hi95 are the 2.5 ... 97.5 % quantiles; an upper
   // limit fills only hi68 and hi95, its 68 % and 95 % quantiles.
   static const double kPercent[5] = {2.5, 16, 50, 84, 97.5};
@@ -1675,7 +1677,7 @@ nlohmann::ordered_json curve_point_json(const CurvePoint& p, bool upper_limit) {
                               {"period_yr", p.period_yr},
                               {"weight", json_number(p.weight)}};
   j["mass_mjup"] = by_quantile({p.mass_lo95, p.mass_lo68, p.mass_med, p.mass_hi68, p.mass_hi95});
-  if (present(p.mass_error[4])) j["mass_mjup_error"] = by_quantile(p.mass_error);
+  if (errors) j["mass_mjup_error"] = by_quantile(p.mass_error);
   j["ess"] = json_number(p.ess);
   j["notes"] = p.notes;
   if (has_note(p.notes, "multiple_solutions")) {

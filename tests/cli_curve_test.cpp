@@ -34,9 +34,17 @@ TEST_CASE("heft curve CLI: deterministic, modes in JSON, bad input", "[curve][cl
       const std::vector<std::string> keys = s["mode"] == "detection"
                                                 ? std::vector<std::string>{"q16", "q2.5", "q50", "q84", "q97.5"}
                                                 : std::vector<std::string>{"q68", "q95"};
-      std::vector<std::string> got;
+      std::vector<std::string> got, got_err;
       for (const auto& [k, v] : m.items()) got.push_back(k);
       CHECK(got == keys);
+      // their Monte Carlo errors under the same keys: positive, or null
+      // (below 100 effective samples, or one sample holding the quantile)
+      for (const auto& [k, v] : p["mass_mjup_error"].items()) {
+        got_err.push_back(k);
+        CHECK((v.is_null() || v.get<double>() > 0.0));
+        if (p["ess"].get<double>() < 100.0) CHECK(v.is_null());
+      }
+      CHECK(got_err == keys);
     }
     if (compared || s["mode"] != "detection") continue;
     for (std::size_t r = 0; r < t.rows.size(); ++r)
@@ -69,6 +77,9 @@ TEST_CASE("heft curve CLI: deterministic, modes in JSON, bad input", "[curve][cl
   CHECK(test::run_heft("curve -q " + stars + " --id NOPE", &err) == 2);
   CHECK(err.find("NOPE") != std::string::npos);
   CHECK(test::run_heft("curve -q --all " + stars + " --ecc beta:1", &err) == 1);  // a bad option value is a usage error
+  CHECK(test::run_heft("curve -q --all " + stars + " --quantile-tolerance 1.5", &err) == 1);
+  CHECK(test::run_heft("curve -q --all " + stars + " --method analytic --quantile-tolerance 0.1", &err) == 1);
+  CHECK_THAT(err, Catch::Contains("--method montecarlo only"));
   // Which stars is always said (a curve costs seconds): none of --id, --ids,
   // --all is a usage error; --ids names the ids it could not find.
   CHECK(test::run_heft("curve -q " + stars, &err) == 1);

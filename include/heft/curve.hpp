@@ -84,8 +84,9 @@ struct CurvePoint {
   /// med, hi68, hi95 (empty for Monte Carlo curves).
   std::array<std::vector<double>, 5> roots_mjup;
   /// Monte Carlo curves: the standard errors of mass_lo95 ... mass_hi95
-  /// (MJup; kAbsent where the column is), from the weighted samples alone
-  /// (docs/method.md, "Errors of the mass quantiles").
+  /// (MJup), from the weighted samples alone (docs/method.md, "Errors of
+  /// the mass quantiles"); kAbsent where the column is, below kLowEss
+  /// effective samples, and where one sample holds the quantile.
   std::array<double, 5> mass_error{kAbsent, kAbsent, kAbsent, kAbsent, kAbsent};
 };
 
@@ -174,9 +175,11 @@ std::vector<CurvePoint> read_curve_table(std::istream& in, const std::string& na
 
 /// One point of a curve as JSON (the `points` of `heft curve --json`): a_au,
 /// sep_mas, period_yr, weight, the mass quantiles as "mass_mjup" (q2.5,
-/// q16, q50, q84, q97.5; an upper limit's q68 and q95), ess, notes, and for
-/// analytic curves with several roots "roots_mjup" under the same keys.
-nlohmann::ordered_json curve_point_json(const CurvePoint& p, bool upper_limit);
+/// q16, q50, q84, q97.5; an upper limit's q68 and q95), with `errors` their
+/// Monte Carlo errors as "mass_mjup_error" under the same keys (null where
+/// absent), ess, notes, and for analytic curves with several roots
+/// "roots_mjup" under the same keys.
+nlohmann::ordered_json curve_point_json(const CurvePoint& p, bool upper_limit, bool errors);
 
 /// The curve table's columns with their units, in output order.
 const std::vector<ColumnUnit>& curve_column_units();

@@ -46,6 +46,8 @@ int run_curve(CurveCliOptions o) {
   copt.keep_draws = !o.keep_draws.empty();
   copt.quantile_errors = !o.json.empty();  // written only there
   if (o.method != "montecarlo") copt.refine_rounds = 0;
+  if (copt.quantile_tolerance > 0 && o.method != "montecarlo")
+    throw CLI::ValidationError("--quantile-tolerance applies to --method montecarlo only");
   if (o.threads > 0) omp_set_num_threads(o.threads);
 
   // A curve costs seconds: which stars is always said, never implied.
@@ -159,7 +161,8 @@ int run_curve(CurveCliOptions o) {
         j["log10_bayes_error"] = json_number(c.log10_bayes_error);
       }
       nlohmann::ordered_json pts = nlohmann::ordered_json::array();
-      for (const auto& p : c.points) pts.push_back(curve_point_json(p, c.upper_limit));
+      for (const auto& p : c.points)
+        pts.push_back(curve_point_json(p, c.upper_limit, copt.quantile_errors && o.method == "montecarlo"));
       j["points"] = pts;
     }
     if (json) json->write(std::string(n_json++ ? ",\n" : "") + j.dump());
