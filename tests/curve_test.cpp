@@ -31,6 +31,29 @@ AnomalyData data_for(const Orbit<double>& o, double a_au, double m2_mjup, double
 }
 const Window kEarly{1989.85, 1993.21, 1991.25, {}, {}}, kLate{2014.57, 2017.41, 2016.0, {}, {}};
 
+// System `index` of a coverage population (coverage_survey), screened: its
+// anomaly data, truth and whether it could be screened.
+struct CoverageSystem {
+  std::string id;
+  AnomalyData d;
+  SimTruth t;
+  double sig_joint = 0.0;
+  bool ok = false;
+};
+CoverageSystem coverage_system(const SurveyModel& m, long index) {
+  CoverageSystem c;
+  StarRecord s;
+  simulate_star(m, index, s, c.t);
+  c.id = s.id;
+  const ScreenRow row = screen_star(s, validate_star(s), ScreenOptions{});
+  c.ok = row.ok();
+  if (!c.ok) return c;
+  bool have_mass = false;
+  c.d = anomaly_data(s, row.result, kAbsent, kAbsent, have_mass);
+  c.sig_joint = row.result.sig_joint;
+  return c;
+}
+
 // A star with no significant anomaly (sig_joint 1) at 20 mas.
 AnomalyData no_signal_data() {
   AnomalyData d = data_for(Orbit<double>{10, 0, 0, 0, 0, 0, 2016}, 5.0, 0.0, 1.0, 20.0, 0.03, 0.5,
@@ -462,19 +485,14 @@ TEST_CASE("mass quantiles: their quoted errors match their scatter between seeds
     double sum_var = 0.0, sum_e2 = 0.0;
     int systems = 0;
     for (long i = 0; systems < 3; ++i) {
-      StarRecord s;
-      SimTruth t;
-      simulate_star(m, i, s, t);
-      const ScreenRow row = screen_star(s, validate_star(s), ScreenOptions{});
-      if (!row.ok() || !t.companion || !(upper ? row.result.sig_joint < 3.0 : row.result.sig_joint >= 6.0)) continue;
+      const CoverageSystem c = coverage_system(m, i);
+      if (!c.ok || !c.t.companion || !(upper ? c.sig_joint < 3.0 : c.sig_joint >= 6.0)) continue;
       ++systems;
-      bool ok = false;
-      const AnomalyData d = anomaly_data(s, row.result, kAbsent, kAbsent, ok);
-      opt.a_au = {t.a_au};
+      opt.a_au = {c.t.a_au};
       std::vector<std::array<double, 5>> v, e;
       for (unsigned seed = 1; seed <= 16; ++seed) {
         opt.seed = seed;
-        const CurvePoint p = montecarlo_curve(d, opt, s.id).points[0];
+        const CurvePoint p = montecarlo_curve(c.d, opt, c.id).points[0];
         v.push_back({p.mass_lo95, p.mass_lo68, p.mass_med, p.mass_hi68, p.mass_hi95});
         e.push_back(p.mass_error);
       }
@@ -521,24 +539,18 @@ TEST_CASE("quantile tolerance: an upper limit's tail is drawn until its error me
   opt.prior.m_min_mjup = 1;
   opt.prior.m_max_mjup = 200;
   opt.refine_rounds = 0;
-  const SurveyModel m = coverage_survey(opt, 1.0, 50.0, 99, true);
-  StarRecord s;
-  SimTruth t;
-  simulate_star(m, 486, s, t);
-  const ScreenRow row = screen_star(s, validate_star(s), ScreenOptions{});
-  REQUIRE(row.ok());
-  bool ok = false;
-  const AnomalyData d = anomaly_data(s, row.result, kAbsent, kAbsent, ok);
-  REQUIRE(row.result.sig_joint < 3.0);
-  opt.a_au = {t.a_au};
+  const CoverageSystem c = coverage_system(coverage_survey(opt, 1.0, 50.0, 99, true), 486);
+  REQUIRE(c.ok);
+  REQUIRE(c.sig_joint < 3.0);
+  opt.a_au = {c.t.a_au};
   auto scatter = [&](double tol) {
     opt.quantile_tolerance = tol;
     std::vector<double> v;
     for (unsigned seed = 1; seed <= 8; ++seed) {
       opt.seed = seed;
-      const Curve c = montecarlo_curve(d, opt, s.id);
-      const CurvePoint& p = c.points[0];
-      if (tol > 0) CHECK((p.mass_error[4] <= tol * p.mass_hi95 || c.draws_weighed == 4L * opt.draws));
+      const Curve curve = montecarlo_curve(c.d, opt, c.id);
+      const CurvePoint& p = curve.points[0];
+      if (tol > 0) CHECK((p.mass_error[4] <= tol * p.mass_hi95 || curve.draws_weighed == 4L * opt.draws));
       v.push_back(p.mass_hi95);
     }
     double mean = 0, var = 0;
@@ -566,19 +578,15 @@ TEST_CASE("upper limit at a short period: the heavy companions the data allow ar
   CurveOptions opt;
   opt.prior.m_min_mjup = 1;
   opt.prior.m_max_mjup = 200;
-  const SurveyModel m = coverage_survey(opt, 1.0, 50.0, 99, true);
-  StarRecord s;
-  SimTruth t;
-  simulate_star(m, 108, s, t);
-  const ScreenRow row = screen_star(s, validate_star(s), ScreenOptions{});
-  REQUIRE(row.ok());
-  bool ok = false;
-  const AnomalyData d = anomaly_data(s, row.result, kAbsent, kAbsent, ok);
-  CHECK(row.result.sig_joint < 3.0);  // an upper limit
+  const CoverageSystem sys = coverage_system(coverage_survey(opt, 1.0, 50.0, 99, true), 108);
+  REQUIRE(sys.ok);
+  const AnomalyData& d = sys.d;
+  const SimTruth& t = sys.t;
+  CHECK(sys.sig_joint < 3.0);  // an upper limit
   CHECK(t.period_yr < 1.5);
   opt.a_au = {t.a_au};
   opt.refine_rounds = 0;
-  const Curve c = montecarlo_curve(d, opt, s.id);
+  const Curve c = montecarlo_curve(d, opt, sys.id);
   REQUIRE(c.upper_limit);
   const PlainSampling ref = plain_sampling(d, t.a_au, opt.prior.mass_prior(true), opt.prior.ecc, 400000, {0.68, 0.95});
   INFO("curve " << c.points[0].mass_hi68 << " / " << c.points[0].mass_hi95 << ", plain " << ref.mass_quantiles[0]
