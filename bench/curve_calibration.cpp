@@ -9,8 +9,9 @@
 // so that the rounds at the true a start from the neighbours' proposals.
 //
 // Usage: curve_calibration [systems=400] [draws=2048] [--full-grid] [--seed N]
+//                          [--quantile-tolerance FRAC]
 // (--seed: the curves' Monte Carlo seed, as `heft curve --seed`; the systems
-// stay the same.)
+// stay the same. --quantile-tolerance: as `heft curve`.)
 
 #include <chrono>
 #include <cstdio>
@@ -35,6 +36,8 @@ int main(int argc, char** argv) {
       full_grid = true;
     } else if (std::strcmp(argv[i], "--seed") == 0 && i + 1 < argc) {
       o.seed = std::strtoull(argv[++i], nullptr, 10);
+    } else if (std::strcmp(argv[i], "--quantile-tolerance") == 0 && i + 1 < argc) {
+      o.quantile_tolerance = std::atof(argv[++i]);
     } else {
       pos.push_back(argv[i]);
     }
