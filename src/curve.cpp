@@ -536,14 +536,30 @@ struct PendingDraw {
 struct TotalMassMixture {
   double log_frac_ref, log_frac_prior;  ///< the strata's shares of the samples
   double log_1mq_ref;                   ///< of the draw's reference total mass
-  // log of the mixture's density at (m_total, z) for a sample with
-  // log_r_ref the log density of z given m_total in the first stratum and
-  // log_prior the joint prior's, log p_host(m1) + log_density_total.
-  double log_density(const AnomalyData& d, double m_total, double log_r_ref, double log_prior) const {
-    return log_add_exp(log_frac_ref + log_host_density(d, m_total * std::exp(log_1mq_ref)) + log_1mq_ref + log_r_ref,
+  // The log weight of a sample z at m_total with host m1: the target
+  // p_host(m1) (1 - q) p(z | m1) L(z) over the mixture of the first
+  // stratum's density (m_total from the reference, z from the Gaussian zs
+  // at m_total where it is narrow, else from the prior) and the joint
+  // prior's.
+  double log_weight(const Problem& pb, const ZSampler& zs, bool narrow, const Eigen::Vector2d& z, double m_total,
+                    double m1) const {
+    const double log_prior_z = pb.prior.log_density_total(z.norm(), m_total);
+    const double log_prior = log_host_density(pb.d, m1) + log_prior_z;
+    const double log_r_ref = narrow ? -zs.half_dist2(z) - zs.log_gauss_norm : log_prior_z;
+    return log_prior + zs.log_likelihood(z) -
+           log_add_exp(log_frac_ref + log_host_density(pb.d, m_total * std::exp(log_1mq_ref)) + log_1mq_ref + log_r_ref,
                        log_frac_prior + log_prior);
   }
 };
+
+// Stores a weighed z sample.
+void store_sample(Sample& o, double log_w, double m2_msun, double m1_msun, const Eigen::Vector2d& z) {
+  o.log_w = std::isfinite(log_w) ? log_w : -std::numeric_limits<double>::infinity();
+  o.m2_mjup = m2_msun * units::kMjupPerMsun;
+  o.m1_msun = m1_msun;
+  o.z1 = z.x();
+  o.z2 = z.y();
+}
 
 // The first z samples [0, s_end) of a draw weighed with total mass m_total,
 // from its design matrix K at P(m_total); log_proposal is the log density
@@ -574,23 +590,10 @@ void weigh_samples_total(const Problem& pb, const PendingDraw& pd, const Mat42& 
       z << f * u.z1, f * u.z2;
       log_w = z.norm() < 1.0 ? zs.log_likelihood(z) : -std::numeric_limits<double>::infinity();
     }
-    const double q = z.norm();
-    const double log_host = log_host_density(d, m_total * (1.0 - q));
-    Sample& o = pd.out[s];
-    if (!mix) {
-      o.log_w = log_w + log_host - log_proposal;
-    } else {
-      const double log_prior_z = prior.log_density_total(q, m_total);
-      const double log_r_ref = gaussian ? -zs.half_dist2(z) - zs.log_gauss_norm : log_prior_z;
-      o.log_w = log_host + log_prior_z + zs.log_likelihood(z) -
-                mix->log_density(d, m_total, log_r_ref, log_host + log_prior_z);
-    }
-    o.log_w += pd.log_extra;
-    if (!std::isfinite(o.log_w)) o.log_w = -std::numeric_limits<double>::infinity();
-    o.m2_mjup = m_total * q * units::kMjupPerMsun;
-    o.m1_msun = m_total * (1.0 - q);
-    o.z1 = z.x();
-    o.z2 = z.y();
+    const double q = z.norm(), m1 = m_total * (1.0 - q);
+    if (mix) log_w = mix->log_weight(pb, zs, gaussian, z, m_total, m1);
+    else log_w = log_w + log_host_density(d, m1) - log_proposal;
+    store_sample(pd.out[s], log_w + pd.log_extra, m_total * q, m1, z);
   }
 }
 
@@ -598,25 +601,12 @@ void weigh_samples_total(const Problem& pb, const PendingDraw& pd, const Mat42& 
 // design matrix K at its own total mass.
 void weigh_prior_sample_total(const Problem& pb, const PendingDraw& pd, int s, const Mat42& k, double m_total,
                               const TotalMassMixture& mix) {
-  const AnomalyData& d = pb.d;
   const ZDeviates& u = pb.ds.dev[pd.dr->dev + s];
   const Eigen::Vector2d z(u.z1, u.z2);
-  const double q = z.norm();
   const GaussianZ g = gaussian_z(pb, k);
   const ZSampler zs(pb, g);
-  const double log_host = log_host_density(d, pd.dr->m1);
-  const double log_prior_z = pb.prior.log_density_total(q, m_total);
-  // the first stratum's density of this z at this total mass
-  const double log_r_ref =
-      zs.narrow(pb.prior.m_hi_msun / m_total) ? -zs.half_dist2(z) - zs.log_gauss_norm : log_prior_z;
-  Sample& o = pd.out[s];
-  o.log_w = log_host + log_prior_z + zs.log_likelihood(z) -
-            mix.log_density(d, m_total, log_r_ref, log_host + log_prior_z) + pd.log_extra;
-  if (!std::isfinite(o.log_w)) o.log_w = -std::numeric_limits<double>::infinity();
-  o.m2_mjup = m_total * q * units::kMjupPerMsun;
-  o.m1_msun = pd.dr->m1;
-  o.z1 = z.x();
-  o.z2 = z.y();
+  const double log_w = mix.log_weight(pb, zs, zs.narrow(pb.prior.m_hi_msun / m_total), z, m_total, pd.dr->m1);
+  store_sample(pd.out[s], log_w + pd.log_extra, m_total * z.norm(), pd.dr->m1, z);
 }
 
 // Draws weighed with total mass fixed at once, at most.
@@ -644,6 +634,8 @@ constexpr int kDrawBatch = 8;
 long weigh_total_batch(const Problem& pb, const PendingDraw* p, int n) {
   const AnomalyData& d = pb.d;
   const int nz = pb.opt.z_samples, n_prior = defensive_z_samples(pb);
+  const double log_frac_ref = std::log(static_cast<double>(nz - n_prior) / nz),
+               log_frac_prior = std::log(static_cast<double>(n_prior) / nz);
   std::array<Orbit<double>, kDrawBatch> o{};
   std::array<WindowBasis<double>, kDrawBatch> be, bl;
   std::array<double, kDrawBatch> m_total, log_proposal;
@@ -659,8 +651,7 @@ long weigh_total_batch(const Problem& pb, const PendingDraw* p, int n) {
     const double log_1mq_ref = std::log1p(-q_ref);
     m_total[i] = dr.m1 / (1.0 - q_ref);
     log_proposal[i] = log_host_density(d, dr.m1) + log_1mq_ref;
-    mix[i] = {std::log(static_cast<double>(nz - n_prior) / nz), std::log(static_cast<double>(n_prior) / nz),
-              log_1mq_ref};
+    mix[i] = {log_frac_ref, log_frac_prior, log_1mq_ref};
     dr.x_start = x_of(log_1mq_ref);  // the period used, for a later weigh_draw_periods
     o[i].period_yr = period_from_a(pb.a_au, m_total[i]);
   }
