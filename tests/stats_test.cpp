@@ -111,13 +111,20 @@ TEST_CASE("weighted quantiles by selection equal those of the sorted values", "[
   // Weights are multiples of 1/8 so every cumulative sum is exact and the
   // two must agree exactly; values include ties.
   const std::vector<double> ps = {0.0, 0.025, 0.16, 0.5, 0.84, 0.975, 1.0};
+  // Above 2,048 pairs the buckets are used: sets with negative values, one
+  // distinct value, and a far outlier beside a narrow cluster (one bucket
+  // holds nearly every pair) are among them.
   for (const std::size_t n : {std::size_t{0}, std::size_t{1}, std::size_t{7}, std::size_t{65},
-                              std::size_t{1000}, std::size_t{32768}}) {
+                              std::size_t{1000}, std::size_t{2049}, std::size_t{32768}, std::size_t{32769},
+                              std::size_t{32770}, std::size_t{32771}}) {
     std::mt19937_64 gen(n + 1);
     std::vector<std::pair<double, double>> pairs;
     double total = 0.0;
     for (std::size_t i = 0; i < n; ++i) {
-      const double v = static_cast<double>(gen() % (n / 3 + 1)) + 0.25 * static_cast<double>(gen() % 4);
+      double v = static_cast<double>(gen() % (n / 3 + 1)) + 0.25 * static_cast<double>(gen() % 4);
+      if (n == 32769) v -= static_cast<double>(n / 6);  // about half negative
+      if (n == 32770) v = 3.5;
+      if (n == 32771) v = i == 0 ? 1e6 : 1.0 + 1e-9 * static_cast<double>(gen() % 1000);
       const double w = static_cast<double>(gen() % 17) / 8.0;
       pairs.emplace_back(v, w);
       total += w;

@@ -39,7 +39,9 @@ double normal_quantile(double p);
 double weighted_quantile(const std::vector<std::pair<double, double>>& sorted, double total, double p);
 
 /// The same quantiles for several p (ascending) of unsorted (value, weight)
-/// pairs by selection (expected linear time, no full sort); `pairs` is
+/// pairs in expected linear time, no full sort: the weight is summed in
+/// buckets of the values and only the buckets holding the quantiles are
+/// searched, by selection (small sets by selection alone); `pairs` may be
 /// reordered. Equal to weighted_quantile on the sorted pairs up to the
 /// rounding of the cumulative sums (NaN when empty).
 std::vector<double> weighted_quantiles(std::vector<std::pair<double, double>>& pairs, double total,
