@@ -1012,6 +1012,7 @@ long weigh_proposal(const Problem& pb, const ProposalDeviates& pd, const Proposa
         const std::size_t i = offset + j;
         Draw& dr = pool.draws[i];
         dr = pd.prior[j];
+        bool inside = true;  // the kernels' tails beyond |cos i| = 1 have no weight
         if (pd.pick[j] >= 0.5) {  // from a kernel, else from the prior component
           const std::size_t m = static_cast<std::size_t>(pd.pick[j + n] * n_anc) % n_anc;
           const Coords& a = prop.anc[m];
@@ -1020,6 +1021,7 @@ long weigh_proposal(const Problem& pb, const ProposalDeviates& pd, const Proposa
           cc(1) = wrap_2pi(cc(1));
           cc(2) = wrap_2pi(cc(2));
           if (opt.prior.ecc.kind == Distribution::Kind::kFixed) cc(3) = dr.ecc;
+          inside = std::abs(cc(0)) <= 1.0;
           dr.inc = std::acos(std::clamp(cc(0), -1.0, 1.0));
           dr.omega = cc(1);
           dr.m0 = cc(2);
@@ -1027,7 +1029,7 @@ long weigh_proposal(const Problem& pb, const ProposalDeviates& pd, const Proposa
           prepare_draw(dr, pb.prior);
         }
         const Coords cd = coords_of(dr);
-        const double lp = log_prior_coords(cd, opt.prior.ecc);
+        const double lp = inside ? log_prior_coords(cd, opt.prior.ecc) : -std::numeric_limits<double>::infinity();
         if (std::isfinite(lp)) {
           // Mixture density 0.5 prior + 0.5 kernels.
           const double mix = log_add_exp(lp, mixture.log_density(cd, scratch)) - std::log(2.0);
