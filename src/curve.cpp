@@ -830,7 +830,9 @@ double log_prior_coords(const Coords& c, const Distribution& ecc) {
 double exp_or_zero(double t) { return t > -746.0 ? std::exp(t) : 0.0; }
 
 // Gaussian kernels in the orbit-angle coordinates around ancestors, with
-// per-axis widths; angles (in [0, 2 pi)) wrap. An ancestor drawn several
+// per-axis widths; in the angles (in [0, 2 pi)) each kernel is truncated to
+// within pi of its centre (kernel_offset), so that its density is the
+// Gaussian at the nearest image, renormalised. An ancestor drawn several
 // times (systematic resampling of a peaked posterior) is one kernel with
 // its count. The mixture's log density skips kernels whose exponent is more
 // than kKernelCut below the nearest one (their share is below
@@ -844,6 +846,7 @@ class KernelMixture {
       if (width(i) > 0.0) {
         inv_w2_(i) = 1.0 / (width(i) * width(i));
         log_norm_ += std::log(width(i) * std::sqrt(units::kTwoPi));
+        if (is_angle(i)) log_norm_ += std::log(std::erf(units::kPi / (width(i) * std::numbers::sqrt2)));
       }
     // Resampling puts copies of an ancestor next to each other.
     for (std::size_t m = 0; m < anc.size(); ++m) {
@@ -861,7 +864,7 @@ class KernelMixture {
     for (int i = 0; i < 4; ++i) {
       const double ci = c(i), w = inv_w2_(i);
       const double* a = centre_[i].data();
-      const bool angle = i == 1 || i == 2;
+      const bool angle = is_angle(i);
       for (std::size_t m = 0; m < n; ++m) {
         double dx = ci - a[m];
         if (angle) dx = dx > units::kPi ? dx - units::kTwoPi : (dx < -units::kPi ? dx + units::kTwoPi : dx);
@@ -874,6 +877,7 @@ class KernelMixture {
       if (q[m] - q_min < kKernelCut) s += count_[m] * std::exp(q_min - q[m]);
     return -q_min + std::log(s) - log_norm_;
   }
+  static bool is_angle(int i) { return i == 1 || i == 2; }
 
  private:
   static constexpr double kKernelCut = 40.0;
@@ -891,6 +895,21 @@ struct Proposal {
   std::vector<double> anc_x;  ///< the ancestors' Draw::x_start
   Coords width = Coords::Zero();
 };
+
+// A kernel's offset in an angle from the standard normal deviate n, for
+// width w: the Gaussian truncated to [-pi, pi] by the inverse of its
+// distribution function, so that the density KernelMixture gives (the
+// nearest image's) is exact. Wrapped instead, a kernel as wide as the
+// widths' cap (2 rad) has twice that density at pi from its centre. Where
+// the truncation removes less than 1e-15 (w below pi / 8) the deviate is
+// used as it is.
+double kernel_offset(double n, double w) {
+  const double t = units::kPi / w;
+  if (t > 8.0) return w * n;
+  const double tail = 0.5 * std::erfc(t / std::numbers::sqrt2);  // Phi(-t)
+  const double u = 0.5 * std::erfc(-n / std::numbers::sqrt2);      // Phi(n)
+  return w * std::clamp(normal_quantile(tail + u * (1.0 - 2.0 * tail)), -t, t);
+}
 
 // Ancestors by systematic resampling of n weighted draws (nz weights w
 // each, one per z sample), and kernel widths from their spread.
@@ -1018,6 +1037,7 @@ long weigh_proposal(const Problem& pb, const ProposalDeviates& pd, const Proposa
           const Coords& a = prop.anc[m];
           dr.x_start = prop.anc_x[m];
           Coords cc = a + prop.width.cwiseProduct(pd.kernel[j]);
+          for (int k = 1; k <= 2; ++k) cc(k) = a(k) + kernel_offset(pd.kernel[j](k), prop.width(k));
           cc(1) = wrap_2pi(cc(1));
           cc(2) = wrap_2pi(cc(2));
           if (opt.prior.ecc.kind == Distribution::Kind::kFixed) cc(3) = dr.ecc;
