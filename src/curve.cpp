@@ -34,6 +34,17 @@ AnomalyData anomaly_data(const StarRecord& star, const AnomalyResult& r, double 
   return d;
 }
 
+bool curve_eccentricity_ok(const Distribution& ecc) {
+  return ecc.kind == Distribution::Kind::kBeta || ecc.p1 <= kCurveMaxEcc;
+}
+
+void check_curve_eccentricity(const Distribution& ecc, const std::string& option) {
+  if (!curve_eccentricity_ok(ecc))
+    throw UsageError(option, ecc.str(),
+                     "has no eccentricity at or below " + format_double(kCurveMaxEcc) +
+                         ", where the Monte Carlo curve's prior is cut");
+}
+
 namespace {
 
 // Sky-plane Thiele-Innes constants of a draw at node 0 (x north, y east).
@@ -195,7 +206,10 @@ Draw prior_draw(const AnomalyData& d, const CurveOptions& opt, const ZPlanePrior
   Draw dr;
   dr.inc = std::acos(rng.uniform(-1.0, 1.0));
   dr.omega = units::kTwoPi * rng.uniform();
-  dr.ecc = std::clamp(opt.prior.ecc.draw(rng), 0.0, 0.99);
+  // Beyond kCurveMaxEcc a draw has no weight (run_round); a prior with no
+  // mass below is computed at it.
+  dr.ecc = opt.prior.ecc.draw(rng);
+  if (!curve_eccentricity_ok(opt.prior.ecc)) dr.ecc = std::min(dr.ecc, kCurveMaxEcc);
   dr.m0 = units::kTwoPi * rng.uniform();
   do dr.m1 = d.host_mass_msun + d.host_mass_error_msun * rng.normal(); while (!(dr.m1 > kMinHostMsun));
   do dr.plx = d.parallax_mas + d.parallax_error_mas * rng.normal(); while (!(dr.plx > 0));
@@ -794,6 +808,10 @@ class DrawWeigher {
  public:
   explicit DrawWeigher(const Problem& pb) : pb_(pb) {}
   void add(const Draw& dr, double log_extra, Sample* out) {
+    if (log_extra == -std::numeric_limits<double>::infinity()) {  // outside the prior: no weight
+      for (int s = 0; s < pb_.opt.z_samples; ++s) out[s] = {-std::numeric_limits<double>::infinity(), 0.0, 0.0, 0.0, 0.0};
+      return;
+    }
     if (!total_mass_fixed(pb_, dr)) {
       evaluations_ += weigh_draw_periods(pb_, dr, &pb_.ds.dev[dr.dev], log_extra, out);
       return;
@@ -821,7 +839,7 @@ Coords coords_of(const Draw& d) { return {std::cos(d.inc), d.omega, d.m0, d.ecc}
 
 // Log density of the prior of the orbit-angle part.
 double log_prior_coords(const Coords& c, const Distribution& ecc) {
-  if (std::abs(c(0)) > 1.0 || c(3) < 0.0 || c(3) > 0.99) return -std::numeric_limits<double>::infinity();
+  if (std::abs(c(0)) > 1.0 || c(3) < 0.0 || c(3) > kCurveMaxEcc) return -std::numeric_limits<double>::infinity();
   return -std::log(2.0) - 2.0 * std::log(units::kTwoPi) + ecc.log_pdf(c(3));
 }
 
@@ -1050,14 +1068,10 @@ long weigh_proposal(const Problem& pb, const ProposalDeviates& pd, const Proposa
         }
         const Coords cd = coords_of(dr);
         const double lp = inside ? log_prior_coords(cd, opt.prior.ecc) : -std::numeric_limits<double>::infinity();
-        if (std::isfinite(lp)) {
-          // Mixture density 0.5 prior + 0.5 kernels.
-          const double mix = log_add_exp(lp, mixture.log_density(cd, scratch)) - std::log(2.0);
-          weigher.add(dr, lp - mix, &pool.samples[i * nz]);
-        } else {  // outside the prior's support: no weight
-          for (int s = 0; s < nz; ++s)
-            pool.samples[i * nz + s] = {-std::numeric_limits<double>::infinity(), 0.0, 0.0, 0.0, 0.0};
-        }
+        // Mixture density 0.5 prior + 0.5 kernels; outside the prior's support no weight.
+        const double log_extra =
+            std::isfinite(lp) ? lp - (log_add_exp(lp, mixture.log_density(cd, scratch)) - std::log(2.0)) : lp;
+        weigher.add(dr, log_extra, &pool.samples[i * nz]);
       }
       weigher.flush();
       // A prior draw keeps its own warm start.
@@ -1199,7 +1213,9 @@ RoundResult run_round(const Problem& pb, const Proposal* prop, const ProposalDev
       for (std::size_t c = begin; c < end; c += kDrawBatch) {
         const std::size_t c_end = std::min(end, c + kDrawBatch);
         DrawWeigher weigher(pb);
-        for (std::size_t k = c; k < c_end; ++k) weigher.add(first[k], 0.0, &pool.samples[(offset + k) * nz]);
+        for (std::size_t k = c; k < c_end; ++k)
+          weigher.add(first[k], first[k].ecc <= kCurveMaxEcc ? 0.0 : -std::numeric_limits<double>::infinity(),
+                      &pool.samples[(offset + k) * nz]);
         weigher.flush();
         for (std::size_t k = c; k < c_end; ++k) pool.draws[offset + k] = first[k];  // with their warm starts
         evaluations += weigher.evaluations();

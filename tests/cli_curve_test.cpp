@@ -80,6 +80,15 @@ TEST_CASE("heft curve CLI: deterministic, modes in JSON, bad input", "[curve][cl
   CHECK(test::run_heft("curve -q --all " + stars + " --quantile-tolerance 1.5", &err) == 1);
   CHECK(test::run_heft("curve -q --all " + stars + " --method analytic --quantile-tolerance 0.1", &err) == 1);
   CHECK_THAT(err, Catch::Contains("--method montecarlo only"));
+  // The Monte Carlo curve's eccentricities stop at 0.99: a prior wholly
+  // beyond is refused (it was computed at 0.99 without a word), one that
+  // reaches beyond is cut there.
+  CHECK(test::run_heft("curve -q --all " + stars + " --ecc 0.995", &err) == 1);
+  CHECK_THAT(err, Catch::Contains("0.99"));
+  CHECK(test::run_heft("rank -q " + stars + " --date 2027.5 --ecc uniform:0.991,0.999 -o " +
+                       test::tmp_path("curve_discard.csv"), &err) == 1);
+  CHECK(test::run_heft("curve -q --all " + stars + " --method analytic --ecc 0.995 -o " +
+                       test::tmp_path("curve_discard.csv")) == 0);  // no Monte Carlo, no cut
   // Which stars is always said (a curve costs seconds): none of --id, --ids,
   // --all is a usage error; --ids names the ids it could not find.
   CHECK(test::run_heft("curve -q " + stars, &err) == 1);

@@ -107,6 +107,17 @@ struct Curve {
   double log10_bayes_error = std::numeric_limits<double>::quiet_NaN();
 };
 
+/// Largest eccentricity of the Monte Carlo curve: its prior is cut above
+/// (draws beyond have no weight; not renormalised, so the Bayes factor is
+/// lower by the prior's share above). A prior with no mass at or below it
+/// is computed at it (heft fit's starting draws); heft curve and heft rank
+/// refuse such a prior (check_curve_eccentricity).
+inline constexpr double kCurveMaxEcc = 0.99;
+/// Whether the eccentricity prior has mass at or below kCurveMaxEcc.
+bool curve_eccentricity_ok(const Distribution& ecc);
+/// Throws UsageError naming `option` where it has not.
+void check_curve_eccentricity(const Distribution& ecc, const std::string& option);
+
 /// Effective sample size below which a Monte Carlo point's band is
 /// unreliable: `heft curve` warns, and the grid is not refined for it.
 inline constexpr double kLowEss = 100.0;

@@ -48,6 +48,7 @@ int run_curve(CurveCliOptions o) {
   if (o.method != "montecarlo") copt.refine_rounds = 0;
   if (copt.quantile_tolerance > 0 && o.method != "montecarlo")
     throw CLI::ValidationError("--quantile-tolerance applies to --method montecarlo only");
+  if (o.method == "montecarlo") check_curve_eccentricity(copt.prior.ecc, "--ecc");
   if (o.threads > 0) omp_set_num_threads(o.threads);
 
   // A curve costs seconds: which stars is always said, never implied.

@@ -28,6 +28,7 @@ int run_rank(RankCliOptions o) {
   SurveyOptions& so = o.survey;
   CurveOptions& c = so.rank.curve;
   resolve_prior_options(c.prior, o.ecc);
+  check_curve_eccentricity(c.prior.ecc, "--ecc");
   if (!(so.a_min_au < so.a_max_au)) throw CLI::ValidationError("--a-min must be below --a-max");
   if (!(so.rank.iwa_mas < so.rank.owa_mas)) throw CLI::ValidationError("--iwa must be below --owa");
   if (!(so.rank.target_min_mjup < so.rank.target_max_mjup))
