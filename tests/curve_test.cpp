@@ -400,6 +400,26 @@ PlainSampling plain_sampling(const AnomalyData& d, double a_au, const MassPrior&
   const double mean = sum / n, se = std::sqrt((sum2 / n - mean * mean) / n);
   return {std::log10(mean), se / mean / std::log(10.0), weighted_quantiles(pairs, sum, probs)};
 }
+
+// The single-separation evidence tests' star: a 6-MJup companion at 6 AU on
+// an orbit of eccentricity `ecc`, and the curve options for that separation
+// alone (mass prior 1-100 MJup).
+struct EvidenceCase {
+  AnomalyData d;
+  CurveOptions opt;
+};
+EvidenceCase evidence_case(double ecc) {
+  Orbit<double> truth{0.0, ecc, 1.0, 2.0, 0.7, 1.1, kLate.ref_epoch_yr};
+  const double a_au = 6.0, m1 = 1.0, plx = 25.0;
+  truth.period_yr = period_from_a(a_au, m1 + 6.0 / units::kMjupPerMsun);
+  EvidenceCase e{data_for(truth, a_au, 6.0, m1, plx, 0.05, 0.5, kEarly, kLate), {}};
+  e.d.dpm += Eigen::Vector4d(0.03, -0.04, 0.2, 0.1);  // a noise draw (fixed)
+  e.opt.a_au = {a_au};
+  e.opt.refine_rounds = 0;
+  e.opt.prior.m_min_mjup = 1;
+  e.opt.prior.m_max_mjup = 100;
+  return e;
+}
 }  // namespace
 
 TEST_CASE("Bayes factor: the curve's importance-sampling evidence equals plain prior sampling", "[curve]") {
@@ -408,19 +428,9 @@ TEST_CASE("Bayes factor: the curve's importance-sampling evidence equals plain p
   // the model evaluated at each draw's own period; common practice, no
   // source), at one separation, against the curve's estimate; the tolerance
   // is 4 combined standard errors.
-  const Orbit<double> o{0.0, 0.3, 1.0, 2.0, 0.7, 1.1, kLate.ref_epoch_yr};
-  const double a_au = 6.0, m1 = 1.0, plx = 25.0;
-  Orbit<double> truth = o;
-  truth.period_yr = period_from_a(a_au, m1 + 6.0 / units::kMjupPerMsun);
-  AnomalyData d = data_for(truth, a_au, 6.0, m1, plx, 0.05, 0.5, kEarly, kLate);
-  d.dpm += Eigen::Vector4d(0.03, -0.04, 0.2, 0.1);  // a noise draw (fixed)
-  CurveOptions opt;
-  opt.a_au = {a_au};
-  opt.refine_rounds = 0;
-  opt.prior.m_min_mjup = 1;
-  opt.prior.m_max_mjup = 100;
+  const auto [d, opt] = evidence_case(0.3);
   const Curve c = montecarlo_curve(d, opt, "evidence");
-  const PlainSampling ref = plain_sampling(d, a_au, opt.prior.mass_prior(false), opt.prior.ecc, 200000, {});
+  const PlainSampling ref = plain_sampling(d, opt.a_au[0], opt.prior.mass_prior(false), opt.prior.ecc, 200000, {});
   const double plain = ref.log10_bayes, plain_err = ref.log10_bayes_error;
   INFO("curve log10 B = " << c.log10_bayes << " +- " << c.log10_bayes_error << ", plain " << plain << " +- "
                           << plain_err);
@@ -447,19 +457,10 @@ TEST_CASE("Bayes factor: an eccentricity prior beyond 0.99 is cut there, as by p
   // combined standard errors and differ by more from the same sampling with
   // those draws computed at e = 0.99 (the curve's former clamp; common
   // practice, no source). Half the prior uniform:0.98,0.999 lies above.
-  const Orbit<double> o{0.0, 0.95, 1.0, 2.0, 0.7, 1.1, kLate.ref_epoch_yr};
-  const double a_au = 6.0, m1 = 1.0, plx = 25.0;
-  Orbit<double> truth = o;
-  truth.period_yr = period_from_a(a_au, m1 + 6.0 / units::kMjupPerMsun);
-  AnomalyData d = data_for(truth, a_au, 6.0, m1, plx, 0.05, 0.5, kEarly, kLate);
-  d.dpm += Eigen::Vector4d(0.03, -0.04, 0.2, 0.1);  // a noise draw (fixed)
-  CurveOptions opt;
-  opt.a_au = {a_au};
-  opt.refine_rounds = 0;
-  opt.prior.m_min_mjup = 1;
-  opt.prior.m_max_mjup = 100;
+  auto [d, opt] = evidence_case(0.95);
   opt.prior.ecc = Distribution::parse("uniform:0.98,0.999", "--ecc");
   const Curve c = montecarlo_curve(d, opt, "eccentric");
+  const double a_au = opt.a_au[0];
   const PlainSampling cut = plain_sampling(d, a_au, opt.prior.mass_prior(false), opt.prior.ecc, 200000, {});
   const PlainSampling clamp = plain_sampling(d, a_au, opt.prior.mass_prior(false), opt.prior.ecc, 200000, {}, true);
   INFO("curve log10 B = " << c.log10_bayes << " +- " << c.log10_bayes_error << ", plain (cut) " << cut.log10_bayes
