@@ -109,7 +109,9 @@ void add_prior_options(CLI::App* app, PriorOptions& prior, std::string& ecc_text
       ->check(CLI::PositiveNumber)->capture_default_str();
   app->add_option("--m-max", prior.m_max_mjup, "upper bound of the mass prior (MJup)")
       ->check(CLI::PositiveNumber)->capture_default_str();
-  app->add_option("--ecc", ecc_text, "eccentricity prior: V (fixed) | uniform:A,B | loguniform:A,B | beta:A,B")
+  app->add_option("--ecc", ecc_text,
+                  "eccentricity prior: V (fixed) | uniform:A,B | loguniform:A,B | beta:A,B (Monte Carlo curves cut it "
+                  "at 0.99)")
       ->capture_default_str();
   app->add_option("--detect-sigma", prior.detect_sigma, detect_help)->capture_default_str();
 }
