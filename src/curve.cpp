@@ -808,8 +808,9 @@ class DrawWeigher {
  public:
   explicit DrawWeigher(const Problem& pb) : pb_(pb) {}
   void add(const Draw& dr, double log_extra, Sample* out) {
-    if (log_extra == -std::numeric_limits<double>::infinity()) {  // outside the prior: no weight
-      for (int s = 0; s < pb_.opt.z_samples; ++s) out[s] = {-std::numeric_limits<double>::infinity(), 0.0, 0.0, 0.0, 0.0};
+    constexpr double kNone = -std::numeric_limits<double>::infinity();
+    if (log_extra == kNone) {  // outside the prior: no weight
+      for (int s = 0; s < pb_.opt.z_samples; ++s) out[s] = {kNone, 0.0, 0.0, 0.0, 0.0};
       return;
     }
     if (!total_mass_fixed(pb_, dr)) {
@@ -1055,9 +1056,7 @@ long weigh_proposal(const Problem& pb, const ProposalDeviates& pd, const Proposa
           const Coords& a = prop.anc[m];
           dr.x_start = prop.anc_x[m];
           Coords cc = a + prop.width.cwiseProduct(pd.kernel[j]);
-          for (int k = 1; k <= 2; ++k) cc(k) = a(k) + kernel_offset(pd.kernel[j](k), prop.width(k));
-          cc(1) = wrap_2pi(cc(1));
-          cc(2) = wrap_2pi(cc(2));
+          for (int k = 1; k <= 2; ++k) cc(k) = wrap_2pi(a(k) + kernel_offset(pd.kernel[j](k), prop.width(k)));
           if (opt.prior.ecc.kind == Distribution::Kind::kFixed) cc(3) = dr.ecc;
           inside = std::abs(cc(0)) <= 1.0;
           dr.inc = std::acos(std::clamp(cc(0), -1.0, 1.0));
