@@ -3,6 +3,7 @@
 #include <ceres/jet.h>
 
 #include <Eigen/Cholesky>
+#include <iterator>
 
 #include "heft/stats.hpp"
 
@@ -20,9 +21,8 @@ AnomalyModel::AnomalyModel(const Astrometry& early, const Astrometry& late, doub
       pm2{late.pmra_mas_yr, late.pmdec_mas_yr} {}
 
 template <typename T>
-void AnomalyModel::operator()(const T* x, T* y) const {
+void AnomalyModel::baseline(const T* x, T pml_late[2], T pml_early[2]) const {
   using std::cos;
-  using std::sqrt;
   const T mas = T(1.0 / units::kMasPerRad);
   // Offsets in alpha* are along the small circle: d_alpha = d_alpha* / cos(dec).
   const T ra1 = T(ra1_rad) + x[0] * mas / T(cos(dec1_rad));
@@ -31,8 +31,13 @@ void AnomalyModel::operator()(const T* x, T* y) const {
   const T dec2 = T(dec2_rad) + x[6] * mas;
   const T plx2 = T(plx2_mas) + x[7];
   const T rv = T(rv_km_s) + x[10];
-  T pml_late[2], pml_early[2];
   long_baseline_pm(ra1, dec1, ra2, dec2, plx2, rv, dt_yr, pml_late, pml_early);
+}
+
+template <typename T>
+void AnomalyModel::assemble(const T* x, const T pml_late[2], const T pml_early[2], T* y) const {
+  using std::sqrt;
+  const T plx2 = T(plx2_mas) + x[7];
   y[0] = pml_late[0];
   y[1] = pml_late[1];
   y[2] = T(pm2[0]) + x[8] - pml_late[0];
@@ -45,14 +50,36 @@ void AnomalyModel::operator()(const T* x, T* y) const {
   y[6] = norm * T(units::kKmsPerAuYr * 1e3) / plx2;
 }
 
+template <typename T>
+void AnomalyModel::operator()(const T* x, T* y) const {
+  T pml_late[2], pml_early[2];
+  baseline(x, pml_late, pml_early);
+  assemble(x, pml_late, pml_early, y);
+}
+
 template void AnomalyModel::operator()(const double*, double*) const;
 
 Eigen::Matrix<double, kAnomalyOutputs, kAnomalyInputs> anomaly_jacobian(
     const AnomalyModel& model, Eigen::Matrix<double, kAnomalyOutputs, 1>& y) {
+  // The baseline's trigonometry is most of the Jacobian's cost and depends
+  // on six inputs: Jets of six there, of all eleven only in assemble.
+  constexpr int kNb = std::size(AnomalyModel::kBaselineInputs);
+  using BaseJet = ceres::Jet<double, kNb>;
   using Jet = ceres::Jet<double, kAnomalyInputs>;
+  BaseJet xb[kAnomalyInputs], late_b[2], early_b[2];
+  for (int i = 0; i < kAnomalyInputs; ++i) xb[i] = BaseJet(0.0);
+  for (int k = 0; k < kNb; ++k) xb[AnomalyModel::kBaselineInputs[k]] = BaseJet(0.0, k);
+  model.baseline(xb, late_b, early_b);
+  const auto widen = [](const BaseJet& b) {
+    Jet j(b.a);
+    for (int k = 0; k < kNb; ++k) j.v(AnomalyModel::kBaselineInputs[k]) = b.v(k);
+    return j;
+  };
+  const Jet pml_late[2] = {widen(late_b[0]), widen(late_b[1])};
+  const Jet pml_early[2] = {widen(early_b[0]), widen(early_b[1])};
   Jet x[kAnomalyInputs], out[kAnomalyOutputs];
   for (int i = 0; i < kAnomalyInputs; ++i) x[i] = Jet(0.0, i);
-  model(x, out);
+  model.assemble(x, pml_late, pml_early, out);
   Eigen::Matrix<double, kAnomalyOutputs, kAnomalyInputs> jac;
   for (int r = 0; r < kAnomalyOutputs; ++r) {
     y(r) = out[r].a;

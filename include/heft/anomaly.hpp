@@ -63,6 +63,17 @@ struct AnomalyModel {
   template <typename T>
   void operator()(const T* x, T* y) const;
 
+  /// The inputs that the long-baseline PM depends on; the others enter y
+  /// linearly (parallax1 not at all).
+  static constexpr int kBaselineInputs[6] = {0, 1, 5, 6, 7, 10};
+  /// The model in two parts, y = assemble(x, baseline(x)), so that the
+  /// Jacobian can carry through the costly first part only the derivatives
+  /// it has (anomaly_jacobian). baseline: long_baseline_pm at the offsets x.
+  template <typename T>
+  void baseline(const T* x, T pml_late[2], T pml_early[2]) const;
+  template <typename T>
+  void assemble(const T* x, const T pml_late[2], const T pml_early[2], T* y) const;
+
   double ra1_rad, dec1_rad, ra2_rad, dec2_rad, plx2_mas, rv_km_s, dt_yr;
   double pm1[2], pm2[2];
 };
@@ -94,7 +105,9 @@ AnomalyResult compute_anomaly(const Astrometry& early, const Astrometry& late, d
                               double rv_error_km_s, bool& ok, std::string& why);
 
 /// Jacobian (kAnomalyOutputs x kAnomalyInputs) of AnomalyModel at x = 0, by
-/// Ceres automatic differentiation; `y` receives the values.
+/// Ceres automatic differentiation (the baseline part in Jets of its six
+/// inputs, then the chain rule through Jets of all eleven); `y` receives
+/// the values.
 Eigen::Matrix<double, kAnomalyOutputs, kAnomalyInputs> anomaly_jacobian(
     const AnomalyModel& model, Eigen::Matrix<double, kAnomalyOutputs, 1>& y);
 
