@@ -94,16 +94,22 @@ Eigen::Matrix<T, 4, 2> design(const Eigen::Matrix<T, 2, 2>& v) {
 
 using Mat42 = Eigen::Matrix<double, 4, 2>;
 
+// How a draw's last weighing by periods ended, at a neighbouring
+// separation or in an earlier round (or its kernel ancestor's): the next
+// one starts from it. Only the number of window-model evaluations depends
+// on it, within kDriftTolerance.
+struct WarmStart {
+  double x = 0.0;        ///< the period's fixed point, x = ln P - ln P0
+  bool hermite = false;  ///< whether its samples needed PeriodModel's interpolant
+};
+
 struct Draw {
   double inc, omega, ecc, m0, m1, plx;
   std::size_t dev;  ///< first of its z samples' deviates in DrawSet::dev
   Projection proj;  ///< from inc and omega
   double q_lo, q_hi, log_prior_c;  ///< the mass prior in q for this host mass
-  /// Where the period's fixed point ended the last time this draw (or its
-  /// kernel's ancestor) was weighed, at a neighbouring separation or in an
-  /// earlier round: the next fixed point starts there. Only the number of
-  /// window-model evaluations depends on it, within kDriftTolerance.
-  mutable double x_start = 0.0;
+  /// How the last weighing of this draw (or of its kernel's ancestor) ended.
+  mutable WarmStart warm;
 };
 
 // log(1 - |z|), -inf where |z| >= 1.
@@ -351,14 +357,15 @@ int hermite_intervals(const Problem& pb, double ecc, double p0, double x_min) {
 // period of the best z and other periods are evaluated exactly.
 class PeriodModel {
  public:
-  PeriodModel(const Problem& pb, const Draw& dr, double p0, double x_min, double x_start)
+  PeriodModel(const Problem& pb, const Draw& dr, double p0, double x_min, double x_first)
       : pb_(pb), dr_(dr), p0_(p0), x_min_(x_min) {
     drift_rate_ = units::kTwoPi * (pb.baseline_yr / p0 + 1.0) * pb.snr;
     curvature_rate_ = drift_rate_ * (1.0 / (1.0 - dr.ecc));
     hermite_intervals_ = hermite_intervals(pb, dr.ecc, p0, x_min);
-    nodes_[0] = design_node(pb, dr, p0, x_start);
+    nodes_[0] = design_node(pb, dr, p0, x_first);
   }
   int evaluations() const { return n_nodes_ + exact_; }
+  bool interpolating() const { return n_nodes_ > 1; }
   // Whether a change of x by dx changes chi2 by less than the tolerance.
   bool negligible(double dx) const { return drift_rate_ * std::abs(dx) < kDriftTolerance; }
   // Makes the model accurate at x: the interpolant where possible, else
@@ -666,7 +673,7 @@ long weigh_total_batch(const Problem& pb, const PendingDraw* p, int n) {
     m_total[i] = dr.m1 / (1.0 - q_ref);
     log_proposal[i] = log_host_density(d, dr.m1) + log_1mq_ref;
     mix[i] = {log_frac_ref, log_frac_prior, log_1mq_ref};
-    dr.x_start = x_of(log_1mq_ref);  // the period used, for a later weigh_draw_periods
+    dr.warm.x = x_of(log_1mq_ref);  // the period used, for a later weigh_draw_periods
     o[i].period_yr = period_from_a(pb.a_au, m_total[i]);
   }
   window_basis_pairs(o.data(), n, d.early, d.late, be.data(), bl.data());
@@ -704,8 +711,14 @@ int weigh_draw_periods(const Problem& pb, const Draw& dr, const ZDeviates* dev, 
   const double p0 = period_from_a(pb.a_au, dr.m1);
   const double x_min = x_of(std::log1p(-dr.q_hi));
   // Fixed point of the period on m1 + m2 (m2 from the best z).
-  double x = std::clamp(dr.x_start, x_min, 0.0);
-  PeriodModel model(pb, dr, p0, x_min, x);
+  double x = std::clamp(dr.warm.x, x_min, 0.0);
+  // Where the samples are likely to need the interpolant, its first node
+  // (x = 0) is evaluated first instead of the warm start, which it would
+  // replace: where they needed it last time, and for upper limits, whose
+  // defensive samples from the prior span the whole range of q (98 % of
+  // the draws at the bench's sigma = 3 star need it).
+  const bool hermite_likely = dr.warm.hermite || defensive_z_samples(pb) > 0;
+  PeriodModel model(pb, dr, p0, x_min, hermite_likely ? 0.0 : x);
   Mat42 kmat;
   GaussianZ g;
   for (int it = 0; it < 8; ++it) {
@@ -718,7 +731,7 @@ int weigh_draw_periods(const Problem& pb, const Draw& dr, const ZDeviates* dev, 
     x = x_new;
     model.centre(x);
   }
-  dr.x_start = x;
+  dr.warm.x = x;
   const ZSampler zs(pb, g);
   const bool gaussian = zs.narrow(dr.q_hi);
   // Period corrections that need exact evaluations of the model (half of
@@ -798,6 +811,7 @@ int weigh_draw_periods(const Problem& pb, const Draw& dr, const ZDeviates* dev, 
     o.log_w += log_extra;
     if (!std::isfinite(o.log_w)) o.log_w = -std::numeric_limits<double>::infinity();
   }
+  dr.warm.hermite = model.interpolating();
   return model.evaluations();
 }
 
@@ -911,7 +925,7 @@ class KernelMixture {
 // sampling, e.g. Cappe et al. 2004, J. Comput. Graph. Stat. 13, 907).
 struct Proposal {
   std::vector<Coords> anc;
-  std::vector<double> anc_x;  ///< the ancestors' Draw::x_start
+  std::vector<WarmStart> anc_warm;  ///< the ancestors' Draw::warm
   Coords width = Coords::Zero();
 };
 
@@ -946,7 +960,7 @@ Proposal proposal_from(const Draw* src, const double* w, std::size_t n, int nz, 
     const std::size_t k = std::lower_bound(cw.begin(), cw.end(), u) - cw.begin();
     const Draw& ancestor = src[std::min(k, n - 1)];
     p.anc.push_back(coords_of(ancestor));
-    p.anc_x.push_back(ancestor.x_start);
+    p.anc_warm.push_back(ancestor.warm);
   }
   Coords mean = Coords::Zero(), var = Coords::Zero();
   for (const auto& c : p.anc) mean += c;
@@ -1054,7 +1068,7 @@ long weigh_proposal(const Problem& pb, const ProposalDeviates& pd, const Proposa
         if (pd.pick[j] >= 0.5) {  // from a kernel, else from the prior component
           const std::size_t m = static_cast<std::size_t>(pd.pick[j + n] * n_anc) % n_anc;
           const Coords& a = prop.anc[m];
-          dr.x_start = prop.anc_x[m];
+          dr.warm = prop.anc_warm[m];
           Coords cc = a + prop.width.cwiseProduct(pd.kernel[j]);
           for (int k = 1; k <= 2; ++k) cc(k) = wrap_2pi(a(k) + kernel_offset(pd.kernel[j](k), prop.width(k)));
           if (opt.prior.ecc.kind == Distribution::Kind::kFixed) cc(3) = dr.ecc;
@@ -1075,7 +1089,7 @@ long weigh_proposal(const Problem& pb, const ProposalDeviates& pd, const Proposa
       weigher.flush();
       // A prior draw keeps its own warm start.
       for (std::size_t j = c; j < c_end; ++j)
-        if (pd.pick[j] < 0.5) pd.prior[j].x_start = pool.draws[offset + j].x_start;
+        if (pd.pick[j] < 0.5) pd.prior[j].warm = pool.draws[offset + j].warm;
       evaluations += weigher.evaluations();
     }
   }
