@@ -1,7 +1,7 @@
 #include "heft/curve.hpp"
 
 #include <Eigen/Cholesky>
-#include <Eigen/Eigenvalues>
+#include <Eigen/LU>
 #include <algorithm>
 #include <cmath>
 #include <numbers>
@@ -510,19 +510,27 @@ GaussianZ gaussian_z(const Problem& pb, const Mat42& k) {
 }
 
 // What weighing z samples with that likelihood needs: chi2 at the best z,
-// F's eigen decomposition to draw z ~ N(z_hat, F^-1), and the log of the
-// likelihood's integral over z relative to its peak, 2 pi / sqrt(det F).
+// F's Cholesky factor L to draw z ~ N(z_hat, F^-1) as z_hat + L^-T n, F's
+// smaller eigenvalue, and the log of the likelihood's integral over z
+// relative to its peak, 2 pi / sqrt(det F). In closed form for 2 x 2:
+// Eigen's eigensolver here was 8 % of an upper limit's CPU.
 struct ZSampler {
   ZSampler(const Problem& pb, const GaussianZ& g) : g(g), chi2_min(pb.chi2_data - g.z_hat.dot(g.fisher * g.z_hat)) {
-    es.computeDirect(g.fisher);
-    lam = es.eigenvalues().cwiseMax(1e-300);
-    log_gauss_norm = std::log(units::kTwoPi) - 0.5 * std::log(lam(0) * lam(1));
+    const double a = g.fisher(0, 0), b = g.fisher(1, 0), c = g.fisher(1, 1);
+    // The smaller eigenvalue as det / the larger one (no cancellation).
+    const double lam_max = 0.5 * (a + c) + std::hypot(0.5 * (a - c), b);
+    lam_min = lam_max > 0.0 ? std::max((a * c - b * b) / lam_max, 1e-300) : 1e-300;
+    l11 = std::sqrt(std::max(a, 1e-300));
+    l21 = b / l11;
+    l22 = std::sqrt(std::max(c - l21 * l21, 1e-300));
+    log_gauss_norm = std::log(units::kTwoPi) - std::log(l11 * l22);
   }
   // Whether the Gaussian is narrow against the prior's range of q (up to
   // q_hi): then z is drawn from it, else from the prior.
-  bool narrow(double q_hi) const { return 1.0 / std::sqrt(lam.minCoeff()) < 0.3 * q_hi; }
+  bool narrow(double q_hi) const { return 1.0 / std::sqrt(lam_min) < 0.3 * q_hi; }
   Eigen::Vector2d draw(const ZDeviates& u) const {
-    return g.z_hat + es.eigenvectors() * Eigen::Vector2d(u.n1 / std::sqrt(lam(0)), u.n2 / std::sqrt(lam(1)));
+    const double y2 = u.n2 / l22;
+    return g.z_hat + Eigen::Vector2d((u.n1 - l21 * y2) / l11, y2);
   }
   // (z - z_hat)^T F (z - z_hat) / 2
   double half_dist2(const Eigen::Vector2d& z) const {
@@ -532,8 +540,7 @@ struct ZSampler {
   double log_likelihood(const Eigen::Vector2d& z) const { return -0.5 * chi2_min - half_dist2(z); }
   const GaussianZ& g;
   double chi2_min, log_gauss_norm = 0.0;
-  Eigen::SelfAdjointEigenSolver<Eigen::Matrix2d> es;
-  Eigen::Vector2d lam;
+  double lam_min, l11, l21, l22;
 };
 
 // A draw waiting to be weighed: the log weight added to each of its samples
