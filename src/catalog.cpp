@@ -233,6 +233,8 @@ bool StarTableReader::next_raw(RawStarRow& row) {
                        "row has " + std::to_string(csv_.fields().size()) + " fields, header has " +
                            std::to_string(n_fields_));
   } while (keep_ && !keep_(csv_.fields()[field_of_column_[0]]));
+  const std::string_view id = csv_.fields()[field_of_column_[0]];
+  row.duplicate_id = !id.empty() && !seen_ids_.insert(fnv1a64(id)).second;
   row.line = csv_.line();
   csv_.take_record(row.text, row.spans, row.columns);
   return true;
@@ -270,17 +272,12 @@ void StarTableReader::parse(const RawStarRow& row, StarRecord& star, std::string
   if (!present(star.late.window_start_yr)) star.late.window_start_yr = windows_.late_start_yr;
   if (!present(star.late.window_end_yr)) star.late.window_end_yr = windows_.late_end_yr;
   if (bad_reason.empty()) bad_reason = validate_star(star);
-}
-
-void StarTableReader::finish(const StarRecord& star, std::string& bad_reason) {
-  if (!star.id.empty() && !seen_ids_.insert(fnv1a64(star.id)).second && bad_reason.empty())
-    bad_reason = "duplicate_id";
+  if (bad_reason.empty() && row.duplicate_id) bad_reason = "duplicate_id";
 }
 
 bool StarTableReader::next(StarRecord& star, std::string& bad_reason) {
   if (!next_raw(raw_)) return false;
   parse(raw_, star, bad_reason);
-  finish(star, bad_reason);
   return true;
 }
 

@@ -221,6 +221,50 @@ TEST_CASE("screen: structural errors name file, line and column", "[cli][screen]
   }
 }
 
+TEST_CASE("screen: rows over several chunks, read ahead while screening", "[cli][screen]") {
+  // Rows go through in chunks of 2,048, the next chunk read while the
+  // current one is screened: the output, a duplicate id whose first copy is
+  // in an earlier chunk, and the first error must not depend on the threads.
+  std::vector<StarRecord> many;
+  for (int i = 0; i < 4500; ++i) many.push_back(good_star("S" + std::to_string(i), 0.01 * (i % 7)));
+  many[3000].id = "S10";  // chunk 1 repeats an id of chunk 0
+  const std::string csv = table_of(many);
+  const std::string in = tmp_path("chunks.csv");
+  test::write_text(in, csv);
+  std::string first;
+  for (const char* j : {"1", "2"}) {
+    const std::string out = in + ".j" + j + ".out";
+    CHECK(run_heft(std::string("screen -q -j ") + j + " " + in + " -o " + out) == 4);
+    const test::Table t = test::read_table(out);
+    REQUIRE(t.rows.size() == 4500);
+    CHECK(t.str(3000, "status") == "bad_input:duplicate_id");
+    CHECK(t.str(10, "status") == "ok");
+    CHECK(t.str(4499, "id") == "S4499");
+    if (first.empty()) first = test::read_text(out);
+    else CHECK(test::read_text(out) == first);
+  }
+  // A bad number in chunk 1 (line 2,502) and a row that does not read in
+  // chunk 2 (line 4,402), read while chunk 1 is parsed: the number first.
+  std::string two = set_field(csv, 2500, "late_pmra", "1.2.3");
+  const std::size_t l4402 = [&] {
+    std::size_t p = 0;
+    for (int k = 0; k < 4401; ++k) p = two.find('\n', p) + 1;
+    return p;
+  }();
+  two.insert(l4402, "S-short,1991.25\n");
+  test::write_text(in, two);
+  for (const char* j : {"1", "2"}) {
+    std::string err;
+    CHECK(run_heft(std::string("screen -j ") + j + " " + in + " -o " + in + ".out", &err) == 2);
+    CHECK(err.find(in + ":2502:") != std::string::npos);
+  }
+  // Without it, the short row.
+  test::write_text(in, set_field(two, 2500, "late_pmra", "1.0"));
+  std::string err;
+  CHECK(run_heft("screen -j 2 " + in + " -o " + in + ".out", &err) == 2);
+  CHECK(err.find(in + ":4402: row has") != std::string::npos);
+}
+
 TEST_CASE("screen accepts header-only, CRLF, BOM, quotes and comments", "[cli][screen]") {
   const std::string base = table_of({good_star("A"), good_star("B", 0.3)});
   const std::string ref_in = tmp_path("fmt_ref.csv"), ref_out = tmp_path("fmt_ref.out");

@@ -77,6 +77,7 @@ struct RawStarRow {
   std::string text;
   std::vector<std::pair<std::size_t, std::size_t>> spans;
   std::vector<long> columns;
+  bool duplicate_id = false;  // an earlier row has the same id
 };
 
 /// Reads the canonical star table row by row.
@@ -95,15 +96,14 @@ class StarTableReader {
   /// Reads the next row; false at end of input. On return `bad_reason` is
   /// empty for a valid row.
   bool next(StarRecord& star, std::string& bad_reason);
-  /// next() in three steps, so that a batch can parse rows in parallel
-  /// while reading and the duplicate-id check stay in file order:
-  /// next_raw reads a row (false at end of input; the field-count check),
-  /// parse fills `star` from it (thread-safe; InputError on a number that
-  /// does not parse or a control character in the id), and finish checks
-  /// the id against those before it (in file order).
+  /// next() in two steps, so that a batch can parse rows in parallel
+  /// while reading stays in file order: next_raw reads a row (false at end
+  /// of input; the field-count check, and the id checked against those
+  /// before it), and parse fills `star` from it (thread-safe, also while
+  /// next_raw reads on; InputError on a number that does not parse or a
+  /// control character in the id).
   bool next_raw(RawStarRow& row);
   void parse(const RawStarRow& row, StarRecord& star, std::string& bad_reason) const;
-  void finish(const StarRecord& star, std::string& bad_reason);
   long line() const { return csv_.line(); }
   /// Data rows read so far.
   long rows() const { return rows_; }

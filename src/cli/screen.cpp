@@ -55,53 +55,69 @@ int run_screen(const ScreenCliOptions& o) {
   }
   std::string buf = screen_header(), jbuf;
   StatusCounter counter;
-  // Rows are read in order, parsed, screened and formatted in parallel
-  // chunk by chunk, and checked and written in order: the output and the
-  // first error reported do not depend on the thread count, and memory
-  // stays flat.
+  // Rows are read in order a chunk at a time. While one thread reads the
+  // next chunk (the tokeniser is serial), the others parse, screen and
+  // format the current one; its rows are then checked and written in
+  // order. The output and the first error reported do not depend on the
+  // thread count, and memory stays flat.
   const std::size_t chunk = 2048;
-  std::vector<RawStarRow> raw(chunk);
+  struct Chunk {
+    std::vector<RawStarRow> raw;
+    std::size_t n = 0;
+    bool more = true;
+    std::exception_ptr unreadable;  // a row that does not read: after the rows before it
+  };
+  const auto read_chunk = [&](Chunk& c) {
+    c.raw.resize(chunk);
+    c.n = 0;
+    c.unreadable = nullptr;
+    try {
+      while (c.n < chunk && (c.more = reader.next_raw(c.raw[c.n]))) ++c.n;
+    } catch (...) {  // not thrown out of the task: reported after the rows before it
+      c.unreadable = std::current_exception();
+      c.more = false;
+    }
+  };
   std::vector<StarRecord> stars(chunk);
   std::vector<std::string> bad(chunk);
   std::vector<std::exception_ptr> failed(chunk);
   std::vector<ScreenRow> rows(chunk);
   std::vector<std::string> text(chunk), json_text(json ? chunk : 0);  // each row formatted in parallel
-  for (bool more = true; more;) {
-    std::size_t n = 0;
-    std::exception_ptr unreadable;  // a row that does not read: after the rows before it
-    try {
-      while (n < chunk && (more = reader.next_raw(raw[n]))) ++n;
-    } catch (const InputError&) {
-      unreadable = std::current_exception();
-      more = false;
-    }
-#pragma omp parallel for schedule(static)
-    for (std::size_t i = 0; i < n; ++i) {
-      failed[i] = nullptr;
-      try {
-        reader.parse(raw[i], stars[i], bad[i]);
-      } catch (...) {
-        failed[i] = std::current_exception();
+  Chunk cur, next;
+  read_chunk(cur);
+  for (;;) {
+    const bool ahead = cur.more;
+#pragma omp parallel
+#pragma omp single
+    {
+      if (ahead) {
+#pragma omp task
+        read_chunk(next);
+      }
+#pragma omp taskloop grainsize(64)
+      for (std::size_t i = 0; i < cur.n; ++i) {
+        failed[i] = nullptr;
+        try {
+          reader.parse(cur.raw[i], stars[i], bad[i]);
+          rows[i] = screen_star(stars[i], bad[i], opt);
+          text[i].clear();
+          append_screen_row(text[i], rows[i]);
+          if (json) json_text[i] = screen_row_json(rows[i]).dump();
+        } catch (...) {
+          failed[i] = std::current_exception();
+        }
       }
     }
-    for (std::size_t i = 0; i < n; ++i) {
+    for (std::size_t i = 0; i < cur.n; ++i) {
       if (failed[i]) std::rethrow_exception(failed[i]);
-      reader.finish(stars[i], bad[i]);
       if (o.strict && !bad[i].empty())
-        throw InputError(in.name(), raw[i].line, 0, "star '" + stars[i].id + "': bad input: " + bad[i]);
+        throw InputError(in.name(), cur.raw[i].line, 0, "star '" + stars[i].id + "': bad input: " + bad[i]);
     }
-    if (unreadable) std::rethrow_exception(unreadable);
-#pragma omp parallel for schedule(static)
-    for (std::size_t i = 0; i < n; ++i) {
-      rows[i] = screen_star(stars[i], bad[i], opt);
-      text[i].clear();
-      append_screen_row(text[i], rows[i]);
-      if (json) json_text[i] = screen_row_json(rows[i]).dump();
-    }
-    for (std::size_t i = 0; i < n; ++i) {
+    if (cur.unreadable) std::rethrow_exception(cur.unreadable);
+    for (std::size_t i = 0; i < cur.n; ++i) {
       const ScreenRow& row = rows[i];
       if (o.strict && !row.ok())
-        throw InputError(in.name(), raw[i].line, 0, "star '" + row.id + "': " + row.status.text());
+        throw InputError(in.name(), cur.raw[i].line, 0, "star '" + row.id + "': " + row.status.text());
       counter.add(row.status);
       buf += text[i];
       if (json) {
@@ -115,6 +131,8 @@ int run_screen(const ScreenCliOptions& o) {
       json->write(jbuf);
       jbuf.clear();
     }
+    if (!ahead) break;
+    std::swap(cur, next);
   }
   out.write(buf);
   if (json) {
