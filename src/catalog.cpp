@@ -1,6 +1,7 @@
 #include "heft/catalog.hpp"
 
 #include <Eigen/Cholesky>
+#include <exception>
 
 #include "heft/error.hpp"
 #include "heft/rng.hpp"
@@ -279,6 +280,64 @@ bool StarTableReader::next(StarRecord& star, std::string& bad_reason) {
   if (!next_raw(raw_)) return false;
   parse(raw_, star, bad_reason);
   return true;
+}
+
+void read_star_rows(StarTableReader& reader, std::size_t chunk,
+                    const std::function<void(std::size_t, const ParsedStarRow&)>& work,
+                    const std::function<void(std::size_t, const ParsedStarRow&)>& consume) {
+  struct Chunk {
+    std::vector<RawStarRow> raw;
+    std::size_t n = 0;
+    bool more = true;
+    std::exception_ptr unreadable;  // the row after the last one read
+  };
+  long index = 0;
+  const auto read_chunk = [&](Chunk& c) {
+    c.raw.resize(chunk);
+    c.n = 0;
+    c.unreadable = nullptr;
+    try {
+      while (c.n < chunk && (c.more = reader.next_raw(c.raw[c.n]))) ++c.n;
+    } catch (...) {  // not thrown out of the task: after the rows before it
+      c.unreadable = std::current_exception();
+      c.more = false;
+    }
+  };
+  std::vector<ParsedStarRow> rows(chunk);
+  std::vector<std::exception_ptr> failed(chunk);
+  Chunk cur, next;
+  read_chunk(cur);
+  for (;;) {
+    const bool ahead = cur.more;
+#pragma omp parallel
+#pragma omp single
+    {
+      if (ahead) {
+#pragma omp task
+        read_chunk(next);
+      }
+#pragma omp taskloop grainsize(64)
+      for (std::size_t i = 0; i < cur.n; ++i) {
+        failed[i] = nullptr;
+        try {
+          rows[i].line = cur.raw[i].line;
+          rows[i].index = index + static_cast<long>(i);
+          reader.parse(cur.raw[i], rows[i].star, rows[i].bad_reason);
+          work(i, rows[i]);
+        } catch (...) {
+          failed[i] = std::current_exception();
+        }
+      }
+    }
+    for (std::size_t i = 0; i < cur.n; ++i) {
+      if (failed[i]) std::rethrow_exception(failed[i]);
+      consume(i, rows[i]);
+    }
+    if (cur.unreadable) std::rethrow_exception(cur.unreadable);
+    if (!ahead) return;
+    index += static_cast<long>(cur.n);
+    std::swap(cur, next);
+  }
 }
 
 std::string star_table_header() {

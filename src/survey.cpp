@@ -127,26 +127,32 @@ SurveyRun run_survey(std::istream& in, const std::string& input_name, const Surv
   SurveyRun run;
   const auto t_start = std::chrono::steady_clock::now();
 
-  // Pass 1: read every row, keep this shard's, screen them.
+  // Pass 1: read every row, keep this shard's, screen them (in parallel,
+  // kept in file order).
   StarTableReader reader(in, input_name, opt.windows);
   std::vector<StarRecord> candidates;
   std::vector<ScreenRow> cand_rows;
   {
-    StarRecord star;
-    std::string bad;
-    long row = 0;
-    while (reader.next(star, bad)) {
-      if (row++ % opt.shard_n != opt.shard_k - 1) continue;
-      ScreenRow sr = screen_star(star, bad, opt.screen);
-      if (sr.ok() && sr.result.sig_joint >= ropt.curve.prior.detect_sigma) {
-        candidates.push_back(star);
-        cand_rows.push_back(std::move(sr));
-      } else {
-        RankRecord r = screened_record(sr);
-        if (sr.ok()) add_note(r.notes, "below_detect_sigma");
-        run.records.push_back(std::move(r));
-      }
-    }
+    const std::size_t chunk = 512;
+    std::vector<ScreenRow> screened(chunk);
+    const auto mine = [&](const ParsedStarRow& r) { return r.index % opt.shard_n == opt.shard_k - 1; };
+    read_star_rows(
+        reader, chunk,
+        [&](std::size_t i, const ParsedStarRow& r) {
+          if (mine(r)) screened[i] = screen_star(r.star, r.bad_reason, opt.screen);
+        },
+        [&](std::size_t i, const ParsedStarRow& r) {
+          if (!mine(r)) return;
+          ScreenRow& sr = screened[i];
+          if (sr.ok() && sr.result.sig_joint >= ropt.curve.prior.detect_sigma) {
+            candidates.push_back(r.star);
+            cand_rows.push_back(std::move(sr));
+          } else {
+            RankRecord rec = screened_record(sr);
+            if (sr.ok()) add_note(rec.notes, "below_detect_sigma");
+            run.records.push_back(std::move(rec));
+          }
+        });
   }
   run.rows = reader.rows();
   run.screen_s = seconds_since(t_start);

@@ -1,10 +1,14 @@
 #include <catch2/catch.hpp>
+#include <omp.h>
+
 #include <sstream>
+#include <stdexcept>
 #include <string>
 
 #include "heft/catalog.hpp"
 #include "heft/error.hpp"
 #include "heft/io.hpp"
+#include "test_util.hpp"
 
 using namespace heft;
 
@@ -95,4 +99,84 @@ TEST_CASE("covariance of a 5-parameter solution round-trips", "[catalog]") {
   b.set_covariance(c * 4.0);
   CHECK(b.pmdec_error_mas_yr == Approx(1.2));
   CHECK(b.corr[7] == Approx(0.15));
+}
+
+TEST_CASE("star rows in chunks: file order, indices and the first error, whatever the threads", "[catalog]") {
+  // Eleven rows in chunks of three (read_star_rows reads a chunk ahead):
+  // R7 repeats R2's id; every row is otherwise valid.
+  std::string table = star_table_header();
+  for (int k = 0; k < 11; ++k) {
+    StarRecord s;
+    s.id = k == 7 ? "R2" : "R" + std::to_string(k);
+    const SkyState<double> st{1.0, 0.2, 20.0, 30.0 + k, -10.0, 5.0};
+    s.early = test::entry(st, 1991.25, 0.8, 0.9, 1989.85, 1993.21);
+    s.late = test::entry(st, 2016.0, 0.03, 0.04, 2014.57, 2017.41);
+    append_star_row(table, s);
+  }
+  const auto line_start = [](const std::string& t, int line) {  // 1-based
+    std::size_t p = 0;
+    for (int k = 1; k < line; ++k) p = t.find('\n', p) + 1;
+    return p;
+  };
+  struct Seen {
+    std::vector<std::string> ids;
+    std::vector<long> index, line;
+    std::string error;
+  };
+  const auto run = [](const std::string& text, int throw_at) {
+    std::istringstream in(text);
+    StarTableReader reader(in, "mem.csv");
+    Seen seen;
+    std::vector<long> worked(3, -1);
+    try {
+      read_star_rows(
+          reader, 3,
+          [&](std::size_t i, const ParsedStarRow& r) {
+            if (r.index == throw_at) throw std::runtime_error("work " + std::to_string(r.index));
+            worked[i] = r.index;
+          },
+          [&](std::size_t i, const ParsedStarRow& r) {
+            CHECK(worked[i] == r.index);  // work's result for this row, in its slot
+            seen.ids.push_back(r.star.id + (r.bad_reason.empty() ? "" : ":" + r.bad_reason));
+            seen.index.push_back(r.index);
+            seen.line.push_back(r.line);
+          });
+    } catch (const std::exception& e) {
+      seen.error = e.what();
+    }
+    return seen;
+  };
+  for (int threads : {1, 2}) {
+    const int before = omp_get_max_threads();
+    omp_set_num_threads(threads);
+    const Seen all = run(table, -1);
+    REQUIRE(all.ids.size() == 11);
+    CHECK(all.error.empty());
+    CHECK(all.ids[0] == "R0");
+    CHECK(all.ids[2] == "R2");
+    CHECK(all.ids[7] == "R2:duplicate_id");
+    CHECK(all.ids[10] == "R10");
+    for (long k = 0; k < 11; ++k) {
+      CHECK(all.index[k] == k);
+      CHECK(all.line[k] == k + 2);
+    }
+    // A number that does not parse in row 8 (line 10, third chunk) and a
+    // row that does not read at line 12 (fourth chunk, read ahead): rows
+    // before the first error are taken, in order, then it is thrown.
+    std::string bad = table;
+    bad.insert(line_start(bad, 12), "R-short,1\n");
+    bad.insert(bad.find(',', line_start(bad, 10)) + 1, "x");
+    const Seen work_first = run(bad, 5);
+    CHECK(work_first.ids.size() == 5);
+    CHECK(work_first.error == "work 5");
+    const Seen number_first = run(bad, -1);
+    CHECK(number_first.ids.size() == 8);
+    CHECK(number_first.error.find("mem.csv:10:") != std::string::npos);
+    bad = table;
+    bad.insert(line_start(bad, 12), "R-short,1\n");
+    const Seen short_row = run(bad, -1);
+    CHECK(short_row.ids.size() == 10);
+    CHECK(short_row.error.find("mem.csv:12:") != std::string::npos);
+    omp_set_num_threads(before);
+  }
 }

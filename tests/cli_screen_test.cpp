@@ -222,12 +222,12 @@ TEST_CASE("screen: structural errors name file, line and column", "[cli][screen]
 }
 
 TEST_CASE("screen: rows over several chunks, read ahead while screening", "[cli][screen]") {
-  // Rows go through in chunks of 2,048, the next chunk read while the
+  // Rows go through in chunks of 512, the next chunk read while the
   // current one is screened: the output, a duplicate id whose first copy is
   // in an earlier chunk, and the first error must not depend on the threads.
   std::vector<StarRecord> many;
   for (int i = 0; i < 4500; ++i) many.push_back(good_star("S" + std::to_string(i), 0.01 * (i % 7)));
-  many[3000].id = "S10";  // chunk 1 repeats an id of chunk 0
+  many[3000].id = "S10";  // chunk 5 repeats an id of chunk 0
   const std::string csv = table_of(many);
   const std::string in = tmp_path("chunks.csv");
   test::write_text(in, csv);
@@ -243,15 +243,15 @@ TEST_CASE("screen: rows over several chunks, read ahead while screening", "[cli]
     if (first.empty()) first = test::read_text(out);
     else CHECK(test::read_text(out) == first);
   }
-  // A bad number in chunk 1 (line 2,502) and a row that does not read in
-  // chunk 2 (line 4,402), read while chunk 1 is parsed: the number first.
+  // A bad number in chunk 4 (line 2,502) and a row that does not read in
+  // chunk 5 (line 2,602), read while chunk 4 is parsed: the number first.
   std::string two = set_field(csv, 2500, "late_pmra", "1.2.3");
-  const std::size_t l4402 = [&] {
+  const std::size_t l2602 = [&] {
     std::size_t p = 0;
-    for (int k = 0; k < 4401; ++k) p = two.find('\n', p) + 1;
+    for (int k = 0; k < 2601; ++k) p = two.find('\n', p) + 1;
     return p;
   }();
-  two.insert(l4402, "S-short,1991.25\n");
+  two.insert(l2602, "S-short,1991.25\n");
   test::write_text(in, two);
   for (const char* j : {"1", "2"}) {
     std::string err;
@@ -262,7 +262,7 @@ TEST_CASE("screen: rows over several chunks, read ahead while screening", "[cli]
   test::write_text(in, set_field(two, 2500, "late_pmra", "1.0"));
   std::string err;
   CHECK(run_heft("screen -j 2 " + in + " -o " + in + ".out", &err) == 2);
-  CHECK(err.find(in + ":4402: row has") != std::string::npos);
+  CHECK(err.find(in + ":2602: row has") != std::string::npos);
 }
 
 TEST_CASE("screen accepts header-only, CRLF, BOM, quotes and comments", "[cli][screen]") {

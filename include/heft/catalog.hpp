@@ -125,6 +125,27 @@ class StarTableReader {
   RawStarRow raw_;  // next()'s row
 };
 
+/// A data row of the star table, parsed.
+struct ParsedStarRow {
+  long line = 0;   ///< 1-based line where the row starts
+  long index = 0;  ///< 0-based number of the row among those returned
+  StarRecord star;
+  std::string bad_reason;  ///< empty for a valid row (StarTableReader::next)
+};
+
+/// Reads `reader` to the end `chunk` rows at a time for batch work. While
+/// the next chunk is read (reading is serial), the current one's rows are
+/// parsed and handed to `work` in parallel (OpenMP tasks; `slot` in
+/// [0, chunk) is the row's place in the chunk, for the caller's per-row
+/// results); then `consume` takes them in file order. An InputError of a
+/// row (a number that does not parse, a row that does not read) or an
+/// exception from `work` is thrown in file order too, after `consume` has
+/// taken the rows before it: what the caller sees does not depend on the
+/// thread count. Memory stays flat (two chunks of rows).
+void read_star_rows(StarTableReader& reader, std::size_t chunk,
+                    const std::function<void(std::size_t slot, const ParsedStarRow& row)>& work,
+                    const std::function<void(std::size_t slot, const ParsedStarRow& row)>& consume);
+
 /// A canonical numeric column of `star` by its table name (e.g. "late_pmra"),
 /// or nullptr when `name` is not one; `required` tells whether the table
 /// requires it. For readers of other formats (the fit's JSON star file).

@@ -2,7 +2,6 @@
 
 #include <omp.h>
 
-#include <exception>
 #include <memory>
 
 #include "cli/commands.hpp"
@@ -55,85 +54,41 @@ int run_screen(const ScreenCliOptions& o) {
   }
   std::string buf = screen_header(), jbuf;
   StatusCounter counter;
-  // Rows are read in order a chunk at a time. While one thread reads the
-  // next chunk (the tokeniser is serial), the others parse, screen and
-  // format the current one; its rows are then checked and written in
-  // order. The output and the first error reported do not depend on the
-  // thread count, and memory stays flat.
-  const std::size_t chunk = 2048;
-  struct Chunk {
-    std::vector<RawStarRow> raw;
-    std::size_t n = 0;
-    bool more = true;
-    std::exception_ptr unreadable;  // a row that does not read: after the rows before it
-  };
-  const auto read_chunk = [&](Chunk& c) {
-    c.raw.resize(chunk);
-    c.n = 0;
-    c.unreadable = nullptr;
-    try {
-      while (c.n < chunk && (c.more = reader.next_raw(c.raw[c.n]))) ++c.n;
-    } catch (...) {  // not thrown out of the task: reported after the rows before it
-      c.unreadable = std::current_exception();
-      c.more = false;
-    }
-  };
-  std::vector<StarRecord> stars(chunk);
-  std::vector<std::string> bad(chunk);
-  std::vector<std::exception_ptr> failed(chunk);
+  // Rows are parsed, screened and formatted in parallel a chunk at a time
+  // and checked and written in file order (read_star_rows): the output and
+  // the first error reported do not depend on the thread count.
+  const std::size_t chunk = 512;
   std::vector<ScreenRow> rows(chunk);
-  std::vector<std::string> text(chunk), json_text(json ? chunk : 0);  // each row formatted in parallel
-  Chunk cur, next;
-  read_chunk(cur);
-  for (;;) {
-    const bool ahead = cur.more;
-#pragma omp parallel
-#pragma omp single
-    {
-      if (ahead) {
-#pragma omp task
-        read_chunk(next);
-      }
-#pragma omp taskloop grainsize(64)
-      for (std::size_t i = 0; i < cur.n; ++i) {
-        failed[i] = nullptr;
-        try {
-          reader.parse(cur.raw[i], stars[i], bad[i]);
-          rows[i] = screen_star(stars[i], bad[i], opt);
-          text[i].clear();
-          append_screen_row(text[i], rows[i]);
-          if (json) json_text[i] = screen_row_json(rows[i]).dump();
-        } catch (...) {
-          failed[i] = std::current_exception();
+  std::vector<std::string> text(chunk), json_text(json ? chunk : 0);
+  read_star_rows(
+      reader, chunk,
+      [&](std::size_t i, const ParsedStarRow& r) {
+        rows[i] = screen_star(r.star, r.bad_reason, opt);
+        text[i].clear();
+        append_screen_row(text[i], rows[i]);
+        if (json) json_text[i] = screen_row_json(rows[i]).dump();
+      },
+      [&](std::size_t i, const ParsedStarRow& r) {
+        if (o.strict && !r.bad_reason.empty())
+          throw InputError(in.name(), r.line, 0, "star '" + r.star.id + "': bad input: " + r.bad_reason);
+        const ScreenRow& row = rows[i];
+        if (o.strict && !row.ok())
+          throw InputError(in.name(), r.line, 0, "star '" + row.id + "': " + row.status.text());
+        counter.add(row.status);
+        buf += text[i];
+        if (json) {
+          if (counter.total() > 1) jbuf += ",\n";
+          jbuf += json_text[i];
         }
-      }
-    }
-    for (std::size_t i = 0; i < cur.n; ++i) {
-      if (failed[i]) std::rethrow_exception(failed[i]);
-      if (o.strict && !bad[i].empty())
-        throw InputError(in.name(), cur.raw[i].line, 0, "star '" + stars[i].id + "': bad input: " + bad[i]);
-    }
-    if (cur.unreadable) std::rethrow_exception(cur.unreadable);
-    for (std::size_t i = 0; i < cur.n; ++i) {
-      const ScreenRow& row = rows[i];
-      if (o.strict && !row.ok())
-        throw InputError(in.name(), cur.raw[i].line, 0, "star '" + row.id + "': " + row.status.text());
-      counter.add(row.status);
-      buf += text[i];
-      if (json) {
-        if (counter.total() > 1) jbuf += ",\n";
-        jbuf += json_text[i];
-      }
-    }
-    out.write(buf);
-    buf.clear();
-    if (json) {
-      json->write(jbuf);
-      jbuf.clear();
-    }
-    if (!ahead) break;
-    std::swap(cur, next);
-  }
+        if (buf.size() > (1u << 20)) {
+          out.write(buf);
+          buf.clear();
+          if (json) {
+            json->write(jbuf);
+            jbuf.clear();
+          }
+        }
+      });
   out.write(buf);
   if (json) {
     nlohmann::ordered_json run = counter.run_json("screen", in.name());
