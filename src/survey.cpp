@@ -133,11 +133,10 @@ SurveyRun run_survey(std::istream& in, const std::string& input_name, const Surv
   std::vector<StarRecord> candidates;
   std::vector<ScreenRow> cand_rows;
   {
-    const std::size_t chunk = 512;
-    std::vector<ScreenRow> screened(chunk);
+    std::vector<ScreenRow> screened(kStarRowsChunk);
     const auto mine = [&](const ParsedStarRow& r) { return r.index % opt.shard_n == opt.shard_k - 1; };
     read_star_rows(
-        reader, chunk,
+        reader, kStarRowsChunk,
         [&](std::size_t i, const ParsedStarRow& r) {
           if (mine(r)) screened[i] = screen_star(r.star, r.bad_reason, opt.screen);
         },

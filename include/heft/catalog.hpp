@@ -133,6 +133,12 @@ struct ParsedStarRow {
   std::string bad_reason;  ///< empty for a valid row (StarTableReader::next)
 };
 
+/// Rows per chunk for read_star_rows: two chunks of a canonical table's
+/// text (about 900 bytes a row) fit a 1 MiB L2 cache. With 2,048 the
+/// current chunk's text left the cache while the next one was read, and
+/// `heft screen -j 1` took 8 % longer (docs/performance.md).
+inline constexpr std::size_t kStarRowsChunk = 512;
+
 /// Reads `reader` to the end `chunk` rows at a time for batch work. While
 /// the next chunk is read (reading is serial), the current one's rows are
 /// parsed and handed to `work` in parallel (OpenMP tasks; `slot` in

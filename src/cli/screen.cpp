@@ -57,11 +57,10 @@ int run_screen(const ScreenCliOptions& o) {
   // Rows are parsed, screened and formatted in parallel a chunk at a time
   // and checked and written in file order (read_star_rows): the output and
   // the first error reported do not depend on the thread count.
-  const std::size_t chunk = 512;
-  std::vector<ScreenRow> rows(chunk);
-  std::vector<std::string> text(chunk), json_text(json ? chunk : 0);
+  std::vector<ScreenRow> rows(kStarRowsChunk);
+  std::vector<std::string> text(kStarRowsChunk), json_text(json ? kStarRowsChunk : 0);
   read_star_rows(
-      reader, chunk,
+      reader, kStarRowsChunk,
       [&](std::size_t i, const ParsedStarRow& r) {
         rows[i] = screen_star(r.star, r.bad_reason, opt);
         text[i].clear();
