@@ -66,6 +66,23 @@ std::string set_field(const std::string& csv, int row, const std::string& col,
   for (const auto& l : lines) out += l + "\n";
   return out;
 }
+
+// Offset of 1-based line `line` in a text.
+std::size_t line_start(const std::string& text, int line) {
+  std::size_t p = 0;
+  for (int k = 1; k < line; ++k) p = text.find('\n', p) + 1;
+  return p;
+}
+
+// heft screen of `in` with one and with two threads fails (exit 2), its
+// message naming `where` (file:line:).
+void check_first_error(const std::string& in, const std::string& where) {
+  for (const char* j : {"1", "2"}) {
+    std::string err;
+    CHECK(run_heft(std::string("screen -j ") + j + " " + in + " -o " + in + ".out", &err) == 2);
+    CHECK(err.find(where) != std::string::npos);
+  }
+}
 }  // namespace
 
 TEST_CASE("screen writes the documented columns and the library's numbers", "[cli][screen]") {
@@ -178,30 +195,16 @@ TEST_CASE("screen: structural errors name file, line and column", "[cli][screen]
     csv = set_field(csv, 10, "early_pmra", "1.2.3");                     // line 12
     const std::string in = tmp_path("two_errors.csv");
     test::write_text(in, csv);
-    for (const char* j : {"1", "2"}) {
-      std::string err;
-      CHECK(run_heft(std::string("screen -j ") + j + " " + in + " -o " + in + ".out", &err) == 2);
-      CHECK(err.find(in + ":12:") != std::string::npos);
-    }
+    check_first_error(in, in + ":12:");
     // A short row after the bad number: the number (line 12) still first.
     std::string shorter = csv;
-    const std::size_t l20 = [&] {
-      std::size_t p = 0;
-      for (int k = 0; k < 19; ++k) p = shorter.find('\n', p) + 1;
-      return p;
-    }();
+    const std::size_t l20 = line_start(shorter, 20);
     shorter.erase(shorter.find_last_of(',', shorter.find('\n', l20)), shorter.find('\n', l20) - shorter.find_last_of(',', shorter.find('\n', l20)));
     test::write_text(in, shorter);
-    for (const char* j : {"1", "2"}) {
-      std::string err;
-      CHECK(run_heft(std::string("screen -j ") + j + " " + in + " -o " + in + ".out", &err) == 2);
-      CHECK(err.find(in + ":12:") != std::string::npos);
-    }
+    check_first_error(in, in + ":12:");
     // Without the bad number the short row is the first error.
     test::write_text(in, set_field(shorter, 10, "early_pmra", "1.0"));
-    std::string err;
-    CHECK(run_heft("screen -j 2 " + in + " -o " + in + ".out", &err) == 2);
-    CHECK(err.find(in + ":20: row has") != std::string::npos);
+    check_first_error(in, in + ":20: row has");
   }
   SECTION("missing required column") {
     const std::string in = tmp_path("missing_col.csv");
@@ -246,23 +249,12 @@ TEST_CASE("screen: rows over several chunks, read ahead while screening", "[cli]
   // A bad number in chunk 4 (line 2,502) and a row that does not read in
   // chunk 5 (line 2,602), read while chunk 4 is parsed: the number first.
   std::string two = set_field(csv, 2500, "late_pmra", "1.2.3");
-  const std::size_t l2602 = [&] {
-    std::size_t p = 0;
-    for (int k = 0; k < 2601; ++k) p = two.find('\n', p) + 1;
-    return p;
-  }();
-  two.insert(l2602, "S-short,1991.25\n");
+  two.insert(line_start(two, 2602), "S-short,1991.25\n");
   test::write_text(in, two);
-  for (const char* j : {"1", "2"}) {
-    std::string err;
-    CHECK(run_heft(std::string("screen -j ") + j + " " + in + " -o " + in + ".out", &err) == 2);
-    CHECK(err.find(in + ":2502:") != std::string::npos);
-  }
+  check_first_error(in, in + ":2502:");
   // Without it, the short row.
   test::write_text(in, set_field(two, 2500, "late_pmra", "1.0"));
-  std::string err;
-  CHECK(run_heft("screen -j 2 " + in + " -o " + in + ".out", &err) == 2);
-  CHECK(err.find(in + ":2602: row has") != std::string::npos);
+  check_first_error(in, in + ":2602: row has");
 }
 
 TEST_CASE("screen accepts header-only, CRLF, BOM, quotes and comments", "[cli][screen]") {
