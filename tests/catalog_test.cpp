@@ -113,11 +113,6 @@ TEST_CASE("star rows in chunks: file order, indices and the first error, whateve
     s.late = test::entry(st, 2016.0, 0.03, 0.04, 2014.57, 2017.41);
     append_star_row(table, s);
   }
-  const auto line_start = [](const std::string& t, int line) {  // 1-based
-    std::size_t p = 0;
-    for (int k = 1; k < line; ++k) p = t.find('\n', p) + 1;
-    return p;
-  };
   struct Seen {
     std::vector<std::string> ids;
     std::vector<long> index, line;
@@ -164,8 +159,8 @@ TEST_CASE("star rows in chunks: file order, indices and the first error, whateve
     // row that does not read at line 12 (fourth chunk, read ahead): rows
     // before the first error are taken, in order, then it is thrown.
     std::string bad = table;
-    bad.insert(line_start(bad, 12), "R-short,1\n");
-    bad.insert(bad.find(',', line_start(bad, 10)) + 1, "x");
+    bad.insert(test::line_start(bad, 12), "R-short,1\n");
+    bad.insert(bad.find(',', test::line_start(bad, 10)) + 1, "x");
     const Seen work_first = run(bad, 5);
     CHECK(work_first.ids.size() == 5);
     CHECK(work_first.error == "work 5");
@@ -173,7 +168,7 @@ TEST_CASE("star rows in chunks: file order, indices and the first error, whateve
     CHECK(number_first.ids.size() == 8);
     CHECK(number_first.error.find("mem.csv:10:") != std::string::npos);
     bad = table;
-    bad.insert(line_start(bad, 12), "R-short,1\n");
+    bad.insert(test::line_start(bad, 12), "R-short,1\n");
     const Seen short_row = run(bad, -1);
     CHECK(short_row.ids.size() == 10);
     CHECK(short_row.error.find("mem.csv:12:") != std::string::npos);

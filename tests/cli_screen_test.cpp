@@ -67,13 +67,6 @@ std::string set_field(const std::string& csv, int row, const std::string& col,
   return out;
 }
 
-// Offset of 1-based line `line` in a text.
-std::size_t line_start(const std::string& text, int line) {
-  std::size_t p = 0;
-  for (int k = 1; k < line; ++k) p = text.find('\n', p) + 1;
-  return p;
-}
-
 // heft screen of `in` with one and with two threads fails (exit 2), its
 // message naming `where` (file:line:).
 void check_first_error(const std::string& in, const std::string& where) {
@@ -198,7 +191,7 @@ TEST_CASE("screen: structural errors name file, line and column", "[cli][screen]
     check_first_error(in, in + ":12:");
     // A short row after the bad number: the number (line 12) still first.
     std::string shorter = csv;
-    const std::size_t l20 = line_start(shorter, 20);
+    const std::size_t l20 = test::line_start(shorter, 20);
     shorter.erase(shorter.find_last_of(',', shorter.find('\n', l20)), shorter.find('\n', l20) - shorter.find_last_of(',', shorter.find('\n', l20)));
     test::write_text(in, shorter);
     check_first_error(in, in + ":12:");
@@ -249,7 +242,7 @@ TEST_CASE("screen: rows over several chunks, read ahead while screening", "[cli]
   // A bad number in chunk 4 (line 2,502) and a row that does not read in
   // chunk 5 (line 2,602), read while chunk 4 is parsed: the number first.
   std::string two = set_field(csv, 2500, "late_pmra", "1.2.3");
-  two.insert(line_start(two, 2602), "S-short,1991.25\n");
+  two.insert(test::line_start(two, 2602), "S-short,1991.25\n");
   test::write_text(in, two);
   check_first_error(in, in + ":2502:");
   // Without it, the short row.

@@ -24,6 +24,12 @@ void write_text(const std::string& path, const std::string& text) {
   f << text;
 }
 
+std::size_t line_start(const std::string& text, int line) {
+  std::size_t p = 0;
+  for (int k = 1; k < line; ++k) p = text.find('\n', p) + 1;
+  return p;
+}
+
 std::string read_text(const std::string& path) {
   std::ifstream f(path, std::ios::binary);
   std::stringstream ss;

@@ -17,6 +17,8 @@ namespace heft::test {
 std::string tmp_path(const std::string& name);
 void write_text(const std::string& path, const std::string& text);
 std::string read_text(const std::string& path);
+/// Offset of 1-based line `line` in a text.
+std::size_t line_start(const std::string& text, int line);
 bool file_exists(const std::string& path);
 /// A fresh empty folder under the test build directory (removed and made again).
 std::string fresh_dir(const std::string& name);
