@@ -38,6 +38,13 @@ double cpu_seconds(int who) {
   return ru.ru_utime.tv_sec + 1e-6 * ru.ru_utime.tv_usec + ru.ru_stime.tv_sec + 1e-6 * ru.ru_stime.tv_usec;
 }
 
+// Minor page faults of this process so far.
+long minor_faults() {
+  rusage ru{};
+  getrusage(RUSAGE_SELF, &ru);
+  return ru.ru_minflt;
+}
+
 // CPU seconds of a child command (its user + system time).
 double child_seconds(const std::string& cmd) {
   const double before = cpu_seconds(RUSAGE_CHILDREN);
@@ -87,13 +94,15 @@ int main(int argc, char** argv) {
   }
   std::printf("one curve at the heft curve defaults (64 separations 0.5-500 AU, %d draws x %d z samples)\n",
               opt.draws, opt.z_samples);
-  std::printf("%10s %8s %6s %10s %12s %12s %10s %12s %8s\n", "star", "sig", "points", "CPU s",
-              "draws", "window evals", "evals/draw", "reference s", "ratio");
+  std::printf("%10s %8s %6s %10s %12s %12s %10s %8s %12s %8s\n", "star", "sig", "points", "CPU s",
+              "draws", "window evals", "evals/draw", "faults", "reference s", "ratio");
   for (int k = 0; k < 4; ++k) {
     if (only_sigma > 0 && std::abs(std::log(only_sigma / targets[k])) > 0.1) continue;
+    const long f0 = minor_faults();
     const double t0 = cpu_seconds(RUSAGE_SELF);
     const Curve c = montecarlo_curve(data[k], opt, picked[k].id);
     const double secs = cpu_seconds(RUSAGE_SELF) - t0;
+    const long faults = minor_faults() - f0;
     double ref_s = NAN;
     if (!reference.empty()) {
       const std::string table = "/tmp/curve_bench_star.csv";
@@ -103,9 +112,9 @@ int main(int argc, char** argv) {
       ref_s = child_seconds(reference + " curve -q " + table + " --id " + picked[k].id + " --draws " +
                             std::to_string(opt.draws) + " -o /tmp/curve_bench_ref.csv");
     }
-    std::printf("%10s %8.1f %6zu %10.3f %12ld %12ld %10.2f %12.3f %8.1f\n", picked[k].id.c_str(), sig[k],
+    std::printf("%10s %8.1f %6zu %10.3f %12ld %12ld %10.2f %8ld %12.3f %8.1f\n", picked[k].id.c_str(), sig[k],
                 c.points.size(), secs, c.draws_weighed, c.window_evaluations,
-                static_cast<double>(c.window_evaluations) / c.draws_weighed, ref_s, ref_s / secs);
+                static_cast<double>(c.window_evaluations) / c.draws_weighed, faults, ref_s, ref_s / secs);
   }
   std::printf("Kepler solves per curve: 4 per window evaluation (two catalogue windows, two ends each)\n");
   return 0;
