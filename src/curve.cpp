@@ -7,8 +7,10 @@
 #include <numbers>
 #include <numeric>
 #include <optional>
+#include <span>
 
 #include "heft/angles.hpp"
+#include "heft/buffers.hpp"
 #include "heft/error.hpp"
 #include "heft/io.hpp"
 #include "heft/rng.hpp"
@@ -137,9 +139,9 @@ constexpr int kMaxAdaptiveRounds = 3, kMaxRounds = kMaxAdaptiveRounds + 1;
 // The random numbers of one round that draws from a proposal: prior draws
 // for its prior half, kernel deviates, and picks (component, then kernel).
 struct ProposalDeviates {
-  std::vector<Draw> prior;
-  std::vector<Eigen::Vector4d> kernel;  // (cos i, omega, M0, e) deviates
-  std::vector<double> pick;
+  LargeVector<Draw> prior;
+  LargeVector<Eigen::Vector4d> kernel;  // (cos i, omega, M0, e) deviates
+  LargeVector<double> pick;
 };
 
 // The random numbers of a star's curve, drawn once and shared by every
@@ -150,9 +152,9 @@ struct ProposalDeviates {
 // separation first needs them, always in the same order, so they do not
 // depend on when (a star without signal never needs them).
 struct DrawSet {
-  std::vector<Draw> first;
+  LargeVector<Draw> first;
   std::vector<ProposalDeviates> proposal;  ///< for the 1st, 2nd ... round from a proposal
-  std::vector<ZDeviates> dev;  ///< per draw, z_samples each
+  LargeVector<ZDeviates> dev;  ///< per draw, z_samples each
   Rng rng;                  ///< the stream, after the deviates drawn so far
 };
 
@@ -208,7 +210,7 @@ void prepare_draw(Draw& dr, const ZPlanePrior& prior) {
 }
 
 Draw prior_draw(const AnomalyData& d, const CurveOptions& opt, const ZPlanePrior& prior, Rng& rng,
-                std::vector<ZDeviates>& dev) {
+                LargeVector<ZDeviates>& dev) {
   Draw dr;
   dr.inc = std::acos(rng.uniform(-1.0, 1.0));
   dr.omega = units::kTwoPi * rng.uniform();
@@ -236,6 +238,7 @@ DrawSet make_draws(const AnomalyData& d, const CurveOptions& opt, const ZPlanePr
   ds.proposal.reserve(kMaxRounds);
   // Room for every round's deviates: no reallocation while a round reads them.
   ds.dev.reserve(static_cast<std::size_t>(kMaxRounds + 1) * opt.draws * opt.z_samples);
+  ds.first.reserve(opt.draws);
   for (int k = 0; k < opt.draws; ++k) ds.first.push_back(prior_draw(d, opt, prior, ds.rng, ds.dev));
   return ds;
 }
@@ -246,6 +249,9 @@ const ProposalDeviates& proposal_deviates(DrawSet& ds, std::size_t k, const Anom
                                           const CurveOptions& opt, const ZPlanePrior& prior) {
   while (ds.proposal.size() <= k) {
     ProposalDeviates& pd = ds.proposal.emplace_back();
+    pd.prior.reserve(opt.draws);
+    pd.kernel.reserve(opt.draws);
+    pd.pick.reserve(2 * static_cast<std::size_t>(opt.draws));
     for (int j = 0; j < opt.draws; ++j) pd.prior.push_back(prior_draw(d, opt, prior, ds.rng, ds.dev));
     for (int j = 0; j < opt.draws; ++j)
       pd.kernel.emplace_back(ds.rng.normal(), ds.rng.normal(), ds.rng.normal(), ds.rng.normal());
@@ -995,20 +1001,30 @@ Proposal proposal_from(const Draw* src, const double* w, std::size_t n, int nz, 
 // mode keeps it (docs/method.md, "Rounds pooled"). The buffers are reused
 // by the next separation (no page faults per point).
 struct Pool {
-  std::vector<Draw> draws;
+  LargeVector<Draw> draws;
   /// z samples, nz per draw, weighed against the proposal of the draw's own round.
-  std::vector<Sample> samples;
+  LargeVector<Sample> samples;
   /// Per sample exp(log_w - max_log_w), max_log_w the largest log weight so
   /// far, with their sums over all rounds and over the latest round.
-  std::vector<double> w;
+  LargeVector<double> w;
+  /// Scratch for the quantiles (mass_samples).
+  LargeVector<std::pair<double, double>> mass_pairs;
   double max_log_w = -std::numeric_limits<double>::infinity();
   double sum = 0.0, sum2 = 0.0, round_sum = 0.0, round_sum2 = 0.0;
   std::size_t size = 0;
-  // Room for n draws. Grown as blocks need it, so that a curve touches
-  // only the memory its draws use: sized for every round at once (16,384
-  // draws x 8 samples), a single-separation upper limit wrote 10 MB for
-  // the 512 draws it needed, and with two threads glibc gave the memory
-  // back after every curve (2,600 page faults per curve, 5x its CPU time).
+  // Address space for a separation's every round (16,384 draws x 8
+  // samples at the defaults), so that growing never copies; the pages are
+  // touched only as draws use them.
+  void reserve(std::size_t n, int nz) {
+    draws.reserve(n);
+    samples.reserve(n * nz);
+    w.reserve(n * nz);
+    mass_pairs.reserve(n * nz);
+  }
+  // Room for n draws, within the reserve. Grown as blocks need it, so
+  // that a curve touches only the memory its draws use: resized for every
+  // round at once, a single-separation upper limit wrote 10 MB for the 512
+  // draws it needed.
   void grow(std::size_t n, int nz) {
     if (draws.size() >= n) return;
     draws.resize(n);
@@ -1127,7 +1143,7 @@ constexpr int kProposalBlocks = 4, kPriorBlocks = 8;
 // distance (absent where that is zero). `pairs` (the samples' masses and
 // weights, `kept` their total weight) is reordered.
 std::vector<double> quantile_errors(const Pool& pool, int nz, const std::vector<double>& ps,
-                                    const std::vector<double>& x, std::vector<std::pair<double, double>>& pairs,
+                                    const std::vector<double>& x, std::span<std::pair<double, double>> pairs,
                                     double kept) {
   const std::size_t nq = ps.size();
   std::vector<double> var(nq, 0.0), dev(nq);
@@ -1160,30 +1176,32 @@ std::vector<double> quantile_errors(const Pool& pool, int nz, const std::vector<
   return err;
 }
 
-// The samples' masses and weights for the quantiles: those below 1e-12 of
-// the largest weight hold at most 1.3e-7 of the total together (131,072
-// samples at most) and are left out.
+// The samples' masses and weights for the quantiles, in the pool's
+// buffer: those below 1e-12 of the largest weight hold at most 1.3e-7 of
+// the total together (131,072 samples at most) and are left out.
 struct MassSamples {
-  std::vector<std::pair<double, double>> pairs;
+  std::span<std::pair<double, double>> pairs;
   double kept = 0.0;  ///< their total weight
 };
-MassSamples mass_samples(const Pool& pool, int nz) {
+MassSamples mass_samples(Pool& pool, int nz) {
   constexpr double kNegligibleWeight = 1e-12;
   MassSamples m;
   const std::size_t n = pool.size * nz;
-  m.pairs.reserve(n);
+  pool.mass_pairs.clear();
+  pool.mass_pairs.reserve(n);
   for (std::size_t i = 0; i < n; ++i)
     if (pool.w[i] > kNegligibleWeight) {
-      m.pairs.emplace_back(pool.samples[i].m2_mjup, pool.w[i]);
+      pool.mass_pairs.emplace_back(pool.samples[i].m2_mjup, pool.w[i]);
       m.kept += pool.w[i];
     }
+  m.pairs = pool.mass_pairs;
   return m;
 }
 
 // Whether the outermost quantiles of a point (an upper limit's 95 %, a
 // detection's 2.5 and 97.5 %) have Monte Carlo errors of at most `tol` of
 // their values (CurveOptions::quantile_tolerance).
-bool quantiles_precise(const Pool& pool, int nz, bool upper, double tol) {
+bool quantiles_precise(Pool& pool, int nz, bool upper, double tol) {
   if (!(pool.sum > 0)) return false;
   MassSamples m = mass_samples(pool, nz);
   const std::vector<double> ps = upper ? std::vector<double>{0.95} : std::vector<double>{0.025, 0.975};
@@ -1196,7 +1214,7 @@ bool quantiles_precise(const Pool& pool, int nz, bool upper, double tol) {
 
 // Whether a point has what it needs: the target effective sample size and,
 // where asked for, precise outermost quantiles.
-bool point_done(const Pool& pool, const Problem& pb) {
+bool point_done(Pool& pool, const Problem& pb) {
   if (pool.ess() < kTargetEss) return false;
   return pb.opt.quantile_tolerance <= 0.0 || quantiles_precise(pool, pb.opt.z_samples, !pb.prior.log_uniform,
                                                                pb.opt.quantile_tolerance);
@@ -1214,7 +1232,7 @@ struct RoundResult {
 RoundResult run_round(const Problem& pb, const Proposal* prop, const ProposalDeviates* pd, Pool& pool,
                       double min_projected_ess) {
   const int nz = pb.opt.z_samples;
-  const std::vector<Draw>& first = pb.ds.first;
+  const LargeVector<Draw>& first = pb.ds.first;
   const std::size_t blocks = prop ? kProposalBlocks : kPriorBlocks;
   const std::size_t n = first.size(), block = (n + blocks - 1) / blocks, offset = pool.size;
   std::optional<KernelMixture> mixture;
@@ -1504,6 +1522,7 @@ Curve montecarlo_curve(const AnomalyData& d, const CurveOptions& opt, const std:
   const ZPlanePrior prior(opt.prior.mass_prior(c.upper_limit));
   DrawSet draws = make_draws(d, opt, prior, rng_id);
   Pool pool;
+  pool.reserve(static_cast<std::size_t>(kMaxRounds) * opt.draws, opt.z_samples);
   std::vector<PointResult> pts;
   // Each separation starts from its left neighbour's proposal when that one
   // needed the adaptive stage (in grid order, so results do not depend on

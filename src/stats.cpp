@@ -127,13 +127,13 @@ double weighted_quantile(const std::vector<std::pair<double, double>>& sorted, d
 }
 
 namespace {
-using Pairs = std::vector<std::pair<double, double>>;
+using Pairs = std::span<std::pair<double, double>>;
 
 // The quantiles targets[t0, t1) (cumulative weights, ascending) whose
 // answers lie in pairs[lo, hi), `below` the weight of the pairs before lo
 // (all ordered below them). Each split by selection sends every target to
 // the side that holds it, so the work is about linear for few targets.
-void select_quantiles(Pairs& pairs, std::size_t lo, std::size_t hi, double below, const double* targets,
+void select_quantiles(Pairs pairs, std::size_t lo, std::size_t hi, double below, const double* targets,
                       double* out, std::size_t t0, std::size_t t1) {
   const auto at = [&](std::size_t k) { return pairs.begin() + static_cast<std::ptrdiff_t>(k); };
   while (t0 < t1 && hi - lo > 64) {
@@ -181,7 +181,7 @@ std::uint64_t order_key(double v) {
 constexpr std::size_t kBucketPairs = 2048;
 constexpr int kBucketBits = 11;  // 2048 buckets: about 0.2 % of a value wide for values over 11 octaves
 
-void bucket_quantiles(const Pairs& pairs, const std::vector<double>& targets, std::vector<double>& out) {
+void bucket_quantiles(Pairs pairs, const std::vector<double>& targets, std::vector<double>& out) {
   std::uint64_t k_min = ~std::uint64_t{0}, k_max = 0;
   for (const auto& pr : pairs) {
     const std::uint64_t k = order_key(pr.first);
@@ -213,7 +213,7 @@ void bucket_quantiles(const Pairs& pairs, const std::vector<double>& targets, st
   // The pairs of those buckets, then selection within each with the weight
   // below it.
   std::vector<std::size_t> slot(n_buckets, targets.size());
-  std::vector<Pairs> group;
+  std::vector<std::vector<std::pair<double, double>>> group;
   for (std::size_t t = 0; t < targets.size(); ++t)
     if (slot[bucket[t]] == targets.size()) {
       slot[bucket[t]] = group.size();
@@ -227,14 +227,14 @@ void bucket_quantiles(const Pairs& pairs, const std::vector<double>& targets, st
   for (std::size_t t0 = 0; t0 < targets.size();) {
     std::size_t t1 = t0 + 1;
     while (t1 < targets.size() && bucket[t1] == bucket[t0]) ++t1;
-    Pairs& gp = group[slot[bucket[t0]]];
+    Pairs gp = group[slot[bucket[t0]]];
     select_quantiles(gp, 0, gp.size(), below[t0], targets.data(), out.data(), t0, t1);
     t0 = t1;
   }
 }
 }  // namespace
 
-std::vector<double> weighted_quantiles(std::vector<std::pair<double, double>>& pairs, double total,
+std::vector<double> weighted_quantiles(std::span<std::pair<double, double>> pairs, double total,
                                        const std::vector<double>& ps) {
   std::vector<double> out(ps.size(), std::numeric_limits<double>::quiet_NaN());
   if (pairs.empty()) return out;

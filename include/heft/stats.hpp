@@ -3,6 +3,7 @@
 /// Tail probabilities and significance conversions that stay finite far in
 /// the tails (chi2 up to 1e4 and beyond), by working with log-probabilities.
 
+#include <span>
 #include <utility>
 #include <vector>
 
@@ -44,7 +45,7 @@ double weighted_quantile(const std::vector<std::pair<double, double>>& sorted, d
 /// searched, by selection (small sets by selection alone); `pairs` may be
 /// reordered. Equal to weighted_quantile on the sorted pairs up to the
 /// rounding of the cumulative sums (NaN when empty).
-std::vector<double> weighted_quantiles(std::vector<std::pair<double, double>>& pairs, double total,
+std::vector<double> weighted_quantiles(std::span<std::pair<double, double>> pairs, double total,
                                        const std::vector<double>& ps);
 
 /// Effective number of samples of weights with sum `sum_w` and sum of
