@@ -2,7 +2,8 @@
 // defaults (0.5-500 AU, 64 separations refined where needed, 4096 draws x 8
 // z samples) on one core, for simulated stars of sig_joint near 3, 10, 50
 // and 270, with the work per curve (draws weighed, window-model
-// evaluations, Kepler solves). Run it with OMP_NUM_THREADS=1 for one core.
+// evaluations, Kepler solves, minor page faults). Run it with
+// OMP_NUM_THREADS=1 for one core.
 // The reference engine (the one before the fast engine) is the `heft curve`
 // of an older build: give its binary with --reference BIN and the table of
 // the bench's stars is written and timed through both binaries.
