@@ -1,5 +1,7 @@
 // heft curve and heft plot curve end to end: determinism, JSON, bad input, SVG.
 #include <catch2/catch.hpp>
+#include <cstdio>
+#include <fstream>
 #include <set>
 #include <nlohmann/json.hpp>
 #include "heft/calibration.hpp"
@@ -103,6 +105,44 @@ TEST_CASE("heft curve CLI: deterministic, modes in JSON, bad input", "[curve][cl
   test::write_text(ids, "NOPE-1\n" + t.str(0, "id") + "\n");
   CHECK(test::run_heft("curve -q " + stars + " --ids " + ids + " -o " + test::tmp_path("curve_discard.csv"), &err) == 2);
   CHECK_THAT(err, Catch::Contains("'NOPE-1'"));
+}
+
+TEST_CASE("heft curve: many stars, one curve per thread, in table order whatever the threads", "[curve][cli]") {
+  // 40 stars: three batches with one thread (16 stars each), two with two.
+  const std::string stars = test::tmp_path("curve_many.csv");
+  REQUIRE(test::run_heft("simulate -q --stars 40 --seed 77 --companion-fraction 0.5 -o " + stars) == 0);
+  const std::string args = "curve -q --all " + stars + " --n-a 3 --draws 64 ";
+  std::string outs[2];
+  for (int j : {1, 2}) {
+    const std::string o = test::tmp_path("curve_many" + std::to_string(j));
+    REQUIRE(test::run_heft(args + "-j " + std::to_string(j) + " -o " + o + ".csv --json " + o + ".json --keep-draws " +
+                           o + ".draws.csv") == 0);
+    outs[j - 1] = test::read_text(o + ".csv") + test::read_text(o + ".json") + test::read_text(o + ".draws.csv");
+  }
+  CHECK(outs[0] == outs[1]);
+  // Rows in the table's order.
+  const auto tab = test::read_table(stars);
+  std::vector<std::string> order;
+  for (const auto& row : test::read_table(test::tmp_path("curve_many2.csv")).rows)
+    if (order.empty() || order.back() != row[0]) order.push_back(row[0]);
+  std::vector<std::string> want;
+  for (std::size_t r = 0; r < tab.rows.size(); ++r) want.push_back(tab.str(r, "id"));
+  CHECK(order == want);
+  // A row that does not read, after a batch's worth of good ones: the
+  // error names its line, and no output is left behind.
+  std::string text = test::read_text(stars);
+  const std::size_t at = test::line_start(text, 35);
+  text.insert(text.find('\n', at), ",1");  // one field too many
+  const std::string broken = test::tmp_path("curve_many_broken.csv"), o = test::tmp_path("curve_many_broken.out.csv");
+  test::write_text(broken, text);
+  std::remove(o.c_str());
+  for (int j : {1, 2}) {
+    std::string err;
+    CHECK(test::run_heft("curve -q --all " + broken + " --n-a 3 --draws 64 -j " + std::to_string(j) + " -o " + o,
+                         &err) == 2);
+    CHECK_THAT(err, Catch::Contains(":35:"));
+    CHECK(!std::ifstream(o).good());
+  }
 }
 
 TEST_CASE("heft plot curve writes an SVG that renders", "[curve][cli][plot]") {
