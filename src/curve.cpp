@@ -1560,6 +1560,10 @@ Curve montecarlo_curve(const AnomalyData& d, const CurveOptions& opt, const std:
   set_weights(pts);
   set_bayes_factor(pts, d.dpm.dot(d.cov.llt().solve(d.dpm)), c);
   c.min_ess = std::numeric_limits<double>::infinity();
+  std::size_t n_draws = 0;
+  for (const auto& p : pts) n_draws += p.draws.size();
+  c.draws.reserve(n_draws);
+  c.points.reserve(pts.size());
   for (auto& p : pts) {
     c.points.push_back(p.point);
     c.min_ess = std::min(c.min_ess, p.point.ess);
