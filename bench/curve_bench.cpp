@@ -8,11 +8,13 @@
 // of an older build: give its binary with --reference BIN and the table of
 // the bench's stars is written and timed through both binaries.
 //
-// Usage: curve_bench [--draws N] [--sigma S] [--reference HEFT_BINARY] [--quantile-errors]
+// Usage: curve_bench [--draws N] [--sigma S] [--z-samples Z] [--reference HEFT_BINARY] [--quantile-errors]
 // (--quantile-errors: also the mass quantiles' Monte Carlo errors, as `heft curve
 // --json`.)
 // (--draws: the draws per separation, 4096 by default as in `heft curve`;
-// `heft rank` uses 512. --sigma: time only the star nearest to S of the four.)
+// `heft rank` uses 512. --sigma: time only the star nearest to S of the four.
+// --z-samples: z samples per draw, 8 by default as in `heft curve`, which
+// has no option for it.)
 
 #include <sys/resource.h>
 #include <sys/wait.h>
@@ -65,9 +67,14 @@ int main(int argc, char** argv) {
     if (std::strcmp(argv[i], "--reference") == 0) reference = argv[i + 1];
     if (std::strcmp(argv[i], "--draws") == 0) opt.draws = std::atoi(argv[i + 1]);
     if (std::strcmp(argv[i], "--sigma") == 0) only_sigma = std::atof(argv[i + 1]);
+    if (std::strcmp(argv[i], "--z-samples") == 0) opt.z_samples = std::atoi(argv[i + 1]);
   }
   if (opt.draws < 64) {
     std::fprintf(stderr, "curve_bench: --draws must be at least 64\n");
+    return 2;
+  }
+  if (opt.z_samples < 1) {
+    std::fprintf(stderr, "curve_bench: --z-samples must be at least 1\n");
     return 2;
   }
   opt.a_au = log_grid(0.5, 500.0, 64);
