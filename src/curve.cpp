@@ -1364,14 +1364,18 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, DrawSet& d
   p.period_yr = period_from_a(a_au, d.host_mass_msun);
   p.ess = pool.ess();
   // The mean weight estimates the marginal likelihood. The z samples of a
-  // draw share its orbit angles, so its error is taken over draws.
+  // draw share its orbit angles, so its error is taken over draws, and so
+  // is the effective number of orbits.
   if (sw > 0) {
     r.share.resize(pool.size);
+    double sum_draw_w2 = 0.0;
     for (std::size_t j = 0; j < pool.size; ++j) {
       double wj = 0.0;
       for (int s = 0; s < nz; ++s) wj += pool.w[j * nz + s];
       r.share[j] = static_cast<float>(wj / sw);
+      sum_draw_w2 += wj * wj;
     }
+    p.ess_orbits = effective_sample_size(sw, sum_draw_w2);
   }
   r.log_evidence = std::isfinite(pool.max_log_w) && sw > 0
                        ? pool.max_log_w + std::log(sw) - std::log(static_cast<double>(n_samples))
@@ -1751,6 +1755,7 @@ nlohmann::ordered_json curve_point_json(const CurvePoint& p, bool upper_limit, b
   j["mass_mjup"] = by_quantile({p.mass_lo95, p.mass_lo68, p.mass_med, p.mass_hi68, p.mass_hi95});
   if (errors) j["mass_mjup_error"] = by_quantile(p.mass_error);
   j["ess"] = json_number(p.ess);
+  j["ess_orbits"] = json_number(p.ess_orbits);
   j["notes"] = p.notes;
   if (has_note(p.notes, "multiple_solutions")) {
     nlohmann::ordered_json roots;

@@ -47,6 +47,10 @@ TEST_CASE("heft curve CLI: deterministic, modes in JSON, bad input", "[curve][cl
         if (p["ess"].get<double>() < 100.0) CHECK(v.is_null());
       }
       CHECK(got_err == keys);
+      // the effective number of orbit draws beside it (docs/formats.md)
+      const double ess = p["ess"].get<double>(), orbits = p["ess_orbits"].get<double>();
+      CHECK(orbits <= ess * (1.0 + 1e-12));
+      CHECK(orbits >= ess / 8.0 * (1.0 - 1e-12));
     }
     if (compared || s["mode"] != "detection") continue;
     for (std::size_t r = 0; r < t.rows.size(); ++r)

@@ -194,6 +194,37 @@ TEST_CASE("curve rounds: draws are weighed in blocks until 1,000 effective sampl
   CHECK(h.draws_weighed <= 4 * 4096);  // at most three of them
 }
 
+TEST_CASE("effective orbits: between ess / z samples and ess, near ess / z samples at high S/N", "[curve]") {
+  // Each draw's summed weight squared lies between the sum of its z
+  // samples' squared weights and z_samples times it (Cauchy-Schwarz), so
+  // ess / z_samples <= ess_orbits <= ess at every point (exact, no outside
+  // source). At S/N 76 a draw's z samples carry nearly the same weight
+  // and mass, and the effective number of orbits is close to ess / 8
+  // (measured 7.7-8.0 on the bench stars, docs/performance.md "Stop 36";
+  // no outside source). Flat weights give the same ratio: without signal
+  // the ratio says nothing of how alike the samples' masses are.
+  CurveOptions opt;
+  opt.refine_rounds = 0;
+  const double P = period_from_a(5.0, 1.0);
+  const Orbit<double> o{P, 0.3, 1.0, 2.0, 0.5, 1.0, 2016.0};
+  const Curve quiet = no_signal_curve(opt);
+  opt.a_au = {5.0};
+  const Curve loud = montecarlo_curve(data_for(o, 5.0, 10.0, 1.0, 50.0, 0.01, 0.05, kEarly, kLate), opt, "loud");
+  for (const Curve* c : {&quiet, &loud})
+    for (const auto& p : c->points) {
+      INFO("a " << p.a_au << " ess " << p.ess << " orbits " << p.ess_orbits);
+      CHECK(p.ess_orbits >= p.ess / opt.z_samples * (1.0 - 1e-12));
+      CHECK(p.ess_orbits <= p.ess * (1.0 + 1e-12));
+    }
+  const double loud_ratio = loud.points[0].ess / loud.points[0].ess_orbits;
+  INFO("ess / ess_orbits at S/N 76: " << loud_ratio);
+  CHECK(loud_ratio > 7.0);
+  // Other methods have no draws.
+  CurveOptions an;
+  an.a_au = {5.0};
+  CHECK(!present(analytic_curve(no_signal_data(), an).points[0].ess_orbits));
+}
+
 TEST_CASE("single stars: false-detection rate matches the chosen sigma", "[curve]") {
   // A star is a detection when sig_joint >= --detect-sigma (3): for single
   // stars the rate is 2 Phi(-3) = 0.27 % (chi2(4) converted to a two-sided

@@ -88,6 +88,11 @@ struct CurvePoint {
   /// the mass quantiles"); kAbsent where the column is, below kLowEss
   /// effective samples, and where one sample holds the quantile.
   std::array<double, 5> mass_error{kAbsent, kAbsent, kAbsent, kAbsent, kAbsent};
+  /// Monte Carlo curves: the effective number of orbit draws, each draw's z
+  /// samples' weights summed (between ess / z_samples and ess; from S/N
+  /// about 10 near ess / z_samples, since a draw's z samples then carry
+  /// nearly the same mass); kAbsent for other methods.
+  double ess_orbits = kAbsent;
 };
 
 struct Curve {
