@@ -193,7 +193,8 @@ std::vector<CurvePoint> read_curve_table(std::istream& in, const std::string& na
 /// sep_mas, period_yr, weight, the mass quantiles as "mass_mjup" (q2.5,
 /// q16, q50, q84, q97.5; an upper limit's q68 and q95), with `errors` their
 /// Monte Carlo errors as "mass_mjup_error" under the same keys (null where
-/// absent), ess, notes, and for analytic curves with several roots
+/// absent), ess, ess_orbits (null for other methods than Monte Carlo),
+/// notes, and for analytic curves with several roots
 /// "roots_mjup" under the same keys.
 nlohmann::ordered_json curve_point_json(const CurvePoint& p, bool upper_limit, bool errors);
 
