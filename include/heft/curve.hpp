@@ -89,9 +89,10 @@ struct CurvePoint {
   /// effective samples, and where one sample holds the quantile.
   std::array<double, 5> mass_error{kAbsent, kAbsent, kAbsent, kAbsent, kAbsent};
   /// Monte Carlo curves: the effective number of orbit draws, each draw's z
-  /// samples' weights summed (between ess / z_samples and ess; from S/N
-  /// about 10 near ess / z_samples, since a draw's z samples then carry
-  /// nearly the same mass); kAbsent for other methods.
+  /// samples' weights summed (between ess / z_samples and ess; near
+  /// ess / z_samples where a draw's samples weigh alike: from S/N about 10,
+  /// where they also carry nearly the same mass, and where the weights are
+  /// flat); kAbsent for other methods.
   double ess_orbits = kAbsent;
 };
 
