@@ -1,5 +1,6 @@
 #include <catch2/catch.hpp>
 #include <Eigen/LU>
+#include <algorithm>
 #include <nlohmann/json.hpp>
 #include <random>
 
@@ -568,13 +569,21 @@ TEST_CASE("Bayes factor: few draws give the same evidence as many", "[curve]") {
 }
 
 TEST_CASE("mass quantiles: their quoted errors match their scatter between seeds", "[curve]") {
-  // Reference: the variance of each quantile over 16 curve seeds (common
-  // practice, no source) against the mean square of its quoted error,
-  // pooled over the columns of three systems of each coverage population at
-  // their true a (upper limits: 2 columns x 3 systems x 15 degrees of
-  // freedom, the ratio known to about 10 %; detections: 5 columns,
-  // correlated). Measured: 0.89 and 0.99; with the z samples of a draw taken
-  // as independent, 1.16 and 1.88 (the detections then fail).
+  // Reference: the standard deviation of each quantile over 16 curve seeds
+  // (common practice, no source) against the root mean square of its
+  // quoted error, per column (one quantile of one system), over twelve
+  // systems of each coverage population at their true a (upper limits: 2
+  // columns each, detections 5). The upper quantiles' scatter is heavy
+  // tailed (one seed that samples the tail sets it), so one column's ratio
+  // is uncertain by much more than a chi-squared with 15 degrees of freedom
+  // would say: with three systems, as this test had, the pooled ratio of
+  // an unchanged engine ranged over 0.56-1.11 between eight sets of 16
+  // seeds, outside 0.7-1.4 in four. With twelve systems, over six sets of
+  // 16 seeds of that engine: the median column's ratio 0.86-1.08 (upper
+  // limits) and 0.88-1.03 (detections), the pooled ratio 0.83-0.99 and
+  // 0.95-1.13. With the z samples of a draw taken as independent, the
+  // detections' median 2.43 and pooled 2.37 (their samples carry nearly
+  // the same mass).
   for (const bool upper : {true, false}) {
     CurveOptions opt;
     opt.prior.m_min_mjup = 1;
@@ -582,8 +591,9 @@ TEST_CASE("mass quantiles: their quoted errors match their scatter between seeds
     opt.refine_rounds = 0;
     const SurveyModel m = coverage_survey(opt, 1.0, 50.0, 99, upper);
     double sum_var = 0.0, sum_e2 = 0.0;
-    int systems = 0;
-    for (long i = 0; systems < 3; ++i) {
+    std::vector<double> column_ratio;
+    int systems = 0, columns = 0;
+    for (long i = 0; systems < 12; ++i) {
       const CoverageSystem c = coverage_system(m, i);
       if (!c.ok || !c.t.companion || !(upper ? c.sig_joint < 3.0 : c.sig_joint >= 6.0)) continue;
       ++systems;
@@ -596,19 +606,30 @@ TEST_CASE("mass quantiles: their quoted errors match their scatter between seeds
         e.push_back(p.mass_error);
       }
       for (int k = upper ? 3 : 0; k < 5; ++k) {
-        double mean = 0;
+        ++columns;
+        // A seed whose quantile had one sample spanning its error quotes none.
+        if (std::any_of(e.begin(), e.end(), [k](const auto& x) { return !(x[k] > 0.0); })) continue;
+        double mean = 0, var = 0, e2 = 0;
         for (const auto& x : v) mean += x[k] / v.size();
         for (std::size_t j = 0; j < v.size(); ++j) {
-          CHECK(e[j][k] > 0.0);
-          sum_var += (v[j][k] - mean) * (v[j][k] - mean) / (v.size() - 1);
-          sum_e2 += e[j][k] * e[j][k] / v.size();
+          var += (v[j][k] - mean) * (v[j][k] - mean) / (v.size() - 1);
+          e2 += e[j][k] * e[j][k] / v.size();
         }
+        sum_var += var;
+        sum_e2 += e2;
+        column_ratio.push_back(std::sqrt(var / e2));
       }
     }
-    const double ratio = std::sqrt(sum_var / sum_e2);
-    INFO((upper ? "upper limits" : "detections") << ": scatter / quoted error " << ratio);
-    CHECK(ratio > 0.7);
-    CHECK(ratio < 1.4);
+    std::sort(column_ratio.begin(), column_ratio.end());
+    const double median = column_ratio[column_ratio.size() / 2], pooled = std::sqrt(sum_var / sum_e2);
+    INFO((upper ? "upper limits" : "detections") << ": scatter / quoted error, median column " << median
+                                                 << ", pooled " << pooled << "; columns with every error "
+                                                 << column_ratio.size() << " of " << columns);
+    CHECK(column_ratio.size() >= 0.9 * columns);
+    CHECK(median > 0.8);
+    CHECK(median < 1.25);
+    CHECK(pooled > 0.7);
+    CHECK(pooled < 1.4);
   }
   // Only asked for: no errors, the same quantiles.
   CurveOptions opt;
