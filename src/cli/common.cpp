@@ -118,8 +118,8 @@ void add_prior_options(CLI::App* app, PriorOptions& prior, std::string& ecc_text
 
 void add_draws_option(CLI::App* app, int& draws) {
   app->add_option("--draws", draws,
-                  "orbit draws per separation and round, at most (weighed in blocks of an eighth or a quarter "
-                  "until 1,000 effective samples)")
+                  "orbit draws per separation and round, at most (weighed in steps of at most 64 until 1,000 "
+                  "effective samples)")
       ->check(CLI::Range(16, 10000000))->capture_default_str();
 }
 
