@@ -3,15 +3,18 @@
 # 10^6 stars (2 % with companions), both cores, curves for the 1,000 most
 # significant stars at rank's default grid; prints heft's per-stage times and
 # the peak RSS. Usage: bench/rank_bench.sh [sizes="10000 100000 1000000"]
+# [draws per separation and round, default rank's own]
 set -euo pipefail
 here=$(cd "$(dirname "$0")" && pwd)
 heft=${HEFT:-$here/../build/heft}
 work=$(mktemp -d /tmp/heft-rank-bench.XXXXXX)
+draws=()
+[ -n "${2:-}" ] && draws=(--draws "$2")
 for n in ${1:-10000 100000 1000000}; do
   "$heft" simulate -q --stars "$n" --seed 31337 --companion-fraction 0.02 -o "$work/stars.csv"
   start=$(date +%s.%N)
   "$heft" rank "$work/stars.csv" --date 2027.5 --iwa 80 --owa 2000 --target-mass 5,80 --max-curves 1000 \
-    -o "$work/ranked.csv" 2> "$work/err.txt" &
+    "${draws[@]}" -o "$work/ranked.csv" 2> "$work/err.txt" &
   pid=$!
   peak=0
   while kill -0 "$pid" 2>/dev/null; do
