@@ -618,7 +618,9 @@ TEST_CASE("mass quantiles: their quoted errors match their scatter between seeds
       }
       for (int k = upper ? 3 : 0; k < 5; ++k) {
         ++columns;
-        // A seed whose quantile had one sample spanning its error quotes none.
+        // A seed whose quantile had one sample spanning its error, or whose
+        // point has fewer than 100 effective samples, quotes none: measured,
+        // 54-60 of the detections' 60 columns keep every error.
         if (std::any_of(e.begin(), e.end(), [k](const auto& x) { return !(x[k] > 0.0); })) continue;
         double mean = 0, var = 0, e2 = 0;
         for (const auto& x : v) mean += x[k] / v.size();
@@ -631,12 +633,12 @@ TEST_CASE("mass quantiles: their quoted errors match their scatter between seeds
         column_ratio.push_back(std::sqrt(var / e2));
       }
     }
+    INFO((upper ? "upper limits" : "detections") << ": columns with every error " << column_ratio.size() << " of "
+                                                 << columns);
+    REQUIRE(column_ratio.size() >= 0.8 * columns);
     std::sort(column_ratio.begin(), column_ratio.end());
     const double median = column_ratio[column_ratio.size() / 2], pooled = std::sqrt(sum_var / sum_e2);
-    INFO((upper ? "upper limits" : "detections") << ": scatter / quoted error, median column " << median
-                                                 << ", pooled " << pooled << "; columns with every error "
-                                                 << column_ratio.size() << " of " << columns);
-    CHECK(column_ratio.size() >= 0.9 * columns);
+    INFO("scatter / quoted error, median column " << median << ", pooled " << pooled);
     CHECK(median > 0.8);
     CHECK(median < 1.25);
     CHECK(pooled > 0.7);
