@@ -1252,7 +1252,7 @@ RoundResult run_round(const Problem& pb, const Proposal* prop, const ProposalDev
   const double ess_before = pool.ess();
   pool.start_round();
   const std::size_t fine = pb.opt.quantile_tolerance > 0.0 ? block : std::min<std::size_t>(block, kTargetStep);
-  for (std::size_t begin = 0; begin < n;) {
+  for (std::size_t begin = 0; begin < n; begin = r.used) {
     const std::size_t end = std::min({n, begin + (begin == 0 ? block : fine), (begin / block + 1) * block});
     pool.grow(offset + end, nz);
     if (prop) {
@@ -1275,7 +1275,6 @@ RoundResult run_round(const Problem& pb, const Proposal* prop, const ProposalDev
     pool.add_weights(offset + begin, offset + end, nz);
     r.used = end;
     pool.size = offset + end;
-    begin = end;
     if (point_done(pool, pb)) break;
     if ((end % block == 0 || end == n) &&
         ess_before + pool.round_ess() * static_cast<double>(n) / static_cast<double>(end) < min_projected_ess)
