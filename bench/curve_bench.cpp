@@ -9,6 +9,10 @@
 // the bench's stars is written and timed through both binaries.
 //
 // Usage: curve_bench [--draws N] [--sigma S] [--z-samples Z] [--reference HEFT_BINARY] [--quantile-errors]
+//                    [--per-separation]
+// (--per-separation: after each star, its separations with the draws and
+// rounds each took, the effective sizes reached and the posterior weight,
+// so that one sees where a curve's draws go.)
 // (--quantile-errors: also the mass quantiles' Monte Carlo errors, as `heft curve
 // --json`.)
 // (--draws: the draws per separation, 4096 by default as in `heft curve`;
@@ -19,6 +23,7 @@
 #include <sys/resource.h>
 #include <sys/wait.h>
 
+#include <algorithm>
 #include <cmath>
 #include <cstdio>
 #include <cstdlib>
@@ -62,7 +67,11 @@ int main(int argc, char** argv) {
   CurveOptions opt;
   opt.quantile_errors = false;  // as `heft curve` without --json
   double only_sigma = 0.0;
-  for (int i = 1; i < argc; ++i) if (std::strcmp(argv[i], "--quantile-errors") == 0) opt.quantile_errors = true;
+  bool per_separation = false;
+  for (int i = 1; i < argc; ++i) {
+    if (std::strcmp(argv[i], "--quantile-errors") == 0) opt.quantile_errors = true;
+    if (std::strcmp(argv[i], "--per-separation") == 0) per_separation = true;
+  }
   for (int i = 1; i + 1 < argc; ++i) {
     if (std::strcmp(argv[i], "--reference") == 0) reference = argv[i + 1];
     if (std::strcmp(argv[i], "--draws") == 0) opt.draws = std::atoi(argv[i + 1]);
@@ -120,9 +129,20 @@ int main(int argc, char** argv) {
       ref_s = child_seconds(reference + " curve -q " + table + " --id " + picked[k].id + " --draws " +
                             std::to_string(opt.draws) + " -o /tmp/curve_bench_ref.csv");
     }
-    std::printf("%10s %8.1f %6zu %10.3f %12ld %12ld %10.2f %8ld %12.3f %8.1f\n", picked[k].id.c_str(), sig[k],
+    // Without --reference the reference columns are "-".
+    char ref_cols[32] = "           -        -";
+    if (!reference.empty()) std::snprintf(ref_cols, sizeof ref_cols, "%12.3f %8.1f", ref_s, ref_s / secs);
+    std::printf("%10s %8.1f %6zu %10.3f %12ld %12ld %10.2f %8ld %s\n", picked[k].id.c_str(), sig[k],
                 c.points.size(), secs, c.draws_weighed, c.window_evaluations,
-                static_cast<double>(c.window_evaluations) / c.draws_weighed, faults, ref_s, ref_s / secs);
+                static_cast<double>(c.window_evaluations) / c.draws_weighed, faults, ref_cols);
+    if (per_separation) {
+      std::vector<CurvePoint> pts = c.points;  // in the order computed: the grid, then refinements
+      std::sort(pts.begin(), pts.end(), [](const CurvePoint& x, const CurvePoint& y) { return x.a_au < y.a_au; });
+      std::printf("%12s %8s %6s %8s %10s %10s\n", "a_au", "draws", "rounds", "ess", "ess_orbits", "weight");
+      for (const CurvePoint& p : pts)
+        std::printf("%12.4g %8ld %6d %8.0f %10.0f %10.2e\n", p.a_au, p.draws, p.rounds, p.ess, p.ess_orbits,
+                    p.weight);
+    }
   }
   std::printf("Kepler solves per curve: 4 per window evaluation (two catalogue windows, two ends each)\n");
   return 0;

@@ -1377,6 +1377,8 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, DrawSet& d
   p.sep_mas = a_au * d.parallax_mas;
   p.period_yr = period_from_a(a_au, d.host_mass_msun);
   p.ess = pool.ess();
+  p.draws = r.draws_weighed;
+  p.rounds = static_cast<int>(r.rounds.size());
   // The mean weight estimates the marginal likelihood. The z samples of a
   // draw share its orbit angles, so its error is taken over draws, and so
   // is the effective number of orbits.
@@ -1770,6 +1772,12 @@ nlohmann::ordered_json curve_point_json(const CurvePoint& p, bool upper_limit, b
   if (errors) j["mass_mjup_error"] = by_quantile(p.mass_error);
   j["ess"] = json_number(p.ess);
   j["ess_orbits"] = json_number(p.ess_orbits);
+  if (p.rounds > 0) {
+    j["draws"] = p.draws;
+    j["rounds"] = p.rounds;
+  } else {
+    j["draws"] = j["rounds"] = nullptr;
+  }
   j["notes"] = p.notes;
   if (has_note(p.notes, "multiple_solutions")) {
     nlohmann::ordered_json roots;

@@ -51,6 +51,14 @@ TEST_CASE("heft curve CLI: deterministic, modes in JSON, bad input", "[curve][cl
       const double ess = p["ess"].get<double>(), orbits = p["ess_orbits"].get<double>();
       CHECK(orbits <= ess * (1.0 + 1e-12));
       CHECK(orbits >= ess / 8.0 * (1.0 - 1e-12));
+      // the draws and rounds spent on it: at least the first block of an
+      // eighth of --draws, at most four rounds of them (docs/method.md)
+      const long draws = p["draws"].get<long>(), draws_option = 256;
+      const int rounds = p["rounds"].get<int>();
+      CHECK(rounds >= 1);
+      CHECK(rounds <= 4);
+      CHECK(draws >= draws_option / 8);
+      CHECK(draws <= rounds * draws_option);
     }
     if (compared || s["mode"] != "detection") continue;
     for (std::size_t r = 0; r < t.rows.size(); ++r)

@@ -198,12 +198,18 @@ TEST_CASE("curve rounds: draws are weighed in blocks until 1,000 effective sampl
   INFO("draws weighed " << c.draws_weighed << ", ess " << c.points[0].ess);
   CHECK(c.draws_weighed < 4096);
   CHECK(c.points[0].ess >= 1000.0);
+  // A lone separation's own count is the curve's (no outside source).
+  CHECK(c.points[0].draws == c.draws_weighed);
+  CHECK(c.points[0].rounds == 1);
   CHECK(c.points[0].mass_lo95 <= 10.0);
   CHECK(c.points[0].mass_hi95 >= 10.0);
   const AnomalyData loud = data_for(o, 5.0, 10.0, 1.0, 50.0, 0.01, 0.05, kEarly, kLate);
   const Curve h = montecarlo_curve(loud, opt, "loud");
   CHECK(h.draws_weighed > 4096);       // the first round in full, then adaptive rounds
   CHECK(h.draws_weighed <= 4 * 4096);  // at most three of them
+  CHECK(h.points[0].draws == h.draws_weighed);
+  CHECK(h.points[0].rounds >= 2);
+  CHECK(h.points[0].rounds <= 4);
 }
 
 TEST_CASE("effective orbits: between ess / z samples and ess, near ess / z samples at high S/N", "[curve]") {
@@ -234,7 +240,10 @@ TEST_CASE("effective orbits: between ess / z samples and ess, near ess / z sampl
   // Other methods have no draws.
   CurveOptions an;
   an.a_au = {5.0};
-  CHECK(!present(analytic_curve(no_signal_data(), an).points[0].ess_orbits));
+  const CurvePoint analytic = analytic_curve(no_signal_data(), an).points[0];
+  CHECK(!present(analytic.ess_orbits));
+  CHECK(analytic.draws == 0);
+  CHECK(analytic.rounds == 0);
 }
 
 TEST_CASE("single stars: false-detection rate matches the chosen sigma", "[curve]") {

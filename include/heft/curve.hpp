@@ -94,6 +94,12 @@ struct CurvePoint {
   /// where they also carry nearly the same mass, and where the weights are
   /// flat); kAbsent for other methods.
   double ess_orbits = kAbsent;
+  /// Monte Carlo curves: the orbit draws weighed at this separation over
+  /// all its rounds, and the number of those rounds (the first, of prior
+  /// draws or from a neighbour's proposal, then up to three adaptive ones;
+  /// docs/method.md, "Draws in blocks"); 0 for other methods.
+  long draws = 0;
+  int rounds = 0;
 };
 
 struct Curve {
