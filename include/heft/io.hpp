@@ -210,6 +210,8 @@ class AtomicOutput {
   int temp_slot_ = -1;  // slot in the signal-cleanup registry
   std::FILE* file_ = nullptr;
   bool committed_ = false;
+  static constexpr std::size_t kWritebackBytes = std::size_t{8} << 20;
+  std::size_t written_ = 0, started_ = 0;  ///< bytes written, and those whose writeback has started
 };
 
 /// Installs handlers for SIGINT, SIGTERM, SIGHUP and SIGPIPE that remove the
