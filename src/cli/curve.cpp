@@ -256,7 +256,8 @@ void setup_curve(CLI::App& app, Runner& run) {
   sub->add_option("-o,--output", o->output, "curve table (CSV, ECSV or FITS); default stdout");
   add_format_option(sub, o->format);
   sub->add_option("--json", o->json,
-                  "also write the curves as JSON (mode, ESS, the mass quantiles' Monte Carlo errors, priors)");
+                  "also write the curves as JSON (mode, ESS and the draws of each separation, the mass "
+                  "quantiles' Monte Carlo errors, priors)");
   sub->add_option("--keep-draws", o->keep_draws,
                   "write weighted posterior orbit draws (CSV, docs/formats.md) for heft predict");
   sub->add_option("--method", o->method,
