@@ -23,7 +23,6 @@
 #include <sys/resource.h>
 #include <sys/wait.h>
 
-#include <algorithm>
 #include <cmath>
 #include <cstdio>
 #include <cstdlib>
@@ -136,10 +135,8 @@ int main(int argc, char** argv) {
                 c.points.size(), secs, c.draws_weighed, c.window_evaluations,
                 static_cast<double>(c.window_evaluations) / c.draws_weighed, faults, ref_cols);
     if (per_separation) {
-      std::vector<CurvePoint> pts = c.points;  // in the order computed: the grid, then refinements
-      std::sort(pts.begin(), pts.end(), [](const CurvePoint& x, const CurvePoint& y) { return x.a_au < y.a_au; });
       std::printf("%12s %8s %6s %8s %10s %10s\n", "a_au", "draws", "rounds", "ess", "ess_orbits", "weight");
-      for (const CurvePoint& p : pts)
+      for (const CurvePoint& p : c.points)  // in a, refinements in place
         std::printf("%12.4g %8ld %6d %8.0f %10.0f %10.2e\n", p.a_au, p.draws, p.rounds, p.ess, p.ess_orbits,
                     p.weight);
     }
