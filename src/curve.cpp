@@ -1293,7 +1293,7 @@ struct PointResult {
   /// of a round has key first + j).
   std::vector<float> share;
   std::vector<std::pair<std::uint32_t, std::uint32_t>> rounds;
-  long draws_weighed = 0, window_evaluations = 0;
+  long window_evaluations = 0;
   Proposal proposal;  ///< the last proposal used (empty without the adaptive stage)
 };
 
@@ -1342,7 +1342,7 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, DrawSet& d
     const RoundResult round = run_round(pb, prop, pd, pool, min_projected_ess);
     r.rounds.emplace_back(key_base, static_cast<std::uint32_t>(round.used));
     evaluations += round.evaluations;
-    r.draws_weighed += static_cast<long>(round.used);
+    r.point.draws += static_cast<long>(round.used);
   };
   run(seed, seed ? kTargetEss : 0.0);
   // Where one sample still holds nearly all the weight after an adaptive
@@ -1377,7 +1377,6 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, DrawSet& d
   p.sep_mas = a_au * d.parallax_mas;
   p.period_yr = period_from_a(a_au, d.host_mass_msun);
   p.ess = pool.ess();
-  p.draws = r.draws_weighed;
   p.rounds = static_cast<int>(r.rounds.size());
   // The mean weight estimates the marginal likelihood. The z samples of a
   // draw share its orbit angles, so its error is taken over draws, and so
@@ -1587,7 +1586,7 @@ Curve montecarlo_curve(const AnomalyData& d, const CurveOptions& opt, const std:
   for (auto& p : pts) {
     c.points.push_back(p.point);
     c.min_ess = std::min(c.min_ess, p.point.ess);
-    c.draws_weighed += p.draws_weighed;
+    c.draws_weighed += p.point.draws;
     c.window_evaluations += p.window_evaluations;
     const double per = p.draws.empty() ? 0.0 : p.point.weight / p.draws.size();
     for (auto& dr : p.draws) {
