@@ -53,6 +53,13 @@ int main(int argc, char** argv) {
   std::printf("%d systems (S/N 6 to %.0f), %d draws%s: 68 %% band covers %.1f %%, 95 %% band %.1f %%\n",
               cov.systems, cov.max_sig, draws, full_grid ? ", whole curves" : "", 100.0 * cov.in68,
               100.0 * cov.in95);
+  // The strong detections alone, where the curve draws omega from its
+  // conditional (S/N 20 and above; docs/method.md, "Omega from its
+  // conditional").
+  const Coverage strong = curve_coverage(m, o, n_sys, 20.0, grid);
+  std::printf("%d systems (S/N 20 to %.0f), %d draws%s: 68 %% band covers %.1f %%, 95 %% band %.1f %%\n",
+              strong.systems, strong.max_sig, draws, full_grid ? ", whole curves" : "", 100.0 * strong.in68,
+              100.0 * strong.in95);
   // Upper limits: masses from their own prior (uniform in [0, m_max]),
   // systems below --detect-sigma.
   const Coverage up = curve_coverage(coverage_survey(o, 1.0, 50.0, 99, true), o, n_sys, 0.0, grid,

@@ -107,8 +107,9 @@ struct WarmStart {
 
 struct Draw {
   double inc;
-  /// Drawn when the draw is weighed, from its conditional given the rest
-  /// (choose_omega), with the uniform deviate u_omega.
+  /// 2 pi u_omega from the prior; from S/N 20 on drawn again each time the
+  /// draw is weighed, from its conditional given the rest (choose_omega),
+  /// with the uniform deviate u_omega.
   mutable double omega;
   double ecc, m0, m1, plx, u_omega;
   std::size_t dev;  ///< first of its z samples' deviates in DrawSet::dev
@@ -851,7 +852,8 @@ long weigh_total_batch(const Problem& pb, PendingDraw* p, int n) {
   window_basis_pairs(o.data(), n, d.early, d.late, be.data(), bl.data());
   for (int i = 0; i < n; ++i) {
     const Draw& dr = *p[i].dr;
-    // q_ref must not depend on the omega drawn: from the best cell where omega is drawn at m_total
+    // Where omega comes from its table (at m_total), q_ref must not depend
+    // on the omega drawn: the best fit over the cells.
     const double q_best = table ? best_q(omega_fit(pb, dr, be[i], bl[i]))
                                 : gaussian_z(pb, scaled_design(pb, dr, be[i], bl[i])).z_hat.norm();
     const double q_ref = std::min(q_best, pb.q_hi_nominal);
@@ -1048,7 +1050,6 @@ double log_prior_coords(const Coords& c, const Distribution& ecc) {
   return -std::log(2.0) - 2.0 * std::log(units::kTwoPi) + ecc.log_pdf(c(3));
 }
 
-
 // Gaussian kernels in the orbit-angle coordinates around ancestors, with
 // per-axis widths; in the angles (in [0, 2 pi)) each kernel is truncated to
 // within pi of its centre (kernel_offset), so that its density is the
@@ -1173,9 +1174,10 @@ Proposal proposal_from(const Draw* src, const double* w, std::size_t n, int nz, 
 // and the rounds' random numbers are independent, so the pooled sum does
 // too; since every proposal is at least half the prior, no weight exceeds
 // twice the likelihood (the defensive mixture's bound; Hesterberg 1995,
-// Technometrics 37, 185). No round is dropped: a round that found a narrow
-// mode keeps it (docs/method.md, "Rounds pooled"). The buffers are reused
-// by the next separation (no page faults per point).
+// Technometrics 37, 185; ten times where omega's proposal is a table, at
+// least a fifth of its prior: choose_omega). No round is dropped: a round
+// that found a narrow mode keeps it (docs/method.md, "Rounds pooled"). The
+// buffers are reused by the next separation (no page faults per point).
 struct Pool {
   LargeVector<Draw> draws;
   /// z samples, nz per draw, weighed against the proposal of the draw's own round.
