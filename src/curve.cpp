@@ -54,6 +54,10 @@ struct Projection {
   double A, B, F, G;
 };
 
+// The projection for cos i and omega's cosine c and sine s: at node 0
+// A = c, B = s cos i, F = -s, G = c cos i, linear in (c, s).
+Projection projection_at(double cos_i, double c, double s) { return {c, s * cos_i, -s, c * cos_i}; }
+
 // (north, east) reflex anomaly vectors per unit s = q a parallax at node 0:
 // column 0 late, column 1 early.
 template <typename T>
@@ -207,10 +211,15 @@ struct ZPlanePrior {
   }
 };
 
+// Sets a draw's omega and its projection.
+void set_omega(const Draw& dr, double omega) {
+  dr.omega = omega;
+  dr.proj = projection_at(std::cos(dr.inc), std::cos(omega), std::sin(omega));
+}
+
 // Fills the parts of a draw that follow from its angles and host mass.
 void prepare_draw(Draw& dr, const ZPlanePrior& prior) {
-  const ThieleInnes<double> ti = thiele_innes(1.0, dr.inc, dr.omega, 0.0);
-  dr.proj = {ti.A, ti.B, ti.F, ti.G};
+  set_omega(dr, dr.omega);
   prior.prepare(dr);
 }
 
@@ -352,14 +361,6 @@ void design_and_derivative(const Projection& pr, const Orbit<double>& o, const W
   design_and_derivative(pr, be, bl, early, late, k, dk);
 }
 
-// Sets a draw's omega and its projection (Thiele-Innes constants at node
-// 0: A = cos w, B = sin w cos i, F = -sin w, G = cos w cos i).
-void set_omega(const Draw& dr, double omega) {
-  const double c = std::cos(omega), s = std::sin(omega), ci = std::cos(dr.inc);
-  dr.omega = omega;
-  dr.proj = {c, s * ci, -s, c * ci};
-}
-
 // The cells over omega in [0, pi) on which choose_omega tabulates the
 // likelihood (omega and omega + pi fit alike, with z and -z), and the
 // uniform share of its proposal.
@@ -372,10 +373,8 @@ constexpr double kOmegaUniformShare = 0.2;
 constexpr double kOmegaTableSnr = 20.0;
 bool omega_from_table(const Problem& pb) { return pb.snr >= kOmegaTableSnr; }
 
-// The fit of z as a function of omega. With the node at 0 the
-// Thiele-Innes constants are linear in (cos w, sin w) (A = cos w,
-// B = sin w cos i, F = -sin w, G = cos w cos i), and so is the design
-// matrix, K(w) = cos w K(0) + sin w K(pi / 2); so F = K^T C^-1 K =
+// The fit of z as a function of omega. The projection is linear in
+// (cos w, sin w) (projection_at), and so is the design matrix, K(w) = cos w K(0) + sin w K(pi / 2); so F = K^T C^-1 K =
 // c^2 F_cc + c s (F_cs + F_cs^T) + s^2 F_ss and b = K^T C^-1 dpm =
 // c b_c + s b_s (c = cos w, s = sin w), from two design matrices and no
 // further window evaluation.
@@ -386,8 +385,8 @@ struct OmegaFit {
 OmegaFit omega_fit(const Problem& pb, const Draw& dr, const WindowBasis<double>& be, const WindowBasis<double>& bl) {
   const double ci = std::cos(dr.inc), scale = pb.a_au * dr.plx;
   const Window &early = pb.d.early, &late = pb.d.late;
-  const Mat42 kc = scale * design(unit_anomalies(Projection{1.0, 0.0, 0.0, ci}, be, bl, early, late));
-  const Mat42 ks = scale * design(unit_anomalies(Projection{0.0, ci, -1.0, 0.0}, be, bl, early, late));
+  const Mat42 kc = scale * design(unit_anomalies(projection_at(ci, 1.0, 0.0), be, bl, early, late));
+  const Mat42 ks = scale * design(unit_anomalies(projection_at(ci, 0.0, 1.0), be, bl, early, late));
   const Eigen::Matrix<double, 2, 4> kc_c = kc.transpose() * pb.cinv, ks_c = ks.transpose() * pb.cinv;
   const Eigen::Matrix2d f_cc = kc_c * kc, f_ss = ks_c * ks, f_cs = kc_c * ks;
   const Eigen::Vector2d b_c = kc_c * pb.d.dpm, b_s = ks_c * pb.d.dpm;
@@ -1700,8 +1699,7 @@ void set_bayes_factor(const std::vector<PointResult>& pts, double chi2_data, Cur
 
 namespace {
 Projection projection_of(const Orbit<double>& o) {
-  const ThieleInnes<double> ti = thiele_innes(1.0, o.inc_rad, o.arg_peri_rad, 0.0);
-  return {ti.A, ti.B, ti.F, ti.G};
+  return projection_at(std::cos(o.inc_rad), std::cos(o.arg_peri_rad), std::sin(o.arg_peri_rad));
 }
 Eigen::Vector2d z_of(const Orbit<double>& o, double q) {
   return {q * std::cos(o.node_rad), q * std::sin(o.node_rad)};
