@@ -35,7 +35,8 @@ Coverage curve_coverage(const SurveyModel& survey, const CurveOptions& opt, int 
     const CurvePoint& p = *at_truth;
     const bool upper = c.upper_limit;
     in68 += (upper || t.mass_mjup >= p.mass_lo68) && t.mass_mjup <= p.mass_hi68;
-    in95 += (upper || t.mass_mjup >= p.mass_lo95) && t.mass_mjup <= p.mass_hi95;
+    cov.held95.push_back((upper || t.mass_mjup >= p.mass_lo95) && t.mass_mjup <= p.mass_hi95);
+    in95 += cov.held95.back();
     cov.max_sig = std::max(cov.max_sig, r.sig_joint);
     ++cov.systems;
   }

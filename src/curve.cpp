@@ -1459,7 +1459,7 @@ RoundResult run_round(const Problem& pb, const Proposal* prop, const ProposalDev
     pool.add_weights(offset + begin, offset + end, nz);
     r.used = end;
     pool.size = offset + end;
-    if (point_done(pool, pb)) break;
+    if (!pb.opt.plain_sampler && point_done(pool, pb)) break;
     if ((end % block == 0 || end == n) &&
         ess_before + pool.round_ess() * static_cast<double>(n) / static_cast<double>(end) < min_projected_ess)
       break;
@@ -1528,6 +1528,7 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, DrawSet& d
     evaluations += round.evaluations;
     r.point.draws += static_cast<long>(round.used);
   };
+  if (opt.plain_sampler) seed = nullptr;
   run(seed, seed ? kTargetEss : 0.0);
   // Where one sample still holds nearly all the weight after an adaptive
   // round, the kernels around it found nothing better, and the later
@@ -1536,7 +1537,8 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, DrawSet& d
   // 4-6 % fewer draws were weighed): the rounds end there.
   constexpr double kDegenerateEss = 1.5;
   int rounds = 0;
-  while (rounds < kMaxAdaptiveRounds && !point_done(pool, pb) && !(rounds >= 1 && pool.ess() < kDegenerateEss)) {
+  while (!opt.plain_sampler && rounds < kMaxAdaptiveRounds && !point_done(pool, pb) &&
+         !(rounds >= 1 && pool.ess() < kDegenerateEss)) {
     r.proposal = proposal_from(pool.draws.data(), pool.w.data(), pool.size, nz, opt.prior.ecc, omega_from_table(pb));
     run(&r.proposal, ++rounds < kMaxAdaptiveRounds ? kTargetEss : kLowEss);
   }

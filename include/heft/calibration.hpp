@@ -7,6 +7,7 @@
 
 #include <cstdint>
 #include <limits>
+#include <vector>
 
 #include "heft/curve.hpp"
 #include "heft/rng.hpp"
@@ -26,6 +27,9 @@ struct Coverage {
   int systems = 0;
   double in68 = 0.0, in95 = 0.0;  ///< fractions with the true mass inside the band
   double max_sig = 0.0;
+  /// Per system, in order, whether its 95 % band held the truth: two
+  /// studies of the same systems compare system by system (paired).
+  std::vector<bool> held95;
 };
 Coverage curve_coverage(const SurveyModel& survey, const CurveOptions& opt, int n_systems,
                         double min_sig, const std::vector<double>& grid = {},

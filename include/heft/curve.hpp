@@ -69,6 +69,13 @@ struct CurveOptions {
   /// error of its outermost quantiles (an upper limit's 95 %, a detection's
   /// 2.5 and 97.5 %) is at most this fraction of their value.
   double quantile_tolerance = 0.0;
+  /// The reference the adaptive sampler is checked against: every
+  /// separation weighs all `draws` prior draws, with no proposal rounds,
+  /// no neighbour's proposal and no early stop (plain importance sampling
+  /// from the prior; omega still from its conditional where the S/N asks
+  /// for it, an exact proposal). Costs `draws` draws per separation
+  /// whatever the S/N; for bench/curve_calibration --plain, not for use.
+  bool plain_sampler = false;
 };
 
 /// One separation of a curve. Masses in Jupiter masses; NaN where not given.
