@@ -1528,7 +1528,6 @@ PointResult evaluate_a(const AnomalyData& d, const CurveOptions& opt, DrawSet& d
     evaluations += round.evaluations;
     r.point.draws += static_cast<long>(round.used);
   };
-  if (opt.plain_sampler) seed = nullptr;
   run(seed, seed ? kTargetEss : 0.0);
   // Where one sample still holds nearly all the weight after an adaptive
   // round, the kernels around it found nothing better, and the later
