@@ -10,7 +10,7 @@ namespace heft {
 Coverage curve_coverage(const SurveyModel& survey, const CurveOptions& opt, int n_systems,
                         double min_sig, const std::vector<double>& grid, double max_sig) {
   Coverage cov;
-  int in68 = 0, in95 = 0;
+  int in68 = 0;
   for (long i = 0; cov.systems < n_systems; ++i) {
     StarRecord s;
     SimTruth t;
@@ -36,12 +36,11 @@ Coverage curve_coverage(const SurveyModel& survey, const CurveOptions& opt, int 
     const bool upper = c.upper_limit;
     in68 += (upper || t.mass_mjup >= p.mass_lo68) && t.mass_mjup <= p.mass_hi68;
     cov.held95.push_back((upper || t.mass_mjup >= p.mass_lo95) && t.mass_mjup <= p.mass_hi95);
-    in95 += cov.held95.back();
     cov.max_sig = std::max(cov.max_sig, r.sig_joint);
     ++cov.systems;
   }
   cov.in68 = static_cast<double>(in68) / cov.systems;
-  cov.in95 = static_cast<double>(in95) / cov.systems;
+  cov.in95 = static_cast<double>(std::count(cov.held95.begin(), cov.held95.end(), true)) / cov.systems;
   return cov;
 }
 
