@@ -1,6 +1,7 @@
 #include "heft/calibration.hpp"
 
 #include <algorithm>
+#include <cmath>
 #include <stdexcept>
 
 #include "heft/screen.hpp"
@@ -11,6 +12,7 @@ Coverage curve_coverage(const SurveyModel& survey, const CurveOptions& opt, int 
                         double min_sig, const std::vector<double>& grid, double max_sig) {
   Coverage cov;
   int in68 = 0;
+  std::vector<double> orbits;
   for (long i = 0; cov.systems < n_systems; ++i) {
     StarRecord s;
     SimTruth t;
@@ -36,8 +38,14 @@ Coverage curve_coverage(const SurveyModel& survey, const CurveOptions& opt, int 
     const bool upper = c.upper_limit;
     in68 += (upper || t.mass_mjup >= p.mass_lo68) && t.mass_mjup <= p.mass_hi68;
     cov.held95.push_back((upper || t.mass_mjup >= p.mass_lo95) && t.mass_mjup <= p.mass_hi95);
+    if (std::isfinite(p.ess_orbits)) orbits.push_back(p.ess_orbits);
     cov.max_sig = std::max(cov.max_sig, r.sig_joint);
     ++cov.systems;
+  }
+  if (!orbits.empty()) {
+    auto mid = orbits.begin() + static_cast<std::ptrdiff_t>(orbits.size() / 2);
+    std::nth_element(orbits.begin(), mid, orbits.end());
+    cov.median_ess_orbits = *mid;
   }
   cov.in68 = static_cast<double>(in68) / cov.systems;
   cov.in95 = static_cast<double>(std::count(cov.held95.begin(), cov.held95.end(), true)) / cov.systems;

@@ -30,6 +30,10 @@ struct Coverage {
   /// Per system, in order, whether its 95 % band held the truth: two
   /// studies of the same systems compare system by system (paired).
   std::vector<bool> held95;
+  /// The median over systems of the effective number of orbits at the true
+  /// a (CurvePoint::ess_orbits), on which the bands' coverage at high S/N
+  /// depends (docs/performance.md, "Stop 42").
+  double median_ess_orbits = 0.0;
 };
 Coverage curve_coverage(const SurveyModel& survey, const CurveOptions& opt, int n_systems,
                         double min_sig, const std::vector<double>& grid = {},
