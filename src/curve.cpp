@@ -379,7 +379,7 @@ bool omega_from_table(const Problem& pb) { return pb.snr >= kOmegaTableSnr; }
 // table, for detections. There a draw's z samples are almost one point,
 // and with one omega the 95 % bands' ends rested on too few distinct
 // orbits: on 1,000 systems at S/N >= 200 they held the truth in 92.4 %,
-// with an omega per sample 93.4 %, for 20 % more CPU (more draws:
+// with an omega per sample 93.4 %, for 20-33 % more CPU (--draws 16384:
 // 93.1 % for 80 %). Below it whole curves covered alike either way and
 // the short periods' draws cost 40 % more (docs/performance.md, "Stop 42").
 constexpr double kOmegaPerSampleSnr = 200.0;
