@@ -278,7 +278,7 @@ const ProposalDeviates& proposal_deviates(DrawSet& ds, std::size_t k, const Anom
 struct Sample {
   double log_w, m2_mjup, z1, z2;
   double m1_msun;  ///< the sample's host mass
-  double omega;    ///< the sample's omega (its draw's, or its own: weigh_total_batch)
+  double omega;    ///< the sample's omega (its draw's, or its own: weigh_samples_own_omega)
 };
 
 
@@ -888,8 +888,10 @@ constexpr int kDrawBatch = 8;
 // Two window-model evaluations per draw (and one per prior sample), for
 // n <= kDrawBatch draws at once: all their fits at the nominal period,
 // then all at their total masses (window_basis_pairs), so that the draws'
-// Kepler solves overlap; each draw's result is the same as alone. Returns
-// the number of window-model evaluations.
+// Kepler solves overlap; each draw's result is the same as alone. With
+// kOwnOmega each z sample takes its own omega (weigh_samples_own_omega),
+// else a draw's samples share one. Returns the number of window-model
+// evaluations.
 template <bool kOwnOmega>
 long weigh_total_batch(const Problem& pb, PendingDraw* p, int n) {
   const AnomalyData& d = pb.d;
