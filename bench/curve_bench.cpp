@@ -9,7 +9,7 @@
 // the bench's stars is written and timed through both binaries.
 //
 // Usage: curve_bench [--draws N] [--sigma S] [--z-samples Z] [--reference HEFT_BINARY] [--quantile-errors]
-//                    [--per-separation]
+//                    [--per-separation] [--repeat N]
 // (--per-separation: after each star, its separations with the draws and
 // rounds each took, the effective sizes reached and the posterior weight,
 // so that one sees where a curve's draws go.)
@@ -18,7 +18,9 @@
 // (--draws: the draws per separation, 4096 by default as in `heft curve`;
 // `heft rank` uses 512. --sigma: time only the star nearest to S of the four.
 // --z-samples: z samples per draw, 8 by default as in `heft curve`, which
-// has no option for it.)
+// has no option for it. --repeat: compute each curve N times and print the
+// mean, so that a profiler sees the curves rather than the survey the bench
+// simulates to pick its stars.)
 
 #include <sys/resource.h>
 #include <sys/wait.h>
@@ -66,6 +68,7 @@ int main(int argc, char** argv) {
   CurveOptions opt;
   opt.quantile_errors = false;  // as `heft curve` without --json
   double only_sigma = 0.0;
+  int repeat = 1;
   bool per_separation = false;
   for (int i = 1; i < argc; ++i) {
     if (std::strcmp(argv[i], "--quantile-errors") == 0) opt.quantile_errors = true;
@@ -76,6 +79,11 @@ int main(int argc, char** argv) {
     if (std::strcmp(argv[i], "--draws") == 0) opt.draws = std::atoi(argv[i + 1]);
     if (std::strcmp(argv[i], "--sigma") == 0) only_sigma = std::atof(argv[i + 1]);
     if (std::strcmp(argv[i], "--z-samples") == 0) opt.z_samples = std::atoi(argv[i + 1]);
+    if (std::strcmp(argv[i], "--repeat") == 0) repeat = std::atoi(argv[i + 1]);
+  }
+  if (repeat < 1) {
+    std::fprintf(stderr, "curve_bench: --repeat must be at least 1\n");
+    return 2;
   }
   if (opt.draws < 64) {
     std::fprintf(stderr, "curve_bench: --draws must be at least 64\n");
@@ -116,9 +124,10 @@ int main(int argc, char** argv) {
     if (only_sigma > 0 && std::abs(std::log(only_sigma / targets[k])) > 0.1) continue;
     const long f0 = minor_faults();
     const double t0 = cpu_seconds(RUSAGE_SELF);
-    const Curve c = montecarlo_curve(data[k], opt, picked[k].id);
-    const double secs = cpu_seconds(RUSAGE_SELF) - t0;
-    const long faults = minor_faults() - f0;
+    Curve c = montecarlo_curve(data[k], opt, picked[k].id);
+    for (int r = 1; r < repeat; ++r) c = montecarlo_curve(data[k], opt, picked[k].id);
+    const double secs = (cpu_seconds(RUSAGE_SELF) - t0) / repeat;
+    const long faults = (minor_faults() - f0) / repeat;
     double ref_s = NAN;
     if (!reference.empty()) {
       const std::string table = "/tmp/curve_bench_star.csv";
