@@ -771,6 +771,7 @@ struct PendingDraw {
 struct TotalMassMixture {
   double log_frac_ref, log_frac_prior;  ///< the strata's shares of the samples
   double log_1mq_ref;                   ///< of the draw's reference total mass
+  double one_m_q_ref;                   ///< exp(log_1mq_ref)
   // The log weight of a sample z at m_total with host m1: the target
   // p_host(m1) (1 - q) p(z | m1) L(z) over the mixture of the first
   // stratum's density (m_total from the reference, z from the Gaussian zs
@@ -782,7 +783,7 @@ struct TotalMassMixture {
     const double log_prior = log_host_density(pb.d, m1) + log_prior_z;
     const double log_r_ref = narrow ? -zs.half_dist2(z) - zs.log_gauss_norm : log_prior_z;
     return log_prior + zs.log_likelihood(z) -
-           log_add_exp(log_frac_ref + log_host_density(pb.d, m_total * std::exp(log_1mq_ref)) + log_1mq_ref + log_r_ref,
+           log_add_exp(log_frac_ref + log_host_density(pb.d, m_total * one_m_q_ref) + log_1mq_ref + log_r_ref,
                        log_frac_prior + log_prior);
   }
 };
@@ -930,7 +931,7 @@ long weigh_total_batch(const Problem& pb, PendingDraw* p, int n) {
     const double log_1mq_ref = std::log1p(-q_ref);
     m_total[i] = dr.m1 / (1.0 - q_ref);
     log_proposal[i] = log_host_density(d, dr.m1) + log_1mq_ref;
-    mix[i] = {log_frac_ref, log_frac_prior, log_1mq_ref};
+    mix[i] = {log_frac_ref, log_frac_prior, log_1mq_ref, std::exp(log_1mq_ref)};
     dr.warm.x = x_of(log_1mq_ref);  // the period used, for a later weigh_draw_periods
     o[i].period_yr = period_from_a(pb.a_au, m_total[i]);
   }
