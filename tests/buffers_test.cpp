@@ -6,6 +6,7 @@
 #include <new>
 #include <sstream>
 #include <string>
+#include <thread>
 
 #include "heft/buffers.hpp"
 
@@ -60,4 +61,37 @@ TEST_CASE("large buffers: huge-page aligned, advised, zeroed, and small ones ord
 
   LargeBufferAllocator<double> alloc;
   CHECK_THROWS_AS(alloc.allocate(static_cast<std::size_t>(-1) / 4), std::bad_array_new_length);
+}
+
+TEST_CASE("large buffers: one given back is reused for the same size, its vector still initialised", "[buffers]") {
+  // On a thread of its own, whose cache starts empty.
+  const std::size_t n = (std::size_t{11} << 20) / sizeof(double);  // a 12 MiB mapping
+  double* first = nullptr;
+  double* reused = nullptr;
+  double kept_value = 0.0;
+  const void* in_vector = nullptr;
+  const void* other = nullptr;
+  bool zeros = true;
+  std::thread([&] {
+    LargeBufferAllocator<double> alloc;
+    first = alloc.allocate(n);
+    first[n / 2] = 7.0;
+    alloc.deallocate(first, n);
+    // The same mapping, old contents and all (a new one would be zeroed).
+    reused = alloc.allocate(n);
+    kept_value = reused[n / 2];
+    alloc.deallocate(reused, n);
+    LargeVector<double> b(n);
+    in_vector = b.data();
+    for (double v : b) zeros = zeros && v == 0.0;
+    LargeVector<double> c(n);  // the kept one is in use: a mapping of its own
+    other = c.data();
+  }).join();
+  CHECK(reused == first);
+  CHECK(kept_value == 7.0);
+  CHECK(in_vector == first);
+  CHECK(zeros);  // the vector constructs its elements over the old contents
+  CHECK(other != first);
+  // At the thread's end its kept buffers are unmapped.
+  CHECK(vm_flags_at(first).empty());
 }

@@ -23,10 +23,15 @@ namespace heft {
 /// a whole huge page on first touch outweighs the faults it saves.
 inline constexpr std::size_t kLargeBufferBytes = std::size_t{1} << 18;
 
-/// Maps `bytes` (>= kLargeBufferBytes) of zeroed memory, 2 MiB-aligned and
+/// Maps `bytes` (>= kLargeBufferBytes) of memory, 2 MiB-aligned and
 /// advised for huge pages; throws std::bad_alloc when the mapping fails.
+/// A buffer of the same size given back on this thread is reused as it
+/// is, so the contents are unspecified (the allocator's vectors construct
+/// their elements).
 void* map_large_buffer(std::size_t bytes);
-/// Unmaps a buffer from map_large_buffer with the same `bytes`.
+/// Gives back a buffer from map_large_buffer with the same `bytes`: kept
+/// for reuse on this thread (at most 64 MiB, unmapped at the thread's
+/// end), else unmapped.
 void unmap_large_buffer(void* p, std::size_t bytes) noexcept;
 
 /// Standard allocator that sends allocations of at least kLargeBufferBytes
