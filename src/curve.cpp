@@ -12,6 +12,7 @@
 #include "heft/angles.hpp"
 #include "heft/buffers.hpp"
 #include "heft/error.hpp"
+#include "heft/expseries.hpp"
 #include "heft/io.hpp"
 #include "heft/rng.hpp"
 #include "heft/stats.hpp"
@@ -1164,6 +1165,25 @@ kernel_exponents(const std::array<std::vector<double>, 4>& centre, const Coords&
   return std::min(std::min(lane[0], lane[1]), std::min(lane[2], lane[3]));
 }
 
+// sum_m count_m exp(q_min - q_m) over the kernels within `cut` of the
+// nearest (q_m >= q_min), in four partial sums so that it vectorises
+// (AVX2 where present; no contraction, so both clones give the same sum).
+__attribute__((target_clones("arch=x86-64-v3", "default"), optimize("fp-contract=off"))) double
+kernel_sum(const double* q, const double* count, std::size_t n, double q_min, double cut) {
+  double lane[4] = {0.0, 0.0, 0.0, 0.0};
+  std::size_t m = 0;
+  for (; m + 4 <= n; m += 4)
+    for (int k = 0; k < 4; ++k) {
+      const double t = q_min - q[m + k];
+      lane[k] += t > -cut ? count[m + k] * exp_nonpositive(t) : 0.0;
+    }
+  for (; m < n; ++m) {
+    const double t = q_min - q[m];
+    lane[0] += t > -cut ? count[m] * exp_nonpositive(t) : 0.0;
+  }
+  return (lane[0] + lane[1]) + (lane[2] + lane[3]);
+}
+
 // Gaussian kernels in the orbit-angle coordinates around ancestors, with
 // per-axis widths; in the angles (in [0, 2 pi)) each kernel is truncated to
 // within pi of its centre (kernel_offset), so that its density is the
@@ -1197,10 +1217,7 @@ class KernelMixture {
     const std::size_t n = count_.size();
     q.resize(n);
     const double q_min = kernel_exponents(centre_, c, inv_w2_, n, q.data());
-    double s = 0;
-    for (std::size_t m = 0; m < n; ++m)
-      if (q[m] - q_min < kKernelCut) s += count_[m] * std::exp(q_min - q[m]);
-    return -q_min + std::log(s) - log_norm_;
+    return -q_min + std::log(kernel_sum(q.data(), count_.data(), n, q_min, kKernelCut)) - log_norm_;
   }
   static bool is_angle(int i) { return i == 1 || i == 2; }
 
