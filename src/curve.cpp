@@ -1157,7 +1157,8 @@ kernel_exponents(const std::array<std::vector<double>, 4>& centre, const Coords&
   }
   // The smallest in four lanes, so that this too vectorises (a floating
   // minimum is not reassociated otherwise).
-  double lane[4] = {q[0], q[0], q[0], q[0]};
+  constexpr double kInf = std::numeric_limits<double>::infinity();
+  double lane[4] = {kInf, kInf, kInf, kInf};
   std::size_t m = 0;
   for (; m + 4 <= n; m += 4)
     for (int k = 0; k < 4; ++k) lane[k] = q[m + k] < lane[k] ? q[m + k] : lane[k];
