@@ -1134,9 +1134,10 @@ double log_prior_coords(const Coords& c, const Distribution& ecc) {
 
 // The exponents 0.5 sum_i (c_i - a_i)^2 / w_i^2 of n kernels with centres
 // a (one array per coordinate of Coords; omega and M0, the angles, at
-// their nearest image: KernelMixture::is_angle) into q, in one pass that vectorises (AVX2 where present; without
-// contraction into fused multiply-adds, so that both clones give the
-// numbers of the plain expression); returns the smallest.
+// their nearest image: KernelMixture::is_angle) into q, in one pass that
+// vectorises (AVX2 where present; without contraction into fused
+// multiply-adds, so that both clones give the numbers of the plain
+// expression); returns the smallest.
 __attribute__((target_clones("arch=x86-64-v3", "default"), optimize("fp-contract=off"))) double
 kernel_exponents(const std::array<std::vector<double>, 4>& centre, const Coords& c, const Coords& inv_w2,
                  std::size_t n, double* q) {
