@@ -443,15 +443,21 @@ inline CellFit cell_fit(const OmegaFit& o, double c, double s) {
 }
 
 // |z| of the best fit over the cells: the reference q of weigh_total_batch,
-// which must not depend on the omega drawn.
-double best_q(const OmegaFit& o) {
-  const auto& cs = omega_cell_centres();
-  std::array<double, kOmegaCells> half_fit;
+// which must not depend on the omega drawn. In vector lanes as
+// omega_table; the best cell's |z|^2 is kept from the loop, since a call
+// out of the AVX2 clone to the plain cell_fit ran at a fifth of the speed.
+__attribute__((target_clones("arch=x86-64-v3", "default"), optimize("fp-contract=off"))) double best_q(
+    const OmegaFit& o) {
+  const double *cos_w = omega_cell_centres()[0].data(), *sin_w = omega_cell_centres()[1].data();
+  std::array<double, kOmegaCells> half_fit, q2;
 #pragma omp simd
-  for (int k = 0; k < kOmegaCells; ++k) half_fit[k] = cell_fit(o, cs[0][k], cs[1][k]).half_fit;
-  const int best = static_cast<int>(std::max_element(half_fit.begin(), half_fit.end()) - half_fit.begin());
-  const CellFit f = cell_fit(o, cs[0][best], cs[1][best]);
-  return std::sqrt(f.z1 * f.z1 + f.z2 * f.z2);
+  for (int k = 0; k < kOmegaCells; ++k) {
+    const CellFit f = cell_fit(o, cos_w[k], sin_w[k]);
+    half_fit[k] = f.half_fit;
+    q2[k] = f.z1 * f.z1 + f.z2 * f.z2;
+  }
+  const auto best = std::max_element(half_fit.begin(), half_fit.end()) - half_fit.begin();
+  return std::sqrt(q2[best]);
 }
 
 // A proposal for omega close to its conditional given the rest of the
