@@ -9,11 +9,15 @@
 #include <sys/wait.h>
 #include <unistd.h>
 
+#include <bit>
+#include <charconv>
 #include <cmath>
+#include <cstdint>
 #include <cstdio>
 #include <dirent.h>
 #include <sstream>
 #include <thread>
+#include <vector>
 
 #include "heft/error.hpp"
 #include "heft/io.hpp"
@@ -167,6 +171,54 @@ TEST_CASE("io: parse_double takes whole fields only, also out of range", "[io]")
   CHECK(v == 2.5);
   CHECK_FALSE(parse_double("", v));
   CHECK_FALSE(parse_double("2.5 ", v));
+}
+
+TEST_CASE("io: append_double writes what std::to_chars writes, and it reads back", "[io]") {
+  // Reference: libstdc++'s std::to_chars (C++17 [charconv.to.chars], the
+  // shortest round trip, fixed or scientific by length). append_double
+  // takes Dragonbox's digits and lays them out itself.
+  std::vector<double> values = {0.0, -0.0, 5e-324, -5e-324, 2.2250738585072014e-308, 1.7976931348623157e308,
+                                9007199254740992.0, 9007199254740993.0, 1e22, 1e23, 123456789012345680000.0,
+                                0.1, 0.3, 1.0 / 3.0, 1e-4, 1e-3, 1e4, 1e5, 1234e-7, 1234e5, 12345e5, -0.0001234};
+  for (int k = -325; k <= 308; ++k)
+    for (int m : {1, 2, 5, 9, 11, 99, 123, 1001, 123456789}) {
+      const double v = m * std::pow(10.0, k);
+      if (!std::isfinite(v) || v == 0.0) continue;
+      for (double w : {v, std::nextafter(v, 0.0), std::nextafter(v, INFINITY), -v}) values.push_back(w);
+    }
+  std::uint64_t state = 12345;  // splitmix64 over bit patterns: every exponent and sign
+  auto next = [&state] {
+    std::uint64_t z = (state += 0x9E3779B97F4A7C15ULL);
+    z = (z ^ (z >> 30)) * 0xBF58476D1CE4E5B9ULL;
+    z = (z ^ (z >> 27)) * 0x94D049BB133111EBULL;
+    return z ^ (z >> 31);
+  };
+  for (int i = 0; i < 1000000; ++i) {
+    const double bits = std::bit_cast<double>(next());
+    if (std::isfinite(bits)) values.push_back(bits);
+    // numbers of the tables' own sizes, 17 significant digits
+    values.push_back(std::ldexp(static_cast<double>(next() >> 11), static_cast<int>(next() % 100) - 90));
+  }
+  long differ = 0, unread = 0;
+  std::string got;
+  char ref[64];
+  for (double v : values) {
+    got.clear();
+    append_double(got, v);
+    const auto end = std::to_chars(ref, ref + sizeof ref, v).ptr;
+    if (got != std::string_view(ref, end - ref)) {
+      if (++differ <= 5) UNSCOPED_INFO(std::string(ref, end) + " written as " + got);
+    }
+    double back = 0.0;
+    if (!parse_double(got, back) || std::bit_cast<std::uint64_t>(back) != std::bit_cast<std::uint64_t>(v)) ++unread;
+  }
+  CHECK(values.size() > 2000000);
+  CHECK(differ == 0);
+  CHECK(unread == 0);
+  got = "x";
+  append_double(got, INFINITY);
+  append_double(got, std::nan(""));
+  CHECK(got == "x");
 }
 
 TEST_CASE("io: UTF-8 validation and clipped echoes", "[io]") {
