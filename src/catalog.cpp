@@ -1,7 +1,9 @@
 #include "heft/catalog.hpp"
 
 #include <Eigen/Cholesky>
+#include <algorithm>
 #include <exception>
+#include <utility>
 
 #include "heft/error.hpp"
 #include "heft/rng.hpp"
@@ -224,6 +226,27 @@ StarTableReader::StarTableReader(std::istream& in, std::string name, WindowDefau
                        "missing required column '" + cols[k].name + "'");
 }
 
+bool StarTableReader::SeenHashes::insert(std::uint64_t h) {
+  if (h == 0) return !std::exchange(zero_, true);
+  if (2 * (used_ + 1) > slot_.size()) {  // grow to keep the table at most half full
+    std::vector<std::uint64_t> old(std::size_t{1} << (bits_ = std::max(10, bits_ + 1)), 0);
+    old.swap(slot_);
+    used_ = 0;
+    for (std::uint64_t k : old)
+      if (k != 0) insert(k);
+  }
+  // Fibonacci hashing (Knuth, TAOCP vol. 3, Sect. 6.4): the product's top bits.
+  const std::size_t mask = slot_.size() - 1;
+  for (std::size_t i = (h * 0x9E3779B97F4A7C15ULL) >> (64 - bits_);; i = (i + 1) & mask) {
+    if (slot_[i] == h) return false;
+    if (slot_[i] == 0) {
+      slot_[i] = h;
+      ++used_;
+      return true;
+    }
+  }
+}
+
 bool StarTableReader::next_raw(RawStarRow& row) {
   // Rows of ids not asked for are passed over before their numbers are parsed.
   do {
@@ -235,7 +258,7 @@ bool StarTableReader::next_raw(RawStarRow& row) {
                            std::to_string(n_fields_));
   } while (keep_ && !keep_(csv_.fields()[field_of_column_[0]]));
   const std::string_view id = csv_.fields()[field_of_column_[0]];
-  row.duplicate_id = !id.empty() && !seen_ids_.insert(fnv1a64(id)).second;
+  row.duplicate_id = !id.empty() && !seen_ids_.insert(fnv1a64(id));
   row.line = csv_.line();
   csv_.take_record(row.text, row.spans, row.columns);
   return true;
