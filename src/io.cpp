@@ -208,25 +208,11 @@ constexpr char kDigitPairs[] =
     "00010203040506070809101112131415161718192021222324252627282930313233343536373839"
     "40414243444546474849505152535455565758596061626364656667686970717273747576777879"
     "8081828384858687888990919293949596979899";
-constexpr std::uint64_t kPow10[20] = {1ULL,
-                                      10ULL,
-                                      100ULL,
-                                      1000ULL,
-                                      10000ULL,
-                                      100000ULL,
-                                      1000000ULL,
-                                      10000000ULL,
-                                      100000000ULL,
-                                      1000000000ULL,
-                                      10000000000ULL,
-                                      100000000000ULL,
-                                      1000000000000ULL,
-                                      10000000000000ULL,
-                                      100000000000000ULL,
-                                      1000000000000000ULL,
-                                      10000000000000000ULL,
-                                      100000000000000000ULL,
-                                      1000000000000000000ULL,
+constexpr std::uint64_t kPow10[20] = {1ULL, 10ULL, 100ULL, 1000ULL, 10000ULL, 100000ULL, 1000000ULL,
+                                      10000000ULL, 100000000ULL, 1000000000ULL, 10000000000ULL,
+                                      100000000000ULL, 1000000000000ULL, 10000000000000ULL,
+                                      100000000000000ULL, 1000000000000000ULL, 10000000000000000ULL,
+                                      100000000000000000ULL, 1000000000000000000ULL,
                                       10000000000000000000ULL};
 
 // Decimal digits of v > 0: from its bit length times log10(2) (1233 / 4096),
@@ -247,7 +233,8 @@ void write_eight_digits(char* out, std::uint32_t v) {
 
 // The decimal digits of v, ending just before end.
 void write_digits(char* end, std::uint64_t v) {
-  for (; v >= 100000000; v /= 100000000, end -= 8) write_eight_digits(end - 8, static_cast<std::uint32_t>(v % 100000000));
+  for (; v >= 100000000; v /= 100000000, end -= 8)
+    write_eight_digits(end - 8, static_cast<std::uint32_t>(v % 100000000));
   auto w = static_cast<std::uint32_t>(v);
   for (; w >= 100; w /= 100, end -= 2) std::memcpy(end - 2, kDigitPairs + 2 * (w % 100), 2);
   if (w >= 10) std::memcpy(end - 2, kDigitPairs + 2 * w, 2);
@@ -264,7 +251,7 @@ void write_digits(char* end, std::uint64_t v) {
 // the same shortest digits as libstdc++'s Ryu, laid out here. Fixed
 // notation of an integer that needs zeros after its digits goes to
 // std::to_chars, which writes such integers' exact value (tests/io_test.cpp
-// compares the two on millions of values).
+// compares the two on two million values).
 void append_double(std::string& out, double value) {
   if (!std::isfinite(value)) return;
   char buf[32];

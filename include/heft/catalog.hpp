@@ -121,7 +121,8 @@ class StarTableReader {
   // The 64-bit hashes of the ids read so far (fnv1a64), in one
   // open-addressing table with linear probing, at most half full: a row
   // touches one cache line of it, where std::unordered_set touched a
-  // bucket and a node (6.5 % of `heft screen -j 1`, docs/performance.md).
+  // bucket and then a node (the check was 6.5 % of `heft screen -j 1`,
+  // 4-5 % now; docs/performance.md).
   class SeenHashes {
    public:
     /// Adds h; false when it was there already.
