@@ -449,11 +449,11 @@ inline CellFit cell_fit(const OmegaFit& o, double c, double s) {
 // bench curve took 25 % longer than with no clone (0.28 against 0.22 s).
 __attribute__((target_clones("arch=x86-64-v3", "default"), optimize("fp-contract=off"))) double best_q(
     const OmegaFit& o) {
-  const double *cos_w = omega_cell_centres()[0].data(), *sin_w = omega_cell_centres()[1].data();
+  const auto& cs = omega_cell_centres();
   std::array<double, kOmegaCells> half_fit, q2;
 #pragma omp simd
   for (int k = 0; k < kOmegaCells; ++k) {
-    const CellFit f = cell_fit(o, cos_w[k], sin_w[k]);
+    const CellFit f = cell_fit(o, cs[0][k], cs[1][k]);
     half_fit[k] = f.half_fit;
     q2[k] = f.z1 * f.z1 + f.z2 * f.z2;
   }
@@ -478,7 +478,7 @@ __attribute__((target_clones("arch=x86-64-v3", "default"), optimize("fp-contract
 using OmegaTable = std::array<double, kOmegaCells>;
 __attribute__((target_clones("arch=x86-64-v3", "default"), optimize("fp-contract=off"))) OmegaTable
 omega_table(const OmegaFit& o, const Draw& dr, bool log_uniform) {
-  const double *cos_w = omega_cell_centres()[0].data(), *sin_w = omega_cell_centres()[1].data();
+  const auto& cs = omega_cell_centres();
   std::array<double, kOmegaCells> log_fit;
   OmegaTable share;
   const double q_lo = dr.q_lo * (1.0 + 1e-12), q_hi = dr.q_hi * (1.0 - 1e-12);
@@ -487,7 +487,7 @@ omega_table(const OmegaFit& o, const Draw& dr, bool log_uniform) {
   const double lu = log_uniform ? 1.0 : 0.0;
 #pragma omp simd
   for (int k = 0; k < kOmegaCells; ++k) {
-    const CellFit f = cell_fit(o, cos_w[k], sin_w[k]);
+    const CellFit f = cell_fit(o, cs[0][k], cs[1][k]);
     const double q2 = f.z1 * f.z1 + f.z2 * f.z2, q = std::sqrt(q2), q_c = std::clamp(q, q_lo, q_hi);
     const double radial = (f.z1 * (f.f00 * f.z1 + f.f01 * f.z2) + f.z2 * (f.f01 * f.z1 + f.f11 * f.z2)) / q2;
     log_fit[k] = f.half_fit - (q2 > 0.0 ? 0.5 * radial * (q - q_c) * (q - q_c) : 0.0);
