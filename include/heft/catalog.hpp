@@ -15,6 +15,7 @@
 #include <iosfwd>
 #include <functional>
 #include <limits>
+#include <span>
 #include <string>
 #include <string_view>
 #include <vector>
@@ -76,7 +77,9 @@ struct RawStarRow {
   std::string text;
   std::vector<std::pair<std::size_t, std::size_t>> spans;
   std::vector<long> columns;
-  bool duplicate_id = false;  // an earlier row has the same id
+  bool has_id = false;        // the id field is not empty
+  std::uint64_t id_hash = 0;  // fnv1a64 of the id
+  bool duplicate_id = false;  // an earlier row has the same id (StarTableReader::check_ids)
 };
 
 /// Reads the canonical star table row by row.
@@ -97,11 +100,16 @@ class StarTableReader {
   bool next(StarRecord& star, std::string& bad_reason);
   /// next() in two steps, so that a batch can parse rows in parallel
   /// while reading stays in file order: next_raw reads a row (false at end
-  /// of input; the field-count check, and the id checked against those
-  /// before it), and parse fills `star` from it (thread-safe, also while
-  /// next_raw reads on; InputError on a number that does not parse or a
-  /// control character in the id).
+  /// of input; the field-count check), check_ids then marks the rows whose
+  /// id an earlier row had, and parse fills `star` from a row (thread-safe,
+  /// also while next_raw reads on; InputError on a number that does not
+  /// parse or a control character in the id).
   bool next_raw(RawStarRow& row);
+  /// Checks the ids of `rows` against those before them and among
+  /// themselves (RawStarRow::duplicate_id). Call it once for every row
+  /// next_raw returned, in file order; given a chunk at once, it loads the
+  /// table's lines for later rows while it checks earlier ones.
+  void check_ids(std::span<RawStarRow> rows);
   void parse(const RawStarRow& row, StarRecord& star, std::string& bad_reason) const;
   long line() const { return csv_.line(); }
   /// Data rows read so far.
@@ -127,6 +135,8 @@ class StarTableReader {
    public:
     /// Adds h; false when it was there already.
     bool insert(std::uint64_t h);
+    /// Starts loading the line where insert(h) looks first.
+    void prefetch(std::uint64_t h) const;
 
    private:
     std::vector<std::uint64_t> slot_;  // 0 = empty; the hash 0 is zero_
