@@ -252,25 +252,20 @@ void write_digits(char* end, std::uint64_t v) {
 // notation of an integer that needs zeros after its digits goes to
 // std::to_chars, which writes such integers' exact value (tests/io_test.cpp
 // compares the two on two million values).
-void append_double(std::string& out, double value) {
-  if (!std::isfinite(value)) return;
-  char buf[32];
-  char* p = buf;
+char* write_double(char* first, double value) {
+  if (!std::isfinite(value)) return first;
+  char* p = first;
   if (value == 0.0) {
     if (std::signbit(value)) *p++ = '-';
     *p++ = '0';
-    out.append(buf, p);
-    return;
+    return p;
   }
   const auto dec = jkj::dragonbox::to_decimal(value);
   const int n = decimal_length(dec.significand), e = dec.exponent;  // |value| = significand x 10^e
   const int e_sci = e + n - 1, abs_sci = e_sci < 0 ? -e_sci : e_sci;
   const int sci_chars = n + (n > 1 ? 1 : 0) + 2 + (abs_sci >= 100 ? 3 : 2);
   const int fixed_chars = e >= 0 ? n + e : (n + e > 0 ? n + 1 : 2 - e);
-  if (fixed_chars <= sci_chars && e > 0) {
-    out.append(buf, std::to_chars(buf, buf + sizeof buf, value).ptr);
-    return;
-  }
+  if (fixed_chars <= sci_chars && e > 0) return std::to_chars(first, first + kDoubleCharsMax, value).ptr;
   if (dec.is_negative) *p++ = '-';
   if (fixed_chars <= sci_chars) {
     if (e == 0) {
@@ -303,7 +298,12 @@ void append_double(std::string& out, double value) {
     std::memcpy(p, kDigitPairs + 2 * rest, 2);
     p += 2;
   }
-  out.append(buf, p);
+  return p;
+}
+
+void append_double(std::string& out, double value) {
+  char buf[kDoubleCharsMax];
+  out.append(buf, write_double(buf, value));
 }
 
 std::string format_double(double value) {

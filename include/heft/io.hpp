@@ -157,6 +157,12 @@ nlohmann::ordered_json quantiles_json(std::initializer_list<std::pair<double, do
 std::string format_double(double value);
 /// Appends format_double(value) to `out`.
 void append_double(std::string& out, double value);
+/// The most characters format_double writes (sign, 17 digits, point,
+/// exponent of three digits with its sign: 24), rounded up.
+inline constexpr int kDoubleCharsMax = 32;
+/// Writes format_double(value) at `first`, at most kDoubleCharsMax
+/// characters, and returns their end (`first` for NaN and infinities).
+char* write_double(char* first, double value);
 
 /// Appends `field` to `out`, quoted as CSV requires.
 void append_csv_field(std::string& out, std::string_view field);
