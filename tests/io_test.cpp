@@ -173,6 +173,61 @@ TEST_CASE("io: parse_double takes whole fields only, also out of range", "[io]")
   CHECK_FALSE(parse_double("2.5 ", v));
 }
 
+TEST_CASE("io: parse_double reads what strtod reads", "[io]") {
+  // Reference: glibc's strtod, which rounds correctly (ISO C 7.22.1.3 with
+  // Annex F, IEEE 754 round to nearest). parse_double is fast_float.
+  std::uint64_t state = 271828;  // splitmix64
+  auto next = [&state] {
+    std::uint64_t z = (state += 0x9E3779B97F4A7C15ULL);
+    z = (z ^ (z >> 30)) * 0xBF58476D1CE4E5B9ULL;
+    z = (z ^ (z >> 27)) * 0x94D049BB133111EBULL;
+    return z ^ (z >> 31);
+  };
+  std::vector<std::string> texts = {"0", "-0", "0.0", "1", "-1.5", "1e5", "1E5", "2.5e-3", ".5", "5.", "007.25",
+                                    "4.9406564584124654e-324", "2.4703282292062327e-324",  // halfway to the
+                                    "2.4703282292062328e-324", "1.7976931348623158e308",   // smallest subnormal;
+                                    "9007199254740993", "9007199254740993.0000000001",     // ties to even
+                                    "0.1000000000000000055511151231257827021181583404541015625",
+                                    "123456789012345678901234567890"};
+  char buf[64];
+  for (int i = 0; i < 300000; ++i) {
+    const std::uint64_t r = next();
+    // every digit count to 25, mantissas to 19 digits, exponents -340..340
+    const int digits = 1 + static_cast<int>(r % 25), point = static_cast<int>((r >> 8) % (digits + 1));
+    std::string t = (r >> 16) & 1 ? "-" : "";
+    for (int d = 0; d < digits; ++d) {
+      if (d == point && d > 0) t += '.';
+      t += static_cast<char>('0' + next() % 10);
+    }
+    if ((r >> 17) & 1) t += "e" + std::to_string(static_cast<int>((r >> 20) % 681) - 340);
+    texts.push_back(t);
+    const double bits = std::bit_cast<double>(next());  // %.17g and %.15g of any finite double
+    if (!std::isfinite(bits)) continue;
+    std::snprintf(buf, sizeof buf, "%.17g", bits);
+    texts.emplace_back(buf);
+    std::snprintf(buf, sizeof buf, "%.15g", bits);
+    texts.emplace_back(buf);
+  }
+  long differ = 0;
+  for (const auto& t : texts) {
+    double got = 0.0;
+    const double ref = std::strtod(t.c_str(), nullptr);
+    if (!parse_double(t, got) || std::bit_cast<std::uint64_t>(got) != std::bit_cast<std::uint64_t>(ref)) {
+      if (++differ <= 5) UNSCOPED_INFO(t + " read as " + std::to_string(got));
+    }
+  }
+  CHECK(texts.size() > 800000);
+  CHECK(differ == 0);
+  double v = 0.0;
+  REQUIRE(parse_double("nan", v));  // the caller reports these as non-finite
+  CHECK(std::isnan(v));
+  REQUIRE(parse_double("-inf", v));
+  CHECK((std::isinf(v) && v < 0));
+  CHECK_FALSE(parse_double("0x1p3", v));  // no hexadecimal
+  CHECK_FALSE(parse_double("1,5", v));
+  CHECK_FALSE(parse_double("--1", v));
+}
+
 TEST_CASE("io: append_double writes what std::to_chars writes, and it reads back", "[io]") {
   // Reference: libstdc++'s std::to_chars (C++17 [charconv.to.chars], the
   // shortest round trip, fixed or scientific by length). append_double

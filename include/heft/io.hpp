@@ -109,7 +109,8 @@ class ColumnTable {
   std::vector<std::string> header_;
 };
 
-/// Parses a whole field as a double (std::from_chars: exact, locale-free).
+/// Parses a whole field as a double (fast_float, the std::from_chars
+/// algorithm: correctly rounded, locale-free).
 /// Returns false when the text is not entirely a number (leading '+' is
 /// accepted; "nan"/"inf" parse and are reported as non-finite by the
 /// caller). A number beyond the double range reads as +-inf (so callers that
