@@ -26,7 +26,8 @@ namespace heft {
 ///    c = r1 . r2 this gives, in closed form,
 ///    V_t = (1 - mu_r dt) (r2 - r1 / c) / dt,  mu_r = rv parallax / A.
 /// 2. The early PM then follows from rigorous propagation (propagate.hpp)
-///    of the late state by -dt (ESA 1997, Vol. 1, Sect. 1.5.5).
+///    of the late state by -dt (ESA 1997, Vol. 1, Sect. 1.5.5), read in
+///    the early direction's triad (the propagated direction is r1).
 template <typename T>
 void long_baseline_pm(const T& ra1_rad, const T& dec1_rad, const T& ra2_rad, const T& dec2_rad,
                       const T& parallax2_mas, const T& rv_km_s, double dt_yr, T pm_late[2],
@@ -42,10 +43,13 @@ void long_baseline_pm(const T& ra1_rad, const T& dec1_rad, const T& ra2_rad, con
   for (int k = 0; k < 3; ++k) vt[k] = scale * (r2[k] - r1[k] / c);
   pm_late[0] = (p2[0] * vt[0] + p2[1] * vt[1] + p2[2] * vt[2]) / to_rad;
   pm_late[1] = (q2[0] * vt[0] + q2[1] * vt[1] + q2[2] * vt[2]) / to_rad;
-  const SkyState<T> late{ra2_rad, dec2_rad, parallax2_mas, pm_late[0], pm_late[1], rv_km_s};
-  const SkyState<T> early = propagate(late, -dt_yr);
-  pm_early[0] = early.pmra_mas_yr;
-  pm_early[1] = early.pmdec_mas_yr;
+  // The motion propagated back to t1 points along r1 by construction, so
+  // its proper motion is read in the early triad (p1, q1): the same values
+  // as propagate()'s, without its atan2s and second triad.
+  T u[3], mu[3], f;
+  propagate_vectors(p2, q2, r2, pm_late[0], pm_late[1], mur, -dt_yr, u, mu, f);
+  pm_early[0] = (p1[0] * mu[0] + p1[1] * mu[1] + p1[2] * mu[2]) / to_rad;
+  pm_early[1] = (q1[0] * mu[0] + q1[1] * mu[1] + q1[2] * mu[2]) / to_rad;
 }
 
 /// Number of input parameters of the anomaly model: early 5, late 5, rv.

@@ -44,6 +44,40 @@ void direction_to_radec(const T u[3], T& ra_rad, T& dec_rad) {
   dec_rad = atan2(u[2], sqrt(u[0] * u[0] + u[1] * u[1]));
 }
 
+/// The direction and proper-motion vector after dt_yr Julian years (either
+/// sign) under uniform space motion, from a state given by its normal triad
+/// (p, q, r) at t0, its proper motion and its radial proper motion.
+///
+/// Given: p, q, r (normal_triad at t0); pmra_mas_yr, pmdec_mas_yr (mas/yr);
+///        mur_rad_yr = rv * parallax / A (rad/yr); dt_yr = t - t0.
+/// Returned: u (unit direction at t); mu (proper-motion vector at t, rad/yr);
+///        f (the distance at t0 over the distance at t).
+/// Notes:
+/// 1. f = [1 + 2 mu_r t + (mu^2 + mu_r^2) t^2]^(-1/2);
+///    u = [r0 (1 + mu_r t) + mu0_vec t] f;
+///    mu_vec = [mu0_vec (1 + mu_r t) - r0 mu^2 t] f^3
+///    (ESA 1997, Vol. 1, Eqs. 1.5.13-1.5.19).
+/// 2. For callers that have the triad already, or that know the direction
+///    at t (long_baseline_pm): the rest of propagate() is trigonometry.
+template <typename T>
+void propagate_vectors(const T p[3], const T q[3], const T r[3], const T& pmra_mas_yr, const T& pmdec_mas_yr,
+                       const T& mur_rad_yr, double dt_yr, T u[3], T mu[3], T& f) {
+  using std::sqrt;
+  const T to_rad = T(1.0 / units::kMasPerRad);
+  const T mua = pmra_mas_yr * to_rad, mud = pmdec_mas_yr * to_rad;
+  T mu0[3];
+  for (int k = 0; k < 3; ++k) mu0[k] = p[k] * mua + q[k] * mud;
+  const T mu2 = mua * mua + mud * mud;
+  const T t(dt_yr);
+  const T one_mur_t = T(1.0) + mur_rad_yr * t;
+  f = T(1.0) / sqrt(T(1.0) + T(2.0) * mur_rad_yr * t + (mu2 + mur_rad_yr * mur_rad_yr) * t * t);
+  const T f3 = f * f * f;
+  for (int k = 0; k < 3; ++k) {
+    u[k] = (r[k] * one_mur_t + mu0[k] * t) * f;
+    mu[k] = (mu0[k] * one_mur_t - r[k] * mu2 * t) * f3;
+  }
+}
+
 /// Propagates a state by dt_yr Julian years (either sign) under uniform
 /// space motion.
 ///
@@ -51,33 +85,18 @@ void direction_to_radec(const T u[3], T& ra_rad, T& dec_rad) {
 /// Returned: the state at t.
 /// Notes:
 /// 1. Radial proper motion mu_r = rv * parallax / A (A = units::kKmsPerAuYr);
-///    f = [1 + 2 mu_r t + (mu^2 + mu_r^2) t^2]^(-1/2);
-///    u = [r0 (1 + mu_r t) + mu0_vec t] f;
-///    mu_vec = [mu0_vec (1 + mu_r t) - r0 mu^2 t] f^3;
-///    parallax = parallax0 f;  mu_r' = [mu_r + (mu^2 + mu_r^2) t] f^2.
-///    (ESA 1997, Vol. 1, Eqs. 1.5.13-1.5.19).
+///    u and mu_vec by propagate_vectors; parallax = parallax0 f;
+///    mu_r' = [mu_r + (mu^2 + mu_r^2) t] f^2 (ESA 1997, Vol. 1,
+///    Eqs. 1.5.13-1.5.19).
 /// 2. No light-time or relativistic terms: the catalogues' own model.
 template <typename T>
 SkyState<T> propagate(const SkyState<T>& s, double dt_yr) {
-  using std::sqrt;
   const T to_rad = T(1.0 / units::kMasPerRad);
   T p[3], q[3], r[3];
   normal_triad(s.ra_rad, s.dec_rad, p, q, r);
-  // Proper motion vector and radial proper motion (rad/yr).
-  const T mua = s.pmra_mas_yr * to_rad, mud = s.pmdec_mas_yr * to_rad;
   const T mur = s.rv_km_s * s.parallax_mas / T(units::kKmsPerAuYr) * to_rad;
-  T mu0[3];
-  for (int k = 0; k < 3; ++k) mu0[k] = p[k] * mua + q[k] * mud;
-  const T mu2 = mua * mua + mud * mud;
-  const T t(dt_yr);
-  const T one_mur_t = T(1.0) + mur * t;
-  const T f = T(1.0) / sqrt(T(1.0) + T(2.0) * mur * t + (mu2 + mur * mur) * t * t);
-  const T f3 = f * f * f;
-  T u[3], mu[3];
-  for (int k = 0; k < 3; ++k) {
-    u[k] = (r[k] * one_mur_t + mu0[k] * t) * f;
-    mu[k] = (mu0[k] * one_mur_t - r[k] * mu2 * t) * f3;
-  }
+  T u[3], mu[3], f;
+  propagate_vectors(p, q, r, s.pmra_mas_yr, s.pmdec_mas_yr, mur, dt_yr, u, mu, f);
   SkyState<T> out;
   direction_to_radec(u, out.ra_rad, out.dec_rad);
   T p1[3], q1[3], r1[3];
@@ -85,7 +104,8 @@ SkyState<T> propagate(const SkyState<T>& s, double dt_yr) {
   out.pmra_mas_yr = (p1[0] * mu[0] + p1[1] * mu[1] + p1[2] * mu[2]) / to_rad;
   out.pmdec_mas_yr = (q1[0] * mu[0] + q1[1] * mu[1] + q1[2] * mu[2]) / to_rad;
   out.parallax_mas = s.parallax_mas * f;
-  const T mur1 = (mur + (mu2 + mur * mur) * t) * f * f;
+  const T mua = s.pmra_mas_yr * to_rad, mud = s.pmdec_mas_yr * to_rad;
+  const T mur1 = (mur + (mua * mua + mud * mud + mur * mur) * T(dt_yr)) * f * f;
   out.rv_km_s = mur1 / to_rad * T(units::kKmsPerAuYr) / out.parallax_mas;
   return out;
 }
