@@ -254,12 +254,12 @@ bool StarTableReader::next_raw(RawStarRow& row) {
   do {
     if (!csv_.next()) return false;
     ++rows_;
-    if (csv_.fields().size() != n_fields_)
+    if (csv_.field_count() != n_fields_)
       throw InputError(csv_.name(), csv_.line(), 0,
-                       "row has " + std::to_string(csv_.fields().size()) + " fields, header has " +
+                       "row has " + std::to_string(csv_.field_count()) + " fields, header has " +
                            std::to_string(n_fields_));
-  } while (keep_ && !keep_(csv_.fields()[field_of_column_[0]]));
-  const std::string_view id = csv_.fields()[field_of_column_[0]];
+  } while (keep_ && !keep_(csv_.field(field_of_column_[0])));
+  const std::string_view id = csv_.field(field_of_column_[0]);
   row.has_id = !id.empty();
   row.id_hash = fnv1a64(id);
   row.duplicate_id = false;
@@ -278,7 +278,7 @@ void StarTableReader::parse(const RawStarRow& row, StarRecord& star, std::string
   // Ids travel into every table and JSON heft writes, one line per star.
   for (char c : star.id)
     if (static_cast<unsigned char>(c) < 0x20 || c == 0x7F)
-      throw InputError(csv_.name(), row.line, row.columns[field_of_column_[0]],
+      throw InputError(csv_.name(), row.line, row.column(field_of_column_[0]),
                        "column 'id': contains a control character (line break, tab, ...)");
   bad_reason.clear();
   const auto& cols = columns();
@@ -289,7 +289,7 @@ void StarTableReader::parse(const RawStarRow& row, StarRecord& star, std::string
     if (f.empty()) {
       if (required && bad_reason.empty()) bad_reason = "missing_" + cols[k - 1].name;
     } else if (!parse_double(f, slot)) {
-      throw InputError(csv_.name(), row.line, row.columns[fi],
+      throw InputError(csv_.name(), row.line, row.column(fi),
                        "column '" + cols[k - 1].name + "': not a number: '" + clip_for_message(f) + "'");
     }
   });

@@ -52,8 +52,17 @@ bool CsvReader::read_line(std::string& line) {
   return got;
 }
 
+const std::vector<std::string_view>& CsvReader::fields() const {
+  if (!fields_valid_) {
+    fields_.clear();
+    for (std::size_t f = 0; f < spans_.size(); ++f) fields_.push_back(field(f));
+    fields_valid_ = true;
+  }
+  return fields_;
+}
+
 bool CsvReader::next() {
-  fields_.clear();
+  fields_valid_ = false;
   columns_.clear();
   spans_.clear();
   storage_.clear();
@@ -81,7 +90,7 @@ bool CsvReader::next() {
   const bool quotes = buf_.find('"') != std::string::npos;
   for (std::size_t i = 0;;) {
     while (i < buf_.size() && (buf_[i] == ' ' || buf_[i] == '\t')) ++i;
-    columns_.push_back(static_cast<long>(i) + 1);
+    if (quotes) columns_.push_back(static_cast<long>(i) + 1);  // else column(f) is its span's start
     if (quotes && i < buf_.size() && buf_[i] == '"') {
       const std::size_t begin = storage_.size();
       read_quoted(i);
@@ -101,14 +110,14 @@ bool CsvReader::next() {
     if (i++ >= buf_.size()) break;  // past the comma
   }
   if (!quotes) storage_.swap(buf_);
-  for (const auto& [b, e] : spans_) fields_.emplace_back(storage_.data() + b, e - b);
+  fields_valid_ = false;
   // Plain ASCII rows (nearly all) need no per-field check; the OR over
   // all bytes has no early exit, so that it vectorises.
   unsigned char high = 0;
   for (char c : storage_) high |= static_cast<unsigned char>(c);
   if (high & 0x80)
-    for (std::size_t f = 0; f < fields_.size(); ++f)
-      if (!valid_utf8(fields_[f])) throw InputError(name_, line_, columns_[f], "field is not valid UTF-8 text");
+    for (std::size_t f = 0; f < spans_.size(); ++f)
+      if (!valid_utf8(field(f))) throw InputError(name_, line_, column(f), "field is not valid UTF-8 text");
   return true;
 }
 
@@ -143,7 +152,7 @@ void CsvReader::read_quoted(std::size_t& i) {
 
 void CsvReader::take_record(std::string& text, std::vector<std::pair<std::size_t, std::size_t>>& spans,
                             std::vector<long>& columns) {
-  fields_.clear();
+  fields_valid_ = false;
   text.swap(storage_);
   spans.swap(spans_);
   columns.swap(columns_);

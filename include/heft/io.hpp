@@ -43,14 +43,20 @@ class CsvReader {
   void guard_commented_rows(std::size_t n_fields) { guard_fields_ = n_fields; }
 
   /// Fields of the current record; valid until the next call to next().
-  const std::vector<std::string_view>& fields() const { return fields_; }
+  const std::vector<std::string_view>& fields() const;
+  /// fields().size() and fields()[i], without building fields().
+  std::size_t field_count() const { return spans_.size(); }
+  std::string_view field(std::size_t i) const {
+    return {storage_.data() + spans_[i].first, spans_[i].second - spans_[i].first};
+  }
   /// 1-based line number where the current record starts.
   long line() const { return line_; }
   /// 1-based character column where field `i` of the current record starts.
-  long column(std::size_t i) const { return columns_.at(i); }
+  long column(std::size_t i) const { return columns_.empty() ? static_cast<long>(spans_.at(i).first) + 1 : columns_.at(i); }
   /// Moves the current record out without copying: field i is
   /// text[spans[i].first, spans[i].second), starting at character column
-  /// columns[i] of the line. The buffers are swapped (their old capacity is
+  /// columns[i] of the line (`columns` is empty for a line without quotes,
+  /// whose field i starts at column spans[i].first + 1). The buffers are swapped (their old capacity is
   /// reused by the next record); fields() and column() are empty afterwards.
   void take_record(std::string& text, std::vector<std::pair<std::size_t, std::size_t>>& spans,
                    std::vector<long>& columns);
@@ -72,9 +78,10 @@ class CsvReader {
   std::size_t block_pos_ = 0, block_end_ = 0;
 
   std::string storage_;  // the line, or the fields unescaped when it has quotes
-  std::vector<std::string_view> fields_;
+  mutable std::vector<std::string_view> fields_;  // built by fields() when asked
+  mutable bool fields_valid_ = false;
   std::vector<std::pair<std::size_t, std::size_t>> spans_;  // fields in storage_
-  std::vector<long> columns_;
+  std::vector<long> columns_;  // lines with quotes only (column())
   long line_ = 0;
   long next_line_ = 1;
   std::size_t guard_fields_ = 0;
