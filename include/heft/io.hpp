@@ -52,12 +52,15 @@ class CsvReader {
   /// 1-based line number where the current record starts.
   long line() const { return line_; }
   /// 1-based character column where field `i` of the current record starts.
-  long column(std::size_t i) const { return columns_.empty() ? static_cast<long>(spans_.at(i).first) + 1 : columns_.at(i); }
+  long column(std::size_t i) const {
+    return columns_.empty() ? static_cast<long>(spans_.at(i).first) + 1 : columns_.at(i);
+  }
   /// Moves the current record out without copying: field i is
   /// text[spans[i].first, spans[i].second), starting at character column
   /// columns[i] of the line (`columns` is empty for a line without quotes,
-  /// whose field i starts at column spans[i].first + 1). The buffers are swapped (their old capacity is
-  /// reused by the next record); fields() and column() are empty afterwards.
+  /// whose field i starts at column spans[i].first + 1). The buffers are
+  /// swapped (their old capacity is reused by the next record); fields()
+  /// and column() are empty afterwards.
   void take_record(std::string& text, std::vector<std::pair<std::size_t, std::size_t>>& spans,
                    std::vector<long>& columns);
   const std::string& name() const { return name_; }
