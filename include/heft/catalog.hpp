@@ -78,7 +78,7 @@ struct RawStarRow {
   std::vector<std::pair<std::size_t, std::size_t>> spans;
   std::vector<long> columns;  // empty for a line without quotes: column()
   /// 1-based character column where field i starts.
-  long column(std::size_t i) const { return columns.empty() ? static_cast<long>(spans[i].first) + 1 : columns[i]; }
+  long column(std::size_t i) const { return CsvReader::column_of(spans, columns, i); }
   bool has_id = false;        // the id field is not empty
   std::uint64_t id_hash = 0;  // fnv1a64 of the id
   bool duplicate_id = false;  // an earlier row has the same id (StarTableReader::check_ids)

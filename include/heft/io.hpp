@@ -52,8 +52,11 @@ class CsvReader {
   /// 1-based line number where the current record starts.
   long line() const { return line_; }
   /// 1-based character column where field `i` of the current record starts.
-  long column(std::size_t i) const {
-    return columns_.empty() ? static_cast<long>(spans_.at(i).first) + 1 : columns_.at(i);
+  long column(std::size_t i) const { return column_of(spans_, columns_, i); }
+  /// The column of field i of a record taken by take_record.
+  static long column_of(const std::vector<std::pair<std::size_t, std::size_t>>& spans,
+                        const std::vector<long>& columns, std::size_t i) {
+    return columns.empty() ? static_cast<long>(spans.at(i).first) + 1 : columns.at(i);
   }
   /// Moves the current record out without copying: field i is
   /// text[spans[i].first, spans[i].second), starting at character column
