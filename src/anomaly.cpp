@@ -90,8 +90,15 @@ Eigen::Matrix<double, kAnomalyOutputs, kAnomalyInputs> anomaly_jacobian(
 
 namespace {
 // chi2 = d^T C^-1 d through a Cholesky factorisation; NaN if C is not PD.
+// A 2x2 C by its cofactors instead: PD iff c00 > 0 and det > 0
+// (Sylvester's criterion).
 template <int N>
 double chi2_of(const Eigen::Matrix<double, N, 1>& d, const Eigen::Matrix<double, N, N>& c) {
+  if constexpr (N == 2) {
+    const double det = c(0, 0) * c(1, 1) - c(0, 1) * c(0, 1);
+    if (!(c(0, 0) > 0.0 && det > 0.0)) return kAbsent;
+    return (c(1, 1) * d(0) * d(0) - 2.0 * c(0, 1) * d(0) * d(1) + c(0, 0) * d(1) * d(1)) / det;
+  }
   Eigen::LLT<Eigen::Matrix<double, N, N>> llt(c);
   if (llt.info() != Eigen::Success) return kAbsent;
   return d.dot(llt.solve(d));
@@ -111,9 +118,13 @@ AnomalyResult compute_anomaly(const Astrometry& early, const Astrometry& late, d
   const Eigen::Matrix<double, kAnomalyOutputs, 1> jr = jac.col(10);
   const Eigen::Matrix<double, kAnomalyOutputs, kAnomalyOutputs> c_rv =
       (rv_error_km_s * rv_error_km_s) * jr * jr.transpose();
-  const Eigen::Matrix<double, kAnomalyOutputs, kAnomalyOutputs> cout =
+  // The sum is symmetric: its upper triangle, mirrored.
+  Eigen::Matrix<double, kAnomalyOutputs, kAnomalyOutputs> upper;
+  upper.triangularView<Eigen::Upper>() =
       je.lazyProduct(early.covariance()).lazyProduct(je.transpose()) +
       jl.lazyProduct(late.covariance()).lazyProduct(jl.transpose()) + c_rv;
+  const Eigen::Matrix<double, kAnomalyOutputs, kAnomalyOutputs> cout =
+      upper.selfadjointView<Eigen::Upper>();
 
   AnomalyResult r;
   r.dt_yr = model.dt_yr;
