@@ -2,7 +2,6 @@
 
 #include <ceres/jet.h>
 
-#include <Eigen/Cholesky>
 #include <iterator>
 
 #include "heft/stats.hpp"
@@ -88,22 +87,6 @@ Eigen::Matrix<double, kAnomalyOutputs, kAnomalyInputs> anomaly_jacobian(
   return jac;
 }
 
-namespace {
-// chi2 = d^T C^-1 d through a Cholesky factorisation; NaN if C is not PD.
-// A 2x2 C by its cofactors instead: PD iff c00 > 0 and det > 0
-// (Sylvester's criterion).
-template <int N>
-double chi2_of(const Eigen::Matrix<double, N, 1>& d, const Eigen::Matrix<double, N, N>& c) {
-  if constexpr (N == 2) {
-    const double det = c(0, 0) * c(1, 1) - c(0, 1) * c(0, 1);
-    if (!(c(0, 0) > 0.0 && det > 0.0)) return kAbsent;
-    return (c(1, 1) * d(0) * d(0) - 2.0 * c(0, 1) * d(0) * d(1) + c(0, 0) * d(1) * d(1)) / det;
-  }
-  Eigen::LLT<Eigen::Matrix<double, N, N>> llt(c);
-  if (llt.info() != Eigen::Success) return kAbsent;
-  return d.dot(llt.solve(d));
-}
-}  // namespace
 
 AnomalyResult compute_anomaly(const Astrometry& early, const Astrometry& late, double rv_km_s,
                               double rv_error_km_s, bool& ok, std::string& why) {
@@ -135,9 +118,9 @@ AnomalyResult compute_anomaly(const Astrometry& early, const Astrometry& late, d
   r.dpm_cov = cout.block<4, 4>(2, 2);
   r.pml_dpm_cov = cout.block<2, 4>(0, 2);
   r.rv_cov_share = c_rv.block<4, 4>(2, 2).trace() / r.dpm_cov.trace();
-  r.chi2_late = chi2_of<2>(r.dpm_late_mas_yr, r.dpm_cov.block<2, 2>(0, 0));
-  r.chi2_early = chi2_of<2>(r.dpm_early_mas_yr, r.dpm_cov.block<2, 2>(2, 2));
-  r.chi2_joint = chi2_of<4>(y.segment<4>(2), r.dpm_cov);
+  r.chi2_late = mahalanobis_sq<2>(r.dpm_late_mas_yr, r.dpm_cov.block<2, 2>(0, 0));
+  r.chi2_early = mahalanobis_sq<2>(r.dpm_early_mas_yr, r.dpm_cov.block<2, 2>(2, 2));
+  r.chi2_joint = mahalanobis_sq<4>(y.segment<4>(2), r.dpm_cov);
   ok = std::isfinite(r.chi2_late) && std::isfinite(r.chi2_early) && std::isfinite(r.chi2_joint) &&
        y.allFinite();
   if (!ok) {

@@ -1,12 +1,12 @@
 #include "heft/catalog.hpp"
 
-#include <Eigen/Cholesky>
 #include <algorithm>
 #include <exception>
 #include <utility>
 
 #include "heft/error.hpp"
 #include "heft/rng.hpp"
+#include "heft/stats.hpp"
 
 namespace heft {
 namespace {
@@ -82,8 +82,7 @@ std::string validate_astrometry(const Astrometry& a) {
   if (!(a.window_start_yr < a.window_end_yr) || a.epoch_yr < a.window_start_yr ||
       a.epoch_yr > a.window_end_yr)
     return "window_excludes_epoch";
-  Eigen::LLT<Eigen::Matrix<double, 5, 5>> llt(a.covariance());
-  if (llt.info() != Eigen::Success) return "covariance_not_positive_definite";
+  if (Eigen::Matrix<double, 5, 5> c = a.covariance(); !cholesky_in_place(c)) return "covariance_not_positive_definite";
   return "";
 }
 
