@@ -82,7 +82,7 @@ std::string validate_astrometry(const Astrometry& a) {
   if (!(a.window_start_yr < a.window_end_yr) || a.epoch_yr < a.window_start_yr ||
       a.epoch_yr > a.window_end_yr)
     return "window_excludes_epoch";
-  if (Eigen::Matrix<double, 5, 5> c = a.covariance(); !cholesky_in_place(c)) return "covariance_not_positive_definite";
+  if (Eigen::Matrix<double, 5, 5> c = a.covariance(); !ldlt_in_place(c)) return "covariance_not_positive_definite";
   return "";
 }
 

@@ -147,7 +147,7 @@ TEST_CASE("weighted quantiles by selection equal those of the sorted values", "[
 
 namespace {
 template <int N>
-void check_cholesky_against_eigen(std::mt19937_64& gen, int& checked) {
+void check_ldlt_against_eigen(std::mt19937_64& gen, int& checked) {
   std::normal_distribution<double> g;
   std::uniform_real_distribution<double> u(-8.0, 8.0);
   for (int trial = 0; trial < 2000; ++trial) {
@@ -171,8 +171,10 @@ void check_cholesky_against_eigen(std::mt19937_64& gen, int& checked) {
     const double cond = r.inverse().norm() * r.norm();
     if (!(cond < 1e8)) continue;
     Eigen::Matrix<double, N, N> l = c;
-    REQUIRE(cholesky_in_place(l));
-    const Eigen::Matrix<double, N, N> lower = l.template triangularView<Eigen::Lower>();
+    REQUIRE(ldlt_in_place(l));
+    // L D^1/2 is the Cholesky factor
+    const Eigen::Matrix<double, N, N> lower =
+        Eigen::Matrix<double, N, N>(l.template triangularView<Eigen::UnitLower>()) * l.diagonal().cwiseSqrt().asDiagonal();
     const Eigen::Matrix<double, N, N> eigen_l = llt.matrixL();
     CHECK((inv_sd.asDiagonal() * (lower - eigen_l)).norm() <= 1e-15 * cond + 1e-14);
     CHECK(mahalanobis_sq(d, c) == Approx(ref).epsilon(1e-15 * cond + 1e-14));
@@ -181,14 +183,13 @@ void check_cholesky_against_eigen(std::mt19937_64& gen, int& checked) {
 }
 }  // namespace
 
-TEST_CASE("Cholesky factor and Mahalanobis length of small covariances agree with Eigen's LLT", "[stats]") {
-  // Reference: Eigen's LLT (a reference library); cholesky_in_place takes
-  // the same column order (Golub & Van Loan, Alg. 4.2.1) with fixed loops.
+TEST_CASE("L D L^T factor and Mahalanobis length of small covariances agree with Eigen's LLT", "[stats]") {
+  // Reference: Eigen's LLT (a reference library), whose factor is L D^1/2.
   std::mt19937_64 gen(4242);
   int checked = 0;
-  check_cholesky_against_eigen<2>(gen, checked);
-  check_cholesky_against_eigen<4>(gen, checked);
-  check_cholesky_against_eigen<5>(gen, checked);
+  check_ldlt_against_eigen<2>(gen, checked);
+  check_ldlt_against_eigen<4>(gen, checked);
+  check_ldlt_against_eigen<5>(gen, checked);
   CHECK(checked > 3000);
   // chi2 of a worked case by hand: C = [[4, 2], [2, 5]], d = (2, 1):
   // C^-1 = [[5, -2], [-2, 4]] / 16, so chi2 = (20 - 8 + 4) / 16 = 1.
@@ -198,12 +199,12 @@ TEST_CASE("Cholesky factor and Mahalanobis length of small covariances agree wit
   // not positive definite: an indefinite matrix, a singular one, a NaN
   Eigen::Matrix<double, 5, 5> bad = Eigen::Matrix<double, 5, 5>::Identity();
   bad(3, 4) = bad(4, 3) = 1.0;  // rows 3 and 4 equal: singular
-  CHECK_FALSE(cholesky_in_place(bad));
+  CHECK_FALSE(ldlt_in_place(bad));
   bad = Eigen::Matrix<double, 5, 5>::Identity();
   bad(0, 4) = bad(4, 0) = 1.5;  // correlation beyond 1
-  CHECK_FALSE(cholesky_in_place(bad));
+  CHECK_FALSE(ldlt_in_place(bad));
   CHECK(std::isnan(mahalanobis_sq(Eigen::Matrix<double, 5, 1>::Ones().eval(), bad)));
   Eigen::Matrix2d nan2 = c2;
   nan2(1, 1) = std::nan("");
-  CHECK_FALSE(cholesky_in_place(nan2));
+  CHECK_FALSE(ldlt_in_place(nan2));
 }

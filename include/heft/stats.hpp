@@ -80,44 +80,48 @@ double ks_test(std::vector<double>& sample, double (*cdf)(double), double& p_val
 /// non-finite log10 B. heft rank's p_real (docs/method.md, Sect. 10).
 double probability_real(double log10_bayes, double occurrence);
 
-/// Cholesky factorisation C = L L^T of a small symmetric matrix, in place.
-/// Given: c, of which the lower triangle is read. Returned: false if C is
-/// not positive definite (a pivot <= 0, or not a number); else true, with L
-/// in c's lower triangle (its strict upper triangle is left as it was).
-/// The column-by-column (Cholesky-Banachiewicz) order of Golub & Van Loan,
-/// "Matrix Computations", 4th ed., Alg. 4.2.1. For the 2-5 sized matrices of
-/// the anomaly and of star validation: Eigen's LLT runs its loop over
-/// dynamic blocks (a general matrix-vector call per column), several times
-/// the cost at these sizes.
+/// Square-root-free Cholesky factorisation C = L D L^T of a small symmetric
+/// matrix, in place (Golub & Van Loan, "Matrix Computations", 4th ed.,
+/// Sect. 4.1.2). Given: c, of which the lower triangle is read. Returned:
+/// false if C is not positive definite (a pivot of D <= 0, or not a
+/// number); else true, with D on c's diagonal and the unit lower triangle
+/// of L below it (the strict upper triangle is left as it was). For the
+/// 2-5 sized covariances of the anomaly and of star validation: Eigen's LLT
+/// runs its loop over dynamic blocks (a general matrix-vector call per
+/// column), several times the cost at these sizes, and each column's
+/// square root would lengthen the chain of dependent steps.
 template <int N>
-bool cholesky_in_place(Eigen::Matrix<double, N, N>& c) {
+bool ldlt_in_place(Eigen::Matrix<double, N, N>& c) {
   for (int j = 0; j < N; ++j) {
+    double ld[N];  // L(j, k) D(k)
     double pivot = c(j, j);
-    for (int k = 0; k < j; ++k) pivot -= c(j, k) * c(j, k);
+    for (int k = 0; k < j; ++k) {
+      ld[k] = c(j, k) * c(k, k);
+      pivot -= c(j, k) * ld[k];
+    }
     if (!(pivot > 0.0)) return false;
-    const double l = std::sqrt(pivot);
-    c(j, j) = l;
+    c(j, j) = pivot;
+    const double inv = 1.0 / pivot;
     for (int i = j + 1; i < N; ++i) {
       double s = c(i, j);
-      for (int k = 0; k < j; ++k) s -= c(i, k) * c(j, k);
-      c(i, j) = s / l;
+      for (int k = 0; k < j; ++k) s -= c(i, k) * ld[k];
+      c(i, j) = s * inv;
     }
   }
   return true;
 }
 
 /// chi2 = d^T C^-1 d, the squared Mahalanobis length of d under the
-/// covariance C, as |L^-1 d|^2 with C = L L^T (cholesky_in_place).
-/// Returned: NaN if C is not positive definite.
+/// covariance C, as sum y_i^2 / D_i with L y = d and C = L D L^T
+/// (ldlt_in_place). Returned: NaN if C is not positive definite.
 template <int N>
 double mahalanobis_sq(const Eigen::Matrix<double, N, 1>& d, Eigen::Matrix<double, N, N> c) {
-  if (!cholesky_in_place(c)) return std::numeric_limits<double>::quiet_NaN();
+  if (!ldlt_in_place(c)) return std::numeric_limits<double>::quiet_NaN();
   double y[N], sum = 0.0;
   for (int i = 0; i < N; ++i) {
-    double s = d(i);
-    for (int k = 0; k < i; ++k) s -= c(i, k) * y[k];
-    y[i] = s / c(i, i);
-    sum += y[i] * y[i];
+    y[i] = d(i);
+    for (int k = 0; k < i; ++k) y[i] -= c(i, k) * y[k];
+    sum += y[i] * y[i] / c(i, i);
   }
   return sum;
 }
