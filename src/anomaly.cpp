@@ -87,7 +87,6 @@ Eigen::Matrix<double, kAnomalyOutputs, kAnomalyInputs> anomaly_jacobian(
   return jac;
 }
 
-
 AnomalyResult compute_anomaly(const Astrometry& early, const Astrometry& late, double rv_km_s,
                               double rv_error_km_s, bool& ok, std::string& why) {
   const AnomalyModel model(early, late, rv_km_s);

@@ -1,7 +1,9 @@
 #pragma once
 /// \file stats.hpp
 /// Tail probabilities and significance conversions that stay finite far in
-/// the tails (chi2 up to 1e4 and beyond), by working with log-probabilities.
+/// the tails (chi2 up to 1e4 and beyond), by working with log-probabilities;
+/// small statistics (quantiles, effective sizes, the Mahalanobis length
+/// under a small covariance).
 
 #include <Eigen/Core>
 #include <cmath>
