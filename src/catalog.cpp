@@ -250,15 +250,17 @@ void StarTableReader::check_ids(std::span<RawStarRow> rows) {
 
 bool StarTableReader::next_raw(RawStarRow& row) {
   // Rows of ids not asked for are passed over before their numbers are parsed.
+  // Of those, only the fields up to the id are split.
+  const auto id_field = static_cast<std::size_t>(field_of_column_[0]);
   do {
-    if (!csv_.next()) return false;
+    if (!(keep_ ? csv_.next_first(id_field + 1) : csv_.next())) return false;
     ++rows_;
     if (csv_.field_count() != n_fields_)
       throw InputError(csv_.name(), csv_.line(), 0,
                        "row has " + std::to_string(csv_.field_count()) + " fields, header has " +
                            std::to_string(n_fields_));
-  } while (keep_ && !keep_(csv_.field(field_of_column_[0])));
-  const std::string_view id = csv_.field(field_of_column_[0]);
+  } while (keep_ && !keep_(csv_.field(id_field)));
+  const std::string_view id = csv_.field(id_field);
   row.has_id = !id.empty();
   row.id_hash = fnv1a64(id);
   row.duplicate_id = false;

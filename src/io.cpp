@@ -61,11 +61,42 @@ const std::vector<std::string_view>& CsvReader::fields() const {
   return fields_;
 }
 
-bool CsvReader::next() {
+namespace {
+// The unquoted field of `line` that starts at i (after its leading spaces
+// and tabs): its span without the trailing ones; i moves to the comma
+// after it, or to the line's end.
+std::pair<std::size_t, std::size_t> unquoted_field(const std::string& line, std::size_t& i) {
+  const std::size_t start = i, comma = line.find(',', i);
+  i = comma == std::string::npos ? line.size() : comma;
+  std::size_t end = i;
+  while (end > start && (line[end - 1] == ' ' || line[end - 1] == '\t')) --end;
+  return {start, end};
+}
+
+// Commas in t, counted in byte lanes 255 bytes at a time (std::count's
+// 64-bit lanes took most of a row that is passed over).
+std::size_t count_commas(std::string_view t) {
+  std::size_t total = 0;
+  for (std::size_t i = 0; i < t.size(); i += 255) {
+    const std::size_t m = std::min<std::size_t>(t.size() - i, 255);
+    unsigned char n = 0;  // at most 255: the sum of the lanes cannot wrap
+    for (std::size_t k = 0; k < m; ++k) n += t[i + k] == ',' ? 1 : 0;
+    total += n;
+  }
+  return total;
+}
+}  // namespace
+
+bool CsvReader::next() { return next_record(std::string::npos); }
+
+bool CsvReader::next_first(std::size_t n) { return next_record(n); }
+
+bool CsvReader::next_record(std::size_t n_first) {
   fields_valid_ = false;
   columns_.clear();
   spans_.clear();
   storage_.clear();
+  rest_ = std::string::npos;
   for (;;) {
     if (!read_line(buf_)) return false;
     line_ = next_line_++;
@@ -85,40 +116,60 @@ bool CsvReader::next() {
     }
     break;
   }
-  // Without quotes (nearly every row) the fields are spans of the line
-  // itself, which becomes the storage; else they are copied, unescaped.
-  const bool quotes = buf_.find('"') != std::string::npos;
-  for (std::size_t i = 0;;) {
-    while (i < buf_.size() && (buf_[i] == ' ' || buf_[i] == '\t')) ++i;
-    if (quotes) columns_.push_back(static_cast<long>(i) + 1);  // else column(f) is its span's start
-    if (quotes && i < buf_.size() && buf_[i] == '"') {
-      const std::size_t begin = storage_.size();
-      read_quoted(i);
-      spans_.emplace_back(begin, storage_.size());
-    } else {
-      const std::size_t start = i, comma = buf_.find(',', i);
-      i = comma == std::string::npos ? buf_.size() : comma;
-      std::size_t end = i;
-      while (end > start && (buf_[end - 1] == ' ' || buf_[end - 1] == '\t')) --end;
-      if (quotes) {
-        spans_.emplace_back(storage_.size(), storage_.size() + (end - start));
-        storage_.append(buf_, start, end - start);
-      } else {
-        spans_.emplace_back(start, end);
-      }
-    }
-    if (i++ >= buf_.size()) break;  // past the comma
-  }
-  if (!quotes) storage_.swap(buf_);
-  fields_valid_ = false;
   // Plain ASCII rows (nearly all) need no per-field check; the OR over
   // all bytes has no early exit, so that it vectorises.
   unsigned char high = 0;
-  for (char c : storage_) high |= static_cast<unsigned char>(c);
+  for (char c : buf_) high |= static_cast<unsigned char>(c);
+  // Without quotes (nearly every row) the fields are spans of the line
+  // itself, which becomes the storage; else they are copied, unescaped.
+  if (buf_.find('"') == std::string::npos) {
+    // A plain line's fields are its commas plus one: those after the first
+    // n_first are counted, not split, unless they need the UTF-8 check.
+    const std::size_t rest = split_plain(buf_, 0, high & 0x80 ? std::string::npos : n_first);
+    count_ = spans_.size();
+    if (rest != std::string::npos) {
+      rest_ = rest;
+      count_ += 1 + count_commas(std::string_view(buf_).substr(rest));
+    }
+    storage_.swap(buf_);
+  } else {
+    for (std::size_t i = 0;;) {
+      while (i < buf_.size() && (buf_[i] == ' ' || buf_[i] == '\t')) ++i;
+      columns_.push_back(static_cast<long>(i) + 1);
+      if (i < buf_.size() && buf_[i] == '"') {
+        const std::size_t begin = storage_.size();
+        read_quoted(i);
+        spans_.emplace_back(begin, storage_.size());
+      } else {
+        const auto [start, end] = unquoted_field(buf_, i);
+        spans_.emplace_back(storage_.size(), storage_.size() + (end - start));
+        storage_.append(buf_, start, end - start);
+      }
+      if (i++ >= buf_.size()) break;  // past the comma
+    }
+    count_ = spans_.size();
+    for (char c : storage_) high |= static_cast<unsigned char>(c);
+  }
   if (high & 0x80)
     for (std::size_t f = 0; f < spans_.size(); ++f)
       if (!valid_utf8(field(f))) throw InputError(name_, line_, column(f), "field is not valid UTF-8 text");
   return true;
+}
+
+std::size_t CsvReader::split_plain(const std::string& line, std::size_t i, std::size_t n) {
+  for (std::size_t f = 0; f < n; ++f) {
+    while (i < line.size() && (line[i] == ' ' || line[i] == '\t')) ++i;
+    spans_.push_back(unquoted_field(line, i));
+    if (i++ >= line.size()) return std::string::npos;  // past the comma
+  }
+  return i;
+}
+
+void CsvReader::complete() {
+  if (rest_ == std::string::npos) return;
+  split_plain(storage_, rest_, std::string::npos);
+  rest_ = std::string::npos;
+  fields_valid_ = false;
 }
 
 void CsvReader::read_quoted(std::size_t& i) {
@@ -152,6 +203,7 @@ void CsvReader::read_quoted(std::size_t& i) {
 
 void CsvReader::take_record(std::string& text, std::vector<std::pair<std::size_t, std::size_t>>& spans,
                             std::vector<long>& columns) {
+  complete();
   fields_valid_ = false;
   text.swap(storage_);
   spans.swap(spans_);

@@ -8,6 +8,7 @@
 #include "heft/catalog.hpp"
 #include "heft/error.hpp"
 #include "heft/io.hpp"
+#include "heft/rng.hpp"
 #include "test_util.hpp"
 
 using namespace heft;
@@ -73,6 +74,71 @@ TEST_CASE("CSV tokenizer: rows that straddle the reader's blocks", "[catalog]") 
     line += i % 7 == 3 ? 2 : 1;
   }
   CHECK_FALSE(csv.next());
+}
+
+TEST_CASE("CSV tokenizer: the first fields of a row alone, then the rest, are what next() reads", "[catalog]") {
+  // next_first(n) splits a plain row's first n fields and counts the
+  // others; with complete() the row must be next()'s, field by field,
+  // column by column, and so must the field count and the errors before
+  // it (the reference is next() itself: no outside source). Random rows of
+  // commas, spaces, tabs, quotes, CR, comments, blank lines, valid and
+  // invalid UTF-8, some longer than the comma count's 255-byte steps.
+  const std::string pieces[] = {",", ",", ",", " ", "\t", "a", "bc", "12.5", "\"q,\"\"x\"", "\xC3\xA9", "\xFF",
+                                "#", "\r", "\n", "\n", "\"open", std::string(120, 'x')};
+  std::uint64_t state = 12345;
+  auto next_rand = [&] { return splitmix64(state); };
+  long rows = 0, partial = 0, errors = 0;
+  for (int t = 0; t < 3000; ++t) {
+    std::string text;
+    const int n_pieces = static_cast<int>(next_rand() % 60);
+    for (int k = 0; k < n_pieces; ++k) {
+      const std::uint64_t r = next_rand() % 100;
+      text += r < 70 ? pieces[r % 8] : r < 80 ? pieces[16] : pieces[r % 16];
+    }
+    const std::size_t n = next_rand() % 4;
+    std::istringstream a(text), b(text);
+    CsvReader full(a, "a.csv"), first(b, "b.csv");
+    for (;;) {
+      std::string what_full, what_first;
+      bool got_full = false, got_first = false;
+      try {
+        got_full = full.next();
+      } catch (const InputError& e) {
+        what_full = e.what();
+      }
+      try {
+        got_first = first.next_first(n);
+      } catch (const InputError& e) {
+        what_first = std::string(e.what()).replace(0, 5, "a.csv");
+      }
+      INFO("text '" << text << "', n " << n);
+      REQUIRE(what_first == what_full);
+      REQUIRE(got_first == got_full);
+      if (!what_full.empty()) {
+        ++errors;
+        break;
+      }
+      if (!got_full) break;
+      ++rows;
+      REQUIRE(first.field_count() == full.field_count());
+      REQUIRE(first.line() == full.line());
+      for (std::size_t i = 0; i < std::min(n, full.field_count()); ++i) {
+        CHECK(first.field(i) == full.field(i));
+        CHECK(first.column(i) == full.column(i));
+      }
+      first.complete();
+      REQUIRE(first.fields().size() == full.fields().size());
+      partial += full.field_count() > n ? 1 : 0;
+      for (std::size_t i = 0; i < full.field_count(); ++i) {
+        CHECK(first.fields()[i] == full.fields()[i]);
+        CHECK(first.column(i) == full.column(i));
+      }
+    }
+  }
+  // The cases must occur: rows split in part, and rows that fail.
+  CHECK(rows > 3000);
+  CHECK(partial > 1000);
+  CHECK(errors > 100);
 }
 
 TEST_CASE("numbers: exact parsing and shortest round trip", "[catalog]") {
