@@ -12,7 +12,9 @@
 //                    [--per-separation] [--repeat N]
 // (--per-separation: after each star, its separations with the draws and
 // rounds each took, the effective sizes reached and the posterior weight,
-// so that one sees where a curve's draws go.)
+// and the draws and weight of the separations added by the refinement,
+// holding little weight, needing adaptive rounds or ending with few
+// effective samples, so that one sees where a curve's draws go.)
 // (--quantile-errors: also the mass quantiles' Monte Carlo errors, as `heft curve
 // --json`.)
 // (--draws: the draws per separation, 4096 by default as in `heft curve`;
@@ -25,6 +27,7 @@
 #include <sys/resource.h>
 #include <sys/wait.h>
 
+#include <algorithm>
 #include <cmath>
 #include <cstdio>
 #include <cstdlib>
@@ -148,6 +151,28 @@ int main(int argc, char** argv) {
       for (const CurvePoint& p : c.points)  // in a, refinements in place
         std::printf("%12.4g %8ld %6d %8.0f %10.0f %10.2e\n", p.a_au, p.draws, p.rounds, p.ess, p.ess_orbits,
                     p.weight);
+      // Where the draws go: the separations of each kind, their draws and
+      // their share of the posterior (docs/performance.md, "Stop 47").
+      auto share = [&](const char* what, auto in) {
+        long n = 0, draws = 0;
+        double weight = 0.0;
+        for (const CurvePoint& p : c.points)
+          if (in(p)) {
+            ++n;
+            draws += p.draws;
+            weight += p.weight;
+          }
+        std::printf("  %-44s %4ld points %9ld draws (%4.1f %%), posterior weight %.2e\n", what, n, draws,
+                    100.0 * static_cast<double>(draws) / static_cast<double>(c.draws_weighed), weight);
+      };
+      share("added by the refinement", [&](const CurvePoint& p) {
+        return std::find(opt.a_au.begin(), opt.a_au.end(), p.a_au) == opt.a_au.end();
+      });
+      share("holding < 1e-3 of the posterior", [](const CurvePoint& p) { return p.weight < 1e-3; });
+      share("with adaptive rounds", [](const CurvePoint& p) { return p.rounds > 1; });
+      // heft curve flags a band from fewer than 100 effective samples
+      share("ending below 100 effective samples", [](const CurvePoint& p) { return p.ess < 100.0; });
+      share("where one sample holds the weight", [](const CurvePoint& p) { return p.ess < 1.5; });
     }
   }
   std::printf("Kepler solves per curve: 4 per window evaluation (two catalogue windows, two ends each)\n");
