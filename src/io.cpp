@@ -62,6 +62,12 @@ const std::vector<std::string_view>& CsvReader::fields() const {
 }
 
 namespace {
+// The first position from i on that is not a space or a tab.
+std::size_t skip_blanks(const std::string& line, std::size_t i) {
+  while (i < line.size() && (line[i] == ' ' || line[i] == '\t')) ++i;
+  return i;
+}
+
 // The unquoted field of `line` that starts at i (after its leading spaces
 // and tabs): its span without the trailing ones; i moves to the comma
 // after it, or to the line's end.
@@ -104,8 +110,7 @@ bool CsvReader::next_record(std::size_t n_first) {
       first_ = false;
       if (buf_.size() >= 3 && buf_.compare(0, 3, "\xEF\xBB\xBF") == 0) buf_.erase(0, 3);
     }
-    std::size_t k = 0;
-    while (k < buf_.size() && (buf_[k] == ' ' || buf_[k] == '\t')) ++k;
+    const std::size_t k = skip_blanks(buf_, 0);
     if (k == buf_.size()) continue;
     if (buf_[k] == '#') {
       if (guard_fields_ > 0 && static_cast<std::size_t>(std::count(buf_.begin(), buf_.end(), ',')) + 1 == guard_fields_)
@@ -134,7 +139,7 @@ bool CsvReader::next_record(std::size_t n_first) {
     storage_.swap(buf_);
   } else {
     for (std::size_t i = 0;;) {
-      while (i < buf_.size() && (buf_[i] == ' ' || buf_[i] == '\t')) ++i;
+      i = skip_blanks(buf_, i);
       columns_.push_back(static_cast<long>(i) + 1);
       if (i < buf_.size() && buf_[i] == '"') {
         const std::size_t begin = storage_.size();
@@ -158,7 +163,7 @@ bool CsvReader::next_record(std::size_t n_first) {
 
 std::size_t CsvReader::split_plain(const std::string& line, std::size_t i, std::size_t n) {
   for (std::size_t f = 0; f < n; ++f) {
-    while (i < line.size() && (line[i] == ' ' || line[i] == '\t')) ++i;
+    i = skip_blanks(line, i);
     spans_.push_back(unquoted_field(line, i));
     if (i++ >= line.size()) return std::string::npos;  // past the comma
   }
