@@ -1,5 +1,6 @@
 #include "heft/tablefile.hpp"
 
+#include <dlfcn.h>
 #include <fitsio.h>
 #include <sys/stat.h>
 #include <unistd.h>
@@ -40,9 +41,60 @@ struct TextTable {
   std::string kind;                                       // "heft-rank" etc.; "" when not heft's
 };
 
+// cfitsio is opened on the first FITS table, not linked: with its chain of
+// shared libraries (curl, gnutls, krb5, ldap ...) it made up half the start
+// of every heft command, FITS or not (docs/performance.md, "Start of a
+// command"). The functions heft calls, by their names in fitsio.h (macros
+// for cfitsio's short names, which are what the library exports).
+#define HEFT_CFITSIO_FUNCTIONS(X)                                                                                  \
+  X(fits_close_file) X(fits_create_file) X(fits_create_tbl) X(fits_free_memory) X(fits_get_coltype)               \
+  X(fits_get_errstatus) X(fits_get_hdrspace) X(fits_get_num_cols) X(fits_get_num_rowsll) X(fits_make_keyn)        \
+  X(fits_movabs_hdu) X(fits_open_memfile) X(fits_open_table) X(fits_read_col_str) X(fits_read_colnull)            \
+  X(fits_read_key_lng) X(fits_read_key_longstr) X(fits_read_key_str) X(fits_read_keyn) X(fits_write_col)          \
+  X(fits_write_key_longstr) X(fits_write_key_str) X(fits_write_tblbytes)
+#define HEFT_STRING(x) #x
+#define HEFT_NAME_OF(x) HEFT_STRING(x)
+
+struct Cfitsio {
+#define HEFT_MEMBER(f) decltype(&::f) f = nullptr;
+  HEFT_CFITSIO_FUNCTIONS(HEFT_MEMBER)
+#undef HEFT_MEMBER
+  std::string error;  ///< why it could not be loaded; empty when it was
+};
+
+Cfitsio load_cfitsio() {
+  Cfitsio api;
+  void* lib = dlopen(HEFT_CFITSIO_SONAME, RTLD_NOW | RTLD_LOCAL);  // never closed
+  if (!lib) {
+    api.error = dlerror();
+    return api;
+  }
+#define HEFT_BIND(f)                                                      \
+  api.f = reinterpret_cast<decltype(api.f)>(dlsym(lib, HEFT_NAME_OF(f))); \
+  if (!api.f) api.error = std::string("no function ") + HEFT_NAME_OF(f);
+  HEFT_CFITSIO_FUNCTIONS(HEFT_BIND)
+#undef HEFT_BIND
+  return api;
+}
+#undef HEFT_NAME_OF
+#undef HEFT_STRING
+#undef HEFT_CFITSIO_FUNCTIONS
+
+// cfitsio's functions, loaded on first use; `file` is the table read that
+// needs them ("" for one written), named in the error when the library
+// cannot be loaded.
+const Cfitsio& cfitsio(const std::string& file) {
+  static const Cfitsio api = load_cfitsio();
+  if (!api.error.empty())
+    throw InputError(file, 0, 0,
+                     "FITS tables need cfitsio's shared library " HEFT_CFITSIO_SONAME ", which could not be loaded (" +
+                         api.error + ")");
+  return api;
+}
+
 [[noreturn]] void fits_fail(const std::string& file, int status, const std::string& what) {
   char text[FLEN_STATUS] = {0};
-  fits_get_errstatus(status, text);
+  cfitsio(file).fits_get_errstatus(status, text);
   throw InputError(file, 0, 0, what + ": " + text + " (cfitsio status " + std::to_string(status) + ")");
 }
 
@@ -88,6 +140,7 @@ void check_fits_cards(std::string_view data, const std::string& name) {
 // Reads the FITS table of `spec` (a path with an optional [extension]) or,
 // when `bytes` is given, of that memory image.
 TextTable read_fits(const std::string& spec, const std::string& name, std::string* bytes) {
+  const Cfitsio& fx = cfitsio(name);
   fitsfile* f = nullptr;
   int st = 0;
   void* mem = nullptr;
@@ -106,10 +159,10 @@ TextTable read_fits(const std::string& spec, const std::string& name, std::strin
     mem = bytes->data();
     mem_size = bytes->size();
     check_fits_cards(*bytes, name);
-    fits_open_memfile(&f, "stdin.fits", READONLY, &mem, &mem_size, 0, nullptr, &st);
+    fx.fits_open_memfile(&f, "stdin.fits", READONLY, &mem, &mem_size, 0, nullptr, &st);
     int hdutype = 0;
     // The first table: the primary HDU of a table file holds no data.
-    if (!st) fits_movabs_hdu(f, 2, &hdutype, &st);
+    if (!st) fx.fits_movabs_hdu(f, 2, &hdutype, &st);
     if (!st && hdutype == IMAGE_HDU) st = NOT_TABLE;
   } else {
     if (!compressed) {
@@ -118,27 +171,28 @@ TextTable read_fits(const std::string& spec, const std::string& name, std::strin
       while (in.read(block.data(), static_cast<std::streamsize>(block.size())) || in.gcount() > 0)
         check_fits_cards(std::string_view(block.data(), static_cast<std::size_t>(in.gcount())), name);
     }
-    fits_open_table(&f, spec.c_str(), READONLY, &st);
+    fx.fits_open_table(&f, spec.c_str(), READONLY, &st);
   }
   if (st) {
     int s = 0;
-    if (f) fits_close_file(f, &s);
+    if (f) fx.fits_close_file(f, &s);
     fits_fail(name, st, "cannot open a FITS table");
   }
   struct Closer {
+    const Cfitsio& fx;
     fitsfile* f;
     ~Closer() {
       int s = 0;
-      fits_close_file(f, &s);
+      fx.fits_close_file(f, &s);
     }
-  } closer{f};
+  } closer{fx, f};
   TextTable t;
   LONGLONG nrows = 0;
   int ncols = 0;
   long row_bytes = 0;
-  fits_get_num_rowsll(f, &nrows, &st);
-  fits_get_num_cols(f, &ncols, &st);
-  fits_read_key_lng(f, "NAXIS1", &row_bytes, nullptr, &st);
+  fx.fits_get_num_rowsll(f, &nrows, &st);
+  fx.fits_get_num_cols(f, &ncols, &st);
+  fx.fits_read_key_lng(f, "NAXIS1", &row_bytes, nullptr, &st);
   if (st) fits_fail(name, st, "cannot read the table size");
   // A header that promises more data than the file holds is refused before
   // anything is allocated for it.
@@ -150,20 +204,20 @@ TextTable read_fits(const std::string& spec, const std::string& name, std::strin
                                      std::to_string(row_bytes) + " bytes, more than the file holds");
   // heft's own metadata.
   char value[FLEN_VALUE] = {0}, comment[FLEN_COMMENT] = {0};
-  if (fits_read_key_str(f, "HEFTTAB", value, comment, &st) == 0) t.kind = value;
+  if (fx.fits_read_key_str(f, "HEFTTAB", value, comment, &st) == 0) t.kind = value;
   st = 0;
   int nkeys = 0;
-  fits_get_hdrspace(f, &nkeys, nullptr, &st);
+  fx.fits_get_hdrspace(f, &nkeys, nullptr, &st);
   for (int k = 1; k <= nkeys && !st; ++k) {
     char key[FLEN_KEYWORD] = {0}, val[FLEN_VALUE] = {0};
-    fits_read_keyn(f, k, key, val, comment, &st);
+    fx.fits_read_keyn(f, k, key, val, comment, &st);
     const std::string kname = key;
     if (kname.rfind("HEFT ", 0) != 0) continue;
     char* text = nullptr;
     int s2 = 0;
-    fits_read_key_longstr(f, key, &text, comment, &s2);
+    fx.fits_read_key_longstr(f, key, &text, comment, &s2);
     if (!s2 && text) t.meta.emplace_back(lower(kname.substr(5)), text);
-    if (text) fits_free_memory(text, &s2);
+    if (text) fx.fits_free_memory(text, &s2);
   }
   st = 0;
   struct Col {
@@ -176,12 +230,12 @@ TextTable read_fits(const std::string& spec, const std::string& name, std::strin
     char key[FLEN_KEYWORD], ttype[FLEN_VALUE] = {0}, tunit[FLEN_VALUE] = {0};
     int type = 0;
     long repeat = 0, width = 0;
-    fits_get_coltype(f, c, &type, &repeat, &width, &st);
-    fits_make_keyn("TTYPE", c, key, &st);
-    fits_read_key_str(f, key, ttype, comment, &st);
+    fx.fits_get_coltype(f, c, &type, &repeat, &width, &st);
+    fx.fits_make_keyn("TTYPE", c, key, &st);
+    fx.fits_read_key_str(f, key, ttype, comment, &st);
     if (st) fits_fail(name, st, "cannot read column " + std::to_string(c));
-    fits_make_keyn("TUNIT", c, key, &st);
-    if (fits_read_key_str(f, key, tunit, comment, &st) == KEY_NO_EXIST) st = 0;
+    fx.fits_make_keyn("TUNIT", c, key, &st);
+    if (fx.fits_read_key_str(f, key, tunit, comment, &st) == KEY_NO_EXIST) st = 0;
     const bool is_string = type == TSTRING;
     const bool is_int = type == TBYTE || type == TSBYTE || type == TSHORT || type == TUSHORT || type == TINT ||
                         type == TUINT || type == TLONG || type == TULONG || type == TLONGLONG;
@@ -208,7 +262,7 @@ TextTable read_fits(const std::string& spec, const std::string& name, std::strin
       for (auto& s : storage) ptrs.push_back(s.data());
       int anynul = 0;
       char nul[] = "";
-      if (nrows > 0) fits_read_col_str(f, c.index, 1, 1, nrows, nul, ptrs.data(), &anynul, &st);
+      if (nrows > 0) fx.fits_read_col_str(f, c.index, 1, 1, nrows, nul, ptrs.data(), &anynul, &st);
       for (LONGLONG r = 0; r < nrows; ++r) {
         std::string v = ptrs[r];
         v.erase(v.find_last_not_of(' ') + 1);
@@ -217,14 +271,14 @@ TextTable read_fits(const std::string& spec, const std::string& name, std::strin
     } else if (c.type == TLOGICAL) {
       std::vector<char> v(static_cast<std::size_t>(nelem)), nul(static_cast<std::size_t>(nelem));
       int anynul = 0;
-      if (nelem > 0) fits_read_colnull(f, TLOGICAL, c.index, 1, 1, nelem, v.data(), nul.data(), &anynul, &st);
+      if (nelem > 0) fx.fits_read_colnull(f, TLOGICAL, c.index, 1, 1, nelem, v.data(), nul.data(), &anynul, &st);
       for (LONGLONG e = 0; e < nelem; ++e)
         t.rows[e / c.repeat][out_col + e % c.repeat] = nul[e] ? "" : (v[e] ? "T" : "F");
     } else if (c.is_int) {
       std::vector<LONGLONG> v(static_cast<std::size_t>(nelem));
       std::vector<char> nul(static_cast<std::size_t>(nelem));
       int anynul = 0;
-      if (nelem > 0) fits_read_colnull(f, TLONGLONG, c.index, 1, 1, nelem, v.data(), nul.data(), &anynul, &st);
+      if (nelem > 0) fx.fits_read_colnull(f, TLONGLONG, c.index, 1, 1, nelem, v.data(), nul.data(), &anynul, &st);
       for (LONGLONG e = 0; e < nelem; ++e)
         t.rows[e / c.repeat][out_col + e % c.repeat] = nul[e] ? "" : std::to_string(v[e]);
     } else {
@@ -232,7 +286,7 @@ TextTable read_fits(const std::string& spec, const std::string& name, std::strin
       std::vector<double> v(static_cast<std::size_t>(nelem));
       std::vector<char> nul(static_cast<std::size_t>(nelem));
       int anynul = 0;
-      if (nelem > 0) fits_read_colnull(f, TDOUBLE, c.index, 1, 1, nelem, v.data(), nul.data(), &anynul, &st);
+      if (nelem > 0) fx.fits_read_colnull(f, TDOUBLE, c.index, 1, 1, nelem, v.data(), nul.data(), &anynul, &st);
       for (LONGLONG e = 0; e < nelem; ++e)
         t.rows[e / c.repeat][out_col + e % c.repeat] = nul[e] || !std::isfinite(v[e]) ? "" : format_double(v[e]);
     }
@@ -491,6 +545,7 @@ std::string ecsv_bytes(const TextTable& t, std::string_view csv) {
 }
 
 std::string fits_bytes(const TextTable& t) {
+  const Cfitsio& fx = cfitsio("");
   const auto types = column_types(t);
   const char* tmpdir = std::getenv("TMPDIR");
   std::string pattern = std::string(tmpdir && *tmpdir ? tmpdir : "/tmp") + "/heft-fits-XXXXXX";
@@ -505,7 +560,7 @@ std::string fits_bytes(const TextTable& t) {
   } remove{path.data()};
   fitsfile* f = nullptr;
   int st = 0;
-  fits_create_file(&f, ("!" + std::string(path.data())).c_str(), &st);
+  fx.fits_create_file(&f, ("!" + std::string(path.data())).c_str(), &st);
   std::vector<std::string> tform, names = t.names, units = t.units;
   // The FITS standard 4.0 (Table 3) spelling of the solar mass.
   for (auto& u : units)
@@ -530,7 +585,7 @@ std::string fits_bytes(const TextTable& t) {
   }
   std::string extname = t.kind.empty() ? "HEFT" : t.kind;
   for (char& c : extname) c = static_cast<char>(std::toupper(static_cast<unsigned char>(c)));
-  fits_create_tbl(f, BINARY_TBL, static_cast<LONGLONG>(t.rows.size()), static_cast<int>(names.size()), ttype.data(),
+  fx.fits_create_tbl(f, BINARY_TBL, static_cast<LONGLONG>(t.rows.size()), static_cast<int>(names.size()), ttype.data(),
                   tf.data(), tu.data(), extname.c_str(), &st);
   const LONGLONG n = static_cast<LONGLONG>(t.rows.size());
   for (std::size_t k = 0; k < names.size() && !st && n > 0; ++k) {
@@ -539,11 +594,11 @@ std::string fits_bytes(const TextTable& t) {
       std::vector<double> v(t.rows.size());
       for (std::size_t r = 0; r < v.size(); ++r)
         if (t.rows[r][k].empty() || !parse_double(t.rows[r][k], v[r])) v[r] = std::numeric_limits<double>::quiet_NaN();
-      fits_write_col(f, TDOUBLE, col, 1, 1, n, v.data(), &st);
+      fx.fits_write_col(f, TDOUBLE, col, 1, 1, n, v.data(), &st);
     } else if (types[k] == ColType::kInt) {
       std::vector<LONGLONG> v(t.rows.size());
       for (std::size_t r = 0; r < v.size(); ++r) v[r] = std::stoll(t.rows[r][k]);
-      fits_write_col(f, TLONGLONG, col, 1, 1, n, v.data(), &st);
+      fx.fits_write_col(f, TLONGLONG, col, 1, 1, n, v.data(), &st);
     } else {
       // Written as bytes, NUL-padded: the FITS standard 4.0 (Sect. 7.3.3.1)
       // ends a shorter string with ASCII NUL, so readers do not keep the
@@ -553,19 +608,19 @@ std::string fits_bytes(const TextTable& t) {
       for (LONGLONG r = 0; r < n && !st; ++r) {
         std::fill(cell.begin(), cell.end(), '\0');
         std::copy(t.rows[r][k].begin(), t.rows[r][k].end(), cell.begin());
-        fits_write_tblbytes(f, r + 1, static_cast<LONGLONG>(offset[k]) + 1, static_cast<LONGLONG>(w),
+        fx.fits_write_tblbytes(f, r + 1, static_cast<LONGLONG>(offset[k]) + 1, static_cast<LONGLONG>(w),
                             reinterpret_cast<unsigned char*>(cell.data()), &st);
       }
     }
   }
   if (!t.kind.empty()) {
-    fits_write_key_str(f, "HEFTTAB", t.kind.c_str(), "table written by heft", &st);
+    fx.fits_write_key_str(f, "HEFTTAB", t.kind.c_str(), "table written by heft", &st);
     for (const auto& [k, v] : t.meta) {
       std::string key = "HIERARCH HEFT " + k;
-      fits_write_key_longstr(f, key.c_str(), v.c_str(), "", &st);
+      fx.fits_write_key_longstr(f, key.c_str(), v.c_str(), "", &st);
     }
   }
-  fits_close_file(f, &st);
+  fx.fits_close_file(f, &st);
   if (st) fits_fail(path.data(), st, "cannot write the FITS table");
   std::ifstream in(path.data(), std::ios::binary);
   return std::string(std::istreambuf_iterator<char>(in), std::istreambuf_iterator<char>());

@@ -109,3 +109,37 @@ TEST_CASE("tablefile: bad ECSV and FITS inputs name the file and the rule", "[ta
   CHECK(output_table_format("-", "", "--format") == TableFormat::kCsv);
   CHECK(output_table_format("a.csv", "fits", "--format") == TableFormat::kFits);
 }
+
+// LD_LIBRARY_PATH is searched before the system's folders (ld.so(8)), so a
+// file that is not a library under cfitsio's SONAME stands for a machine
+// without cfitsio: heft must start and run a CSV job without it, and name
+// the library when a FITS table needs it. (Before cfitsio was opened on
+// demand, such a heft did not start at all.)
+TEST_CASE("tablefile: heft starts without cfitsio and names it where a FITS table needs it", "[tablefile][cli]") {
+  const std::string dir = test::fresh_dir("no_cfitsio");
+  const std::string csv = dir + "/t.csv", fits = dir + "/t.fits";
+  test::write_text(csv, "id,sep\nA,1.5\n");
+  REQUIRE(test::run_heft("convert " + csv + " -o " + fits) == 0);
+  test::write_text(dir + "/" + HEFT_CFITSIO_SONAME, "not a shared library\n");
+  const char* before = std::getenv("LD_LIBRARY_PATH");
+  const std::string saved = before ? before : "";
+  setenv("LD_LIBRARY_PATH", dir.c_str(), 1);
+  std::string err;
+  const int csv_rc = test::run_heft("convert " + csv + " -o " + dir + "/t.ecsv", &err);
+  const std::string csv_err = err;
+  const int read_rc = test::run_heft("convert " + fits + " -o " + dir + "/back.csv", &err);
+  const std::string read_err = err;
+  const int write_rc = test::run_heft("convert " + csv + " -o " + dir + "/new.fits", &err);
+  if (before) setenv("LD_LIBRARY_PATH", saved.c_str(), 1);
+  else unsetenv("LD_LIBRARY_PATH");
+  CHECK(csv_rc == 0);
+  CHECK(csv_err.empty());
+  CHECK(read_rc == 2);  // an input error (exit codes: README.md)
+  CHECK_THAT(read_err, Catch::Contains(fits + ": FITS tables need cfitsio's shared library " HEFT_CFITSIO_SONAME) &&
+                           Catch::Contains("could not be loaded"));
+  CHECK(write_rc == 2);
+  CHECK_THAT(err, Catch::Contains("FITS tables need cfitsio's shared library " HEFT_CFITSIO_SONAME));
+  // nothing half-written
+  CHECK(!test::file_exists(dir + "/back.csv"));
+  CHECK(!test::file_exists(dir + "/new.fits"));
+}
