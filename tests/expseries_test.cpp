@@ -1,5 +1,6 @@
 #include <catch2/catch.hpp>
 
+#include <algorithm>
 #include <cmath>
 
 #include "heft/expseries.hpp"
@@ -29,4 +30,29 @@ TEST_CASE("exp_nonpositive: within 5e-16 of std::exp over [-708, 0]", "[expserie
     CHECK(std::abs(exp_nonpositive(t) - std::exp(t)) <= 1e-15 * std::exp(t));
   }
   CHECK(exp_nonpositive(0.0) == 1.0);
+}
+
+// The reference is the C library's sin and cos (glibc's, correctly rounded
+// in all but rare cases; common practice, no source for the bound below).
+TEST_CASE("sincos_small: within 2 ulp of std::sin and std::cos for |d| <= pi / 32", "[expseries]") {
+  const double d_max = std::acos(-1.0) / 32;
+  double worst_sin = 0.0, worst_cos = 0.0;
+  const int n = 2'000'000;
+  for (int i = -n; i <= n; ++i) {
+    const double d = d_max * i / n;
+    const SinCos sc = sincos_small(d);
+    if (d != 0.0) worst_sin = std::max(worst_sin, std::abs(sc.sin - std::sin(d)) / std::abs(std::sin(d)));
+    worst_cos = std::max(worst_cos, std::abs(sc.cos - std::cos(d)));  // cos d is within 0.5 % of 1
+  }
+  INFO("worst relative error of sin " << worst_sin << ", absolute of cos " << worst_cos);
+  CHECK(worst_sin < 2.3e-16);  // 2^-52: at most two units in the last place
+  CHECK(worst_cos < 2.3e-16);
+  // at the ends, where the series' truncation is largest, and tiny angles
+  for (double d : {d_max, -d_max, 1e-300, 1e-8, -1e-3}) {
+    INFO("d = " << d);
+    CHECK(std::abs(sincos_small(d).sin - std::sin(d)) <= 2.3e-16 * std::abs(std::sin(d)));
+    CHECK(std::abs(sincos_small(d).cos - std::cos(d)) <= 2.3e-16);
+  }
+  CHECK(sincos_small(0.0).sin == 0.0);
+  CHECK(sincos_small(0.0).cos == 1.0);
 }
