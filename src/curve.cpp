@@ -205,6 +205,17 @@ struct ZPlanePrior {
     return log_uniform ? -std::log(units::kTwoPi) - 2.0 * std::log(q) - log_log_range
                        : std::log(m_total / (units::kTwoPi * q * m_hi_msun));
   }
+  // log_density_total(q, m_total) - ln d for d > 0, with one logarithm
+  // (log_positive) and no branch, for loops over z samples in vector
+  // lanes: the logs of both densities' factors and of d in one.
+  double log_density_total_over(double q, double m_total, double d) const {
+    // a factor of exactly 0 or 1: GCC does not vectorise a select on a
+    // bool from outside the loop
+    const double lu = log_uniform ? 1.0 : 0.0, m2 = m_total * q;
+    const double arg = q * (lu * q + (1.0 - lu)) * d * (lu + (1.0 - lu) * (units::kTwoPi * m_hi_msun / m_total));
+    const double v = -lu * (std::log(units::kTwoPi) + log_log_range) - log_positive(arg);
+    return m2 > m_lo_msun && m2 < m_hi_msun && q < 1.0 ? v : -std::numeric_limits<double>::infinity();
+  }
   // A draw of q from the prior itself, from a uniform deviate.
   double draw_q(double u, double m1) const {
     const double m2 = log_uniform ? m_lo_msun * std::pow(m_hi_msun / m_lo_msun, u)
@@ -517,16 +528,29 @@ struct OmegaPick {
   double omega, cos_omega, sin_omega;
 };
 
-// Omega drawn from the table t with the uniform deviate u: uniformly within
-// a cell picked in proportion, and within it at omega or omega + pi.
-// log(prior / proposal) at the omega drawn is omega_log_ratio of its cell.
-// Its cos and sin come from the cell's centre by the angle-addition
-// formulas, with those of the offset (at most pi / 32) by sincos_small:
-// libm's sincos per z sample was 9 % of a curve at S/N 270.
-OmegaPick omega_cell(const OmegaTable& t, double u) {
+// The table's running sums, added in cell order: cdf[0] = 0 and
+// cdf[k + 1] = t[0] + ... + t[k].
+using OmegaCdf = std::array<double, kOmegaCells + 1>;
+OmegaCdf omega_cdf(const OmegaTable& t) {
+  OmegaCdf cdf;
+  cdf[0] = 0.0;
+  for (int k = 0; k < kOmegaCells; ++k) cdf[k + 1] = cdf[k] + t[k];
+  return cdf;
+}
+
+// Omega drawn from the table t (its running sums cdf) with the uniform
+// deviate u: uniformly within a cell picked in proportion, and within it
+// at omega or omega + pi. log(prior / proposal) at the omega drawn is
+// omega_log_ratio of its cell. The cell is the count of running sums at or
+// below u, without a branch: a scan that stops at the cell mispredicted
+// its exit at every z sample (S/N 270). Its cos and sin come from the
+// cell's centre by the angle-addition formulas, with those of the offset
+// (at most pi / 32) by sincos_small: libm's sincos per z sample was 9 % of
+// a curve at S/N 270.
+[[gnu::always_inline]] inline OmegaPick omega_cell(const OmegaTable& t, const OmegaCdf& cdf, double u) {
   int k = 0;
-  double below = 0.0;
-  for (; k < kOmegaCells - 1 && u >= below + t[k]; ++k) below += t[k];
+  for (int j = 1; j < kOmegaCells; ++j) k += u >= cdf[j];
+  const double below = cdf[k];
   const double frac = 2.0 * std::clamp((u - below) / t[k], 0.0, 1.0);
   const int half = frac >= 1.0 ? 1 : 0;
   const double f = std::min(frac - half, 1.0);
@@ -542,7 +566,7 @@ double omega_log_ratio(const OmegaTable& t, int k) { return -std::log(kOmegaCell
 // and returns log(prior / proposal) at the omega drawn.
 double choose_omega(const OmegaFit& o, const Draw& dr, bool log_uniform) {
   const OmegaTable t = omega_table(o, dr, log_uniform);
-  const OmegaPick w = omega_cell(t, dr.u_omega);
+  const OmegaPick w = omega_cell(t, omega_cdf(t), dr.u_omega);
   set_omega(dr, w.omega, w.cos_omega, w.sin_omega);
   return omega_log_ratio(t, w.cell);
 }
@@ -745,31 +769,54 @@ GaussianZ gaussian_z(const Problem& pb, const Mat42& k) {
   return g;
 }
 
+// F = [[a, b], [b, c]] as weighing z samples needs it: its Cholesky factor
+// L = [[l11, 0], [l21, l22]] (floored where F is singular) to draw
+// z ~ N(z_hat, F^-1) as z_hat + L^-T n, and its smaller eigenvalue. In
+// closed form for 2 x 2: Eigen's eigensolver here was 8 % of an upper
+// limit's CPU. Plain arithmetic, so that loops over z samples vectorise.
+struct FisherFactor {
+  double lam_min, l11, l21, l22;
+};
+[[gnu::always_inline]] inline FisherFactor fisher_factor(double a, double b, double c) {
+  // The smaller eigenvalue as det / the larger one (no cancellation);
+  // it only sets narrow_gaussian, so the root needs no std::hypot (2.4 %
+  // of the CPU at S/N 270, where every z sample has its own F).
+  const double h = 0.5 * (a - c);
+  const double lam_max = 0.5 * (a + c) + std::sqrt(h * h + b * b);
+  FisherFactor f;
+  f.lam_min = lam_max > 0.0 ? std::max((a * c - b * b) / lam_max, 1e-300) : 1e-300;
+  f.l11 = std::sqrt(std::max(a, 1e-300));
+  f.l21 = b / f.l11;
+  f.l22 = std::sqrt(std::max(c - f.l21 * f.l21, 1e-300));
+  return f;
+}
+// Whether the Gaussian is narrow against the prior's range of q (up to
+// q_hi): then z is drawn from it, else from the prior.
+[[gnu::always_inline]] inline bool narrow_gaussian(const FisherFactor& f, double q_hi) {
+  return 1.0 / std::sqrt(f.lam_min) < 0.3 * q_hi;
+}
+// z = z_hat + L^-T n for the normal deviates (n1, n2).
+[[gnu::always_inline]] inline void gaussian_z_draw(const FisherFactor& f, double z_hat1, double z_hat2, double n1,
+                                                   double n2, double& z1, double& z2) {
+  const double y2 = n2 / f.l22;
+  z1 = z_hat1 + (n1 - f.l21 * y2) / f.l11;
+  z2 = z_hat2 + y2;
+}
+
 // What weighing z samples with that likelihood needs: chi2 at the best z,
-// F's Cholesky factor L to draw z ~ N(z_hat, F^-1) as z_hat + L^-T n, F's
-// smaller eigenvalue, and the log of the likelihood's integral over z
-// relative to its peak, 2 pi / sqrt(det F). In closed form for 2 x 2:
-// Eigen's eigensolver here was 8 % of an upper limit's CPU.
+// F's factor, and the log of the likelihood's integral over z relative to
+// its peak, 2 pi / sqrt(det F).
 struct ZSampler {
-  ZSampler(const Problem& pb, const GaussianZ& g) : g(g), chi2_min(pb.chi2_data - g.z_hat.dot(g.fisher * g.z_hat)) {
-    const double a = g.fisher(0, 0), b = g.fisher(1, 0), c = g.fisher(1, 1);
-    // The smaller eigenvalue as det / the larger one (no cancellation);
-    // it only sets narrow(), so the root needs no std::hypot (2.4 % of the
-    // CPU at S/N 270, where every z sample has its own F).
-    const double h = 0.5 * (a - c);
-    const double lam_max = 0.5 * (a + c) + std::sqrt(h * h + b * b);
-    lam_min = lam_max > 0.0 ? std::max((a * c - b * b) / lam_max, 1e-300) : 1e-300;
-    l11 = std::sqrt(std::max(a, 1e-300));
-    l21 = b / l11;
-    l22 = std::sqrt(std::max(c - l21 * l21, 1e-300));
-    log_gauss_norm = std::log(units::kTwoPi) - std::log(l11 * l22);
-  }
-  // Whether the Gaussian is narrow against the prior's range of q (up to
-  // q_hi): then z is drawn from it, else from the prior.
-  bool narrow(double q_hi) const { return 1.0 / std::sqrt(lam_min) < 0.3 * q_hi; }
+  ZSampler(const Problem& pb, const GaussianZ& g)
+      : g(g),
+        chi2_min(pb.chi2_data - g.z_hat.dot(g.fisher * g.z_hat)),
+        f(fisher_factor(g.fisher(0, 0), g.fisher(1, 0), g.fisher(1, 1))),
+        log_gauss_norm(std::log(units::kTwoPi) - std::log(f.l11 * f.l22)) {}
+  bool narrow(double q_hi) const { return narrow_gaussian(f, q_hi); }
   Eigen::Vector2d draw(const ZDeviates& u) const {
-    const double y2 = u.n2 / l22;
-    return g.z_hat + Eigen::Vector2d((u.n1 - l21 * y2) / l11, y2);
+    Eigen::Vector2d z;
+    gaussian_z_draw(f, g.z_hat.x(), g.z_hat.y(), u.n1, u.n2, z.x(), z.y());
+    return z;
   }
   // (z - z_hat)^T F (z - z_hat) / 2
   double half_dist2(const Eigen::Vector2d& z) const {
@@ -778,8 +825,9 @@ struct ZSampler {
   }
   double log_likelihood(const Eigen::Vector2d& z) const { return -0.5 * chi2_min - half_dist2(z); }
   const GaussianZ& g;
-  double chi2_min, log_gauss_norm = 0.0;
-  double lam_min, l11, l21, l22;
+  double chi2_min;
+  FisherFactor f;
+  double log_gauss_norm;
 };
 
 // A draw waiting to be weighed: the log weight added to each of its samples
@@ -888,32 +936,88 @@ void weigh_prior_sample_total(const Problem& pb, const PendingDraw& pd, int s, c
 // deviate u_omega + s / nz (mod 1): each uniform, together stratified over
 // the table. Each sample's Gaussian in z follows from the same fit
 // (cell_fit at its omega). The draw keeps the last sample's omega.
+// kOwnOmegaLanes samples at a time in vector lanes (AVX2 where present; no
+// contraction, so both clones give the same weights), their logs by
+// log_positive, the three of a sample (prior, Gaussian's norm, omega's
+// ratio) in one; the samples whose Gaussian is not narrow are weighed
+// after, one by one, by weigh_samples_total.
+constexpr int kOwnOmegaLanes = 8;
+struct OwnOmegaLanes {
+  std::array<double, kOwnOmegaLanes> n1, n2;  // the samples' normal deviates
+  std::array<double, kOwnOmegaLanes> omega, cos_omega, sin_omega, z1, z2, q, log_w, narrow;
+  std::array<int, kOwnOmegaLanes> cell;
+};
+__attribute__((target_clones("arch=x86-64-v3", "default"), optimize("fp-contract=off"))) void own_omega_lanes(
+    const Problem& pb, const Draw& dr, const OmegaFit& fit, const OmegaTable& t, const OmegaCdf& cdf, double m_total,
+    double log_c, int s0, int n, OwnOmegaLanes& __restrict l) {
+  const int nz = pb.opt.z_samples;
+  const double q_hi = pb.prior.m_hi_msun / m_total;
+  // the deviates out of their records first: loops with strided loads
+  // did not vectorise
+  for (int i = 0; i < n; ++i) {
+    l.n1[i] = pb.ds.dev[dr.dev + s0 + i].n1;
+    l.n2[i] = pb.ds.dev[dr.dev + s0 + i].n2;
+  }
+#pragma omp simd
+  for (int i = 0; i < n; ++i) {
+    const double u = dr.u_omega + static_cast<double>(s0 + i) / nz;
+    const OmegaPick w = omega_cell(t, cdf, u - std::floor(u));
+    l.omega[i] = w.omega;
+    l.cos_omega[i] = w.cos_omega;
+    l.sin_omega[i] = w.sin_omega;
+    l.cell[i] = w.cell;
+  }
+#pragma omp simd
+  for (int i = 0; i < n; ++i) {
+    const CellFit f = cell_fit(fit, l.cos_omega[i], l.sin_omega[i]);
+    const FisherFactor ff = fisher_factor(f.f00, f.f01, f.f11);
+    double z1, z2;
+    gaussian_z_draw(ff, f.z1, f.z2, l.n1[i], l.n2[i], z1, z2);
+    const double q = std::sqrt(z1 * z1 + z2 * z2);
+    const double chi2_min = pb.chi2_data - (f.z1 * (f.f00 * f.z1 + f.f01 * f.z2) + f.z2 * (f.f01 * f.z1 + f.f11 * f.z2));
+    // prior x the likelihood's integral over z x prior / proposal of omega:
+    // p(z) 2 pi / (l11 l22) e^(-chi2_min / 2) / (kOmegaCells t_k)
+    const double log_w = pb.prior.log_density_total_over(q, m_total, ff.l11 * ff.l22 * kOmegaCells * t[l.cell[i]]) -
+                         0.5 * chi2_min + log_host_density(pb.d, m_total * (1.0 - q)) + log_c;
+    l.z1[i] = z1;
+    l.z2[i] = z2;
+    l.q[i] = q;
+    l.log_w[i] = log_w;
+    l.narrow[i] = narrow_gaussian(ff, q_hi) ? 1.0 : 0.0;
+  }
+}
+
 void weigh_samples_own_omega(const Problem& pb, const PendingDraw& pd, const WindowBasis<double>& be,
                              const WindowBasis<double>& bl, double m_total, double log_proposal) {
   const Draw& dr = *pd.dr;
   const int nz = pb.opt.z_samples;
   const OmegaFit fit = omega_fit(pb, dr, be, bl);
   const OmegaTable t = omega_table(fit, dr, pb.prior.log_uniform);
-  // The samples, stratified over a peaked table, share few cells: each
-  // cell's log ratio is taken once.
-  std::array<double, kOmegaCells> log_ratio;
-  log_ratio.fill(std::numeric_limits<double>::quiet_NaN());
-  OmegaPick w{};
-  for (int s = 0; s < nz; ++s) {
-    const double u = dr.u_omega + static_cast<double>(s) / nz;
-    w = omega_cell(t, u - std::floor(u));
-    dr.omega = w.omega;  // stored with the sample
-    const int k = w.cell;
-    if (std::isnan(log_ratio[k])) log_ratio[k] = omega_log_ratio(t, k);
-    PendingDraw one = pd;
-    one.log_extra += log_ratio[k];
-    const CellFit f = cell_fit(fit, w.cos_omega, w.sin_omega);
-    GaussianZ g;
-    g.fisher << f.f00, f.f01, f.f01, f.f11;
-    g.z_hat << f.z1, f.z2;
-    weigh_samples_total(pb, one, g, m_total, log_proposal, s, s + 1, nullptr);
+  const OmegaCdf cdf = omega_cdf(t);
+  const double log_c = std::log(units::kTwoPi) - log_proposal + pd.log_extra;
+  OwnOmegaLanes l;
+  int last = 0;
+  for (int s0 = 0; s0 < nz; s0 += kOwnOmegaLanes) {
+    const int n = std::min(kOwnOmegaLanes, nz - s0);
+    own_omega_lanes(pb, dr, fit, t, cdf, m_total, log_c, s0, n, l);
+    for (int i = 0; i < n; ++i) {
+      dr.omega = l.omega[i];  // stored with the sample
+      const double q = l.q[i];
+      if (l.narrow[i] != 0.0) {
+        store_sample(pd.out[s0 + i], l.log_w[i], m_total * q, m_total * (1.0 - q), {l.z1[i], l.z2[i]}, dr.omega);
+        continue;
+      }
+      PendingDraw one = pd;
+      one.log_extra += omega_log_ratio(t, l.cell[i]);
+      const CellFit f = cell_fit(fit, l.cos_omega[i], l.sin_omega[i]);
+      GaussianZ g;
+      g.fisher << f.f00, f.f01, f.f01, f.f11;
+      g.z_hat << f.z1, f.z2;
+      weigh_samples_total(pb, one, g, m_total, log_proposal, s0 + i, s0 + i + 1, nullptr);
+    }
+    last = n - 1;
   }
-  set_omega(dr, w.omega, w.cos_omega, w.sin_omega);
+  set_omega(dr, l.omega[last], l.cos_omega[last], l.sin_omega[last]);
 }
 
 // Draws weighed with total mass fixed at once, at most.

@@ -56,3 +56,37 @@ TEST_CASE("sincos_small: within 2 ulp of std::sin and std::cos for |d| <= pi / 3
   CHECK(sincos_small(0.0).sin == 0.0);
   CHECK(sincos_small(0.0).cos == 1.0);
 }
+
+// The reference is the C library's log (glibc's, correctly rounded in all
+// but rare cases; common practice, no source for the bound below).
+TEST_CASE("log_positive: within 1 ulp of std::log for positive normal numbers", "[expseries]") {
+  const auto ulps = [](double x) {
+    const double ref = std::log(x);
+    return std::abs(log_positive(x) - ref) / (std::nextafter(std::abs(ref), INFINITY) - std::abs(ref));
+  };
+  double worst = 0.0, worst_x = 0.0;
+  const auto check = [&](double x) {
+    if (const double u = ulps(x); u > worst) {
+      worst = u;
+      worst_x = x;
+    }
+  };
+  // log-spaced over the whole normal range, then densely over [1/2, 2],
+  // the reduced range, and next to 1, where ln x is tiny
+  const int n = 2'000'000;
+  for (int i = 0; i <= n; ++i) check(std::exp(-708.0 + 1417.0 * i / n));
+  for (int i = 0; i <= n; ++i) check(0.5 + 1.5 * i / n);
+  for (int i = -n; i <= n; ++i)
+    if (i != 0) check(1.0 + 1e-6 * i / n);
+  INFO("worst " << worst << " ulp at x = " << worst_x);
+  CHECK(worst <= 1.0);
+  // the ends of the reduction and of the normal range, where the offset of
+  // sqrt(1/2)'s bits carries into the exponent or not
+  for (double x : {std::sqrt(0.5), std::nextafter(std::sqrt(0.5), 0.0), std::sqrt(2.0),
+                   std::nextafter(std::sqrt(2.0), 2.0), 0.5, 2.0, 1e-300, 2.2250738585072014e-308,
+                   1.7976931348623157e308}) {
+    INFO("x = " << x);
+    CHECK(ulps(x) <= 1.0);
+  }
+  CHECK(log_positive(1.0) == 0.0);
+}

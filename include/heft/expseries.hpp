@@ -8,7 +8,8 @@
 /// kernel mixture's terms exp(q_min - q) <= 1. The sine and cosine of a
 /// small angle, an offset from a tabulated one (the angle-addition
 /// formulas do the rest), in a few multiplications where libm's sincos
-/// reduces its argument first.
+/// reduces its argument first. The logarithm of a positive normal number,
+/// so that loops over it vectorise.
 
 #include <bit>
 #include <cstdint>
@@ -58,6 +59,41 @@ struct SinCos {
   const double d2 = d * d;
   return {d * (1.0 + d2 * (-1.0 / 6 + d2 * (1.0 / 120 + d2 * (-1.0 / 5040 + d2 * (1.0 / 362880))))),
           1.0 + d2 * (-0.5 + d2 * (1.0 / 24 + d2 * (-1.0 / 720 + d2 * (1.0 / 40320))))};
+}
+
+/// ln(x) for a positive normal x, within 1 unit in the last place of
+/// std::log (tests/expseries_test.cpp); zero, subnormals, infinities and
+/// NaN give wrong results. x = 2^e m with m in [sqrt(1/2), sqrt(2)),
+/// moved there by adding the offset of sqrt(1/2)'s bits before the
+/// exponent is split off, and ln m = 2 atanh(s) with s = (m - 1) / (m + 1),
+/// |s| <= 0.1716, written f - f^2/2 + s (f^2/2 + R) with f = m - 1 so that
+/// the rounding of s only touches the small terms, as fdlibm's log does
+/// (Sun Microsystems 1993); R by the series of atanh to s^21 (the first
+/// term left out, s^23 / 23, is below 1e-18 of 2 s); e ln 2 with ln 2 in
+/// two parts (Cody & Waite 1980). e goes to a
+/// double through the bits of 2^52 + e + 1023, since AVX2 has no vector
+/// conversion of 64-bit integers. Branch-free.
+[[gnu::always_inline]] inline double log_positive(double x) {
+  constexpr double kLn2Hi = 0.6931471803691238, kLn2Lo = 1.9082149292705877e-10;
+  constexpr std::uint64_t kSqrtHalf = 0x3fe6a09e667f3bcdULL, kOne = 0x3ff0000000000000ULL;
+  const std::uint64_t ix = std::bit_cast<std::uint64_t>(x) + (kOne - kSqrtHalf);
+  const double e = std::bit_cast<double>((ix >> 52) | 0x4330000000000000ULL) - (4503599627370496.0 + 1023.0);
+  const double m = std::bit_cast<double>((ix & 0x000fffffffffffffULL) + kSqrtHalf);
+  const double f = m - 1.0;  // exact: m is within a factor 2 of 1
+  const double s = f / (2.0 + f), s2 = s * s, hfsq = 0.5 * f * f;
+  double p = 2.0 / 21;
+  p = p * s2 + 2.0 / 19;
+  p = p * s2 + 2.0 / 17;
+  p = p * s2 + 2.0 / 15;
+  p = p * s2 + 2.0 / 13;
+  p = p * s2 + 2.0 / 11;
+  p = p * s2 + 2.0 / 9;
+  p = p * s2 + 2.0 / 7;
+  p = p * s2 + 2.0 / 5;
+  p = p * s2 + 2.0 / 3;
+  // ln m = 2 s + s R = f - hfsq + s (hfsq + R), R = s^2 p: the rounding of
+  // s then only touches the small terms
+  return e * kLn2Hi + (f - (hfsq - (s * (hfsq + s2 * p) + e * kLn2Lo)));
 }
 
 }  // namespace heft
