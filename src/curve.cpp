@@ -717,10 +717,14 @@ double period_correction(const Problem& pb, const Mat42& kmat, const Mat42& k_s,
   return -0.5 * r_s.dot(pb.cinv * r_s) + 0.5 * r_hat.dot(pb.cinv * r_hat);
 }
 
-// Log of the host-mass prior's density at m1_msun, up to its constant.
-double log_host_density(const AnomalyData& d, double m1_msun) {
-  const double t = (m1_msun - d.host_mass_msun) / d.host_mass_error_msun;
+// Log of the host-mass prior's density at m1_msun, up to its constant,
+// for a host of mass mean_msun +- error_msun.
+double log_host_density(double m1_msun, double mean_msun, double error_msun) {
+  const double t = (m1_msun - mean_msun) / error_msun;
   return m1_msun > kMinHostMsun ? -0.5 * t * t : -std::numeric_limits<double>::infinity();
+}
+double log_host_density(const AnomalyData& d, double m1_msun) {
+  return log_host_density(m1_msun, d.host_mass_msun, d.host_mass_error_msun);
 }
 
 // The least host-mass error, as a fraction of the host mass times the
@@ -795,12 +799,14 @@ struct FisherFactor {
 [[gnu::always_inline]] inline bool narrow_gaussian(const FisherFactor& f, double q_hi) {
   return 1.0 / std::sqrt(f.lam_min) < 0.3 * q_hi;
 }
-// z = z_hat + L^-T n for the normal deviates (n1, n2).
-[[gnu::always_inline]] inline void gaussian_z_draw(const FisherFactor& f, double z_hat1, double z_hat2, double n1,
-                                                   double n2, double& z1, double& z2) {
+// L^-T n for the normal deviates (n1, n2): z_hat plus it is a draw of
+// z ~ N(z_hat, F^-1).
+struct ZPoint {
+  double z1, z2;
+};
+[[gnu::always_inline]] inline ZPoint gaussian_z_offset(const FisherFactor& f, double n1, double n2) {
   const double y2 = n2 / f.l22;
-  z1 = z_hat1 + (n1 - f.l21 * y2) / f.l11;
-  z2 = z_hat2 + y2;
+  return {(n1 - f.l21 * y2) / f.l11, y2};
 }
 
 // What weighing z samples with that likelihood needs: chi2 at the best z,
@@ -814,9 +820,8 @@ struct ZSampler {
         log_gauss_norm(std::log(units::kTwoPi) - std::log(f.l11 * f.l22)) {}
   bool narrow(double q_hi) const { return narrow_gaussian(f, q_hi); }
   Eigen::Vector2d draw(const ZDeviates& u) const {
-    Eigen::Vector2d z;
-    gaussian_z_draw(f, g.z_hat.x(), g.z_hat.y(), u.n1, u.n2, z.x(), z.y());
-    return z;
+    const ZPoint d = gaussian_z_offset(f, u.n1, u.n2);
+    return g.z_hat + Eigen::Vector2d(d.z1, d.z2);
   }
   // (z - z_hat)^T F (z - z_hat) / 2
   double half_dist2(const Eigen::Vector2d& z) const {
@@ -936,24 +941,32 @@ void weigh_prior_sample_total(const Problem& pb, const PendingDraw& pd, int s, c
 // deviate u_omega + s / nz (mod 1): each uniform, together stratified over
 // the table. Each sample's Gaussian in z follows from the same fit
 // (cell_fit at its omega). The draw keeps the last sample's omega.
-// kOwnOmegaLanes samples at a time in vector lanes (AVX2 where present; no
-// contraction, so both clones give the same weights), their logs by
-// log_positive, the three of a sample (prior, Gaussian's norm, omega's
-// ratio) in one; the samples whose Gaussian is not narrow are weighed
+// kOwnOmegaLanes samples at a time in vector lanes (own_omega_picks and
+// own_omega_weights); samples whose Gaussian is not narrow are weighed
 // after, one by one, by weigh_samples_total.
 constexpr int kOwnOmegaLanes = 8;
 struct OwnOmegaLanes {
-  std::array<double, kOwnOmegaLanes> n1, n2;  // the samples' normal deviates
-  std::array<double, kOwnOmegaLanes> omega, cos_omega, sin_omega, z1, z2, q, log_w, narrow;
+  std::array<double, kOwnOmegaLanes> n1, n2;  ///< the samples' normal deviates, in
+  // each sample's omega and cell, its Gaussian (z_hat, F's factor,
+  // chi2_min), whether it is narrow (the weight holds only where it is),
+  // and l11 l22 times the proposal / prior of its omega
+  std::array<double, kOwnOmegaLanes> omega, cos_omega, sin_omega, z_hat1, z_hat2, l11, l21, l22, chi2_min, narrow, norm;
   std::array<int, kOwnOmegaLanes> cell;
+  std::array<double, kOwnOmegaLanes> z1, z2, q, log_w;  ///< the samples, out
 };
-__attribute__((target_clones("arch=x86-64-v3", "default"), optimize("fp-contract=off"))) void own_omega_lanes(
+// The samples [s0, s0 + n) of weigh_samples_own_omega in vector lanes
+// (AVX2 where present; no contraction, so both clones give the same
+// weights), in two loops: the omega picks and Gaussians, then the samples,
+// with log_c added to their log weights. The logs of the prior, of the
+// Gaussian's norm and of omega's prior / proposal are one log_positive.
+// The loops read arrays filled before and locals: with the deviates loaded
+// from their records, with reads through pb, without __restrict, or with
+// both loops in one function, GCC did not vectorise them.
+__attribute__((target_clones("arch=x86-64-v3", "default"), optimize("fp-contract=off"))) void own_omega_picks(
     const Problem& pb, const Draw& dr, const OmegaFit& fit, const OmegaTable& t, const OmegaCdf& cdf, double m_total,
-    double log_c, int s0, int n, OwnOmegaLanes& __restrict l) {
+    int s0, int n, OwnOmegaLanes& __restrict l) {
   const int nz = pb.opt.z_samples;
-  const double q_hi = pb.prior.m_hi_msun / m_total;
-  // the deviates out of their records first: loops with strided loads
-  // did not vectorise
+  const double chi2_data = pb.chi2_data, q_hi = pb.prior.m_hi_msun / m_total;
   for (int i = 0; i < n; ++i) {
     l.n1[i] = pb.ds.dev[dr.dev + s0 + i].n1;
     l.n2[i] = pb.ds.dev[dr.dev + s0 + i].n2;
@@ -962,28 +975,37 @@ __attribute__((target_clones("arch=x86-64-v3", "default"), optimize("fp-contract
   for (int i = 0; i < n; ++i) {
     const double u = dr.u_omega + static_cast<double>(s0 + i) / nz;
     const OmegaPick w = omega_cell(t, cdf, u - std::floor(u));
+    const CellFit f = cell_fit(fit, w.cos_omega, w.sin_omega);
+    const FisherFactor ff = fisher_factor(f.f00, f.f01, f.f11);
     l.omega[i] = w.omega;
     l.cos_omega[i] = w.cos_omega;
     l.sin_omega[i] = w.sin_omega;
     l.cell[i] = w.cell;
+    l.z_hat1[i] = f.z1;
+    l.z_hat2[i] = f.z2;
+    l.l11[i] = ff.l11;
+    l.l21[i] = ff.l21;
+    l.l22[i] = ff.l22;
+    l.chi2_min[i] = chi2_data - (f.z1 * (f.f00 * f.z1 + f.f01 * f.z2) + f.z2 * (f.f01 * f.z1 + f.f11 * f.z2));
+    l.narrow[i] = narrow_gaussian(ff, q_hi) ? 1.0 : 0.0;
+    l.norm[i] = ff.l11 * ff.l22 * (kOmegaCells * t[w.cell]);
   }
+}
+__attribute__((target_clones("arch=x86-64-v3", "default"), optimize("fp-contract=off"))) void own_omega_weights(
+    const Problem& pb, double m_total, double log_c, int n, OwnOmegaLanes& __restrict l) {
+  const ZPlanePrior prior = pb.prior;
+  const double host_msun = pb.d.host_mass_msun, host_error_msun = pb.d.host_mass_error_msun;
 #pragma omp simd
   for (int i = 0; i < n; ++i) {
-    const CellFit f = cell_fit(fit, l.cos_omega[i], l.sin_omega[i]);
-    const FisherFactor ff = fisher_factor(f.f00, f.f01, f.f11);
-    double z1, z2;
-    gaussian_z_draw(ff, f.z1, f.z2, l.n1[i], l.n2[i], z1, z2);
-    const double q = std::sqrt(z1 * z1 + z2 * z2);
-    const double chi2_min = pb.chi2_data - (f.z1 * (f.f00 * f.z1 + f.f01 * f.z2) + f.z2 * (f.f01 * f.z1 + f.f11 * f.z2));
-    // prior x the likelihood's integral over z x prior / proposal of omega:
-    // p(z) 2 pi / (l11 l22) e^(-chi2_min / 2) / (kOmegaCells t_k)
-    const double log_w = pb.prior.log_density_total_over(q, m_total, ff.l11 * ff.l22 * kOmegaCells * t[l.cell[i]]) -
-                         0.5 * chi2_min + log_host_density(pb.d, m_total * (1.0 - q)) + log_c;
+    const ZPoint d = gaussian_z_offset({0.0, l.l11[i], l.l21[i], l.l22[i]}, l.n1[i], l.n2[i]);
+    const double z1 = l.z_hat1[i] + d.z1, z2 = l.z_hat2[i] + d.z2, q = std::sqrt(z1 * z1 + z2 * z2);
+    // prior x the likelihood's integral over z, 2 pi / (l11 l22)
+    // e^(-chi2_min / 2), x prior / proposal of omega
+    l.log_w[i] = prior.log_density_total_over(q, m_total, l.norm[i]) - 0.5 * l.chi2_min[i] +
+                 log_host_density(m_total * (1.0 - q), host_msun, host_error_msun) + log_c;
     l.z1[i] = z1;
     l.z2[i] = z2;
     l.q[i] = q;
-    l.log_w[i] = log_w;
-    l.narrow[i] = narrow_gaussian(ff, q_hi) ? 1.0 : 0.0;
   }
 }
 
@@ -994,12 +1016,15 @@ void weigh_samples_own_omega(const Problem& pb, const PendingDraw& pd, const Win
   const OmegaFit fit = omega_fit(pb, dr, be, bl);
   const OmegaTable t = omega_table(fit, dr, pb.prior.log_uniform);
   const OmegaCdf cdf = omega_cdf(t);
+  // 2 pi of the Gaussian's integral, the draw's prior / proposal and its
+  // total mass's proposal
   const double log_c = std::log(units::kTwoPi) - log_proposal + pd.log_extra;
   OwnOmegaLanes l;
   int last = 0;
   for (int s0 = 0; s0 < nz; s0 += kOwnOmegaLanes) {
     const int n = std::min(kOwnOmegaLanes, nz - s0);
-    own_omega_lanes(pb, dr, fit, t, cdf, m_total, log_c, s0, n, l);
+    own_omega_picks(pb, dr, fit, t, cdf, m_total, s0, n, l);
+    own_omega_weights(pb, m_total, log_c, n, l);
     for (int i = 0; i < n; ++i) {
       dr.omega = l.omega[i];  // stored with the sample
       const double q = l.q[i];
