@@ -138,17 +138,23 @@ KeplerSolution kepler_solution(double M, double e) { return solve_one(M, e); }
 // One clone per instruction set, chosen at load time (GNU ifunc): AVX2 with
 // FMA where the processor has them, SSE2 elsewhere. The lanes do not
 // interact, so a lane's result does not depend on the others.
-__attribute__((target_clones("arch=x86-64-v3", "default"))) void kepler_solutions4(const double* M,
-                                                                                   const double* e,
-                                                                                   KeplerSolution* out) {
-  double E[4], s[4], c[4];
-  for (int i = 0; i < 4; ++i) {
-    const KeplerSolution k = solve_one(M[i], e[i]);
-    E[i] = k.E;
-    s[i] = k.sin_E;
-    c[i] = k.cos_E;
+__attribute__((target_clones("arch=x86-64-v3", "default"))) void kepler_solutions(const double* M, const double* e,
+                                                                                  KeplerSolution* out,
+                                                                                  std::size_t n) {
+  // E, sin E and cos E in arrays of their own, so that the loop vectorises
+  constexpr std::size_t kChunk = 32;
+  double E[kChunk], s[kChunk], c[kChunk];
+  for (std::size_t begin = 0; begin < n; begin += kChunk) {
+    const std::size_t m = std::min(kChunk, n - begin);
+    for (std::size_t i = 0; i < m; ++i) {
+      const KeplerSolution k = solve_one(M[begin + i], e[begin + i]);
+      E[i] = k.E;
+      s[i] = k.sin_E;
+      c[i] = k.cos_E;
+    }
+    for (std::size_t i = 0; i < m; ++i) out[begin + i] = {E[i], s[i], c[i]};
   }
-  for (int i = 0; i < 4; ++i) out[i] = {E[i], s[i], c[i]};
 }
+void kepler_solutions4(const double* M, const double* e, KeplerSolution* out) { kepler_solutions(M, e, out, 4); }
 
 }  // namespace heft

@@ -10,28 +10,33 @@ void window_basis_pairs(const Orbit<double>* o, std::size_t n, const Window& w1,
     for (std::size_t i = 0; i < n; ++i) window_basis_pair(o[i], w1, w2, b1[i], b2[i]);
     return;
   }
-  // Groups of kGroup orbits keep the state on the stack.
+  // Groups of kGroup orbits keep the state on the stack; a group's solves
+  // run as one batch (kepler_solutions), so that they overlap.
   constexpr std::size_t kGroup = 8;
-  double m[kGroup][4];
-  KeplerState<double> k[kGroup][4];
+  double m[kGroup][4], e[kGroup][4];
+  KeplerSolution k[kGroup][4];
   for (std::size_t begin = 0; begin < n; begin += kGroup) {
     const std::size_t end = std::min(n, begin + kGroup);
+    std::size_t n_in = 0;  // orbits in the window model's domain, packed
     for (std::size_t i = begin; i < end; ++i) {
       if (!detail::window_domain(o[i])) continue;
-      detail::window_end_anomalies(o[i], w1, m[i - begin][0], m[i - begin][1]);
-      detail::window_end_anomalies(o[i], w2, m[i - begin][2], m[i - begin][3]);
+      detail::window_end_anomalies(o[i], w1, m[n_in][0], m[n_in][1]);
+      detail::window_end_anomalies(o[i], w2, m[n_in][2], m[n_in][3]);
+      std::fill_n(e[n_in], 4, o[i].ecc);
+      ++n_in;
     }
-    for (std::size_t i = begin; i < end; ++i)
-      if (detail::window_domain(o[i])) kepler_states4(m[i - begin], o[i].ecc, k[i - begin]);
+    kepler_solutions(m[0], e[0], k[0], 4 * n_in);
+    std::size_t j = 0;
     for (std::size_t i = begin; i < end; ++i) {
       if (!detail::window_domain(o[i])) {
         window_basis_pair(o[i], w1, w2, b1[i], b2[i]);  // NaN, as there
         continue;
       }
-      const double* mi = m[i - begin];
-      const KeplerState<double>* ki = k[i - begin];
-      b1[i] = detail::continuous_window_basis(o[i], w1, mi[0], ki[0], ki[1]);
-      b2[i] = detail::continuous_window_basis(o[i], w2, mi[2], ki[2], ki[3]);
+      const double* mj = m[j];
+      const KeplerSolution* kj = k[j++];
+      const auto state = [](const KeplerSolution& s) { return KeplerState<double>{s.E, s.sin_E, s.cos_E}; };
+      b1[i] = detail::continuous_window_basis(o[i], w1, mj[0], state(kj[0]), state(kj[1]));
+      b2[i] = detail::continuous_window_basis(o[i], w2, mj[2], state(kj[2]), state(kj[3]));
     }
   }
 }

@@ -128,6 +128,32 @@ TEST_CASE("Kepler's equation: the four-lane batch equals the scalar solver", "[k
   CHECK(lanes_independent);
 }
 
+TEST_CASE("kepler_solutions: any batch size gives kepler_solutions4's results bit for bit", "[kepler]") {
+  // Internal consistency (no outside source): the window model solves
+  // groups of up to 32 anomalies at once and must give what four at a
+  // time give. Sizes that end inside a vector, inside the 32-solve chunk
+  // and past it; mixed M and e as above.
+  std::vector<double> ms, es;
+  std::mt19937_64 gen(11);
+  std::uniform_real_distribution<double> um(-3.0 * units::kTwoPi, 3.0 * units::kTwoPi), ue(0.0, 0.999);
+  for (int i = 0; i < 4 * 101; ++i) {
+    ms.push_back(i % 17 == 0 ? 0.0 : um(gen));
+    es.push_back(i % 13 == 0 ? 0.999 : ue(gen));
+  }
+  std::vector<KeplerSolution> four(ms.size());
+  for (std::size_t i = 0; i < ms.size(); i += 4) kepler_solutions4(&ms[i], &es[i], &four[i]);
+  for (std::size_t n : {std::size_t{1}, std::size_t{3}, std::size_t{4}, std::size_t{7}, std::size_t{31},
+                        std::size_t{32}, std::size_t{33}, std::size_t{97}, ms.size()}) {
+    std::vector<KeplerSolution> batch(n);
+    kepler_solutions(ms.data(), es.data(), batch.data(), n);
+    int differ = 0;
+    for (std::size_t i = 0; i < n; ++i)
+      differ += batch[i].E != four[i].E || batch[i].sin_E != four[i].sin_E || batch[i].cos_E != four[i].cos_E;
+    INFO("batch of " << n);
+    CHECK(differ == 0);
+  }
+}
+
 TEST_CASE("Jets get the implicit derivative of Kepler's equation", "[kepler]") {
   using J = ceres::Jet<double, 2>;
   const double M = 0.7, e = 0.6, h = 1e-6;

@@ -48,6 +48,12 @@ KeplerSolution kepler_solution(double mean_anom_rad, double ecc);
 /// round-off (FMA contraction in the AVX2 clone), tests/kepler_test.cpp.
 void kepler_solutions4(const double* mean_anom_rad, const double* ecc, KeplerSolution* out);
 
+/// kepler_solutions4 for n (M, e) pairs at once, in one loop over SIMD
+/// lanes, so that the independent solves overlap (the window model of
+/// several orbits: window_basis_pairs). The same results as
+/// kepler_solutions4, lane by lane.
+void kepler_solutions(const double* mean_anom_rad, const double* ecc, KeplerSolution* out, std::size_t n);
+
 /// The eccentric anomaly alone: kepler_solution(M, e).E.
 inline double solve_kepler(double mean_anom_rad, double ecc) {
   return kepler_solution(mean_anom_rad, ecc).E;
