@@ -70,9 +70,9 @@ struct SinCos {
 /// the rounding of s only touches the small terms, as fdlibm's log does
 /// (Sun Microsystems 1993); R by the series of atanh to s^21 (the first
 /// term left out, s^23 / 23, is below 1e-18 of 2 s); e ln 2 with ln 2 in
-/// two parts (Cody & Waite 1980). e goes to a
-/// double through the bits of 2^52 + e + 1023, since AVX2 has no vector
-/// conversion of 64-bit integers. Branch-free.
+/// two parts (Cody & Waite 1980). e becomes a double through the bits of
+/// 2^52 + e + 1023, since AVX2 has no vector conversion of 64-bit
+/// integers. Branch-free.
 [[gnu::always_inline]] inline double log_positive(double x) {
   constexpr double kLn2Hi = 0.6931471803691238, kLn2Lo = 1.9082149292705877e-10;
   constexpr std::uint64_t kSqrtHalf = 0x3fe6a09e667f3bcdULL, kOne = 0x3ff0000000000000ULL;
