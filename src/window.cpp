@@ -34,9 +34,8 @@ void window_basis_pairs(const Orbit<double>* o, std::size_t n, const Window& w1,
       }
       const double* mj = m[j];
       const KeplerSolution* kj = k[j++];
-      const auto state = [](const KeplerSolution& s) { return KeplerState<double>{s.E, s.sin_E, s.cos_E}; };
-      b1[i] = detail::continuous_window_basis(o[i], w1, mj[0], state(kj[0]), state(kj[1]));
-      b2[i] = detail::continuous_window_basis(o[i], w2, mj[2], state(kj[2]), state(kj[3]));
+      b1[i] = detail::continuous_window_basis(o[i], w1, mj[0], state_of(kj[0]), state_of(kj[1]));
+      b2[i] = detail::continuous_window_basis(o[i], w2, mj[2], state_of(kj[2]), state_of(kj[3]));
     }
   }
 }

@@ -72,11 +72,13 @@ struct KeplerState {
   T E, sin_E, cos_E;
 };
 
+/// The state of a solution, for doubles (jet_state below for Jets).
+inline KeplerState<double> state_of(const KeplerSolution& k) { return {k.E, k.sin_E, k.cos_E}; }
+
 /// Doubles directly; Ceres Jets by the implicit derivative
 /// dE = (dM + sin E de) / (1 - e cos E) and the chain rule for sin E, cos E.
 inline KeplerState<double> kepler_state(double mean_anom_rad, double ecc) {
-  const KeplerSolution k = kepler_solution(mean_anom_rad, ecc);
-  return {k.E, k.sin_E, k.cos_E};
+  return state_of(kepler_solution(mean_anom_rad, ecc));
 }
 /// The Jet state from the solution at the value parts, by the implicit
 /// derivative dE = (dM + sin E de) / (1 - e cos E).
@@ -99,7 +101,7 @@ inline void kepler_states4(const double* m, double e, KeplerState<double>* out) 
   const double es[4] = {e, e, e, e};
   KeplerSolution k[4];
   kepler_solutions4(m, es, k);
-  for (int i = 0; i < 4; ++i) out[i] = {k[i].E, k[i].sin_E, k[i].cos_E};
+  for (int i = 0; i < 4; ++i) out[i] = state_of(k[i]);
 }
 template <int N>
 void kepler_states4(const ceres::Jet<double, N>* m, const ceres::Jet<double, N>& e,
