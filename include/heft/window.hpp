@@ -49,7 +49,7 @@ namespace detail {
 /// u = E - e sin E (docs/method.md, Sect. 6): the window moments in closed form.
 /// Takes sin E and cos E from the Kepler solve (kepler_state).
 template <typename T>
-void window_antiderivatives(const KeplerState<T>& k, const T& e, T f[4]) {
+[[gnu::always_inline]] inline void window_antiderivatives(const KeplerState<T>& k, const T& e, T f[4]) {
   const T &E = k.E, &s = k.sin_E, &c = k.cos_E;
   const T s2 = T(2.0) * s * c, c2 = c * c - s * s;
   const T ee = T(1.0) + e * e;
