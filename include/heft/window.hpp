@@ -170,7 +170,8 @@ void window_basis_pair(const Orbit<T>& o, const Window& w1, const Window& w2, Wi
 }
 
 /// window_basis_pair for n orbits at once (plain doubles): the windows' end
-/// anomalies of all n orbits first, then their Kepler solves, then the fits.
+/// anomalies of all n orbits first, then their Kepler solves, then the fits
+/// (in SIMD lanes where the processor has AVX2).
 /// Each solve is a long chain of dependent steps; issued back to back, the
 /// independent chains overlap in the processor. Equal to n window_basis_pair
 /// calls bit for bit (tests/window_test.cpp).
