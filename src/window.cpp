@@ -35,8 +35,9 @@ void window_basis_pairs(const Orbit<double>* o, std::size_t n, const Window& w1,
   }
   // Groups of kGroup orbits keep the state on the stack; a group's solves
   // run as one batch (kepler_solutions), so that they overlap.
-  double m[kGroup][4], e[kGroup][4], p[kGroup];
+  double m[kGroup][4], e[kGroup][4];
   KeplerSolution k[kGroup][4];
+  WindowLanes lanes[2];
   for (std::size_t begin = 0; begin < n; begin += kGroup) {
     const std::size_t end = std::min(n, begin + kGroup);
     std::size_t n_in = 0;  // orbits in the window model's domain, packed
@@ -45,17 +46,17 @@ void window_basis_pairs(const Orbit<double>* o, std::size_t n, const Window& w1,
       detail::window_end_anomalies(o[i], w1, m[n_in][0], m[n_in][1]);
       detail::window_end_anomalies(o[i], w2, m[n_in][2], m[n_in][3]);
       std::fill_n(e[n_in], 4, o[i].ecc);
-      p[n_in] = o[i].period_yr;
+      for (WindowLanes& l : lanes) {
+        l.p[n_in] = o[i].period_yr;
+        l.ecc[n_in] = o[i].ecc;
+      }
       ++n_in;
     }
     kepler_solutions(m[0], e[0], k[0], 4 * n_in);
-    WindowLanes lanes[2];
     for (int w = 0; w < 2; ++w)
       for (std::size_t j = 0; j < n_in; ++j) {
         WindowLanes& l = lanes[w];
         const KeplerSolution &ks = k[j][2 * w], &ke = k[j][2 * w + 1];
-        l.p[j] = p[j];
-        l.ecc[j] = e[j][0];
         l.m_start[j] = m[j][2 * w];
         l.e_s[j] = ks.E;
         l.sin_s[j] = ks.sin_E;
