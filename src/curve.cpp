@@ -339,42 +339,32 @@ struct DesignNode {
 };
 
 
-using Jet1 = ceres::Jet<double, 1>;
-
 // exp(t) for t <= 0, zero where it underflows (below -745.2, where libm
 // also takes its slow path).
 double exp_or_zero(double t) { return t > -746.0 ? std::exp(t) : 0.0; }
 
-// The window fits of orbit o (at node 0) with their derivatives with
-// respect to ln P, from one Jet evaluation of the window model.
-void window_fits_dlnp(const Orbit<double>& o, const Window& early, const Window& late, WindowBasis<Jet1>& be,
-                      WindowBasis<Jet1>& bl) {
-  Jet1 period(o.period_yr, 0);
-  period.v[0] = o.period_yr;  // dP / d ln P
-  const Orbit<Jet1> oj{period, Jet1(o.ecc), Jet1(o.inc_rad), Jet1(o.arg_peri_rad), Jet1(0.0),
-                       Jet1(o.mean_anom_ref_rad), o.ref_epoch_yr};
-  window_basis_pair(oj, early, late, be, bl);
+// The window fits of an orbit (at node 0) and their derivatives with
+// respect to ln P (window_basis_pair_dlnp).
+struct FitsDlnp {
+  WindowBasis<double> be, bl, dbe, dbl;
+};
+FitsDlnp window_fits_dlnp(const Orbit<double>& o, const Window& early, const Window& late) {
+  FitsDlnp f;
+  window_basis_pair_dlnp(o, early, late, f.be, f.bl, f.dbe, f.dbl);
+  return f;
 }
 
-WindowBasis<double> value_of(const WindowBasis<Jet1>& b) { return {b.x0.a, b.xs.a, b.y0.a, b.ys.a}; }
-
-// The unscaled design matrix and its derivative with respect to ln P from
-// the window fits of window_fits_dlnp.
-void design_and_derivative(const Projection& pr, const WindowBasis<Jet1>& be, const WindowBasis<Jet1>& bl,
-                           const Window& early, const Window& late, Mat42& k, Mat42& dk) {
-  const Eigen::Matrix<Jet1, 4, 2> kj = design(unit_anomalies(pr, be, bl, early, late));
-  for (int i = 0; i < 4; ++i)
-    for (int j = 0; j < 2; ++j) {
-      k(i, j) = kj(i, j).a;
-      dk(i, j) = kj(i, j).v[0];
-    }
+// The unscaled design matrix and its derivative with respect to ln P; the
+// design is linear in the window fits.
+void design_and_derivative(const Projection& pr, const FitsDlnp& f, const Window& early, const Window& late,
+                           Mat42& k, Mat42& dk) {
+  k = design(unit_anomalies(pr, f.be, f.bl, early, late));
+  dk = design(unit_anomalies(pr, f.dbe, f.dbl, early, late));
 }
 
 void design_and_derivative(const Projection& pr, const Orbit<double>& o, const Window& early,
                            const Window& late, Mat42& k, Mat42& dk) {
-  WindowBasis<Jet1> be, bl;
-  window_fits_dlnp(o, early, late, be, bl);
-  design_and_derivative(pr, be, bl, early, late, k, dk);
+  design_and_derivative(pr, window_fits_dlnp(o, early, late), early, late, k, dk);
 }
 
 // The cells over omega in [0, pi) on which choose_omega tabulates the
@@ -577,11 +567,10 @@ double choose_omega(const OmegaFit& o, const Draw& dr, bool log_uniform) {
 DesignNode design_node(const Problem& pb, const Draw& dr, double p0, double x, double* log_omega = nullptr) {
   const Orbit<double> o{x == 0.0 ? p0 : p0 * std::exp(x), dr.ecc, dr.inc, dr.omega, 0.0, dr.m0,
                         pb.d.late.ref_epoch_yr};
-  WindowBasis<Jet1> be, bl;
-  window_fits_dlnp(o, pb.d.early, pb.d.late, be, bl);
-  if (log_omega) *log_omega = choose_omega(omega_fit(pb, dr, value_of(be), value_of(bl)), dr, pb.prior.log_uniform);
+  const FitsDlnp f = window_fits_dlnp(o, pb.d.early, pb.d.late);
+  if (log_omega) *log_omega = choose_omega(omega_fit(pb, dr, f.be, f.bl), dr, pb.prior.log_uniform);
   DesignNode n{x, {}, {}};
-  design_and_derivative(dr.proj, be, bl, pb.d.early, pb.d.late, n.k, n.dk);
+  design_and_derivative(dr.proj, f, pb.d.early, pb.d.late, n.k, n.dk);
   const double scale = pb.a_au * dr.plx;
   n.k *= scale;
   n.dk *= scale;

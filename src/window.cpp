@@ -2,6 +2,8 @@
 
 #include <algorithm>
 
+#include <ceres/jet.h>
+
 namespace heft {
 namespace {
 constexpr std::size_t kGroup = 8;
@@ -78,6 +80,71 @@ void window_basis_pairs(const Orbit<double>* o, std::size_t n, const Window& w1,
       b2[i] = f2[j++];
     }
   }
+}
+
+namespace {
+// The derivatives in ln P of the moments m0 = int f dtau and m1 = int f tau
+// dtau over [ts, te] of a function f of the mean anomaly alone, from its
+// values fs, fe at the ends: with sigma = tau + d the time since the
+// orbit's reference epoch, df/d ln P = -sigma df/dtau, and by parts
+// int -sigma f' dtau = m0 - [tau f] - d [f] and
+// int -sigma f' tau dtau = 2 m1 - [tau^2 f] - d ([tau f] - m0).
+void moments_dlnp(double ts, double te, double d, double fs, double fe, double m0, double m1, double& g0,
+                  double& g1) {
+  const double ends1 = te * fe - ts * fs, ends2 = te * te * fe - ts * ts * fs;
+  g0 = m0 - ends1 - d * (fe - fs);
+  g1 = 2.0 * m1 - ends2 - d * (ends1 - m0);
+}
+
+void continuous_dlnp(const Orbit<double>& o, const Window& w, double m_start, const KeplerState<double>& ks,
+                     const KeplerState<double>& ke, WindowBasis<double>& b, WindowBasis<double>& db) {
+  const detail::WindowMoments<double> m = detail::continuous_window_moments(o, w, m_start, ks, ke);
+  b = detail::continuous_line_fit(w, m);
+  const double ts = w.start_yr - w.ref_epoch_yr, te = w.end_yr - w.ref_epoch_yr;
+  const double d = w.ref_epoch_yr - o.ref_epoch_yr, e = o.ecc, rb = std::sqrt(1.0 - e * e);
+  detail::WindowMoments<double> g;
+  moments_dlnp(ts, te, d, ks.cos_E - e, ke.cos_E - e, m.sx, m.sxt, g.sx, g.sxt);
+  moments_dlnp(ts, te, d, rb * ks.sin_E, rb * ke.sin_E, m.sy, m.syt, g.sy, g.syt);
+  db = detail::continuous_line_fit(w, g);
+}
+}  // namespace
+
+void window_basis_dlnp(const Orbit<double>& o, const Window& w, WindowBasis<double>& b, WindowBasis<double>& db) {
+  if (!detail::window_domain(o)) {
+    b = db = window_basis(o, w);  // NaN
+    return;
+  }
+  if (w.times_yr.empty()) {
+    double ms, me;
+    detail::window_end_anomalies(o, w, ms, me);
+    continuous_dlnp(o, w, ms, kepler_state(ms, o.ecc), kepler_state(me, o.ecc), b, db);
+    return;
+  }
+  // Discrete times: Ceres' automatic derivative, dP / d ln P = P.
+  using J = ceres::Jet<double, 1>;
+  J period(o.period_yr, 0);
+  period.v[0] = o.period_yr;
+  const Orbit<J> oj{period, J(o.ecc), J(o.inc_rad), J(o.arg_peri_rad), J(o.node_rad),
+                    J(o.mean_anom_ref_rad), o.ref_epoch_yr};
+  const WindowBasis<J> bj = window_basis(oj, w);
+  b = {bj.x0.a, bj.xs.a, bj.y0.a, bj.ys.a};
+  db = {bj.x0.v[0], bj.xs.v[0], bj.y0.v[0], bj.ys.v[0]};
+}
+
+void window_basis_pair_dlnp(const Orbit<double>& o, const Window& w1, const Window& w2, WindowBasis<double>& b1,
+                            WindowBasis<double>& b2, WindowBasis<double>& db1, WindowBasis<double>& db2) {
+  if (!w1.times_yr.empty() || !w2.times_yr.empty() || !detail::window_domain(o)) {
+    window_basis_dlnp(o, w1, b1, db1);
+    window_basis_dlnp(o, w2, b2, db2);
+    return;
+  }
+  double m[4];
+  detail::window_end_anomalies(o, w1, m[0], m[1]);
+  detail::window_end_anomalies(o, w2, m[2], m[3]);
+  KeplerState<double> k[4];
+  kepler_states4(m, o.ecc, k);
+  continuous_dlnp(o, w1, m[0], k[0], k[1], b1, db1);
+  continuous_dlnp(o, w2, m[2], k[2], k[3], b2, db2);
 }
 
 double circular_window_efficiency(double r) {

@@ -223,3 +223,64 @@ TEST_CASE("window fits of many orbits at once equal the fits one by one, bit for
     }
   }
 }
+
+TEST_CASE("window fits' derivative in ln P by parts equals Ceres' automatic derivative", "[window]") {
+  // Reference: Ceres' forward-mode automatic derivative (Jet) through
+  // window_basis, a computation independent of the integration by parts.
+  // Both difference nearly equal numbers: at long periods the tolerance is
+  // the pair test's round-off scale times one more factor r = P / W (d/d ln P
+  // of the offsets ~ r^3, of the slopes ~ 2 pi / P r^4), at short ones the
+  // derivative's own size times q^2, q = 1 + 2 pi W / P (antiderivatives
+  // in E ~ (2 pi W / P)^2); 600 orbits gave at most 0.7e-15 of that.
+  std::mt19937_64 g(47);
+  std::uniform_real_distribution<double> u(0, 1);
+  const Window early{1989.85, 1993.21, 1991.25, {}, {}}, late{2014.57, 2017.41, 2016.0, {}, {}};
+  const Window discrete{2014.57, 2017.41, 2016.0, {2014.8, 2015.5, 2016.6, 2017.2}, {0.5, 1.0, 2.0, 1.0}};
+  using J = ceres::Jet<double, 1>;
+  double worst = 0.0;
+  for (int n = 0; n < 600; ++n) {
+    const double e = n % 5 == 0 ? 0.99 : 0.98 * u(g);
+    const double P = std::exp(std::log(0.05) + u(g) * std::log(1e5));
+    const Orbit<double> o{P, e, 0.3, 1.1, 2.0, units::kTwoPi * u(g), 2016.0};
+    INFO("P = " << P << " e = " << e);
+    WindowBasis<double> a, b, da, db;
+    window_basis_pair_dlnp(o, early, late, a, b, da, db);
+    WindowBasis<double> a1, b1;
+    window_basis_pair(o, early, late, a1, b1);
+    CHECK((a.x0 == a1.x0 && a.xs == a1.xs && a.y0 == a1.y0 && a.ys == a1.ys));
+    CHECK((b.x0 == b1.x0 && b.xs == b1.xs && b.y0 == b1.y0 && b.ys == b1.ys));
+    J period(P, 0);
+    period.v[0] = P;  // dP / d ln P
+    const Orbit<J> oj{period, J(e), J(0.3), J(1.1), J(2.0), J(o.mean_anom_ref_rad), 2016.0};
+    WindowBasis<J> aj, bj;
+    window_basis_pair(oj, early, late, aj, bj);
+    const double r = std::max(1.0, P / 3.36), off = r * r * r, slope = units::kTwoPi / P * r * r * r * r;
+    const double q = 1.0 + units::kTwoPi * 3.36 / P;
+    for (const auto& [x, y, s] : {std::tuple{da.x0, aj.x0.v[0], off}, {da.xs, aj.xs.v[0], slope},
+                                  {da.y0, aj.y0.v[0], off}, {da.ys, aj.ys.v[0], slope},
+                                  {db.x0, bj.x0.v[0], off}, {db.xs, bj.xs.v[0], slope},
+                                  {db.y0, bj.y0.v[0], off}, {db.ys, bj.ys.v[0], slope}})
+      worst = std::max(worst, std::abs(x - y) / (std::max(std::abs(y), s) * q * q));
+    // A discrete window (weighted times) takes the automatic derivative
+    // itself; against five-point differences in ln P (common practice, no
+    // source), with a step that moves the phase by ~1e-3 (1 - e) rad.
+    WindowBasis<double> c, dc;
+    window_basis_dlnp(o, discrete, c, dc);
+    CHECK(c.x0 == Approx(window_basis(o, discrete).x0).epsilon(1e-12).margin(1e-12));  // Jets divide by inverses
+    CHECK(c.ys == Approx(window_basis(o, discrete).ys).epsilon(1e-12).margin(1e-12 / P));
+    auto at = [&](double x) {
+      Orbit<double> s = o;
+      s.period_yr = P * std::exp(x);
+      return window_basis(s, discrete);
+    };
+    const double h = 1e-3 * (1.0 - e) * P / (P + units::kTwoPi);
+    const WindowBasis<double> p2 = at(2 * h), p1 = at(h), m1 = at(-h), m2 = at(-2 * h);
+    auto fd = [&](double WindowBasis<double>::*f) { return (-(p2.*f) + 8 * (p1.*f) - 8 * (m1.*f) + (m2.*f)) / (12 * h); };
+    CHECK(dc.x0 == Approx(fd(&WindowBasis<double>::x0)).epsilon(1e-6).margin(1e-9));
+    CHECK(dc.xs == Approx(fd(&WindowBasis<double>::xs)).epsilon(1e-6).margin(1e-9 / P));
+    CHECK(dc.y0 == Approx(fd(&WindowBasis<double>::y0)).epsilon(1e-6).margin(1e-9));
+    CHECK(dc.ys == Approx(fd(&WindowBasis<double>::ys)).epsilon(1e-6).margin(1e-9 / P));
+  }
+  INFO("worst difference over its round-off scale: " << worst);
+  CHECK(worst <= 4e-15);
+}

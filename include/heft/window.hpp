@@ -90,16 +90,32 @@ WindowBasis<T> line_fit(const T& s0, const T& s1, const T& s2, const T& sx, cons
   return {(sx - xs * s1) / s0, xs, (sy - ys * s1) / s0, ys};
 }
 
-/// Window fit over a continuous window from the Kepler states at its ends
+/// The data moments of a window, tau = t - t_ref: sx = int X dtau,
+/// sxt = int X tau dtau, sy and syt alike (sums over the times for a
+/// discrete window).
+template <typename T>
+struct WindowMoments {
+  T sx, sxt, sy, syt;
+};
+
+/// The line fit of moments m over a continuous window.
+template <typename T>
+WindowBasis<T> continuous_line_fit(const Window& w, const WindowMoments<T>& m) {
+  const double ts = w.start_yr - w.ref_epoch_yr, te = w.end_yr - w.ref_epoch_yr;
+  return line_fit(T(te - ts), T((te * te - ts * ts) / 2.0), T((te * te * te - ts * ts * ts) / 3.0), m.sx, m.sxt,
+                  m.sy, m.syt);
+}
+
+/// The moments of a continuous window from the Kepler states at its ends
 /// (mean anomalies m_start, m_end from window_end_anomalies).
 template <typename T>
-WindowBasis<T> continuous_window_basis(const Orbit<T>& o, const Window& w, const T& m_start,
-                                       const KeplerState<T>& k_start, const KeplerState<T>& k_end) {
+WindowMoments<T> continuous_window_moments(const Orbit<T>& o, const Window& w, const T& m_start,
+                                           const KeplerState<T>& k_start, const KeplerState<T>& k_end) {
   using std::sqrt;
   const T e = o.ecc;
   const T b = sqrt(T(1.0) - e * e);
   const T k = o.period_yr / T(units::kTwoPi);  // yr per rad of mean anomaly
-  const double ts = w.start_yr - w.ref_epoch_yr, te = w.end_yr - w.ref_epoch_yr;
+  const double ts = w.start_yr - w.ref_epoch_yr;
   T fs[4], fe[4];
   window_antiderivatives(k_start, e, fs);
   window_antiderivatives(k_end, e, fe);
@@ -107,8 +123,14 @@ WindowBasis<T> continuous_window_basis(const Orbit<T>& o, const Window& w, const
   const T c0 = T(ts) - k * m_start;
   const T sx = k * (fe[0] - fs[0]);
   const T sy = k * b * (fe[2] - fs[2]);
-  return line_fit(T(te - ts), T((te * te - ts * ts) / 2.0), T((te * te * te - ts * ts * ts) / 3.0), sx,
-                  c0 * sx + k * k * (fe[1] - fs[1]), sy, c0 * sy + k * k * b * (fe[3] - fs[3]));
+  return {sx, c0 * sx + k * k * (fe[1] - fs[1]), sy, c0 * sy + k * k * b * (fe[3] - fs[3])};
+}
+
+/// Window fit over a continuous window from the Kepler states at its ends.
+template <typename T>
+WindowBasis<T> continuous_window_basis(const Orbit<T>& o, const Window& w, const T& m_start,
+                                       const KeplerState<T>& k_start, const KeplerState<T>& k_end) {
+  return continuous_line_fit(w, continuous_window_moments(o, w, m_start, k_start, k_end));
 }
 }  // namespace detail
 
@@ -177,6 +199,21 @@ void window_basis_pair(const Orbit<T>& o, const Window& w1, const Window& w2, Wi
 /// calls bit for bit (tests/window_test.cpp).
 void window_basis_pairs(const Orbit<double>* o, std::size_t n, const Window& w1, const Window& w2,
                         WindowBasis<double>* b1, WindowBasis<double>* b2);
+
+/// window_basis and its derivative with respect to ln P at fixed e and
+/// mean anomaly at o.ref_epoch_yr (db: the four numbers of WindowBasis,
+/// each differentiated). X depends on P through M = M0 + 2 pi (t - t0) / P
+/// alone, so dX/d ln P = -(t - t0) dX/dt; over a continuous window,
+/// integration by parts turns its moments into X at the ends and the
+/// moments of X itself (docs/method.md, "The window fits' derivative in
+/// ln P"), at no cost beyond window_basis. Agrees with Ceres' automatic
+/// derivative through window_basis to round-off (tests/window_test.cpp).
+void window_basis_dlnp(const Orbit<double>& o, const Window& w, WindowBasis<double>& b, WindowBasis<double>& db);
+
+/// window_basis_dlnp for the two catalogues' windows at once, with the four
+/// Kepler solves at their ends as one batch (as window_basis_pair).
+void window_basis_pair_dlnp(const Orbit<double>& o, const Window& w1, const Window& w2, WindowBasis<double>& b1,
+                            WindowBasis<double>& b2, WindowBasis<double>& db1, WindowBasis<double>& db2);
 
 /// The catalogue-reported reflex of the host for a companion of mass ratio
 /// q = m2 / (m1 + m2) on relative orbit o with semi-major axis a_au, seen
