@@ -930,18 +930,19 @@ void weigh_prior_sample_total(const Problem& pb, const PendingDraw& pd, int s, c
 // deviate u_omega + s / nz (mod 1): each uniform, together stratified over
 // the table. Each sample's Gaussian in z follows from the same fit
 // (cell_fit at its omega). The draw keeps the last sample's omega.
-// kOwnOmegaLanes samples at a time in vector lanes (own_omega_picks and
-// own_omega_weights); samples whose Gaussian is not narrow are weighed
-// after, one by one, by weigh_samples_total.
-constexpr int kOwnOmegaLanes = 8;
-struct OwnOmegaLanes {
-  std::array<double, kOwnOmegaLanes> n1, n2;  ///< the samples' normal deviates, in
+// kSampleLanes samples at a time in vector lanes (own_omega_picks and
+// lane_weights); samples whose Gaussian is not narrow are weighed
+// after, one by one, by weigh_samples_total. Detections that share one
+// omega fill the lanes with one Gaussian (weigh_samples_lanes).
+constexpr int kSampleLanes = 8;
+struct SampleLanes {
+  std::array<double, kSampleLanes> n1, n2;  ///< the samples' normal deviates, in
   // each sample's omega and cell, its Gaussian (z_hat, F's factor,
   // chi2_min), whether it is narrow (the weight holds only where it is),
   // and l11 l22 times the proposal / prior of its omega
-  std::array<double, kOwnOmegaLanes> omega, cos_omega, sin_omega, z_hat1, z_hat2, l11, l21, l22, chi2_min, narrow, norm;
-  std::array<int, kOwnOmegaLanes> cell;
-  std::array<double, kOwnOmegaLanes> z1, z2, q, log_w;  ///< the samples, out
+  std::array<double, kSampleLanes> omega, cos_omega, sin_omega, z_hat1, z_hat2, l11, l21, l22, chi2_min, narrow, norm;
+  std::array<int, kSampleLanes> cell;
+  std::array<double, kSampleLanes> z1, z2, q, log_w;  ///< the samples, out
 };
 // The samples [s0, s0 + n) of weigh_samples_own_omega in vector lanes
 // (AVX2 where present; no contraction, so both clones give the same
@@ -953,7 +954,7 @@ struct OwnOmegaLanes {
 // both loops in one function, GCC did not vectorise them.
 __attribute__((target_clones("arch=x86-64-v3", "default"), optimize("fp-contract=off"))) void own_omega_picks(
     const Problem& pb, const Draw& dr, const OmegaFit& fit, const OmegaTable& t, const OmegaCdf& cdf, double m_total,
-    int s0, int n, OwnOmegaLanes& __restrict l) {
+    int s0, int n, SampleLanes& __restrict l) {
   const int nz = pb.opt.z_samples;
   const double chi2_data = pb.chi2_data, q_hi = pb.prior.m_hi_msun / m_total;
   for (int i = 0; i < n; ++i) {
@@ -980,8 +981,8 @@ __attribute__((target_clones("arch=x86-64-v3", "default"), optimize("fp-contract
     l.norm[i] = ff.l11 * ff.l22 * (kOmegaCells * t[w.cell]);
   }
 }
-__attribute__((target_clones("arch=x86-64-v3", "default"), optimize("fp-contract=off"))) void own_omega_weights(
-    const Problem& pb, double m_total, double log_c, int n, OwnOmegaLanes& __restrict l) {
+__attribute__((target_clones("arch=x86-64-v3", "default"), optimize("fp-contract=off"))) void lane_weights(
+    const Problem& pb, double m_total, double log_c, int n, SampleLanes& __restrict l) {
   const ZPlanePrior prior = pb.prior;
   const double host_msun = pb.d.host_mass_msun, host_error_msun = pb.d.host_mass_error_msun;
 #pragma omp simd
@@ -1008,12 +1009,12 @@ void weigh_samples_own_omega(const Problem& pb, const PendingDraw& pd, const Win
   // 2 pi of the Gaussian's integral, the draw's prior / proposal and its
   // total mass's proposal
   const double log_c = std::log(units::kTwoPi) - log_proposal + pd.log_extra;
-  OwnOmegaLanes l;
+  SampleLanes l;
   int last = 0;
-  for (int s0 = 0; s0 < nz; s0 += kOwnOmegaLanes) {
-    const int n = std::min(kOwnOmegaLanes, nz - s0);
+  for (int s0 = 0; s0 < nz; s0 += kSampleLanes) {
+    const int n = std::min(kSampleLanes, nz - s0);
     own_omega_picks(pb, dr, fit, t, cdf, m_total, s0, n, l);
-    own_omega_weights(pb, m_total, log_c, n, l);
+    lane_weights(pb, m_total, log_c, n, l);
     for (int i = 0; i < n; ++i) {
       dr.omega = l.omega[i];  // stored with the sample
       const double q = l.q[i];
@@ -1032,6 +1033,42 @@ void weigh_samples_own_omega(const Problem& pb, const PendingDraw& pd, const Win
     last = n - 1;
   }
   set_omega(dr, l.omega[last], l.cos_omega[last], l.sin_omega[last]);
+}
+
+// A detection's z samples [0, nz) weighed with total mass m_total as
+// weigh_samples_total does, all from one Gaussian: where it is narrow, in
+// vector lanes (lane_weights, the logs in one log_positive), else one by
+// one.
+void weigh_samples_lanes(const Problem& pb, const PendingDraw& pd, const GaussianZ& g, double m_total,
+                         double log_proposal) {
+  const int nz = pb.opt.z_samples;
+  const ZSampler zs(pb, g);
+  if (!zs.narrow(pb.prior.m_hi_msun / m_total)) {
+    weigh_samples_total(pb, pd, g, m_total, log_proposal, 0, nz, nullptr);
+    return;
+  }
+  const Draw& dr = *pd.dr;
+  const double log_c = std::log(units::kTwoPi) - log_proposal + pd.log_extra;
+  SampleLanes l;
+  for (int s0 = 0; s0 < nz; s0 += kSampleLanes) {
+    const int n = std::min(kSampleLanes, nz - s0);
+    for (int i = 0; i < n; ++i) {
+      l.n1[i] = pb.ds.dev[dr.dev + s0 + i].n1;
+      l.n2[i] = pb.ds.dev[dr.dev + s0 + i].n2;
+      l.z_hat1[i] = g.z_hat.x();
+      l.z_hat2[i] = g.z_hat.y();
+      l.l11[i] = zs.f.l11;
+      l.l21[i] = zs.f.l21;
+      l.l22[i] = zs.f.l22;
+      l.chi2_min[i] = zs.chi2_min;
+      l.norm[i] = zs.f.l11 * zs.f.l22;
+    }
+    lane_weights(pb, m_total, log_c, n, l);
+    for (int i = 0; i < n; ++i) {
+      const double q = l.q[i];
+      store_sample(pd.out[s0 + i], l.log_w[i], m_total * q, m_total * (1.0 - q), {l.z1[i], l.z2[i]}, dr.omega);
+    }
+  }
 }
 
 // Draws weighed with total mass fixed at once, at most.
@@ -1093,9 +1130,11 @@ long weigh_total_batch(const Problem& pb, PendingDraw* p, int n) {
     if (table)
       for (int i = 0; i < n; ++i)
         p[i].log_extra += choose_omega(omega_fit(pb, *p[i].dr, be[i], bl[i]), *p[i].dr, pb.prior.log_uniform);
-    for (int i = 0; i < n; ++i)
-      weigh_samples_total(pb, p[i], gaussian_z(pb, scaled_design(pb, *p[i].dr, be[i], bl[i])), m_total[i],
-                          log_proposal[i], 0, nz - n_prior, n_prior > 0 ? &mix[i] : nullptr);
+    for (int i = 0; i < n; ++i) {
+      const GaussianZ g = gaussian_z(pb, scaled_design(pb, *p[i].dr, be[i], bl[i]));
+      if (n_prior == 0) weigh_samples_lanes(pb, p[i], g, m_total[i], log_proposal[i]);
+      else weigh_samples_total(pb, p[i], g, m_total[i], log_proposal[i], 0, nz - n_prior, &mix[i]);
+    }
   } else {
     for (int i = 0; i < n; ++i) weigh_samples_own_omega(pb, p[i], be[i], bl[i], m_total[i], log_proposal[i]);
   }
