@@ -189,10 +189,16 @@ struct ZPlanePrior {
                                  : std::log(dr.m1) - std::log(m_hi_msun);
     dr.log_prior_c -= std::log(units::kTwoPi);
   }
-  // log p(z) at |z| = q, given log q and log(1 - q).
+  // log p(z) at |z| = q, given log q and log(1 - q), for a draw's
+  // log_prior_c, q_lo and q_hi (prepare); no branch (selects only), for
+  // loops over z samples in vector lanes.
+  double log_density(double log_prior_c, double q_lo, double q_hi, double q, double log_q, double log_1mq) const {
+    const double lu = log_uniform ? 1.0 : 0.0;  // as in log_density_total_over
+    const double v = log_prior_c + (-(1.0 + lu) * log_q - (2.0 - lu) * log_1mq);
+    return q > q_lo && q < q_hi ? v : -std::numeric_limits<double>::infinity();
+  }
   double log_density(const Draw& dr, double q, double log_q, double log_1mq) const {
-    if (!(q > dr.q_lo && q < dr.q_hi)) return -std::numeric_limits<double>::infinity();
-    return dr.log_prior_c + (log_uniform ? -2.0 * log_q - log_1mq : -log_q - 2.0 * log_1mq);
+    return log_density(dr.log_prior_c, dr.q_lo, dr.q_hi, q, log_q, log_1mq);
   }
   // log of (1 - q) p(z | m1) at |z| = q for a host m1 = m_total (1 - q):
   // the prior of z in the coordinates (m_total, z), where m2 = m_total q,
@@ -1159,6 +1165,35 @@ long weigh_total_batch(const Problem& pb, PendingDraw* p, int n) {
   return 2L * n + n_orbits;
 }
 
+// The z samples of weigh_draw_periods when all come from the draw's narrow
+// Gaussian (detections), kSampleLanes at a time in vector lanes (AVX2
+// where present, no contraction): z, q, log(1 - q) and the weight
+// prior(z) e^(-chi2_min / 2) 2 pi / sqrt(det F), the logs by log_positive.
+struct PeriodLanes {
+  std::array<double, kSampleLanes> n1, n2;                   ///< the normal deviates, in
+  std::array<double, kSampleLanes> z1, z2, q, log_1mq, log_w;  ///< the samples, out
+};
+__attribute__((target_clones("arch=x86-64-v3", "default"), optimize("fp-contract=off"))) void period_lanes(
+    const ZPlanePrior& prior_in, const Draw& dr, const ZSampler& zs, int n, PeriodLanes& __restrict l) {
+  const ZPlanePrior prior = prior_in;
+  const FisherFactor f = zs.f;
+  const double zh1 = zs.g.z_hat.x(), zh2 = zs.g.z_hat.y(), chi2_min = zs.chi2_min, log_norm = zs.log_gauss_norm;
+  const double log_prior_c = dr.log_prior_c, q_lo = dr.q_lo, q_hi = dr.q_hi;
+#pragma omp simd
+  for (int i = 0; i < n; ++i) {
+    const ZPoint d = gaussian_z_offset(f, l.n1[i], l.n2[i]);
+    const double z1 = zh1 + d.z1, z2 = zh2 + d.z2, q = std::sqrt(z1 * z1 + z2 * z2);
+    // the logs' arguments positive normal numbers wherever they are used
+    const double log_1mq = q < 1.0 ? log_positive(q < 1.0 ? 1.0 - q : 1.0) : -std::numeric_limits<double>::infinity();
+    const double log_q = log_positive(q > q_lo ? q : 1.0);
+    l.z1[i] = z1;
+    l.z2[i] = z2;
+    l.q[i] = q;
+    l.log_1mq[i] = log_1mq;
+    l.log_w[i] = prior.log_density(log_prior_c, q_lo, q_hi, q, log_q, log_1mq) - 0.5 * chi2_min + log_norm;
+  }
+}
+
 // Weighted z samples of one draw of (i, omega, e, M0, m1, parallax), each
 // at its own period: z = q (cos Omega, sin Omega) is marginalised through its exact Gaussian
 // likelihood and importance-sampled against the mass prior. `log_extra` is
@@ -1213,30 +1248,44 @@ int weigh_draw_periods(const Problem& pb, const Draw& dr, const ZDeviates* dev, 
   const int n_gauss = gaussian ? nz - defensive_z_samples(pb) : 0;
   const double log_frac_gauss = std::log(static_cast<double>(n_gauss) / nz),
                log_frac_prior = std::log(1.0 - static_cast<double>(n_gauss) / nz);
+  // All samples from the Gaussian: weight = prior(z) exp(-chi2_min/2)
+  // 2 pi sqrt(det F^-1), in lanes.
+  const bool all_gauss = n_gauss == nz;
+  PeriodLanes lanes;
   for (int s = 0; s < nz; ++s) {
     const ZDeviates& u = dev[s];
+    const int lane = s % kSampleLanes;
+    if (all_gauss && lane == 0) {
+      const int n = std::min(kSampleLanes, nz - s);
+      for (int i = 0; i < n; ++i) {
+        lanes.n1[i] = dev[s + i].n1;
+        lanes.n2[i] = dev[s + i].n2;
+      }
+      period_lanes(prior, dr, zs, n, lanes);
+    }
     // The first n_gauss samples z ~ N(z_hat, F^-1), the rest from the prior.
     Eigen::Vector2d z;
-    double log_1mq;
-    if (s < n_gauss) {
-      z = zs.draw(u);
-      log_1mq = log1m_norm(z);
+    double q, log_1mq, log_w;
+    if (all_gauss) {
+      z << lanes.z1[lane], lanes.z2[lane];
+      q = lanes.q[lane];
+      log_1mq = lanes.log_1mq[lane];
+      log_w = lanes.log_w[lane];
     } else {
-      z << u.z1, u.z2;
-      log_1mq = u.log_1mq;
-    }
-    const double q = z.norm();
-    double log_w;
-    if (!gaussian) {
-      // z from the prior: weight = likelihood.
-      log_w = zs.log_likelihood(z);
-    } else {
-      const double log_p = prior.log_density(dr, q, std::log(q), log_1mq);
-      if (n_gauss == nz) {
-        // weight = prior(z) exp(-chi2_min/2) 2 pi sqrt(det F^-1)
-        log_w = log_p - 0.5 * zs.chi2_min + zs.log_gauss_norm;
+      if (s < n_gauss) {
+        z = zs.draw(u);
+        log_1mq = log1m_norm(z);
+      } else {
+        z << u.z1, u.z2;
+        log_1mq = u.log_1mq;
+      }
+      q = z.norm();
+      if (!gaussian) {
+        // z from the prior: weight = likelihood.
+        log_w = zs.log_likelihood(z);
       } else {
         // each sample weighed against the mixture of both (defensive mixture)
+        const double log_p = prior.log_density(dr, q, std::log(q), log_1mq);
         const double half_d2 = zs.half_dist2(z);
         log_w = std::isfinite(log_p) ? log_p - 0.5 * zs.chi2_min - half_d2 -
                                            log_add_exp(log_frac_gauss - zs.log_gauss_norm - half_d2,
