@@ -338,7 +338,8 @@ constexpr double kDriftTolerance = 0.05;
 const double kLog1mPeriodQCap = std::log1p(-0.9);
 
 // The scaled design matrix K(x) and dK/dx at x = ln P - ln P0 (P0: the
-// period at q = 0), from one Jet evaluation of the window model.
+// period at q = 0), from one evaluation of the window model with its
+// derivative (window_basis_pair_dlnp).
 struct DesignNode {
   double x;
   Mat42 k, dk;

@@ -190,8 +190,9 @@ Eigen::Vector4d model_anomaly(const Orbit<double>& o, double a_au, double q, dou
 
 /// Derivative of model_anomaly with respect to ln P (mas/yr per unit
 /// ln P) with e, the angles, the mean anomaly at the reference epoch, a, q
-/// and the parallax held fixed, from one Jet evaluation of the window model:
-/// the Monte Carlo curve interpolates its period correction with it.
+/// and the parallax held fixed, from one evaluation of the window model
+/// with its derivative (window_basis_pair_dlnp): the Monte Carlo curve
+/// interpolates its period correction with it.
 Eigen::Vector4d model_anomaly_dlnp(const Orbit<double>& o, double a_au, double q, double parallax_mas,
                                    const Window& early, const Window& late);
 
