@@ -133,16 +133,14 @@ void window_basis_dlnp(const Orbit<double>& o, const Window& w, WindowBasis<doub
 
 void window_basis_pair_dlnp(const Orbit<double>& o, const Window& w1, const Window& w2, WindowBasis<double>& b1,
                             WindowBasis<double>& b2, WindowBasis<double>& db1, WindowBasis<double>& db2) {
-  if (!w1.times_yr.empty() || !w2.times_yr.empty() || !detail::window_domain(o)) {
+  if (!detail::pair_batch(o, w1, w2)) {
     window_basis_dlnp(o, w1, b1, db1);
     window_basis_dlnp(o, w2, b2, db2);
     return;
   }
   double m[4];
-  detail::window_end_anomalies(o, w1, m[0], m[1]);
-  detail::window_end_anomalies(o, w2, m[2], m[3]);
   KeplerState<double> k[4];
-  kepler_states4(m, o.ecc, k);
+  detail::pair_end_states(o, w1, w2, m, k);
   continuous_dlnp(o, w1, m[0], k[0], k[1], b1, db1);
   continuous_dlnp(o, w2, m[2], k[2], k[3], b2, db2);
 }

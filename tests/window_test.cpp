@@ -22,6 +22,16 @@ WindowBasis<double> brute_force(const Orbit<double>& o, const Window& w, int n) 
   const double xs = (s0 * sxt - s1 * sx) / det, ys = (s0 * syt - s1 * sy) / det;
   return {(sx - xs * s1) / s0, xs, (sy - ys * s1) / s0, ys};
 }
+// Two catalogues' windows (decimal years), and the tests' random orbits:
+// P log-uniform over 0.05-1e5 yr, e uniform below 0.98 and 0.99 for every
+// fifth, M0 uniform; the angles given.
+const Window kPairEarly{1989.85, 1993.21, 1991.25, {}, {}}, kPairLate{2014.57, 2017.41, 2016.0, {}, {}};
+Orbit<double> random_orbit(std::mt19937_64& g, int n, double inc, double arg_peri, double node) {
+  std::uniform_real_distribution<double> u(0, 1);
+  const double e = n % 5 == 0 ? 0.99 : 0.98 * u(g);
+  const double P = std::exp(std::log(0.05) + u(g) * std::log(1e5));
+  return {P, e, inc, arg_peri, node, units::kTwoPi * u(g), 2016.0};
+}
 // a equals b to `tol` (positions) and tol * 2 pi / P (slopes).
 void check_same(const WindowBasis<double>& a, const WindowBasis<double>& b, double tol, double P) {
   const double vscale = units::kTwoPi / P;
@@ -136,14 +146,10 @@ WindowBasis<double> panel_rule(const Orbit<double>& o, const Window& w) {
 
 TEST_CASE("closed-form window moments equal the Gauss-Legendre panel rule", "[window]") {
   std::mt19937_64 g(33);
-  std::uniform_real_distribution<double> u(0, 1);
-  const Window w{1989.85, 1993.21, 1991.25, {}, {}};
   for (int n = 0; n < 300; ++n) {
-    const double e = n % 5 == 0 ? 0.99 : 0.98 * u(g);
-    const double P = std::exp(std::log(0.05) + u(g) * std::log(1e5));
-    const Orbit<double> o{P, e, 0.0, 0.0, 0.0, units::kTwoPi * u(g), 2016.0};
-    INFO("P = " << P << " e = " << e);
-    check_same(window_basis(o, w), panel_rule(o, w), 1e-9, P);
+    const Orbit<double> o = random_orbit(g, n, 0.0, 0.0, 0.0);
+    INFO("P = " << o.period_yr << " e = " << o.ecc);
+    check_same(window_basis(o, kPairEarly), panel_rule(o, kPairEarly), 1e-9, o.period_yr);
   }
 }
 
@@ -158,15 +164,13 @@ TEST_CASE("window fits of both catalogues at once equal two single fits", "[wind
   // the single fits within 4e-15 times them; Jet derivatives alike; a
   // discrete window takes the single path itself.
   std::mt19937_64 g(41);
-  std::uniform_real_distribution<double> u(0, 1);
-  const Window early{1989.85, 1993.21, 1991.25, {}, {}}, late{2014.57, 2017.41, 2016.0, {}, {}};
+  const Window &early = kPairEarly, &late = kPairLate;
   const Window discrete{2014.57, 2017.41, 2016.0, {2014.8, 2015.5, 2016.6, 2017.2}, {}};
   using J = ceres::Jet<double, 1>;
   double worst = 0.0;
   for (int n = 0; n < 600; ++n) {
-    const double e = n % 5 == 0 ? 0.99 : 0.98 * u(g);
-    const double P = std::exp(std::log(0.05) + u(g) * std::log(1e5));
-    const Orbit<double> o{P, e, 0.0, 0.0, 0.0, units::kTwoPi * u(g), 2016.0};
+    const Orbit<double> o = random_orbit(g, n, 0.0, 0.0, 0.0);
+    const double P = o.period_yr, e = o.ecc;
     INFO("P = " << P << " e = " << e);
     WindowBasis<double> a, b;
     window_basis_pair(o, early, late, a, b);
@@ -233,27 +237,24 @@ TEST_CASE("window fits' derivative in ln P by parts equals Ceres' automatic deri
   // derivative's own size times q^2, q = 1 + 2 pi W / P (antiderivatives
   // in E ~ (2 pi W / P)^2); 600 orbits gave at most 0.7e-15 of that.
   std::mt19937_64 g(47);
-  std::uniform_real_distribution<double> u(0, 1);
-  const Window early{1989.85, 1993.21, 1991.25, {}, {}}, late{2014.57, 2017.41, 2016.0, {}, {}};
   const Window discrete{2014.57, 2017.41, 2016.0, {2014.8, 2015.5, 2016.6, 2017.2}, {0.5, 1.0, 2.0, 1.0}};
   using J = ceres::Jet<double, 1>;
   double worst = 0.0;
   for (int n = 0; n < 600; ++n) {
-    const double e = n % 5 == 0 ? 0.99 : 0.98 * u(g);
-    const double P = std::exp(std::log(0.05) + u(g) * std::log(1e5));
-    const Orbit<double> o{P, e, 0.3, 1.1, 2.0, units::kTwoPi * u(g), 2016.0};
+    const Orbit<double> o = random_orbit(g, n, 0.3, 1.1, 2.0);
+    const double P = o.period_yr, e = o.ecc;
     INFO("P = " << P << " e = " << e);
     WindowBasis<double> a, b, da, db;
-    window_basis_pair_dlnp(o, early, late, a, b, da, db);
+    window_basis_pair_dlnp(o, kPairEarly, kPairLate, a, b, da, db);
     WindowBasis<double> a1, b1;
-    window_basis_pair(o, early, late, a1, b1);
+    window_basis_pair(o, kPairEarly, kPairLate, a1, b1);
     CHECK((a.x0 == a1.x0 && a.xs == a1.xs && a.y0 == a1.y0 && a.ys == a1.ys));
     CHECK((b.x0 == b1.x0 && b.xs == b1.xs && b.y0 == b1.y0 && b.ys == b1.ys));
     J period(P, 0);
     period.v[0] = P;  // dP / d ln P
     const Orbit<J> oj{period, J(e), J(0.3), J(1.1), J(2.0), J(o.mean_anom_ref_rad), 2016.0};
     WindowBasis<J> aj, bj;
-    window_basis_pair(oj, early, late, aj, bj);
+    window_basis_pair(oj, kPairEarly, kPairLate, aj, bj);
     const double r = std::max(1.0, P / 3.36), off = r * r * r, slope = units::kTwoPi / P * r * r * r * r;
     const double q = 1.0 + units::kTwoPi * 3.36 / P;
     for (const auto& [x, y, s] : {std::tuple{da.x0, aj.x0.v[0], off}, {da.xs, aj.xs.v[0], slope},

@@ -174,19 +174,34 @@ WindowBasis<T> window_basis(const Orbit<T>& o, const Window& w) {
 /// windows continuous, the four Kepler solves at their ends run as one
 /// four-lane batch (kepler_solutions4); equal to two window_basis calls to
 /// round-off (tests/window_test.cpp).
+namespace detail {
+/// Whether two windows' fits take one batch of four Kepler solves: both
+/// continuous, o in the domain.
+template <typename T>
+bool pair_batch(const Orbit<T>& o, const Window& w1, const Window& w2) {
+  return w1.times_yr.empty() && w2.times_yr.empty() && window_domain(o);
+}
+/// The mean anomalies at the two windows' ends (start 1, end 1, start 2,
+/// end 2) and their Kepler states, solved as one batch.
+template <typename T>
+void pair_end_states(const Orbit<T>& o, const Window& w1, const Window& w2, T m[4], KeplerState<T> k[4]) {
+  window_end_anomalies(o, w1, m[0], m[1]);
+  window_end_anomalies(o, w2, m[2], m[3]);
+  kepler_states4(m, o.ecc, k);
+}
+}  // namespace detail
+
 template <typename T>
 void window_basis_pair(const Orbit<T>& o, const Window& w1, const Window& w2, WindowBasis<T>& b1,
                        WindowBasis<T>& b2) {
-  if (!w1.times_yr.empty() || !w2.times_yr.empty() || !detail::window_domain(o)) {
+  if (!detail::pair_batch(o, w1, w2)) {
     b1 = window_basis(o, w1);
     b2 = window_basis(o, w2);
     return;
   }
   T m[4];
-  detail::window_end_anomalies(o, w1, m[0], m[1]);
-  detail::window_end_anomalies(o, w2, m[2], m[3]);
   KeplerState<T> k[4];
-  kepler_states4(m, o.ecc, k);
+  detail::pair_end_states(o, w1, w2, m, k);
   b1 = detail::continuous_window_basis(o, w1, m[0], k[0], k[1]);
   b2 = detail::continuous_window_basis(o, w2, m[2], k[2], k[3]);
 }
