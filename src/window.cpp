@@ -27,6 +27,31 @@ __attribute__((target_clones("arch=x86-64-v3", "default"))) void window_fits_lan
                                              {l.e_e[i], l.sin_e[i], l.cos_e[i]});
   }
 }
+
+// The derivatives in ln P of the moments m0 = int f dtau and m1 = int f tau
+// dtau over [ts, te] of a function f of the mean anomaly alone, from its
+// values fs, fe at the ends: with sigma = tau + d the time since the
+// orbit's reference epoch, df/d ln P = -sigma df/dtau, and by parts
+// int -sigma f' dtau = m0 - [tau f] - d [f] and
+// int -sigma f' tau dtau = 2 m1 - [tau^2 f] - d ([tau f] - m0).
+void moments_dlnp(double ts, double te, double d, double fs, double fe, double m0, double m1, double& g0,
+                  double& g1) {
+  const double ends1 = te * fe - ts * fs, ends2 = te * te * fe - ts * ts * fs;
+  g0 = m0 - ends1 - d * (fe - fs);
+  g1 = 2.0 * m1 - ends2 - d * (ends1 - m0);
+}
+
+void continuous_dlnp(const Orbit<double>& o, const Window& w, double m_start, const KeplerState<double>& ks,
+                     const KeplerState<double>& ke, WindowBasis<double>& b, WindowBasis<double>& db) {
+  const detail::WindowMoments<double> m = detail::continuous_window_moments(o, w, m_start, ks, ke);
+  b = detail::continuous_line_fit(w, m);
+  const double ts = w.start_yr - w.ref_epoch_yr, te = w.end_yr - w.ref_epoch_yr;
+  const double d = w.ref_epoch_yr - o.ref_epoch_yr, e = o.ecc, rb = std::sqrt(1.0 - e * e);
+  detail::WindowMoments<double> g;
+  moments_dlnp(ts, te, d, ks.cos_E - e, ke.cos_E - e, m.sx, m.sxt, g.sx, g.sxt);
+  moments_dlnp(ts, te, d, rb * ks.sin_E, rb * ke.sin_E, m.sy, m.syt, g.sy, g.syt);
+  db = detail::continuous_line_fit(w, g);
+}
 }  // namespace
 
 void window_basis_pairs(const Orbit<double>* o, std::size_t n, const Window& w1, const Window& w2,
@@ -82,32 +107,6 @@ void window_basis_pairs(const Orbit<double>* o, std::size_t n, const Window& w1,
   }
 }
 
-namespace {
-// The derivatives in ln P of the moments m0 = int f dtau and m1 = int f tau
-// dtau over [ts, te] of a function f of the mean anomaly alone, from its
-// values fs, fe at the ends: with sigma = tau + d the time since the
-// orbit's reference epoch, df/d ln P = -sigma df/dtau, and by parts
-// int -sigma f' dtau = m0 - [tau f] - d [f] and
-// int -sigma f' tau dtau = 2 m1 - [tau^2 f] - d ([tau f] - m0).
-void moments_dlnp(double ts, double te, double d, double fs, double fe, double m0, double m1, double& g0,
-                  double& g1) {
-  const double ends1 = te * fe - ts * fs, ends2 = te * te * fe - ts * ts * fs;
-  g0 = m0 - ends1 - d * (fe - fs);
-  g1 = 2.0 * m1 - ends2 - d * (ends1 - m0);
-}
-
-void continuous_dlnp(const Orbit<double>& o, const Window& w, double m_start, const KeplerState<double>& ks,
-                     const KeplerState<double>& ke, WindowBasis<double>& b, WindowBasis<double>& db) {
-  const detail::WindowMoments<double> m = detail::continuous_window_moments(o, w, m_start, ks, ke);
-  b = detail::continuous_line_fit(w, m);
-  const double ts = w.start_yr - w.ref_epoch_yr, te = w.end_yr - w.ref_epoch_yr;
-  const double d = w.ref_epoch_yr - o.ref_epoch_yr, e = o.ecc, rb = std::sqrt(1.0 - e * e);
-  detail::WindowMoments<double> g;
-  moments_dlnp(ts, te, d, ks.cos_E - e, ke.cos_E - e, m.sx, m.sxt, g.sx, g.sxt);
-  moments_dlnp(ts, te, d, rb * ks.sin_E, rb * ke.sin_E, m.sy, m.syt, g.sy, g.syt);
-  db = detail::continuous_line_fit(w, g);
-}
-}  // namespace
 
 void window_basis_dlnp(const Orbit<double>& o, const Window& w, WindowBasis<double>& b, WindowBasis<double>& db) {
   if (!detail::window_domain(o)) {

@@ -221,7 +221,8 @@ void window_basis_pairs(const Orbit<double>* o, std::size_t n, const Window& w1,
 /// alone, so dX/d ln P = -(t - t0) dX/dt; over a continuous window,
 /// integration by parts turns its moments into X at the ends and the
 /// moments of X itself (docs/method.md, "The window fits' derivative in
-/// ln P"), at no cost beyond window_basis. Agrees with Ceres' automatic
+/// ln P"), a few operations beyond window_basis (no further Kepler solve;
+/// discrete windows take Ceres' Jet). Agrees with Ceres' automatic
 /// derivative through window_basis to round-off (tests/window_test.cpp).
 void window_basis_dlnp(const Orbit<double>& o, const Window& w, WindowBasis<double>& b, WindowBasis<double>& db);
 
