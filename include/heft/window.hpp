@@ -90,9 +90,8 @@ WindowBasis<T> line_fit(const T& s0, const T& s1, const T& s2, const T& sx, cons
   return {(sx - xs * s1) / s0, xs, (sy - ys * s1) / s0, ys};
 }
 
-/// The data moments of a window, tau = t - t_ref: sx = int X dtau,
-/// sxt = int X tau dtau, sy and syt alike (sums over the times for a
-/// discrete window).
+/// The data moments of a continuous window, tau = t - t_ref:
+/// sx = int X dtau, sxt = int X tau dtau, sy and syt alike.
 template <typename T>
 struct WindowMoments {
   T sx, sxt, sy, syt;
@@ -170,10 +169,6 @@ WindowBasis<T> window_basis(const Orbit<T>& o, const Window& w) {
   return detail::line_fit(s0, s1, s2, sx, sxt, sy, syt);
 }
 
-/// window_basis for two windows at once (the two catalogues): with both
-/// windows continuous, the four Kepler solves at their ends run as one
-/// four-lane batch (kepler_solutions4); equal to two window_basis calls to
-/// round-off (tests/window_test.cpp).
 namespace detail {
 /// Whether two windows' fits take one batch of four Kepler solves: both
 /// continuous, o in the domain.
@@ -191,6 +186,10 @@ void pair_end_states(const Orbit<T>& o, const Window& w1, const Window& w2, T m[
 }
 }  // namespace detail
 
+/// window_basis for two windows at once (the two catalogues): with both
+/// windows continuous, the four Kepler solves at their ends run as one
+/// four-lane batch (kepler_solutions4); equal to two window_basis calls to
+/// round-off (tests/window_test.cpp).
 template <typename T>
 void window_basis_pair(const Orbit<T>& o, const Window& w1, const Window& w2, WindowBasis<T>& b1,
                        WindowBasis<T>& b2) {
