@@ -920,6 +920,27 @@ TEST_CASE("total mass per draw: curves agree with plain prior sampling", "[curve
     d.dpm += Eigen::Vector4d(0.02, -0.03, 0.3, -0.2);
     compare(d, 5.0, Weighing::shared);
   }
+  SECTION("a separation the anomaly cannot tell: z samples from the log-uniform prior") {
+    // At 0.3 AU (P = 0.17 yr) the windows average the orbit out, the
+    // likelihood in z is broad, and the z samples come from the mass prior
+    // (not narrow_gaussian): its log-uniform draw is what sets the bands.
+    AnomalyData d = data(5.0, 4.0);
+    d.dpm += Eigen::Vector4d(0.02, -0.03, 0.3, -0.2);
+    opt.a_au = {0.3};
+    const Curve c = montecarlo_curve(d, opt, "total-mass");
+    REQUIRE(c.points.size() == 1);
+    REQUIRE(!c.upper_limit);
+    const CurvePoint& p = c.points[0];
+    const PlainSampling ref =
+        plain_sampling(d, 0.3, opt.prior.mass_prior(false), opt.prior.ecc, 400000, {0.16, 0.5, 0.84});
+    INFO("curve " << p.mass_lo68 << " / " << p.mass_med << " / " << p.mass_hi68 << ", plain "
+                  << ref.mass_quantiles[0] << " / " << ref.mass_quantiles[1] << " / " << ref.mass_quantiles[2]);
+    CHECK(ref.mass_quantiles[2] > 30.0);  // the upper half of the prior's range holds weight
+    CHECK(std::abs(c.log10_bayes - ref.log10_bayes) < 4.0 * std::hypot(c.log10_bayes_error, ref.log10_bayes_error));
+    CHECK(p.mass_lo68 == Approx(ref.mass_quantiles[0]).epsilon(0.08));
+    CHECK(p.mass_med == Approx(ref.mass_quantiles[1]).epsilon(0.08));
+    CHECK(p.mass_hi68 == Approx(ref.mass_quantiles[2]).epsilon(0.08));
+  }
   SECTION("short period, an upper limit (uniform mass prior)") {
     AnomalyData d = data(1.3, 0.0);
     d.dpm << 0.04, -0.02, 0.4, 0.3;
