@@ -154,7 +154,8 @@ constexpr int kMaxAdaptiveRounds = 3, kMaxRounds = kMaxAdaptiveRounds + 1;
 // for its prior half, kernel deviates, and picks (component, then kernel).
 struct ProposalDeviates {
   LargeVector<Draw> prior;
-  LargeVector<Eigen::Vector4d> kernel;  // (cos i, omega, M0, e) deviates
+  LargeVector<Eigen::Vector4d> kernel;     // (cos i, omega, M0, e) deviates
+  LargeVector<Eigen::Vector2d> angle_cdf;  // Phi of the omega and M0 deviates
   LargeVector<double> pick;
 };
 
@@ -244,10 +245,14 @@ void set_omega(const Draw& dr, double omega, double cos_omega, double sin_omega)
 }
 void set_omega(const Draw& dr, double omega) { set_omega(dr, omega, std::cos(omega), std::sin(omega)); }
 
-// Fills the parts of a draw that follow from its angles and host mass.
-void prepare_draw(Draw& dr, const ZPlanePrior& prior) {
+// Fills the parts of a draw that follow from its angles.
+void prepare_angles(Draw& dr) {
   dr.cos_i = std::cos(dr.inc);
   set_omega(dr, dr.omega);
+}
+// ... and from its host mass.
+void prepare_draw(Draw& dr, const ZPlanePrior& prior) {
+  prepare_angles(dr);
   prior.prepare(dr);
 }
 
@@ -338,6 +343,8 @@ const ProposalDeviates& proposal_deviates(DrawSet& ds, std::size_t k, const Anom
     for (int j = 0; j < opt.draws; ++j) pd.prior.push_back(prior_draw(d, opt, prior, ds.rng, ds.dev));
     for (int j = 0; j < opt.draws; ++j)
       pd.kernel.emplace_back(ds.rng.normal(), ds.rng.normal(), ds.rng.normal(), ds.rng.normal());
+    pd.angle_cdf.reserve(opt.draws);
+    for (const Eigen::Vector4d& n : pd.kernel) pd.angle_cdf.emplace_back(normal_cdf(n(1)), normal_cdf(n(2)));
     for (int j = 0; j < 2 * opt.draws; ++j) pd.pick.push_back(ds.rng.uniform());
   }
   return ds.proposal[k];
@@ -1527,19 +1534,27 @@ struct Proposal {
   Coords width = Coords::Zero();
 };
 
-// A kernel's offset in an angle from the standard normal deviate n, for
-// width w: the Gaussian truncated to [-pi, pi] by the inverse of its
+// A kernel's width w in an angle, with t = pi / w and Phi(-t), the mass
+// its truncation to [-pi, pi] removes from either side (kernel_offset).
+struct AngleWidth {
+  double w, t, tail;
+};
+AngleWidth angle_width(double w) {
+  const double t = units::kPi / w;
+  return {w, t, normal_cdf(-t)};
+}
+
+// A kernel's offset in an angle from the standard normal deviate n, with
+// u = Phi(n) (drawn once per curve: ProposalDeviates::angle_cdf), for the
+// width a: the Gaussian truncated to [-pi, pi] by the inverse of its
 // distribution function, so that the density KernelMixture gives (the
 // nearest image's) is exact. Wrapped instead, a kernel as wide as the
 // widths' cap (2 rad) has twice that density at pi from its centre. Where
 // the truncation removes less than 1e-15 (w below pi / 8) the deviate is
 // used as it is.
-double kernel_offset(double n, double w) {
-  const double t = units::kPi / w;
-  if (t > 8.0) return w * n;
-  const double tail = 0.5 * std::erfc(t / std::numbers::sqrt2);  // Phi(-t)
-  const double u = 0.5 * std::erfc(-n / std::numbers::sqrt2);      // Phi(n)
-  return w * std::clamp(normal_quantile(tail + u * (1.0 - 2.0 * tail)), -t, t);
+double kernel_offset(const AngleWidth& a, double n, double u) {
+  if (a.t > 8.0) return a.w * n;
+  return a.w * std::clamp(normal_quantile(a.tail + u * (1.0 - 2.0 * a.tail)), -a.t, a.t);
 }
 
 // Ancestors by systematic resampling of n weighted draws (nz weights w
@@ -1663,6 +1678,7 @@ long weigh_proposal(const Problem& pb, const ProposalDeviates& pd, const Proposa
   const int nz = opt.z_samples;
   const std::size_t n = pd.prior.size(), n_anc = prop.anc.size();
   const bool table = omega_from_table(pb);
+  const std::array<AngleWidth, 2> angle = {angle_width(prop.width(1)), angle_width(prop.width(2))};
   long evaluations = 0;
 #pragma omp parallel
   {
@@ -1681,16 +1697,17 @@ long weigh_proposal(const Problem& pb, const ProposalDeviates& pd, const Proposa
           const std::size_t m = static_cast<std::size_t>(pd.pick[j + n] * n_anc) % n_anc;
           const Coords& a = prop.anc[m];
           dr.warm = prop.anc_warm[m];
-          if (table) dr.u_omega = 0.5 * std::erfc(-pd.kernel[j](1) / std::numbers::sqrt2);  // Phi: uniform
+          if (table) dr.u_omega = pd.angle_cdf[j](0);  // uniform
           Coords cc = a + prop.width.cwiseProduct(pd.kernel[j]);
-          for (int k = 1; k <= 2; ++k) cc(k) = wrap_2pi(a(k) + kernel_offset(pd.kernel[j](k), prop.width(k)));
+          for (int k = 1; k <= 2; ++k)
+            cc(k) = wrap_2pi(a(k) + kernel_offset(angle[k - 1], pd.kernel[j](k), pd.angle_cdf[j](k - 1)));
           if (opt.prior.ecc.kind == Distribution::Kind::kFixed) cc(3) = dr.ecc;
           inside = std::abs(cc(0)) <= 1.0;
           dr.inc = std::acos(std::clamp(cc(0), -1.0, 1.0));
           dr.omega = cc(1);
           dr.m0 = cc(2);
           dr.ecc = cc(3);
-          prepare_draw(dr, pb.prior);
+          prepare_angles(dr);  // the host mass and its prior are the prior draw's
         }
         const Coords cd = coords_of(dr);
         const double lp = inside ? log_prior_coords(cd, opt.prior.ecc) : -std::numeric_limits<double>::infinity();

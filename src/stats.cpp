@@ -59,6 +59,8 @@ double chi2_to_sigma(double chi2, int dof) {
   return sigma_from_log_p(chi2_log_survival(chi2, dof));
 }
 
+double normal_cdf(double x) { return 0.5 * std::erfc(-x / std::numbers::sqrt2); }
+
 double normal_quantile(double p) {
   if (!(p > 0.0 && p < 1.0)) {
     if (p == 0.0) return -std::numeric_limits<double>::infinity();
@@ -93,7 +95,7 @@ double normal_quantile(double p) {
         ((((d[0] * q + d[1]) * q + d[2]) * q + d[3]) * q + 1);
   }
   // ... refined by one Halley step on the exact CDF.
-  const double e = 0.5 * std::erfc(-x / std::numbers::sqrt2) - p;
+  const double e = normal_cdf(x) - p;
   const double u = e * std::sqrt(2 * std::numbers::pi) * std::exp(0.5 * x * x);
   return x - u / (1 + 0.5 * x * u);
 }

@@ -56,6 +56,16 @@ TEST_CASE("normal tail stays accurate far out (chi2 up to 1e4)", "[stats]") {
   }
 }
 
+TEST_CASE("normal distribution function", "[stats]") {
+  // Source: mpmath.ncdf at 30 digits (Debian python3-mpmath, run once by
+  // hand through /usr/bin/python3).
+  CHECK(normal_cdf(0.0) == 0.5);
+  CHECK(normal_cdf(-1.0) == Approx(0.158655253931457051).epsilon(1e-15));
+  CHECK(normal_cdf(3.0) == Approx(0.998650101968369905).epsilon(1e-15));
+  CHECK(normal_cdf(-8.0) == Approx(6.22096057427178412e-16).epsilon(1e-13));  // the far tail, relative
+  CHECK(normal_cdf(normal_quantile(0.025)) == Approx(0.025).epsilon(1e-14));
+}
+
 TEST_CASE("normal quantile", "[stats]") {
   // Source: Phi(1.959963984540054) = 0.975 (common practice, from memory).
   CHECK(normal_quantile(0.975) == Approx(1.959963984540054).epsilon(1e-13));

@@ -35,6 +35,9 @@ double sigma_from_log_p(double log_p);
 /// degrees of freedom: sigma_from_log_p(chi2_log_survival(chi2, dof)).
 double chi2_to_sigma(double chi2, int dof);
 
+/// Standard normal distribution function Phi(x) = erfc(-x / sqrt 2) / 2.
+double normal_cdf(double x);
+
 /// Standard normal quantile Phi^{-1}(p), 0 < p < 1 (Acklam's rational
 /// approximation refined by one Halley step; ~1e-15 relative).
 double normal_quantile(double p);
