@@ -299,9 +299,9 @@ Draw prior_draw(const AnomalyData& d, const CurveOptions& opt, const ZPlanePrior
   do dr.m1 = d.host_mass_msun + d.host_mass_error_msun * rng.normal(); while (!(dr.m1 > kMinHostMsun));
   do dr.plx = d.parallax_mas + d.parallax_error_mas * rng.normal(); while (!(dr.plx > 0));
   dr.dev = dev.size();
-  // Each sample's four uniforms in the stream's order, as its two
-  // rng.normal() calls and two uniforms drew them; a spare normal pending
-  // in the stream (after an odd number of normals before, as a beta
+  // Each sample takes four uniforms from the stream, in the order that two
+  // rng.normal() calls and two uniforms would; a spare normal pending in
+  // the stream (after an odd number of normals before, as a beta
   // eccentricity prior's gamma deviates may leave) is left for the next
   // rng.normal().
   DeviateLanes l;
@@ -1545,7 +1545,7 @@ AngleWidth angle_width(double w) {
 }
 
 // A kernel's offset in an angle from the standard normal deviate n, with
-// u = Phi(n) (drawn once per curve: ProposalDeviates::angle_cdf), for the
+// u = Phi(n) (computed once per curve: ProposalDeviates::angle_cdf), for the
 // width a: the Gaussian truncated to [-pi, pi] by the inverse of its
 // distribution function, so that the density KernelMixture gives (the
 // nearest image's) is exact. Wrapped instead, a kernel as wide as the
