@@ -130,6 +130,13 @@ double log1m_norm(const Eigen::Vector2d& z) {
   const double q = z.norm();
   return q < 1.0 ? std::log1p(-q) : -std::numeric_limits<double>::infinity();
 }
+// log(1 - q) for q >= 0, -inf where q >= 1, by log_positive and selects
+// only, for loops in vector lanes: absolute to 1e-16 where log1p is
+// relative, enough for log weights and periods. The argument of the log
+// is a positive normal number wherever the result is used.
+[[gnu::always_inline]] inline double log1m_lanes(double q) {
+  return q < 1.0 ? log_positive(q < 1.0 ? 1.0 - q : 1.0) : -std::numeric_limits<double>::infinity();
+}
 
 // The random numbers of one z sample of a draw: standard normal deviates
 // for a Gaussian proposal about the best z, and a draw of z from the mass
@@ -262,8 +269,7 @@ void prepare_draw(Draw& dr, const ZPlanePrior& prior) {
 // (u_r, u_phi), as Rng::normal draws it, and the prior's z at the node
 // 2 pi u_node with m2 from u_q (ZPlanePrior::draw_m2) for the host m1.
 // libm's log, sin, cos, pow and log1p per sample were 9 % of a curve at
-// S/N 10. The logs are log_positive; log(1 - q) is absolute to 1e-16, as
-// in period_lanes.
+// S/N 10. The logs are log_positive (log1m_lanes).
 struct DeviateLanes {
   std::array<double, kSampleLanes> u_r, u_phi, u_q, u_node;  ///< uniform deviates, in
   std::array<double, kSampleLanes> n1, n2, z1, z2, log_1mq;   ///< out
@@ -281,7 +287,7 @@ __attribute__((target_clones("arch=x86-64-v3", "default"), optimize("fp-contract
     l.n2[i] = r * phi.sin;
     l.z1[i] = z1;
     l.z2[i] = z2;
-    l.log_1mq[i] = qn < 1.0 ? log_positive(qn < 1.0 ? 1.0 - qn : 1.0) : -std::numeric_limits<double>::infinity();
+    l.log_1mq[i] = log1m_lanes(qn);
   }
 }
 
@@ -1237,9 +1243,8 @@ __attribute__((target_clones("arch=x86-64-v3", "default"), optimize("fp-contract
   for (int i = 0; i < n; ++i) {
     const ZPoint d = gaussian_z_offset(f, l.n1[i], l.n2[i]);
     const double z1 = zh1 + d.z1, z2 = zh2 + d.z2, q = std::sqrt(z1 * z1 + z2 * z2);
-    // the logs' arguments positive normal numbers wherever they are used
-    const double log_1mq = q < 1.0 ? log_positive(q < 1.0 ? 1.0 - q : 1.0) : -std::numeric_limits<double>::infinity();
-    const double log_q = log_positive(q > q_lo ? q : 1.0);
+    // log_q's argument a positive normal number wherever it is used
+    const double log_1mq = log1m_lanes(q), log_q = log_positive(q > q_lo ? q : 1.0);
     l.z1[i] = z1;
     l.z2[i] = z2;
     l.q[i] = q;

@@ -24,7 +24,7 @@ double chi2_log_survival(double chi2, int dof) {
 }
 
 double log_normal_upper_tail(double z) {
-  if (z < 8.0) return std::log(0.5 * std::erfc(z / std::numbers::sqrt2));
+  if (z < 8.0) return std::log(normal_cdf(-z));
   // Mills' ratio R(z) = Phi(-z)/phi(z) = 1/(z+ 1/(z+ 2/(z+ 3/(z+ ...)))),
   // evaluated backwards; 60 levels are far more than needed for z >= 8.
   double cf = z;
